@@ -1,0 +1,202 @@
+"""Frozen values passed between layers.
+
+Nothing here touches the store, the CLI or the UI. Arrays are numpy arrays in
+the canonical layout described on each class; the store keeps them as blobs.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import re
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+NODE_ID_DTYPE = np.str_
+INDEX_DTYPE = np.int64
+WEIGHT_DTYPE = np.float64
+
+
+def encode_node_ids(node_ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Pack string node ids as (offsets int64 of length n+1, UTF-8 bytes uint8).
+
+    The packed form is what gets stored and hashed: it has no pickled objects
+    and no fixed-width padding, so it stays small for long ids.
+    """
+    encoded = [str(x).encode("utf-8") for x in node_ids.tolist()]
+    lengths = np.fromiter((len(b) for b in encoded), dtype=np.int64, count=len(encoded))
+    offsets = np.zeros(len(encoded) + 1, dtype=np.int64)
+    np.cumsum(lengths, out=offsets[1:])
+    data = np.frombuffer(b"".join(encoded), dtype=np.uint8)
+    return offsets, data
+
+
+def decode_node_ids(offsets: np.ndarray, data: np.ndarray) -> np.ndarray:
+    """Inverse of :func:`encode_node_ids`; returns a numpy ``str`` array."""
+    raw = data.tobytes()
+    off = offsets.tolist()
+    ids = [raw[off[i]:off[i + 1]].decode("utf-8") for i in range(len(off) - 1)]
+    return np.array(ids, dtype=NODE_ID_DTYPE) if ids else np.array([], dtype="<U1")
+
+
+@dataclass(frozen=True, eq=False)
+class GraphData:
+    """An undirected weighted graph in canonical form.
+
+    Attributes
+    ----------
+    node_ids : ndarray of str, shape (n,)
+        Unique node ids, sorted ascending by code point. Row ``i`` of every
+        matrix built from this graph is node ``node_ids[i]``.
+    edge_u, edge_v : ndarray of int64, shape (m,)
+        Endpoint indices into ``node_ids`` with ``edge_u <= edge_v`` (equality
+        only for kept self-loops); pairs sorted lexicographically, unique.
+    weight : ndarray of float64, shape (m,)
+        Positive finite edge weights (1.0 for unweighted input).
+    """
+
+    node_ids: np.ndarray
+    edge_u: np.ndarray
+    edge_v: np.ndarray
+    weight: np.ndarray
+
+    @property
+    def n_nodes(self) -> int:
+        return int(self.node_ids.shape[0])
+
+    @property
+    def n_edges(self) -> int:
+        return int(self.edge_u.shape[0])
+
+    def adjacency(self):
+        """Symmetric ``scipy.sparse.csr_array`` A with A[u, v] = A[v, u] = w.
+
+        A kept self-loop (u, u, w) puts w on the diagonal once.
+        """
+        import scipy.sparse as sp
+
+        n = self.n_nodes
+        off = self.edge_u != self.edge_v
+        rows = np.concatenate([self.edge_u, self.edge_v[off]])
+        cols = np.concatenate([self.edge_v, self.edge_u[off]])
+        vals = np.concatenate([self.weight, self.weight[off]])
+        A = sp.csr_array((vals, (rows, cols)), shape=(n, n))
+        A.sum_duplicates()
+        A.sort_indices()
+        return A
+
+    def content_hash(self) -> str:
+        """sha256 (hex) over the canonical raw bytes.
+
+        Layout hashed, in order: the tag ``b"cutbook-graph-1\\0"``; n and m as
+        little-endian int64; node-id offsets (int64 LE) and UTF-8 bytes;
+        ``edge_u``, ``edge_v`` (int64 LE); ``weight`` (float64 LE). Equal graphs
+        therefore hash equal whatever file, line order or endpoint order they
+        came from.
+        """
+        offsets, data = encode_node_ids(self.node_ids)
+        h = hashlib.sha256(b"cutbook-graph-1\0")
+        h.update(np.array([self.n_nodes, self.n_edges], dtype="<i8").tobytes())
+        h.update(offsets.astype("<i8", copy=False).tobytes())
+        h.update(data.tobytes())
+        h.update(np.ascontiguousarray(self.edge_u, dtype="<i8").tobytes())
+        h.update(np.ascontiguousarray(self.edge_v, dtype="<i8").tobytes())
+        h.update(np.ascontiguousarray(self.weight, dtype="<f8").tobytes())
+        return h.hexdigest()
+
+
+_REF = re.compile(r"^(?P<project>[^/@\s]+)/(?P<network>[^/@\s]+)(?:@(?P<version>\d+))?$")
+
+
+@dataclass(frozen=True)
+class VersionRef:
+    """``project/network[@version]``; ``version=None`` means the latest."""
+
+    project: str
+    network: str
+    version: int | None = None
+
+    @classmethod
+    def parse(cls, text: str) -> "VersionRef":
+        from workspace.errors import UsageError
+
+        m = _REF.match(text.strip())
+        if not m:
+            raise UsageError(f"not a network reference: {text!r} (expected project/network[@version])")
+        v = m.group("version")
+        return cls(m.group("project"), m.group("network"), int(v) if v is not None else None)
+
+    def __str__(self) -> str:
+        base = f"{self.project}/{self.network}"
+        return base if self.version is None else f"{base}@{self.version}"
+
+
+@dataclass(frozen=True)
+class ImportPolicy:
+    """How a file becomes a canonical graph. Every field is recorded on the version.
+
+    Attributes
+    ----------
+    duplicates : {"sum", "max", "first", "error"}
+        What to do when a pair appears more than once (reversed pairs count).
+    self_loops : {"drop", "keep", "error"}
+    directed : {"error", "sum", "max", "min", "mean"}
+        How asymmetric directed input is symmetrised; "error" refuses it.
+    weight : str or int or None
+        Weight column by name or 0-based index (delimited files) or attribute
+        name (GraphML, JSON); None means unweighted (weight 1).
+    numeric_ids : bool
+        Coerce node ids to integers (``"007"`` -> ``"7"``); off by default.
+    comment : str or None
+        Comment character for delimited files; none by default.
+    delimiter : str or None
+        ``","``, ``"\\t"``, ``"whitespace"`` …; None means by file extension.
+    header : {"auto", "yes", "no"}
+    """
+
+    duplicates: str = "max"
+    self_loops: str = "drop"
+    directed: str = "error"
+    weight: str | int | None = None
+    numeric_ids: bool = False
+    comment: str | None = None
+    delimiter: str | None = None
+    header: str = "auto"
+
+    def as_dict(self) -> dict[str, Any]:
+        from dataclasses import asdict
+
+        return asdict(self)
+
+
+@dataclass(frozen=True)
+class ImportReport:
+    """What an import found; stored with the version and printed.
+
+    ``weight_summary`` holds min/max/mean/median/total of the kept weights.
+    ``component_sizes`` lists sizes in descending order (at most 50, with
+    ``components`` the full count).
+    """
+
+    source: str
+    format: str
+    records_read: int
+    nodes: int
+    edges: int
+    components: int
+    component_sizes: list[int]
+    isolated_nodes: int
+    self_loops_found: int
+    self_loops_kept: int
+    duplicates_merged: int
+    asymmetric_pairs: int
+    zero_weight_dropped: int
+    weighted: bool
+    weight_summary: dict[str, float]
+    notes: list[str] = field(default_factory=list)
+
+    def as_dict(self) -> dict[str, Any]:
+        from dataclasses import asdict
+
+        return asdict(self)
