@@ -200,3 +200,42 @@ class ImportReport:
         from dataclasses import asdict
 
         return asdict(self)
+
+
+def canonical_labels(labels: np.ndarray) -> np.ndarray:
+    """Renumber community labels 0, 1, 2, … by first appearance in node order.
+
+    A label of -1 ("not assigned", e.g. a node missing from an attached file)
+    stays -1. Returns int64. Two labelings that define the same partition give
+    the same canonical array.
+    """
+    labels = np.asarray(labels)
+    out = np.full(labels.shape[0], -1, dtype=np.int64)
+    assigned = labels >= 0
+    if not assigned.any():
+        return out
+    values = labels[assigned]
+    uniq, first_index, inverse = np.unique(values, return_index=True, return_inverse=True)
+    order = np.argsort(first_index, kind="stable")
+    rank = np.empty_like(order)
+    rank[order] = np.arange(order.shape[0])
+    out[assigned] = rank[inverse]
+    return out
+
+
+def membership_hash(labels: np.ndarray) -> str:
+    """sha256 (hex) of ``b"cutbook-membership-1\\0"`` + n (int64 LE) + canonical labels (int64 LE)."""
+    canon = canonical_labels(labels)
+    h = hashlib.sha256(b"cutbook-membership-1\0")
+    h.update(np.array([canon.shape[0]], dtype="<i8").tobytes())
+    h.update(canon.astype("<i8", copy=False).tobytes())
+    return h.hexdigest()
+
+
+def compact_label_dtype(labels: np.ndarray) -> np.dtype:
+    """Smallest signed integer dtype that holds ``labels`` (so -1 still fits)."""
+    top = int(labels.max()) if labels.size else 0
+    for dt in (np.int8, np.int16, np.int32):
+        if top <= np.iinfo(dt).max:
+            return np.dtype(dt)
+    return np.dtype(np.int64)

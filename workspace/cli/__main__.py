@@ -1,0 +1,5 @@
+import sys
+
+from workspace.cli import main
+
+sys.exit(main())

@@ -1,0 +1,157 @@
+"""Commands: import, projects, networks, versions, show, changes."""
+
+from __future__ import annotations
+
+from workspace.cli.common import emit_json, progress_bar, session
+
+
+def _policy(args):
+    from workspace.domain import ImportPolicy
+
+    weight = args.weight
+    if weight is not None and weight.isdigit():
+        weight = int(weight)
+    delimiter = {"tab": "\t", "\\t": "\t", "comma": ",", "space": "whitespace"}.get(args.delimiter, args.delimiter)
+    return ImportPolicy(duplicates=args.duplicates, self_loops=args.self_loops, directed=args.directed,
+                        weight=weight, numeric_ids=args.numeric_ids, comment=args.comment,
+                        delimiter=delimiter, header=args.header)
+
+
+def print_report(out, report: dict) -> None:
+    ws = report.get("weight_summary") or {}
+    sizes = report.get("component_sizes") or []
+    shown = ", ".join(str(s) for s in sizes[:8]) + (" …" if len(sizes) > 8 or report["components"] > len(sizes) else "")
+    out.fields([
+        ("source", f"{report['source']} ({report['format']}, {report['records_read']} records)"),
+        ("nodes", report["nodes"]),
+        ("edges", report["edges"]),
+        ("components", f"{report['components']} (sizes {shown})"),
+        ("isolated nodes", report["isolated_nodes"]),
+        ("self-loops", f"{report['self_loops_found']} found, {report['self_loops_kept']} kept"),
+        ("duplicates merged", report["duplicates_merged"]),
+        ("asymmetric pairs", report["asymmetric_pairs"]),
+        ("zero weights dropped", report["zero_weight_dropped"]),
+        ("weights", "none (all 1)" if not report["weighted"] else
+         f"min {ws.get('min'):.4g}  median {ws.get('median'):.4g}  mean {ws.get('mean'):.4g}  "
+         f"max {ws.get('max'):.4g}  total {ws.get('total'):.6g}"),
+    ])
+    for n in report.get("notes") or []:
+        out.line(f"  note: {n}")
+
+
+def cmd_import(args) -> int:
+    from workspace.services.networks import import_network
+
+    with session(args) as (store, out), progress_bar() as bar:
+        res = import_network(store, args.file, project=args.project, network=args.network, format=args.format,
+                             policy=_policy(args), message=args.message, progress=bar)
+        bar.close()
+        if args.json:
+            emit_json(res.to_dict())
+            return 0
+        if res.new_version:
+            out.line(f"imported {res.ref}: {res.nodes} nodes, {res.edges} edges  [{res.content_hash[:12]}]")
+        else:
+            out.line(f"unchanged: content equals {res.ref}; no new version made  [{res.content_hash[:12]}]")
+        print_report(out, res.report)
+    return 0
+
+
+def cmd_projects(args) -> int:
+    from workspace.services.networks import list_projects
+
+    with session(args) as (store, out):
+        rows = list_projects(store)
+        if args.json:
+            emit_json(rows)
+        elif not rows:
+            out.line("no projects yet — start with: cutbook import FILE --project P --network N")
+        else:
+            out.table(["project", "networks", "created"], [(r["project"], r["networks"], r["created"]) for r in rows],
+                      right=["networks"])
+    return 0
+
+
+def cmd_networks(args) -> int:
+    from workspace.services.networks import list_networks
+
+    with session(args) as (store, out):
+        rows = list_networks(store, args.project)
+        if args.json:
+            emit_json(rows)
+        elif not rows:
+            out.line("no networks")
+        else:
+            out.table(["network", "latest", "created"],
+                      [(f"{r['project']}/{r['network']}", r["latest_version"], r["created"]) for r in rows],
+                      right=["latest"])
+    return 0
+
+
+def cmd_versions(args) -> int:
+    from workspace.services.networks import list_versions
+
+    with session(args) as (store, out):
+        rows = list_versions(store, args.network)
+        if args.json:
+            emit_json(rows)
+        else:
+            out.table(["version", "nodes", "edges", "hash", "created", "source", "message"],
+                      [(r["version"], r["nodes"], r["edges"], r["content_hash"][:12], r["created"], r["source"],
+                        r["message"]) for r in rows], right=["version", "nodes", "edges"])
+    return 0
+
+
+def print_changes(out, ch: dict, limit: int | None) -> None:
+    out.fields([("nodes added", ch["nodes_added"]), ("nodes removed", ch["nodes_removed"]),
+                ("edges added", ch["edges_added"]), ("edges removed", ch["edges_removed"]),
+                ("weights changed", ch["weights_changed"])])
+    for key, label in (("added_nodes", "+ node"), ("removed_nodes", "- node")):
+        for item in (ch.get(key) or [])[: limit or None]:
+            out.line(f"  {label} {item}")
+    for key, label in (("added_edges", "+ edge"), ("removed_edges", "- edge")):
+        for e in (ch.get(key) or [])[: limit or None]:
+            out.line(f"  {label} {e[0]} — {e[1]}")
+    for e in (ch.get("changed_weights") or [])[: limit or None]:
+        out.line(f"  ~ edge {e[0]} — {e[1]}: {e[2]:g} -> {e[3]:g}")
+
+
+def cmd_show(args) -> int:
+    target = args.target
+    if "/" not in target:
+        from workspace.cli.runs import show_run
+
+        return show_run(args)
+    from workspace.services.networks import show_version
+
+    with session(args) as (store, out):
+        info = show_version(store, target, change_limit=args.limit)
+        if args.json:
+            emit_json(info)
+            return 0
+        out.line(f"{info['ref']}   {info['nodes']} nodes, {info['edges']} edges   hash {info['content_hash']}")
+        out.fields([("created", info["created"]), ("message", info["message"] or "-"),
+                    ("parent", info["parent"] or "- (first version)")])
+        out.line("")
+        out.line("import report")
+        print_report(out, info["report"])
+        out.line("")
+        out.line("policies  " + "  ".join(f"{k}={v}" for k, v in info["policy"].items()))
+        if info["changes_from_parent"] is not None:
+            out.line("")
+            out.line(f"changes from {info['parent']}")
+            print_changes(out, info["changes_from_parent"], args.limit)
+    return 0
+
+
+def cmd_changes(args) -> int:
+    from workspace.services.networks import version_changes
+
+    with session(args) as (store, out):
+        ch = version_changes(store, args.a, args.b, limit=args.limit)
+        if args.json:
+            emit_json(ch)
+        else:
+            out.line(f"changes {ch['a']} -> {ch['b']}")
+            print_changes(out, ch, args.limit if args.limit is not None else 20)
+    return 0

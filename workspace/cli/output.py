@@ -1,0 +1,142 @@
+"""Rendering for the CLI: JSON to stdout, human text to stdout (or stderr under --json),
+progress on stderr. Imports rich lazily so `cutbook --help` stays quick."""
+
+from __future__ import annotations
+
+import json
+import math
+import sys
+import time
+from typing import Any, Iterable, Sequence
+
+
+def _default(o: Any):
+    import numpy as np
+
+    if isinstance(o, np.integer):
+        return int(o)
+    if isinstance(o, np.floating):
+        return None if not math.isfinite(float(o)) else float(o)
+    if isinstance(o, np.ndarray):
+        return o.tolist()
+    if hasattr(o, "isoformat"):
+        return o.isoformat()
+    raise TypeError(f"not JSON serialisable: {type(o).__name__}")
+
+
+def _clean(o: Any):
+    """Replace non-finite floats by None so the output is strict JSON."""
+    if isinstance(o, float):
+        return o if math.isfinite(o) else None
+    if isinstance(o, dict):
+        return {k: _clean(v) for k, v in o.items()}
+    if isinstance(o, (list, tuple)):
+        return [_clean(v) for v in o]
+    return o
+
+
+def emit_json(doc: Any) -> None:
+    sys.stdout.write(json.dumps(_clean(doc), default=_default, indent=2, allow_nan=False) + "\n")
+    sys.stdout.flush()
+
+
+class Out:
+    """Where human text goes: stdout normally, stderr when --json owns stdout."""
+
+    def __init__(self, json_mode: bool) -> None:
+        self.json_mode = json_mode
+        self._console = None
+
+    @property
+    def console(self):
+        if self._console is None:
+            from rich.console import Console
+
+            self._console = Console(file=sys.stderr if self.json_mode else sys.stdout, highlight=False,
+                                    soft_wrap=False)
+        return self._console
+
+    def line(self, text: str = "") -> None:
+        self.console.print(text, markup=False)
+
+    def rich(self, renderable) -> None:
+        self.console.print(renderable)
+
+    def note(self, text: str) -> None:
+        """A remark that is never part of the result: always stderr."""
+        sys.stderr.write(text + "\n")
+
+    def table(self, columns: Sequence[str], rows: Iterable[Sequence[Any]], *, title: str | None = None,
+              right: Sequence[str] = ()) -> None:
+        from rich import box
+        from rich.table import Table
+
+        t = Table(title=title, box=box.SIMPLE_HEAD, title_justify="left", pad_edge=False,
+                  header_style="bold")
+        for c in columns:
+            t.add_column(c, justify="right" if c in right else "left", overflow="fold")
+        for r in rows:
+            t.add_row(*[fmt(x) for x in r])
+        self.console.print(t)
+
+    def fields(self, pairs: Iterable[tuple[str, Any]], *, title: str | None = None) -> None:
+        pairs = list(pairs)
+        if title:
+            self.line(title)
+        width = max((len(k) for k, _ in pairs), default=0)
+        for k, v in pairs:
+            self.line(f"  {k.ljust(width)}  {fmt(v)}")
+
+
+def fmt(x: Any) -> str:
+    if x is None:
+        return "-"
+    if isinstance(x, bool):
+        return "yes" if x else "no"
+    if isinstance(x, float):
+        if not math.isfinite(x):
+            return str(x)
+        if x != 0 and (abs(x) < 1e-3 or abs(x) >= 1e6):
+            return f"{x:.4g}"
+        return f"{x:.4f}".rstrip("0").rstrip(".") if x != int(x) else f"{x:.0f}"
+    if isinstance(x, (list, tuple)):
+        return ", ".join(fmt(v) for v in x)
+    return str(x)
+
+
+class ProgressBar:
+    """A rich progress bar on stderr that appears only once work has run for a second.
+
+    Call it as ``progress(stage, done, total)``; ``total=None`` shows a spinner-like
+    count. ``close()`` removes it.
+    """
+
+    DELAY_S = 1.0
+
+    def __init__(self, enabled: bool = True) -> None:
+        self.enabled = enabled and sys.stderr.isatty()
+        self._t0 = time.monotonic()
+        self._progress = None
+        self._tasks: dict[str, int] = {}
+
+    def __call__(self, stage: str, done: int = 0, total: int | None = None) -> None:
+        if not self.enabled:
+            return
+        if self._progress is None:
+            if time.monotonic() - self._t0 < self.DELAY_S:
+                return
+            from rich.console import Console
+            from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+
+            self._progress = Progress(TextColumn("{task.description:>12}"), BarColumn(), MofNCompleteColumn(),
+                                      TimeElapsedColumn(), console=Console(file=sys.stderr), transient=True)
+            self._progress.start()
+        task = self._tasks.get(stage)
+        if task is None:
+            task = self._tasks[stage] = self._progress.add_task(stage, total=total)
+        self._progress.update(task, completed=done, total=total)
+
+    def close(self) -> None:
+        if self._progress is not None:
+            self._progress.stop()
+            self._progress = None

@@ -1,0 +1,135 @@
+"""Argument parsing for every ``cutbook`` command (no heavy imports here)."""
+
+from __future__ import annotations
+
+import argparse
+
+EPILOG = """\
+references: project/network[@version] (latest version when @version is left out).
+store: --store PATH|URL, else $CUTBOOK_STORE, else a file in your user data folder.
+exit codes: 0 ok, 1 failure, 2 usage, 3 not found, 4 conflict or lock, 130 cancelled.
+Every command takes --json: one JSON document on stdout, human text on stderr."""
+
+
+def _common() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(add_help=False)
+    p.add_argument("--store", default=argparse.SUPPRESS, metavar="PATH|URL",
+                   help="store to use (SQLite path or SQLAlchemy URL)")
+    p.add_argument("--json", action="store_true", help="print one JSON document on stdout")
+    return p
+
+
+def _handler(module: str, name: str):
+    def run(args):
+        import importlib
+
+        return getattr(importlib.import_module(f"workspace.cli.{module}"), name)(args)
+    return run
+
+
+def build_parser() -> argparse.ArgumentParser:
+    common = _common()
+    parser = argparse.ArgumentParser(
+        prog="cutbook", description="Versioned workspace for spectral network partitioning.",
+        epilog=EPILOG, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--store", default=None, metavar="PATH|URL",
+                        help="store to use (SQLite path or SQLAlchemy URL)")
+    parser.add_argument("--version", action="version", version="cutbook 0.1.0")
+    sub = parser.add_subparsers(title="commands", metavar="COMMAND")
+
+    def add(name, help_, module, func):
+        p = sub.add_parser(name, help=help_, description=help_, parents=[common])
+        p.set_defaults(handler=_handler(module, func))
+        return p
+
+    # --- networks --------------------------------------------------------------------
+    p = add("import", "import a network file as a new version", "networks", "cmd_import")
+    p.add_argument("file", help="edge list (CSV/TSV/whitespace), GraphML, Matrix Market or node-link JSON")
+    p.add_argument("--project", required=True, help="project name (created if new)")
+    p.add_argument("--network", required=True, help="network name (created if new)")
+    p.add_argument("--format", choices=["csv", "tsv", "edgelist", "graphml", "mtx", "json"],
+                   help="file format (default: by extension)")
+    p.add_argument("-m", "--message", default="", help="a note kept with the version")
+    g = p.add_argument_group("import policies (each recorded on the version)")
+    g.add_argument("--duplicates", choices=["sum", "max", "first", "error"], default="max",
+                   help="repeated pairs, reversed pairs included (default: max)")
+    g.add_argument("--self-loops", choices=["drop", "keep", "error"], default="drop",
+                   help="edges from a node to itself (default: drop)")
+    g.add_argument("--directed", choices=["error", "sum", "max", "min", "mean"], default="error",
+                   help="rule that makes directed input undirected; 'error' refuses asymmetric input")
+    g.add_argument("--weight", metavar="COLUMN",
+                   help="weight column by name or 0-based index (default: unweighted, weight 1)")
+    g.add_argument("--numeric-ids", action="store_true", help="read node ids as integers ('007' -> '7')")
+    g.add_argument("--comment", metavar="CHAR", help="comment character (default: none)")
+    g.add_argument("--delimiter", metavar="SEP", help="field separator: ',', 'tab', 'whitespace', ...")
+    g.add_argument("--header", choices=["auto", "yes", "no"], default="auto",
+                   help="first line names the columns (default: auto)")
+
+    add("projects", "list projects", "networks", "cmd_projects")
+    p = add("networks", "list networks", "networks", "cmd_networks")
+    p.add_argument("--project", help="only this project")
+    p = add("versions", "list the versions of a network", "networks", "cmd_versions")
+    p.add_argument("network", metavar="PROJECT/NETWORK")
+    p = add("show", "show a network version (project/network[@V]) or a run (its id)", "networks", "cmd_show")
+    p.add_argument("target", metavar="REF|RUN")
+    p.add_argument("--limit", type=int, default=20, help="how many changed items to list (default 20)")
+    p = add("changes", "structural changes between two versions", "networks", "cmd_changes")
+    p.add_argument("a", metavar="P/N@A")
+    p.add_argument("b", metavar="P/N@B")
+    p.add_argument("--limit", type=int, default=None, help="list at most this many items per kind")
+
+    # --- parameter sets ----------------------------------------------------------------
+    p = add("params", "save, list and show named parameter sets", "params", "cmd_params")
+    psub = p.add_subparsers(dest="params_action", metavar="ACTION", required=True)
+    q = psub.add_parser("save", help="save values as a parameter set (a new version if they differ)",
+                        parents=[common])
+    q.add_argument("name", metavar="PROJECT/NAME")
+    q.add_argument("--method", required=True, help="method id (see `cutbook methods`)")
+    q.add_argument("--k", help="number of communities, or 'auto' where the method can choose")
+    q.add_argument("--set", action="append", default=[], metavar="KEY=VALUE", help="a method parameter")
+    q = psub.add_parser("list", help="list parameter sets", parents=[common])
+    q.add_argument("project", nargs="?")
+    q = psub.add_parser("show", help="show a parameter set version", parents=[common])
+    q.add_argument("name", metavar="PROJECT/NAME[@V]")
+
+    p = add("methods", "list partition methods and their parameters", "params", "cmd_methods")
+    p.add_argument("method", nargs="?", help="show one method in full")
+
+    # --- runs --------------------------------------------------------------------------
+    p = add("run", "partition a network version", "runs", "cmd_run")
+    p.add_argument("ref", metavar="PROJECT/NETWORK[@V]")
+    how = p.add_mutually_exclusive_group(required=True)
+    how.add_argument("--params", metavar="PROJECT/NAME[@V]", help="a saved parameter set")
+    how.add_argument("--method", help="method id (see `cutbook methods`)")
+    p.add_argument("--set", action="append", default=[], metavar="KEY=VALUE",
+                   help="a method parameter (overrides the parameter set's value)")
+    p.add_argument("--k", help="number of communities, or 'auto'")
+    p.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
+    p.add_argument("--repeats", type=int, default=1,
+                   help="repeat with seeds seed..seed+N-1 for a consensus and per-node stability")
+    p.add_argument("--perturb", type=float, default=None,
+                   help="with --repeats: share of edges each repeat drops at random (default 0.1)")
+
+    p = add("rerun", "repeat a run from its record and check the membership is identical", "runs", "cmd_rerun")
+    p.add_argument("run", type=int)
+
+    p = add("attach", "store a partition from a node,community CSV as a run", "runs", "cmd_attach")
+    p.add_argument("file")
+    p.add_argument("--to", required=True, metavar="PROJECT/NETWORK[@V]")
+    p.add_argument("--label", required=True, help="what this grouping is, e.g. 'field-survey'")
+
+    p = add("runs", "list runs, newest first", "runs", "cmd_runs")
+    p.add_argument("ref", nargs="?", metavar="PROJECT[/NETWORK[@V]]")
+    p.add_argument("--status", choices=["running", "done", "failed", "cancelled", "interrupted"])
+    p.add_argument("--limit", type=int, default=None)
+
+    p = add("export", "write a run's membership to a file", "runs", "cmd_export")
+    p.add_argument("run", type=int)
+    p.add_argument("--format", choices=["csv", "json", "graphml"], default="csv")
+    p.add_argument("-o", "--output", required=True, metavar="FILE")
+
+    p = add("where", "a node's community in every run of every version", "runs", "cmd_where")
+    p.add_argument("node")
+    p.add_argument("--network", required=True, metavar="PROJECT/NETWORK")
+
+    return parser

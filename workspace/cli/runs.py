@@ -1,0 +1,165 @@
+"""Commands: run, rerun, attach, runs, show RUN, export, where."""
+
+from __future__ import annotations
+
+import sys
+
+from workspace.cli.common import emit_json, progress_bar, session
+from workspace.cli.output import fmt
+
+SCALAR_MEASURES = ("modularity", "normalized_cut", "conductance", "ratio_cut", "cut", "coverage")
+
+
+def _print_run(out, r: dict) -> None:
+    what = r["method"] if r["kind"] == "computed" else f"attached '{r['label']}'"
+    out.line(f"run {r['run']}  {r['status']}  {what} on {r['ref']}  k={fmt(r['k'])}"
+             + (f"  seed={r['seed']}" if r.get("seed") is not None else "")
+             + (f"  repeats={r['repeats']}" if (r.get("repeats") or 1) > 1 else ""))
+    if r.get("error"):
+        out.line(f"  error: {r['error']}")
+    q = r.get("quality") or {}
+    shown = [(name, q[name]) for name in SCALAR_MEASURES if isinstance(q.get(name), (int, float))]
+    if shown:
+        out.line("  " + "   ".join(f"{n.replace('_', ' ')} {fmt(v)}" for n, v in shown))
+    eig = r.get("eigenvalues") or []
+    if eig:
+        out.line("  eigenvalues " + " ".join(f"{x:.4g}" for x in eig[:12]) + (" …" if len(eig) > 12 else ""))
+    diag = r.get("diagnostics") or {}
+    if diag.get("eigengap_suggestion") is not None:
+        out.line(f"  eigengap suggests k={diag['eigengap_suggestion']}")
+    for w in r.get("warnings") or []:
+        out.line(f"  warning: {w}")
+    if r.get("membership_hash"):
+        out.line(f"  membership {r['membership_hash'][:16]}")
+
+
+def cmd_run(args) -> int:
+    from workspace.services import params as psvc
+    from workspace.services import runs as svc
+
+    with session(args) as (store, out), progress_bar() as bar:
+        spec = svc.prepare_run(store, args.ref, params_ref=args.params, method=args.method,
+                               sets=psvc.parse_sets(args.set), k=args.k, seed=args.seed, repeats=args.repeats,
+                               perturb=args.perturb)
+        try:
+            res = svc.launch(store, spec, progress=bar)
+        except svc.RunFailed as exc:
+            bar.close()
+            if args.json:
+                emit_json(svc.show_run(store, exc.run_id))
+            raise
+        bar.close()
+        if args.json:
+            emit_json(res)
+        else:
+            _print_run(out, res)
+            _print_communities(out, res)
+    return 0
+
+
+def _print_communities(out, r: dict, limit: int = 30) -> None:
+    rows = r.get("communities") or []
+    if not rows:
+        return
+    cols = ["community", "size", "volume", "cut", "conductance"]
+    if any(c.get("stability") is not None for c in rows):
+        cols.append("stability")
+    out.table(cols, [[c.get(k) for k in cols] for c in rows[:limit]], right=cols)
+    if len(rows) > limit:
+        out.line(f"  … {len(rows) - limit} more communities (--json lists all)")
+
+
+def cmd_rerun(args) -> int:
+    from workspace.services import runs as svc
+
+    with session(args) as (store, out), progress_bar() as bar:
+        res = svc.rerun(store, args.run, progress=bar)
+        bar.close()
+        if args.json:
+            emit_json(res)
+        else:
+            _print_run(out, res)
+            out.line(f"  {'identical to' if res['identical'] else 'DIFFERS from'} run {args.run}")
+    return 0 if res["identical"] else 1
+
+
+def cmd_attach(args) -> int:
+    from workspace.services import runs as svc
+
+    with session(args) as (store, out):
+        res = svc.attach(store, args.file, args.to, label=args.label)
+        if args.json:
+            emit_json(res)
+        else:
+            _print_run(out, res)
+            if res["missing_nodes"]:
+                out.line(f"  {res['missing_nodes']} node(s) of the version are not in the file")
+    return 0
+
+
+def cmd_runs(args) -> int:
+    from workspace.services import runs as svc
+
+    with session(args) as (store, out):
+        rows = svc.list_runs(store, args.ref, limit=args.limit, status=args.status)
+        if args.json:
+            emit_json(rows)
+        elif not rows:
+            out.line("no runs")
+        else:
+            out.table(["run", "status", "method", "version", "k", "created"],
+                      [(r["run"], r["status"], r["method"] if r["kind"] == "computed" else f"attached:{r['label']}",
+                        r["ref"], r["k"], r["created"]) for r in rows], right=["run", "k"])
+    return 0
+
+
+def show_run(args) -> int:
+    from workspace.errors import UsageError
+    from workspace.services import runs as svc
+
+    try:
+        run_id = int(args.target)
+    except ValueError:
+        raise UsageError(f"not a run id or a network reference: {args.target!r}") from None
+    with session(args) as (store, out):
+        res = svc.show_run(store, run_id)
+        if args.json:
+            emit_json(res)
+            return 0
+        _print_run(out, res)
+        out.fields([("parameters", " ".join(f"{k}={v}" for k, v in res["params"].items()) or "-"),
+                    ("parameter set", res["param_set"]), ("rerun of", res["rerun_of"]),
+                    ("started", res["created"]), ("finished", res["finished"]),
+                    ("solver", (res["diagnostics"] or {}).get("solver")),
+                    ("provenance", " ".join(f"{k}={v}" for k, v in res["provenance"].items()))])
+        _print_communities(out, res)
+    return 0
+
+
+def cmd_export(args) -> int:
+    from workspace.services import runs as svc
+
+    with session(args) as (store, out):
+        res = svc.export_run(store, args.run, args.output, format=args.format)
+        if args.json:
+            emit_json(res)
+        else:
+            out.line(f"wrote {res['nodes']} nodes of run {res['run']} to {res['path']} ({res['format']})")
+    return 0
+
+
+def cmd_where(args) -> int:
+    from workspace.services import runs as svc
+
+    with session(args) as (store, out):
+        res = svc.where_node(store, args.node, args.network)
+        if args.json:
+            emit_json(res)
+            return 0
+        out.line(f"node {res['node']} in {res['network']}: present in versions "
+                 + ", ".join(map(str, res["versions_with_node"])))
+        out.table(["run", "version", "method", "community", "size", "stability"],
+                  [(r["run"], r["version"], r["method"] if r["kind"] == "computed" else f"attached:{r['label']}",
+                    r["community"] if r["present"] else "(absent)", r["community_size"], r["stability"])
+                   for r in res["runs"]], right=["run", "version", "community", "size", "stability"])
+    return 0

@@ -1,0 +1,166 @@
+"""Networks and their versions: import, listing, showing, structural changes."""
+
+from __future__ import annotations
+
+import json
+import os
+from dataclasses import dataclass, field
+from typing import Any, Callable
+
+from workspace.domain import GraphData, ImportPolicy, VersionRef
+from workspace.errors import NotFoundError, UsageError
+from workspace.store import repo
+from workspace.store.db import Store
+from workspace.store.schema import Network, NetworkVersion
+
+Progress = Callable[[str, int, int | None], None]
+
+
+@dataclass(frozen=True)
+class ImportOutcome:
+    ref: str
+    version: int
+    nodes: int
+    edges: int
+    content_hash: str
+    new_version: bool
+    report: dict[str, Any]
+    policy: dict[str, Any] = field(default_factory=dict)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"ref": self.ref, "version": self.version, "nodes": self.nodes, "edges": self.edges,
+                "content_hash": self.content_hash, "new_version": self.new_version,
+                "report": self.report, "policy": self.policy}
+
+
+def _check_name(kind: str, name: str) -> str:
+    if not name or any(c in name for c in "/@") or name != name.strip() or any(c.isspace() for c in name):
+        raise UsageError(f"{kind} name {name!r} must be non-empty, without spaces, '/' or '@'")
+    return name
+
+
+def version_summary(v: NetworkVersion, project: str, network: str) -> dict[str, Any]:
+    return {
+        "ref": f"{project}/{network}@{v.number}", "project": project, "network": network,
+        "version": v.number, "nodes": v.n_nodes, "edges": v.n_edges, "total_weight": v.total_weight,
+        "content_hash": v.content_hash, "message": v.message, "source": v.source_name,
+        "format": v.source_format, "created": v.created_at.isoformat(timespec="seconds"),
+    }
+
+
+def import_network(store: Store, path: str | os.PathLike, *, project: str, network: str,
+                   format: str | None = None, policy: ImportPolicy | None = None, message: str = "",
+                   progress: Progress | None = None) -> ImportOutcome:
+    """Read ``path``, canonicalise it, and record it as the next version of ``project/network``.
+
+    Reading and hashing happen outside any transaction; the write is one short
+    transaction. Content equal to the latest version creates nothing. A failed
+    read leaves the store untouched (no project, network or version is created).
+    """
+    from workspace.io import read_network
+
+    _check_name("project", project)
+    _check_name("network", network)
+    policy = policy or ImportPolicy()
+    graph, report = read_network(path, format=format, policy=policy, progress=progress)
+    content_hash = graph.content_hash()
+    report_dict = report.as_dict()
+    policy_dict = policy.as_dict()
+    if progress:
+        progress("store", 0, None)
+    with store.write() as s:
+        proj = repo.get_or_create_project(s, project)
+        net = repo.get_or_create_network(s, proj, network)
+        latest = repo.latest_version(s, net.id)
+        if latest is not None and latest.content_hash == content_hash:
+            return ImportOutcome(f"{project}/{network}@{latest.number}", latest.number, latest.n_nodes,
+                                 latest.n_edges, content_hash, False, json.loads(latest.report_json),
+                                 json.loads(latest.policy_json))
+        v = repo.add_version(s, net, graph, parent=latest, content_hash=content_hash, message=message,
+                             source_name=os.path.basename(os.fspath(path)), source_format=report.format,
+                             policy_json=json.dumps(policy_dict, sort_keys=True),
+                             report_json=json.dumps(report_dict, sort_keys=True))
+        number = v.number
+    if progress:
+        progress("store", 1, 1)
+    return ImportOutcome(f"{project}/{network}@{number}", number, graph.n_nodes, graph.n_edges,
+                         content_hash, True, report_dict, policy_dict)
+
+
+def list_projects(store: Store) -> list[dict[str, Any]]:
+    with store.read() as s:
+        return [{"project": r.name, "networks": r.networks, "created": r.created_at.isoformat(timespec="seconds")}
+                for r in repo.list_projects(s)]
+
+
+def list_networks(store: Store, project: str | None = None) -> list[dict[str, Any]]:
+    with store.read() as s:
+        if project is not None and repo.find_project(s, project) is None:
+            raise NotFoundError(f"no project named {project!r}")
+        return [{"project": r.project, "network": r.network, "latest_version": r.latest,
+                 "created": r.created_at.isoformat(timespec="seconds")} for r in repo.list_networks(s, project)]
+
+
+def _network(s, ref: VersionRef) -> Network:
+    net = repo.find_network(s, ref.project, ref.network)
+    if net is None:
+        raise NotFoundError(f"no network {ref.project}/{ref.network}")
+    return net
+
+
+def resolve_version(s, ref: VersionRef) -> NetworkVersion:
+    """The version row ``ref`` names (latest when it names none). For services only."""
+    net = _network(s, ref)
+    v = repo.find_version(s, net.id, ref.version)
+    if v is None:
+        what = f"version {ref.version}" if ref.version is not None else "any version"
+        raise NotFoundError(f"network {ref.project}/{ref.network} has no {what}")
+    return v
+
+
+def list_versions(store: Store, ref: str | VersionRef) -> list[dict[str, Any]]:
+    ref = VersionRef.parse(ref) if isinstance(ref, str) else ref
+    with store.read() as s:
+        net = _network(s, ref)
+        return [version_summary(v, ref.project, ref.network) for v in repo.list_versions(s, net.id)]
+
+
+def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20) -> dict[str, Any]:
+    """Everything recorded on a version, plus its structural change from its parent."""
+    from workspace.io import structural_changes
+
+    ref = VersionRef.parse(ref) if isinstance(ref, str) else ref
+    with store.read() as s:
+        v = resolve_version(s, ref)
+        out = version_summary(v, ref.project, ref.network)
+        out["policy"] = json.loads(v.policy_json)
+        out["report"] = json.loads(v.report_json)
+        out["parent"] = None
+        out["changes_from_parent"] = None
+        if v.parent_id is not None:
+            parent = s.get(NetworkVersion, v.parent_id)
+            out["parent"] = f"{ref.project}/{ref.network}@{parent.number}"
+            out["changes_from_parent"] = structural_changes(
+                repo.load_graph(s, parent), repo.load_graph(s, v), limit=change_limit)
+        return out
+
+
+def load_graph(store: Store, ref: str | VersionRef) -> tuple[dict[str, Any], GraphData]:
+    ref = VersionRef.parse(ref) if isinstance(ref, str) else ref
+    with store.read() as s:
+        v = resolve_version(s, ref)
+        return version_summary(v, ref.project, ref.network), repo.load_graph(s, v)
+
+
+def version_changes(store: Store, ref_a: str | VersionRef, ref_b: str | VersionRef, *,
+                    limit: int | None = None) -> dict[str, Any]:
+    """Nodes and edges added/removed and weights changed from version A to version B."""
+    from workspace.io import structural_changes
+
+    ra = VersionRef.parse(ref_a) if isinstance(ref_a, str) else ref_a
+    rb = VersionRef.parse(ref_b) if isinstance(ref_b, str) else ref_b
+    with store.read() as s:
+        va, vb = resolve_version(s, ra), resolve_version(s, rb)
+        out = structural_changes(repo.load_graph(s, va), repo.load_graph(s, vb), limit=limit)
+        out = {"a": f"{ra.project}/{ra.network}@{va.number}", "b": f"{rb.project}/{rb.network}@{vb.number}", **out}
+        return out

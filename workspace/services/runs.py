@@ -1,0 +1,561 @@
+"""Partition runs: launch, record, rerun, attach, list, show, export, node lookup.
+
+A run is written twice: a ``running`` record before compute (so other
+processes see it), then its outcome in one short transaction. No write
+transaction is held while computing. A process that vanishes leaves a
+``running`` record that the next open of the store marks ``interrupted``.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import platform
+import socket
+import time
+from dataclasses import asdict, dataclass, field
+from typing import Any, Callable
+
+import numpy as np
+from sqlalchemy import select, update
+
+from workspace.domain import GraphData, VersionRef, canonical_labels, compact_label_dtype, membership_hash
+from workspace.errors import Cancelled, ComputeError, CutbookError, NotFoundError, ParameterError, UsageError
+from workspace.services import params as params_service
+from workspace.services.networks import resolve_version
+from workspace.store import repo
+from workspace.store.db import Store
+from workspace.store.schema import Network, NetworkVersion, Project, Run, RunCommunity, RunMeasure
+
+Progress = Callable[[str, int, int | None], None]
+MAX_REPEATS = 500
+DEFAULT_PERTURB = 0.1
+
+
+@dataclass(frozen=True)
+class RunSpec:
+    """Everything needed to compute a run, validated; nothing is recorded yet."""
+
+    version_ref: str
+    version_id: int
+    method: str
+    k: str | None
+    params: dict[str, Any]
+    seed: int = 0
+    repeats: int = 1
+    perturb: float = 0.0
+    param_set_version_id: int | None = None
+    param_set_ref: str | None = None
+    rerun_of: int | None = None
+
+    def to_dict(self) -> dict[str, Any]:
+        return asdict(self)
+
+
+@dataclass
+class Computed:
+    labels: np.ndarray
+    k: int
+    eigenvalues: np.ndarray
+    quality: dict[str, Any]
+    communities: list[dict[str, Any]]
+    warnings: list[str]
+    diagnostics: dict[str, Any]
+    stability_counts: np.ndarray | None = None
+    extra: dict[str, Any] = field(default_factory=dict)
+
+
+# --- process identity (for detecting interrupted runs) ----------------------------------
+
+def _process_token(pid: int) -> str | None:
+    """pid plus the process start time from /proc, so a reused pid is not mistaken for ours."""
+    try:
+        with open(f"/proc/{pid}/stat", "rb") as fh:
+            stat = fh.read().decode(errors="replace")
+        return f"{pid}:{stat.rsplit(')', 1)[1].split()[19]}"
+    except (OSError, IndexError):
+        return None
+
+
+def _process_alive(pid: int, token: str | None) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    if token is not None:
+        current = _process_token(pid)
+        if current is not None and current != token:
+            return False
+    return True
+
+
+def mark_interrupted(store: Store) -> list[int]:
+    """Mark ``running`` runs of this host whose process is gone as ``interrupted``."""
+    host = socket.gethostname()
+    with store.read() as s:
+        rows = s.execute(select(Run.id, Run.pid, Run.process_token)
+                         .where(Run.status == "running", Run.host == host)).all()
+    gone = [r.id for r in rows if r.pid is not None and not _process_alive(r.pid, r.process_token)]
+    if gone:
+        with store.write() as s:
+            s.execute(update(Run).where(Run.id.in_(gone), Run.status == "running").values(
+                status="interrupted", finished_at=repo.utcnow(),
+                error="the process running it stopped before it finished"))
+    return gone
+
+
+def provenance() -> dict[str, Any]:
+    import networkx
+    import scipy
+
+    import workspace
+
+    return {"cutbook": workspace.__version__, "python": platform.python_version(), "numpy": np.__version__,
+            "scipy": scipy.__version__, "networkx": networkx.__version__, "platform": platform.platform(),
+            "host": socket.gethostname()}
+
+
+# --- preparing ----------------------------------------------------------------------
+
+def prepare_run(store: Store, ref: str | VersionRef, *, params_ref: str | None = None, method: str | None = None,
+                sets: dict[str, Any] | None = None, k: Any = None, seed: int = 0, repeats: int = 1,
+                perturb: float | None = None) -> RunSpec:
+    """Resolve and validate a run request. Raises before anything is recorded."""
+    if (params_ref is None) == (method is None):
+        raise UsageError("give either a saved parameter set (--params) or a method (--method)")
+    if not isinstance(seed, int) or seed < 0 or seed >= 2**32:
+        raise ParameterError(f"seed must be an integer in [0, 2^32), got {seed!r}")
+    if not isinstance(repeats, int) or not 1 <= repeats <= MAX_REPEATS:
+        raise ParameterError(f"repeats must be an integer from 1 to {MAX_REPEATS}, got {repeats!r}")
+    if perturb is None:
+        perturb = DEFAULT_PERTURB if repeats > 1 else 0.0
+    if not 0.0 <= float(perturb) < 0.5:
+        raise ParameterError(f"perturb (share of edges dropped per repeat) must be in [0, 0.5), got {perturb!r}")
+    if perturb > 0 and repeats == 1:
+        raise ParameterError("perturb applies to repeated runs; give --repeats N (N >= 2) as well")
+    vref = VersionRef.parse(ref) if isinstance(ref, str) else ref
+    with store.read() as s:
+        version = resolve_version(s, vref)
+        version_ref = f"{vref.project}/{vref.network}@{version.number}"
+        ps_id = ps_ref = None
+        if params_ref is not None:
+            p_project, p_name, psv = params_service.find_params(s, params_ref)
+            if p_project != vref.project:
+                raise UsageError(f"parameter set {params_ref} belongs to project {p_project!r}, "
+                                 f"not {vref.project!r}")
+            method = psv.method
+            base = json.loads(psv.values_json)
+            base.update(sets or {})
+            sets = base
+            k = psv.k if k is None else k
+            ps_id, ps_ref = psv.id, f"{p_project}/{p_name}@{psv.number}"
+    k_norm, values = params_service.validate(method, k, sets or {})
+    return RunSpec(version_ref=version_ref, version_id=version.id, method=method, k=k_norm, params=values,
+                   seed=seed, repeats=repeats, perturb=float(perturb), param_set_version_id=ps_id,
+                   param_set_ref=ps_ref)
+
+
+# --- computing (no store access) ------------------------------------------------------------
+
+def _perturbed(A, fraction: float, seed: int):
+    """Drop each undirected edge independently with probability ``fraction`` (seeded)."""
+    import scipy.sparse as sp
+
+    upper = sp.triu(A, k=0, format="coo")
+    keep = np.random.default_rng([seed, 0x5EED]).random(upper.nnz) >= fraction
+    r, c, w = upper.row[keep], upper.col[keep], upper.data[keep]
+    off = r != c
+    B = sp.csr_array((np.concatenate([w, w[off]]), (np.concatenate([r, c[off]]), np.concatenate([c, r[off]]))),
+                     shape=A.shape)
+    B.sum_duplicates()
+    return B
+
+
+def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None,
+            cancel: Callable[[], bool] | None = None) -> Computed:
+    """Run the method (``spec.repeats`` times with seeds seed … seed+N−1) on the graph.
+
+    With repeats, each repeat drops a seeded random share ``spec.perturb`` of the
+    edges; the stored membership is the consensus (each node's most frequent
+    community after matching every repeat to the first by overlap), and the
+    per-node stability is the share of repeats that keep the node in it.
+    """
+    from workspace.spectral import partition
+    from workspace.spectral.quality import quality_measures
+
+    A = graph.adjacency()
+    k = params_service.k_argument(spec.k)
+
+    repeat = [0]
+
+    def prog(stage: str, matvecs: int, total: int | None = None) -> None:
+        if progress:
+            label = stage if spec.repeats == 1 else f"{stage} ({repeat[0] + 1}/{spec.repeats})"
+            progress(label, matvecs, total)
+
+    if spec.repeats == 1:
+        res = partition(A, spec.method, k=k, seed=spec.seed, progress=prog, cancel=cancel, **spec.params)
+        return Computed(labels=canonical_labels(res.labels), k=int(res.k),
+                        eigenvalues=np.asarray(res.eigenvalues, dtype=np.float64), quality=dict(res.quality),
+                        communities=list(res.communities), warnings=list(res.warnings),
+                        diagnostics=dict(res.diagnostics))
+    from workspace.compare.consensus import consensus_membership
+
+    runs = []
+    first = None
+    for r in range(spec.repeats):
+        if cancel is not None and cancel():
+            raise Cancelled("run cancelled")
+        repeat[0] = r
+        Ar = _perturbed(A, spec.perturb, spec.seed + r) if spec.perturb > 0 else A
+        res = partition(Ar, spec.method, k=k, seed=spec.seed + r, progress=prog, cancel=cancel, **spec.params)
+        if first is None:
+            first = res
+        runs.append(np.asarray(res.labels))
+    labels, counts = consensus_membership(runs)
+    labels = canonical_labels(labels)
+    q = quality_measures(A, labels)
+    warnings = list(first.warnings)
+    diagnostics = dict(first.diagnostics)
+    diagnostics["repeats"] = spec.repeats
+    diagnostics["perturb"] = spec.perturb
+    stability = counts / spec.repeats
+    diagnostics["mean_stability"] = float(stability.mean())
+    communities = q.pop("communities", None) or []
+    for row in communities:
+        row["stability"] = float(stability[labels == row["community"]].mean())
+    return Computed(labels=labels, k=int(labels.max()) + 1, eigenvalues=np.asarray(first.eigenvalues, np.float64),
+                    quality=q, communities=communities, warnings=warnings, diagnostics=diagnostics,
+                    stability_counts=counts)
+
+
+# --- recording ---------------------------------------------------------------------------
+
+def _insert_running(store: Store, spec: RunSpec, *, kind: str = "computed", label: str = "") -> int:
+    pid = os.getpid()
+    with store.write() as s:
+        run = Run(version_id=spec.version_id, param_set_version_id=spec.param_set_version_id,
+                  rerun_of=spec.rerun_of, kind=kind, method=spec.method, label=label,
+                  params_json=json.dumps({**spec.params, "perturb": spec.perturb} if spec.repeats > 1
+                                         else spec.params, sort_keys=True),
+                  k_requested=spec.k, seed=spec.seed if kind == "computed" else None, repeats=spec.repeats,
+                  status="running", started_at=repo.utcnow(), host=socket.gethostname(), pid=pid,
+                  process_token=_process_token(pid), provenance_json=json.dumps(provenance(), sort_keys=True))
+        s.add(run)
+        s.flush()
+        return run.id
+
+
+def _json_floats(obj):
+    if isinstance(obj, dict):
+        return {k: _json_floats(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [_json_floats(v) for v in obj]
+    if isinstance(obj, np.generic):
+        obj = obj.item()
+    if isinstance(obj, np.ndarray):
+        return _json_floats(obj.tolist())
+    if isinstance(obj, float) and not np.isfinite(obj):
+        return None
+    return obj
+
+
+def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None = None,
+            error: str | None = None) -> None:
+    with store.write() as s:
+        run = s.get(Run, run_id)
+        if run is None or run.status != "running":
+            raise ComputeError(f"run {run_id} is no longer running; its outcome was not recorded")
+        run.status = status
+        run.finished_at = repo.utcnow()
+        run.error = error
+        if computed is not None:
+            labels = computed.labels
+            run.k = computed.k
+            run.membership_blob = repo.put_array(s, labels.astype(compact_label_dtype(labels)))
+            run.membership_hash = membership_hash(labels)
+            run.eigenvalues_blob = repo.put_array(s, computed.eigenvalues) if computed.eigenvalues.size else None
+            if computed.stability_counts is not None:
+                c = computed.stability_counts
+                run.stability_blob = repo.put_array(s, c.astype(np.uint8 if run.repeats < 256 else np.uint16))
+            run.quality_json = json.dumps(_json_floats(computed.quality), sort_keys=True)
+            run.diagnostics_json = json.dumps(_json_floats(computed.diagnostics), sort_keys=True)
+            run.warnings_json = json.dumps(computed.warnings)
+            for row in computed.communities:
+                s.add(RunCommunity(run_id=run_id, community=int(row["community"]), size=int(row["size"]),
+                                   volume=_num(row.get("volume")), cut=_num(row.get("cut")),
+                                   conductance=_num(row.get("conductance")), stability=_num(row.get("stability"))))
+            for name, value in computed.quality.items():
+                if isinstance(value, (int, float, np.number)) and not isinstance(value, bool):
+                    s.add(RunMeasure(run_id=run_id, name=name, value=_num(value)))
+
+
+def _num(x):
+    if x is None:
+        return None
+    x = float(x)
+    return x if np.isfinite(x) else None
+
+
+def execute(store: Store, run_id: int, spec: RunSpec, graph: GraphData, *, progress: Progress | None = None,
+            cancel: Callable[[], bool] | None = None) -> None:
+    """Compute a recorded ``running`` run and record its outcome (done / failed / cancelled)."""
+    try:
+        computed = compute(graph, spec, progress=progress, cancel=cancel)
+    except (Cancelled, KeyboardInterrupt):
+        _finish(store, run_id, "cancelled", error="cancelled by the user")
+        raise Cancelled(f"run {run_id} cancelled") from None
+    except CutbookError as exc:
+        _finish(store, run_id, "failed", error=str(exc))
+        raise ComputeError(f"run {run_id} failed: {exc}") from exc
+    except (ArithmeticError, ValueError, RuntimeError, MemoryError, np.linalg.LinAlgError) as exc:
+        _finish(store, run_id, "failed", error=f"{type(exc).__name__}: {exc}")
+        raise ComputeError(f"run {run_id} failed: {type(exc).__name__}: {exc}") from exc
+    if progress:
+        progress("store", 0, None)
+    _finish(store, run_id, "done", computed=computed)
+
+
+def _load_version_graph(store: Store, version_id: int) -> GraphData:
+    with store.read() as s:
+        return repo.load_graph(s, s.get(NetworkVersion, version_id))
+
+
+def launch(store: Store, spec: RunSpec, *, progress: Progress | None = None,
+           cancel: Callable[[], bool] | None = None) -> dict[str, Any]:
+    """Record, compute and store one run; returns its summary (see :func:`show_run`)."""
+    graph = _load_version_graph(store, spec.version_id)
+    run_id = _insert_running(store, spec)
+    try:
+        execute(store, run_id, spec, graph, progress=progress, cancel=cancel)
+    except ComputeError as exc:
+        raise RunFailed(run_id, str(exc)) from exc
+    return show_run(store, run_id, include_labels=False)
+
+
+class RunFailed(ComputeError):
+    """A run that was recorded as failed; carries its id."""
+
+    def __init__(self, run_id: int, message: str) -> None:
+        super().__init__(message)
+        self.run_id = run_id
+
+
+def rerun(store: Store, run_id: int, *, progress: Progress | None = None,
+          cancel: Callable[[], bool] | None = None) -> dict[str, Any]:
+    """Repeat a computed run from its record; ``identical`` tells whether the membership matched."""
+    with store.read() as s:
+        old = s.get(Run, run_id)
+        if old is None:
+            raise NotFoundError(f"no run {run_id}")
+        if old.kind != "computed":
+            raise UsageError(f"run {run_id} was attached from a file; there is nothing to recompute")
+        params = json.loads(old.params_json)
+        perturb = float(params.pop("perturb", 0.0))
+        v = s.get(NetworkVersion, old.version_id)
+        net = s.get(Network, v.network_id)
+        proj = s.get(Project, net.project_id)
+        spec = RunSpec(version_ref=f"{proj.name}/{net.name}@{v.number}", version_id=v.id, method=old.method,
+                       k=old.k_requested, params=params, seed=old.seed or 0, repeats=old.repeats,
+                       perturb=perturb, param_set_version_id=old.param_set_version_id, rerun_of=old.id)
+        old_hash = old.membership_hash
+    out = launch(store, spec, progress=progress, cancel=cancel)
+    out["rerun_of"] = run_id
+    out["identical"] = old_hash is not None and out["membership_hash"] == old_hash
+    return out
+
+
+# --- attached partitions -------------------------------------------------------------------
+
+def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, label: str) -> dict[str, Any]:
+    """Store a partition read from a ``node,community`` CSV as a run of kind ``attached``."""
+    from workspace.io import read_membership
+    from workspace.spectral.quality import quality_measures
+
+    if not label or not label.strip():
+        raise UsageError("--label must name the grouping (for example 'survey-2026')")
+    vref = VersionRef.parse(ref) if isinstance(ref, str) else ref
+    with store.read() as s:
+        version = resolve_version(s, vref)
+        graph = repo.load_graph(s, version)
+        version_ref = f"{vref.project}/{vref.network}@{version.number}"
+    labels, info = read_membership(path, graph.node_ids)
+    labels = canonical_labels(labels)
+    missing = int((labels < 0).sum())
+    warnings = []
+    assigned = labels >= 0
+    if not assigned.any():
+        raise UsageError(f"{os.fspath(path)}: no node of {version_ref} is in the file")
+    A = graph.adjacency()
+    if missing:
+        warnings.append(f"{missing} node(s) of {version_ref} are not in the file; measures use the other "
+                        f"{int(assigned.sum())}")
+        idx = np.flatnonzero(assigned)
+        q = quality_measures(A[idx][:, idx], labels[idx])
+    else:
+        q = quality_measures(A, labels)
+    communities = q.pop("communities", None) or []
+    spec = RunSpec(version_ref=version_ref, version_id=version.id, method="attached", k=None,
+                   params={"source": os.path.basename(os.fspath(path))})
+    computed = Computed(labels=labels, k=int(labels.max()) + 1, eigenvalues=np.empty(0), quality=q,
+                        communities=communities, warnings=warnings,
+                        diagnostics={"missing_nodes": missing, "file_rows": info.get("rows")})
+    run_id = _insert_running(store, spec, kind="attached", label=label.strip())
+    _finish(store, run_id, "done", computed=computed)
+    out = show_run(store, run_id, include_labels=False)
+    out["missing_nodes"] = missing
+    return out
+
+
+# --- reading -----------------------------------------------------------------------------------
+
+def _run_row_dict(run: Run, project: str, network: str, number: int) -> dict[str, Any]:
+    return {"run": run.id, "kind": run.kind, "method": run.method, "label": run.label, "status": run.status,
+            "network": f"{project}/{network}", "version": number, "ref": f"{project}/{network}@{number}",
+            "k": run.k, "k_requested": run.k_requested, "seed": run.seed, "repeats": run.repeats,
+            "membership_hash": run.membership_hash,
+            "created": run.started_at.isoformat(timespec="seconds"),
+            "finished": run.finished_at.isoformat(timespec="seconds") if run.finished_at else None}
+
+
+def _runs_query():
+    return (select(Run, Project.name, Network.name, NetworkVersion.number)
+            .join(NetworkVersion, NetworkVersion.id == Run.version_id)
+            .join(Network, Network.id == NetworkVersion.network_id)
+            .join(Project, Project.id == Network.project_id))
+
+
+def list_runs(store: Store, ref: str | None = None, *, limit: int | None = None, offset: int = 0,
+              status: str | None = None) -> list[dict[str, Any]]:
+    """Runs, newest first; ``ref`` narrows to a project (``P``), network (``P/N``) or version (``P/N@V``)."""
+    q = _runs_query()
+    if ref:
+        if "/" in ref:
+            vref = VersionRef.parse(ref)
+            q = q.where(Project.name == vref.project, Network.name == vref.network)
+            if vref.version is not None:
+                q = q.where(NetworkVersion.number == vref.version)
+        else:
+            q = q.where(Project.name == ref)
+    if status:
+        q = q.where(Run.status == status)
+    q = q.order_by(Run.id.desc()).offset(offset)
+    if limit is not None:
+        q = q.limit(limit)
+    with store.read() as s:
+        return [_run_row_dict(r, p, n, v) for r, p, n, v in s.execute(q).all()]
+
+
+def count_runs(store: Store) -> int:
+    from sqlalchemy import func
+
+    with store.read() as s:
+        return int(s.scalar(select(func.count(Run.id))) or 0)
+
+
+def _get_run(s, run_id: int):
+    row = s.execute(_runs_query().where(Run.id == run_id)).first()
+    if row is None:
+        raise NotFoundError(f"no run {run_id}")
+    return row
+
+
+def load_membership(store: Store, run_id: int) -> tuple[np.ndarray, np.ndarray, dict[str, Any]]:
+    """(node_ids, labels int64, run summary) of a finished run."""
+    with store.read() as s:
+        run, p, n, v = _get_run(s, run_id)
+        if run.membership_blob is None:
+            raise NotFoundError(f"run {run_id} has no membership (status {run.status})")
+        version = s.get(NetworkVersion, run.version_id)
+        node_ids = repo.load_node_ids(s, version)
+        labels = repo.get_array(s, run.membership_blob).astype(np.int64)
+        return node_ids, labels, _run_row_dict(run, p, n, v)
+
+
+def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict[str, Any]:
+    """Everything recorded on a run."""
+    with store.read() as s:
+        run, p, n, v = _get_run(s, run_id)
+        out = _run_row_dict(run, p, n, v)
+        psv_ref = None
+        if run.param_set_version_id is not None:
+            from workspace.store.schema import ParamSet, ParamSetVersion
+
+            psv = s.get(ParamSetVersion, run.param_set_version_id)
+            ps = s.get(ParamSet, psv.param_set_id)
+            psv_ref = f"{p}/{ps.name}@{psv.number}"
+        eig = repo.get_array(s, run.eigenvalues_blob) if run.eigenvalues_blob else np.empty(0)
+        comms = s.scalars(select(RunCommunity).where(RunCommunity.run_id == run_id)
+                          .order_by(RunCommunity.community)).all()
+        out.update({
+            "params": json.loads(run.params_json), "param_set": psv_ref, "rerun_of": run.rerun_of,
+            "error": run.error, "quality": json.loads(run.quality_json),
+            "diagnostics": json.loads(run.diagnostics_json), "warnings": json.loads(run.warnings_json),
+            "provenance": json.loads(run.provenance_json), "eigenvalues": eig.tolist(),
+            "communities": [{"community": c.community, "size": c.size, "volume": c.volume, "cut": c.cut,
+                             "conductance": c.conductance, "stability": c.stability} for c in comms],
+            "host": run.host, "pid": run.pid,
+        })
+        if run.started_at and run.finished_at:
+            out["wall_time_s"] = (run.finished_at - run.started_at).total_seconds()
+        if include_labels and run.membership_blob:
+            version = s.get(NetworkVersion, run.version_id)
+            ids = repo.load_node_ids(s, version)
+            labels = repo.get_array(s, run.membership_blob).astype(np.int64)
+            out["membership"] = [{"node": i, "community": int(c)} for i, c in zip(ids.tolist(), labels.tolist())]
+            if run.stability_blob:
+                st = repo.get_array(s, run.stability_blob) / max(run.repeats, 1)
+                for row, val in zip(out["membership"], st.tolist()):
+                    row["stability"] = val
+        return out
+
+
+def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: str = "csv") -> dict[str, Any]:
+    """Write a run's membership as CSV ``node,community``, node-link JSON or GraphML."""
+    from workspace.io import write_membership
+
+    node_ids, labels, summary = load_membership(store, run_id)
+    write_membership(path, node_ids, labels, format=format)
+    return {"run": run_id, "path": os.fspath(path), "format": format, "nodes": int(labels.shape[0]),
+            "membership_hash": summary["membership_hash"]}
+
+
+def where_node(store: Store, node: str, network: str) -> dict[str, Any]:
+    """That node's community (and its size) in every finished run of every version of a network."""
+    vref = VersionRef.parse(network)
+    if vref.version is not None:
+        raise UsageError("--network takes project/network (every version is searched)")
+    rows = []
+    with store.read() as s:
+        net = repo.find_network(s, vref.project, vref.network)
+        if net is None:
+            raise NotFoundError(f"no network {vref.project}/{vref.network}")
+        versions = repo.list_versions(s, net.id)
+        present_in = []
+        for v in versions:
+            ids = repo.load_node_ids(s, v)
+            pos = int(np.searchsorted(ids, node))
+            found = pos < ids.shape[0] and ids[pos] == node
+            if found:
+                present_in.append(v.number)
+            runs = s.scalars(select(Run).where(Run.version_id == v.id, Run.membership_blob.is_not(None))
+                             .order_by(Run.id)).all()
+            for run in runs:
+                entry = {"run": run.id, "version": v.number, "method": run.method, "kind": run.kind,
+                         "label": run.label, "k": run.k, "present": found, "community": None,
+                         "community_size": None, "stability": None}
+                if found:
+                    labels = repo.get_array(s, run.membership_blob)
+                    c = int(labels[pos])
+                    entry["community"] = c if c >= 0 else None
+                    if c >= 0:
+                        entry["community_size"] = int((labels == c).sum())
+                    if run.stability_blob:
+                        entry["stability"] = float(repo.get_array(s, run.stability_blob)[pos]) / run.repeats
+                rows.append(entry)
+    if not present_in:
+        raise NotFoundError(f"node {node!r} is in no version of {vref.project}/{vref.network}")
+    return {"node": node, "network": f"{vref.project}/{vref.network}", "versions_with_node": present_in,
+            "runs": rows}

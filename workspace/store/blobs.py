@@ -1,0 +1,64 @@
+"""Array <-> blob codec and content hash.
+
+Codec ``npy+zstd``: ``np.save(..., allow_pickle=False)`` of a little-endian,
+C-contiguous 1-D array, compressed with zstandard. The hash is sha256 over
+``b"<dtype>:<length>\\0"`` followed by the raw little-endian bytes, so it does
+not depend on the codec or compression level.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import io
+from dataclasses import dataclass
+
+import numpy as np
+
+CODEC = "npy+zstd"
+_LEVEL = 3
+
+
+@dataclass(frozen=True)
+class EncodedArray:
+    hash: str
+    codec: str
+    dtype: str
+    length: int
+    raw_size: int
+    data: bytes
+
+
+def _canonical(arr: np.ndarray) -> np.ndarray:
+    arr = np.asarray(arr)
+    if arr.ndim != 1:
+        raise ValueError("blobs hold 1-D arrays")
+    if arr.dtype.kind not in "iufb":
+        raise ValueError(f"blobs hold numeric arrays, not {arr.dtype}")
+    return np.ascontiguousarray(arr, dtype=arr.dtype.newbyteorder("<"))
+
+
+def array_hash(arr: np.ndarray) -> str:
+    a = _canonical(arr)
+    h = hashlib.sha256(f"{a.dtype.str}:{a.shape[0]}\0".encode())
+    h.update(memoryview(a).cast("B"))
+    return h.hexdigest()
+
+
+def encode_array(arr: np.ndarray) -> EncodedArray:
+    import zstandard
+
+    a = _canonical(arr)
+    buf = io.BytesIO()
+    np.save(buf, a, allow_pickle=False)
+    raw = buf.getvalue()
+    data = zstandard.ZstdCompressor(level=_LEVEL, threads=-1 if len(raw) > 1 << 22 else 0).compress(raw)
+    return EncodedArray(array_hash(a), CODEC, a.dtype.str, int(a.shape[0]), len(raw), data)
+
+
+def decode_array(codec: str, data: bytes, raw_size: int | None = None) -> np.ndarray:
+    import zstandard
+
+    if codec != CODEC:
+        raise ValueError(f"unknown blob codec {codec!r}")
+    raw = zstandard.ZstdDecompressor().decompress(data, max_output_size=raw_size or 0)
+    return np.load(io.BytesIO(raw), allow_pickle=False)

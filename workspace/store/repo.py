@@ -1,0 +1,139 @@
+"""Queries and inserts over the ORM. Functions take a Session and never commit:
+the services own the transaction."""
+
+from __future__ import annotations
+
+from datetime import datetime, timezone
+
+import numpy as np
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session
+
+from workspace.domain import GraphData, decode_node_ids, encode_node_ids
+from workspace.store.blobs import decode_array, encode_array
+from workspace.store.schema import Blob, Network, NetworkVersion, Project
+
+
+def utcnow() -> datetime:
+    return datetime.now(timezone.utc)
+
+
+# --- blobs -------------------------------------------------------------------
+
+def put_array(session: Session, arr: np.ndarray) -> str:
+    """Store ``arr`` once (content-addressed) and return its hash."""
+    enc = encode_array(arr)
+    if session.get(Blob, enc.hash) is None:
+        session.add(Blob(hash=enc.hash, codec=enc.codec, dtype=enc.dtype, length=enc.length,
+                         raw_size=enc.raw_size, data=enc.data))
+        session.flush()
+    return enc.hash
+
+
+def get_array(session: Session, blob_hash: str) -> np.ndarray:
+    row = session.execute(select(Blob.codec, Blob.data, Blob.raw_size).where(Blob.hash == blob_hash)).one()
+    return decode_array(row.codec, row.data, row.raw_size)
+
+
+# --- projects and networks -----------------------------------------------------
+
+def find_project(session: Session, name: str) -> Project | None:
+    return session.scalar(select(Project).where(Project.name == name))
+
+
+def get_or_create_project(session: Session, name: str) -> Project:
+    project = find_project(session, name)
+    if project is None:
+        project = Project(name=name, created_at=utcnow())
+        session.add(project)
+        session.flush()
+    return project
+
+
+def find_network(session: Session, project: str, network: str) -> Network | None:
+    return session.scalar(
+        select(Network).join(Project).where(Project.name == project, Network.name == network))
+
+
+def get_or_create_network(session: Session, project: Project, name: str) -> Network:
+    net = session.scalar(select(Network).where(Network.project_id == project.id, Network.name == name))
+    if net is None:
+        net = Network(project_id=project.id, name=name, created_at=utcnow())
+        session.add(net)
+        session.flush()
+    return net
+
+
+def list_projects(session: Session):
+    q = (select(Project.name, Project.created_at, func.count(Network.id).label("networks"))
+         .outerjoin(Network).group_by(Project.id).order_by(Project.name))
+    return session.execute(q).all()
+
+
+def list_networks(session: Session, project: str | None = None):
+    latest = (select(NetworkVersion.network_id, func.max(NetworkVersion.number).label("latest"))
+              .group_by(NetworkVersion.network_id).subquery())
+    q = (select(Project.name.label("project"), Network.name.label("network"), Network.created_at,
+                latest.c.latest)
+         .join(Network.project).outerjoin(latest, latest.c.network_id == Network.id)
+         .order_by(Project.name, Network.name))
+    if project is not None:
+        q = q.where(Project.name == project)
+    return session.execute(q).all()
+
+
+# --- versions -------------------------------------------------------------------
+
+def latest_version(session: Session, network_id: int) -> NetworkVersion | None:
+    return session.scalar(select(NetworkVersion).where(NetworkVersion.network_id == network_id)
+                          .order_by(NetworkVersion.number.desc()).limit(1))
+
+
+def find_version(session: Session, network_id: int, number: int | None) -> NetworkVersion | None:
+    if number is None:
+        return latest_version(session, network_id)
+    return session.scalar(select(NetworkVersion).where(NetworkVersion.network_id == network_id,
+                                                       NetworkVersion.number == number))
+
+
+def list_versions(session: Session, network_id: int) -> list[NetworkVersion]:
+    return list(session.scalars(select(NetworkVersion).where(NetworkVersion.network_id == network_id)
+                                .order_by(NetworkVersion.number)))
+
+
+def add_version(session: Session, network: Network, graph: GraphData, *, parent: NetworkVersion | None,
+                content_hash: str, message: str, source_name: str, source_format: str,
+                policy_json: str, report_json: str) -> NetworkVersion:
+    offsets, data = encode_node_ids(graph.node_ids)
+    version = NetworkVersion(
+        network_id=network.id,
+        number=(parent.number + 1) if parent is not None else 1,
+        parent_id=parent.id if parent is not None else None,
+        content_hash=content_hash,
+        n_nodes=graph.n_nodes, n_edges=graph.n_edges, total_weight=float(graph.weight.sum()),
+        message=message, source_name=source_name, source_format=source_format,
+        policy_json=policy_json, report_json=report_json,
+        node_offsets_blob=put_array(session, offsets),
+        node_bytes_blob=put_array(session, data),
+        edge_u_blob=put_array(session, graph.edge_u),
+        edge_v_blob=put_array(session, graph.edge_v),
+        weight_blob=put_array(session, graph.weight),
+        created_at=utcnow(),
+    )
+    session.add(version)
+    session.flush()
+    return version
+
+
+def load_node_ids(session: Session, version: NetworkVersion) -> np.ndarray:
+    return decode_node_ids(get_array(session, version.node_offsets_blob),
+                           get_array(session, version.node_bytes_blob))
+
+
+def load_graph(session: Session, version: NetworkVersion) -> GraphData:
+    return GraphData(
+        node_ids=load_node_ids(session, version),
+        edge_u=get_array(session, version.edge_u_blob),
+        edge_v=get_array(session, version.edge_v_blob),
+        weight=get_array(session, version.weight_blob),
+    )

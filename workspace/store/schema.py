@@ -1,0 +1,212 @@
+"""ORM models (SQLAlchemy 2, typed). Schema changes go through Alembic only.
+
+Entities: project -> network -> network version (immutable); blobs hold arrays,
+content-addressed by sha256. Parameter sets and runs live in later revisions.
+ORM objects never leave the services layer.
+"""
+
+from __future__ import annotations
+
+from datetime import datetime
+
+from sqlalchemy import (
+    CheckConstraint,
+    DateTime,
+    Float,
+    ForeignKey,
+    Integer,
+    LargeBinary,
+    MetaData,
+    String,
+    Text,
+    UniqueConstraint,
+)
+from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column, relationship
+
+NAMING_CONVENTION = {
+    "ix": "ix_%(column_0_label)s",
+    "uq": "uq_%(table_name)s_%(column_0_N_name)s",
+    "ck": "ck_%(table_name)s_%(constraint_name)s",
+    "fk": "fk_%(table_name)s_%(column_0_name)s_%(referred_table_name)s",
+    "pk": "pk_%(table_name)s",
+}
+
+
+class Base(DeclarativeBase):
+    metadata = MetaData(naming_convention=NAMING_CONVENTION)
+
+
+class Blob(Base):
+    """One array, stored once: ``np.save(allow_pickle=False)`` bytes, compressed by ``codec``.
+
+    ``hash`` is sha256 over the canonical raw bytes (dtype, shape and the
+    little-endian C-order data), independent of the codec.
+    """
+
+    __tablename__ = "blobs"
+
+    hash: Mapped[str] = mapped_column(String(64), primary_key=True)
+    codec: Mapped[str] = mapped_column(String(32))
+    dtype: Mapped[str] = mapped_column(String(16))
+    length: Mapped[int] = mapped_column(Integer)
+    raw_size: Mapped[int] = mapped_column(Integer)
+    data: Mapped[bytes] = mapped_column(LargeBinary)
+
+
+class Project(Base):
+    __tablename__ = "projects"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    name: Mapped[str] = mapped_column(String(200), unique=True)
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+
+    networks: Mapped[list["Network"]] = relationship(back_populates="project")
+
+
+class Network(Base):
+    __tablename__ = "networks"
+    __table_args__ = (UniqueConstraint("project_id", "name"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    project_id: Mapped[int] = mapped_column(ForeignKey("projects.id", ondelete="CASCADE"), index=True)
+    name: Mapped[str] = mapped_column(String(200))
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+
+    project: Mapped[Project] = relationship(back_populates="networks")
+    versions: Mapped[list["NetworkVersion"]] = relationship(
+        back_populates="network", order_by="NetworkVersion.number", foreign_keys="NetworkVersion.network_id")
+
+
+class NetworkVersion(Base):
+    """An immutable snapshot of a network in canonical form (see ``GraphData``)."""
+
+    __tablename__ = "network_versions"
+    __table_args__ = (
+        UniqueConstraint("network_id", "number"),
+        CheckConstraint("number >= 1", name="number_positive"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    network_id: Mapped[int] = mapped_column(ForeignKey("networks.id", ondelete="CASCADE"), index=True)
+    number: Mapped[int] = mapped_column(Integer)
+    parent_id: Mapped[int | None] = mapped_column(ForeignKey("network_versions.id"), nullable=True)
+    content_hash: Mapped[str] = mapped_column(String(64), index=True)
+    n_nodes: Mapped[int] = mapped_column(Integer)
+    n_edges: Mapped[int] = mapped_column(Integer)
+    total_weight: Mapped[float] = mapped_column(Float)
+    message: Mapped[str] = mapped_column(Text, default="")
+    source_name: Mapped[str] = mapped_column(Text)
+    source_format: Mapped[str] = mapped_column(String(32))
+    policy_json: Mapped[str] = mapped_column(Text)
+    report_json: Mapped[str] = mapped_column(Text)
+    node_offsets_blob: Mapped[str] = mapped_column(ForeignKey("blobs.hash"))
+    node_bytes_blob: Mapped[str] = mapped_column(ForeignKey("blobs.hash"))
+    edge_u_blob: Mapped[str] = mapped_column(ForeignKey("blobs.hash"))
+    edge_v_blob: Mapped[str] = mapped_column(ForeignKey("blobs.hash"))
+    weight_blob: Mapped[str] = mapped_column(ForeignKey("blobs.hash"))
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+
+    network: Mapped[Network] = relationship(back_populates="versions", foreign_keys=[network_id])
+
+
+RUN_STATUSES = ("running", "done", "failed", "cancelled", "interrupted")
+RUN_KINDS = ("computed", "attached")
+
+
+class ParamSet(Base):
+    """A named parameter set of a project; its values live in immutable versions."""
+
+    __tablename__ = "param_sets"
+    __table_args__ = (UniqueConstraint("project_id", "name"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    project_id: Mapped[int] = mapped_column(ForeignKey("projects.id", ondelete="CASCADE"), index=True)
+    name: Mapped[str] = mapped_column(String(200))
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+
+
+class ParamSetVersion(Base):
+    """Immutable values of a parameter set: method, k and the validated method parameters."""
+
+    __tablename__ = "param_set_versions"
+    __table_args__ = (
+        UniqueConstraint("param_set_id", "number"),
+        CheckConstraint("number >= 1", name="number_positive"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    param_set_id: Mapped[int] = mapped_column(ForeignKey("param_sets.id", ondelete="CASCADE"), index=True)
+    number: Mapped[int] = mapped_column(Integer)
+    method: Mapped[str] = mapped_column(String(64))
+    k: Mapped[str | None] = mapped_column(String(16), nullable=True)  # an integer, "auto", or NULL (method default)
+    values_json: Mapped[str] = mapped_column(Text)
+    values_hash: Mapped[str] = mapped_column(String(64), index=True)
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+
+
+class Run(Base):
+    """One partition of one network version: computed by a method, or attached from a file.
+
+    Written twice: once as ``running`` before compute, once with its outcome.
+    After that it never changes (a vanished process is marked ``interrupted``).
+    """
+
+    __tablename__ = "runs"
+    __table_args__ = (
+        CheckConstraint("status IN ('running', 'done', 'failed', 'cancelled', 'interrupted')",
+                        name="status_known"),
+        CheckConstraint("kind IN ('computed', 'attached')", name="kind_known"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    version_id: Mapped[int] = mapped_column(ForeignKey("network_versions.id", ondelete="CASCADE"), index=True)
+    param_set_version_id: Mapped[int | None] = mapped_column(
+        ForeignKey("param_set_versions.id"), nullable=True, index=True)
+    rerun_of: Mapped[int | None] = mapped_column(ForeignKey("runs.id"), nullable=True)
+    kind: Mapped[str] = mapped_column(String(16))
+    method: Mapped[str] = mapped_column(String(64))
+    label: Mapped[str] = mapped_column(Text, default="")
+    params_json: Mapped[str] = mapped_column(Text)
+    k_requested: Mapped[str | None] = mapped_column(String(16), nullable=True)
+    seed: Mapped[int | None] = mapped_column(Integer, nullable=True)
+    repeats: Mapped[int] = mapped_column(Integer, default=1)
+    status: Mapped[str] = mapped_column(String(16), index=True)
+    error: Mapped[str | None] = mapped_column(Text, nullable=True)
+    started_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    finished_at: Mapped[datetime | None] = mapped_column(DateTime(timezone=True), nullable=True)
+    host: Mapped[str | None] = mapped_column(String(255), nullable=True)
+    pid: Mapped[int | None] = mapped_column(Integer, nullable=True)
+    process_token: Mapped[str | None] = mapped_column(String(64), nullable=True)
+    k: Mapped[int | None] = mapped_column(Integer, nullable=True)
+    membership_blob: Mapped[str | None] = mapped_column(ForeignKey("blobs.hash"), nullable=True)
+    membership_hash: Mapped[str | None] = mapped_column(String(64), nullable=True, index=True)
+    stability_blob: Mapped[str | None] = mapped_column(ForeignKey("blobs.hash"), nullable=True)
+    eigenvalues_blob: Mapped[str | None] = mapped_column(ForeignKey("blobs.hash"), nullable=True)
+    quality_json: Mapped[str] = mapped_column(Text, default="{}")
+    diagnostics_json: Mapped[str] = mapped_column(Text, default="{}")
+    warnings_json: Mapped[str] = mapped_column(Text, default="[]")
+    provenance_json: Mapped[str] = mapped_column(Text, default="{}")
+
+
+class RunCommunity(Base):
+    """Per-community table of a finished run (small; for SQL queries and quick listings)."""
+
+    __tablename__ = "run_communities"
+
+    run_id: Mapped[int] = mapped_column(ForeignKey("runs.id", ondelete="CASCADE"), primary_key=True)
+    community: Mapped[int] = mapped_column(Integer, primary_key=True)
+    size: Mapped[int] = mapped_column(Integer)
+    volume: Mapped[float | None] = mapped_column(Float, nullable=True)
+    cut: Mapped[float | None] = mapped_column(Float, nullable=True)
+    conductance: Mapped[float | None] = mapped_column(Float, nullable=True)
+    stability: Mapped[float | None] = mapped_column(Float, nullable=True)
+
+
+class RunMeasure(Base):
+    """Scalar quality measures of a finished run, one row each (modularity, normalized_cut, …)."""
+
+    __tablename__ = "run_measures"
+
+    run_id: Mapped[int] = mapped_column(ForeignKey("runs.id", ondelete="CASCADE"), primary_key=True)
+    name: Mapped[str] = mapped_column(String(64), primary_key=True)
+    value: Mapped[float | None] = mapped_column(Float, nullable=True)
