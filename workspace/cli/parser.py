@@ -132,4 +132,26 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("node")
     p.add_argument("--network", required=True, metavar="PROJECT/NETWORK")
 
+    # --- comparing -------------------------------------------------------------------
+    p = add("diff", "compare the memberships of two runs, or follow a chain of runs", "diffs", "cmd_diff")
+    p.add_argument("runs", nargs="*", type=int, metavar="RUN", help="two runs (or, with --track, a chain)")
+    p.add_argument("--track", nargs="?", const="", default=None, metavar="PROJECT/PARAMS",
+                   help="follow a chain: the runs given, or the latest run of a parameter set on each version")
+    p.add_argument("--network", metavar="PROJECT/NETWORK", help="with --track PARAMS: which network")
+    p.add_argument("--nodes", choices=["common", "all"], default="common",
+                   help="score shared nodes only (default) or give absent nodes an 'absent' community")
+    p.add_argument("--nmi", choices=["arithmetic", "geometric", "max", "min"], default="arithmetic",
+                   help="NMI normalisation (default arithmetic)")
+    p.add_argument("--limit", type=int, default=20, help="moved nodes listed in text output (JSON lists all)")
+
+    # --- upkeep -------------------------------------------------------------------------
+    add("verify", "check every stored array against its hash, and the database's integrity", "upkeep",
+        "cmd_verify")
+
+    p = add("demo", "build the invented demo workspace and open it", "demo", "cmd_demo")
+    p.add_argument("--no-ui", action="store_true", help="build only; do not open the terminal workspace")
+    p.add_argument("--rebuild", action="store_true", help="delete and rebuild the default demo store")
+
+    add("ui", "open the terminal workspace", "demo", "cmd_ui")
+
     return parser

@@ -1,0 +1,75 @@
+"""Build the demo workspace through the service layer (the same path a user's commands take)."""
+
+from __future__ import annotations
+
+import tempfile
+from pathlib import Path
+from typing import Callable
+
+from workspace.domain import ImportPolicy
+from workspace.services import networks, params, runs
+from workspace.store.db import Store
+
+from . import scenario
+
+CITY = "velmora-bikes"
+LAB = "orrin-hollow-lab"
+
+
+def build_demo(store: Store, *, say: Callable[[str], None] = lambda s: None) -> dict:
+    """Fill ``store`` with the demo projects, versions, parameter sets and runs.
+
+    Returns a summary (counts and the ids of the notable runs).
+    """
+    summary: dict = {"projects": [CITY, LAB], "runs": {}}
+    policy = ImportPolicy(weight="trips", duplicates="sum")
+    with tempfile.TemporaryDirectory(prefix="cutbook-demo-") as tmp:
+        tmp = Path(tmp)
+        for month in scenario.MONTHS:
+            f = tmp / f"trips-{month}.csv"
+            scenario.bike_trips(month).to_csv(f)
+            note = {"2026-03": "March trips (baseline)", "2026-04": "April trips: spring ridership",
+                    "2026-05": "May trips: Lantern Wharf district opens",
+                    "2026-06": "June trips: Cinder Bridge closed for repairs"}[month]
+            res = networks.import_network(store, f, project=CITY, network="stations", policy=policy, message=note)
+            say(f"imported {res.ref}: {res.nodes} stations, {res.edges} station pairs — {note}")
+        for year in (2025, 2026):
+            f = tmp / f"ties-{year}.csv"
+            scenario.lab_ties(year).to_csv(f, header=("person_a", "person_b", "projects"))
+            res = networks.import_network(store, f, project=LAB, network="co-working",
+                                          policy=ImportPolicy(weight="projects", duplicates="sum"),
+                                          message=f"shared projects in {year}")
+            say(f"imported {res.ref}: {res.nodes} staff, {res.edges} ties")
+
+        p_njw = params.save_params(store, f"{CITY}/districts", method="njw", k=7)
+        p_bethe = params.save_params(store, f"{CITY}/auto-k", method="bethe", k="auto")
+        p_split = params.save_params(store, f"{CITY}/two-banks", method="fiedler",
+                                     values={"laplacian": "sym", "split": "sweep"})
+        p_lab = params.save_params(store, f"{LAB}/groups", method="shi-malik", k=4)
+        say("saved parameter sets: " + ", ".join(p["ref"] for p in (p_njw, p_bethe, p_split, p_lab)))
+
+        def run(ref, **kw):
+            spec = runs.prepare_run(store, ref, **kw)
+            out = runs.launch(store, spec)
+            say(f"run {out['run']}: {out['method']} on {out['ref']} -> k={out['k']}")
+            return out["run"]
+
+        ids = summary["runs"]
+        for month_version in range(1, len(scenario.MONTHS) + 1):
+            ids[f"districts@{month_version}"] = run(f"{CITY}/stations@{month_version}", params_ref=f"{CITY}/districts")
+        ids["auto-k@4"] = run(f"{CITY}/stations@4", params_ref=f"{CITY}/auto-k")
+        ids["two-banks@1"] = run(f"{CITY}/stations@1", params_ref=f"{CITY}/two-banks")
+        ids["louvain@4"] = run(f"{CITY}/stations@4", method="louvain")
+        ids["stability@4"] = run(f"{CITY}/stations@4", params_ref=f"{CITY}/districts", repeats=12)
+        grouping = tmp / "planning-districts.csv"
+        with open(grouping, "w", encoding="utf-8") as fh:
+            fh.write("node,community\n")
+            for station, district in scenario.district_grouping(scenario.MONTHS[-1]):
+                fh.write(f"{station},{district}\n")
+        att = runs.attach(store, grouping, f"{CITY}/stations@4", label="planning-districts")
+        ids["planning-districts@4"] = att["run"]
+        say(f"run {att['run']}: attached the city's planning districts to {att['ref']}")
+        for v in (1, 2):
+            ids[f"lab-groups@{v}"] = run(f"{LAB}/co-working@{v}", params_ref=f"{LAB}/groups")
+        ids["lab-greedy@2"] = run(f"{LAB}/co-working@2", method="greedy-modularity")
+    return summary

@@ -1,0 +1,134 @@
+"""Deterministic generators for the demo networks (pure numpy; no store access).
+
+Velmora bike share
+    Stations in seven invented districts on both banks of the river Sable.
+    Monthly trip counts between stations form a weighted network, one version
+    per month: March (baseline), April (more riders), May (the new Lantern
+    Wharf district opens with its stations), June (Cinder Bridge closes for
+    repairs, so trips across the river there collapse).
+
+Orrin Hollow lab
+    Co-working ties (shared projects) between coded staff ("S-014") of an
+    invented lab with four research groups; one version per year.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+SEED = 20260301
+
+# district -> (bank, number of stations)
+DISTRICTS = {
+    "Old Quay": ("north", 14),
+    "Millbrook": ("north", 12),
+    "Quarry Hill": ("north", 11),
+    "Tannery Row": ("north", 10),
+    "Saltmarsh": ("south", 13),
+    "Eastgate": ("south", 12),
+    "Ferrow Park": ("south", 10),
+}
+NEW_DISTRICT = ("Lantern Wharf", "south", 9)
+# neighbouring districts (more trips between them); Cinder Bridge joins Tannery Row and Ferrow Park
+NEIGHBOURS = {("Old Quay", "Millbrook"), ("Millbrook", "Quarry Hill"), ("Quarry Hill", "Tannery Row"),
+              ("Old Quay", "Tannery Row"), ("Saltmarsh", "Eastgate"), ("Eastgate", "Ferrow Park"),
+              ("Saltmarsh", "Ferrow Park"), ("Old Quay", "Saltmarsh"), ("Tannery Row", "Ferrow Park"),
+              ("Lantern Wharf", "Eastgate"), ("Lantern Wharf", "Saltmarsh")}
+CINDER_BRIDGE = ("Tannery Row", "Ferrow Park")
+MONTHS = ("2026-03", "2026-04", "2026-05", "2026-06")
+
+
+@dataclass(frozen=True)
+class EdgeTable:
+    """Rows of a weighted edge list: station a, station b, trips."""
+
+    a: list[str]
+    b: list[str]
+    weight: list[int]
+
+    def to_csv(self, path, header=("station_a", "station_b", "trips")) -> None:
+        with open(path, "w", encoding="utf-8", newline="\n") as fh:
+            fh.write(",".join(header) + "\n")
+            for x, y, w in zip(self.a, self.b, self.weight):
+                fh.write(f"{x},{y},{w}\n")
+
+
+CODES = {"Old Quay": "OQ", "Millbrook": "MB", "Quarry Hill": "QH", "Tannery Row": "TR", "Saltmarsh": "SM",
+         "Eastgate": "EG", "Ferrow Park": "FP", "Lantern Wharf": "LW"}
+
+
+def _code(district: str) -> str:
+    return CODES[district]
+
+
+def stations(month: str) -> dict[str, str]:
+    """station id -> district, for the stations open in ``month``."""
+    out = {}
+    districts = dict(DISTRICTS)
+    if month >= "2026-05":
+        districts[NEW_DISTRICT[0]] = NEW_DISTRICT[1:]
+    for name, (_bank, count) in districts.items():
+        for i in range(1, count + 1):
+            out[f"{_code(name)}-{i:02d}"] = name
+    return out
+
+
+def bike_trips(month: str) -> EdgeTable:
+    """Trips between stations during ``month`` (deterministic)."""
+    rng = np.random.default_rng([SEED, MONTHS.index(month)])
+    st = stations(month)
+    ids = sorted(st)
+    district = np.array([st[s] for s in ids])
+    n = len(ids)
+    growth = {"2026-03": 1.0, "2026-04": 1.25, "2026-05": 1.3, "2026-06": 1.3}[month]
+    i, j = np.triu_indices(n, k=1)
+    same = district[i] == district[j]
+    pair = [tuple(sorted((district[a], district[b]))) for a, b in zip(i, j)]
+    near = np.array([p in NEIGHBOURS or (p[1], p[0]) in NEIGHBOURS for p in pair])
+    bridge = np.array([set(p) == set(CINDER_BRIDGE) for p in pair])
+    rate = np.where(same, 9.0, np.where(near, 0.9, 0.08)) * growth
+    if month >= "2026-06":
+        rate = np.where(bridge, 0.05, rate)
+    # a station pair gets a trip count only if riders use it at all this month
+    used = rng.random(i.shape[0]) < np.where(same, 0.75, np.where(near, 0.22, 0.03))
+    trips = rng.poisson(rate) * used
+    keep = trips > 0
+    return EdgeTable([ids[x] for x in i[keep]], [ids[y] for y in j[keep]], trips[keep].astype(int).tolist())
+
+
+def district_grouping(month: str) -> list[tuple[str, str]]:
+    """The city's own planning districts as a (station, district) grouping."""
+    return sorted(stations(month).items())
+
+
+GROUPS = {"Soil Chemistry": 11, "Sensor Design": 9, "Field Ecology": 12, "Data Methods": 8}
+
+
+def lab_staff(year: int) -> dict[str, str]:
+    out = {}
+    k = 1
+    for group, size in GROUPS.items():
+        extra = 2 if (year >= 2026 and group == "Data Methods") else 0
+        for _ in range(size + extra):
+            out[f"S-{k:03d}"] = group
+            k += 1
+    return out
+
+
+def lab_ties(year: int) -> EdgeTable:
+    """Shared-project counts between staff in ``year`` (deterministic)."""
+    rng = np.random.default_rng([SEED, year])
+    staff = lab_staff(year)
+    ids = sorted(staff)
+    group = np.array([staff[s] for s in ids])
+    i, j = np.triu_indices(len(ids), k=1)
+    same = group[i] == group[j]
+    bridge_groups = {("Data Methods", "Field Ecology"), ("Data Methods", "Soil Chemistry")}
+    cross = np.array([(group[a], group[b]) in bridge_groups or (group[b], group[a]) in bridge_groups
+                      for a, b in zip(i, j)])
+    p = np.where(same, 0.55, np.where(cross, 0.12 if year >= 2026 else 0.05, 0.02))
+    tie = rng.random(i.shape[0]) < p
+    projects = 1 + rng.poisson(np.where(same, 1.5, 0.3))
+    return EdgeTable([ids[x] for x in i[tie]], [ids[y] for y in j[tie]], projects[tie].astype(int).tolist())

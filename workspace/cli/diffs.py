@@ -1,0 +1,84 @@
+"""Command: diff (two runs, or a chain with --track)."""
+
+from __future__ import annotations
+
+from workspace.cli.common import emit_json, session
+from workspace.cli.output import fmt
+
+
+def _count(x) -> int:
+    return len(x) if isinstance(x, (list, tuple)) else int(x or 0)
+
+
+def cmd_diff(args) -> int:
+    from workspace.errors import UsageError
+    from workspace.services import diffs
+
+    with session(args) as (store, out):
+        if args.track is not None:
+            run_ids = list(args.runs)
+            if args.track:
+                if run_ids:
+                    raise UsageError("give either --track PROJECT/PARAMS or run ids, not both")
+                run_ids = diffs.track_runs_of_params(store, args.track, args.network)
+            res = diffs.track(store, run_ids, nmi_normalization=args.nmi)
+            if args.json:
+                emit_json(res)
+            else:
+                _print_track(out, res)
+            return 0
+        if len(args.runs) != 2:
+            raise UsageError("diff takes two run ids (or --track for a chain)")
+        res = diffs.diff_runs(store, args.runs[0], args.runs[1], nodes=args.nodes, nmi_normalization=args.nmi)
+        if args.json:
+            emit_json(res)
+        else:
+            print_diff(out, res, args.limit)
+    return 0
+
+
+def _side(b: dict) -> str:
+    what = b["method"] if b["kind"] == "computed" else f"attached '{b['label']}'"
+    return f"run {b['run']} ({what} on {b['ref']}, k={b['k']})"
+
+
+def print_diff(out, d: dict, limit: int = 20) -> None:
+    out.line(f"A  {_side(d['a'])}")
+    out.line(f"B  {_side(d['b'])}")
+    out.line(f"nodes compared: {d['nodes']} ({d.get('n_common', '?')} shared; "
+             f"{_count(d['only_in_a'])} only in A, {_count(d['only_in_b'])} only in B; "
+             f"coverage {fmt(d['coverage'])})")
+    out.line(f"ARI {fmt(d['ari'])}   NMI ({d['nmi_normalization']}) {fmt(d['nmi'])}   AMI {fmt(d['ami'])}   "
+             f"VI {fmt(d['vi_nats'])} nats / {fmt(d['vi_bits'])} bits")
+    out.line(f"moved nodes: {d['moved']}")
+    for note in d.get("notes") or []:
+        out.line(f"note: {note}")
+    if d.get("matches"):
+        out.table(["A", "B", "overlap", "jaccard", "size A", "size B"],
+                  [(m["a"], m["b"], m["overlap"], m["jaccard"], m.get("size_a"), m.get("size_b"))
+                   for m in d["matches"]], title="matched communities",
+                  right=["overlap", "jaccard", "size A", "size B"])
+    events = d.get("events") or []
+    if isinstance(events, dict):
+        events = events.get("items") or events.get("events") or []
+    if events:
+        out.line("events")
+        for e in events:
+            a = fmt(e.get("a")) if e.get("a") not in (None, []) else "-"
+            b = fmt(e.get("b")) if e.get("b") not in (None, []) else "-"
+            out.line(f"  {e['kind']:<10} A[{a}] -> B[{b}]")
+    if d.get("event_thresholds"):
+        out.line("  thresholds: " + "  ".join(f"{k}={v}" for k, v in d["event_thresholds"].items()))
+    moved = d.get("moved_nodes") or []
+    if moved:
+        out.table(["node", "A community", "B community"], [(m["node"], m["from"], m["to"]) for m in moved[:limit]],
+                  title="moved nodes" + (f" (first {limit}; --json lists all)" if len(moved) > limit else ""))
+
+
+def _print_track(out, res: dict) -> None:
+    out.line("chain: " + " -> ".join(f"run {r['run']} ({r['ref']})" for r in res["runs"]))
+    for i, step in enumerate(res.get("steps") or []):
+        out.line(f"step {i + 1}: ARI {fmt(step.get('ari'))}  NMI {fmt(step.get('nmi'))}  moved {step.get('moved')}"
+                 f"  events: " + ", ".join(f"{e['kind']}" for e in (step.get("events") or [])))
+    for line in res.get("lineage_text") or []:
+        out.line("  " + line)

@@ -1,0 +1,83 @@
+"""Membership diffs between runs (any versions of a network) and chains of runs."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from sqlalchemy import select
+
+from workspace.errors import NotFoundError, UsageError
+from workspace.services import runs as runs_service
+from workspace.services.params import parse_params_ref
+from workspace.store.db import Store
+from workspace.store.schema import Network, NetworkVersion, ParamSet, ParamSetVersion, Project, Run
+
+
+def diff_runs(store: Store, run_a: int, run_b: int, *, nodes: str = "common",
+              nmi_normalization: str = "arithmetic", moved_limit: int | None = None) -> dict[str, Any]:
+    """Scores, matched communities, events, moved nodes and the contingency table of two runs."""
+    from workspace.compare import compare_memberships
+
+    if nodes not in ("common", "all"):
+        raise UsageError("--nodes takes 'common' or 'all'")
+    ids_a, labels_a, sa = runs_service.load_membership(store, run_a)
+    ids_b, labels_b, sb = runs_service.load_membership(store, run_b)
+    if sa["network"] != sb["network"]:
+        # different networks can still be compared by node id; say so rather than refuse
+        note = f"runs belong to different networks ({sa['network']} and {sb['network']}); aligned by node id"
+    else:
+        note = None
+    d = compare_memberships(ids_a, labels_a, ids_b, labels_b, nodes=nodes, nmi_normalization=nmi_normalization,
+                            moved_limit=moved_limit)
+    out = {"a": _brief(sa), "b": _brief(sb), "nodes": nodes, **d.to_dict()}
+    if note:
+        out.setdefault("notes", []).append(note)
+    return out
+
+
+def _brief(summary: dict[str, Any]) -> dict[str, Any]:
+    return {k: summary[k] for k in ("run", "kind", "method", "label", "ref", "k", "membership_hash")}
+
+
+def track_runs_of_params(store: Store, params_ref: str, network: str | None = None) -> list[int]:
+    """For a parameter set: the latest finished run on each version (oldest version first)."""
+    project, name, version = parse_params_ref(params_ref)
+    with store.read() as s:
+        q = (select(Run.id, NetworkVersion.network_id, NetworkVersion.number, Network.name)
+             .join(ParamSetVersion, ParamSetVersion.id == Run.param_set_version_id)
+             .join(ParamSet, ParamSet.id == ParamSetVersion.param_set_id)
+             .join(Project, Project.id == ParamSet.project_id)
+             .join(NetworkVersion, NetworkVersion.id == Run.version_id)
+             .join(Network, Network.id == NetworkVersion.network_id)
+             .where(Project.name == project, ParamSet.name == name, Run.status == "done")
+             .order_by(NetworkVersion.number, Run.id))
+        if version is not None:
+            q = q.where(ParamSetVersion.number == version)
+        if network is not None:
+            q = q.where(Network.name == network.split("/", 1)[-1])
+        rows = s.execute(q).all()
+    if not rows:
+        raise NotFoundError(f"no finished run uses parameter set {params_ref}")
+    nets = {r.network_id for r in rows}
+    if len(nets) > 1:
+        raise UsageError(f"parameter set {params_ref} has runs on several networks; name one with --network")
+    latest: dict[int, int] = {}
+    for r in rows:
+        latest[r.number] = r.id  # rows are ordered by run id: the last one wins
+    return [latest[v] for v in sorted(latest)]
+
+
+def track(store: Store, run_ids: list[int], *, nmi_normalization: str = "arithmetic") -> dict[str, Any]:
+    """Step-by-step diffs of a chain of runs and how communities continue along it."""
+    from workspace.compare import track_memberships
+
+    if len(run_ids) < 2:
+        raise UsageError("a track needs at least two runs")
+    seq, briefs = [], []
+    for rid in run_ids:
+        ids, labels, summary = runs_service.load_membership(store, rid)
+        seq.append((f"run {rid} ({summary['ref']})", ids, labels))
+        briefs.append(_brief(summary))
+    result = track_memberships(seq)
+    doc = result.to_dict() if hasattr(result, "to_dict") else result
+    return {"runs": briefs, **doc}
