@@ -56,3 +56,6 @@ def run_cli_process(store: Path, *argv: str, timeout: float = 120, **kw) -> subp
     env = {**os.environ, "PYTHONPATH": str(REPO)}
     return subprocess.run([sys.executable, "-m", "workspace.cli", "--store", str(store), *map(str, argv)],
                           capture_output=True, text=True, timeout=timeout, env=env, **kw)
+
+
+sys.path.insert(0, str(REPO / "tests" / "support"))
