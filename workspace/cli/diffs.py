@@ -76,9 +76,18 @@ def print_diff(out, d: dict, limit: int = 20) -> None:
 
 
 def _print_track(out, res: dict) -> None:
-    out.line("chain: " + " -> ".join(f"run {r['run']} ({r['ref']})" for r in res["runs"]))
-    for i, step in enumerate(res.get("steps") or []):
-        out.line(f"step {i + 1}: ARI {fmt(step.get('ari'))}  NMI {fmt(step.get('nmi'))}  moved {step.get('moved')}"
-                 f"  events: " + ", ".join(f"{e['kind']}" for e in (step.get("events") or [])))
-    for line in res.get("lineage_text") or []:
-        out.line("  " + line)
+    by_id = {str(r["run"]): r for r in res["run_details"]}
+    out.line("chain: " + " -> ".join(f"run {r['run']} ({r['ref']})" for r in res["run_details"]))
+    for step in res.get("steps") or []:
+        a, b = by_id[str(step["from_run"])], by_id[str(step["to_run"])]
+        kinds: dict[str, int] = {}
+        for e in step.get("events") or []:
+            kinds[e["kind"]] = kinds.get(e["kind"], 0) + 1
+        out.line(f"run {a['run']} -> run {b['run']}: ARI {fmt(step.get('ari'))}  NMI {fmt(step.get('nmi'))}  "
+                 f"moved {step.get('moved')}  events: " + (", ".join(f"{n} {k}" for k, n in kinds.items()) or "none"))
+    lineage = res.get("lineage") or []
+    if lineage:
+        out.line("community threads (run:community[size])")
+        for t in lineage:
+            path = " -> ".join(f"{p['run']}:{p['community']}[{p['size']}]" for p in t["path"])
+            out.line(f"  {t.get('origin', '')}: {path} ({t.get('fate', '')})")

@@ -22,6 +22,8 @@ def diff_runs(store: Store, run_a: int, run_b: int, *, nodes: str = "common",
         raise UsageError("--nodes takes 'common' or 'all'")
     ids_a, labels_a, sa = runs_service.load_membership(store, run_a)
     ids_b, labels_b, sb = runs_service.load_membership(store, run_b)
+    if sa["ref"] == sb["ref"]:
+        ids_b = ids_a  # same version: one id array lets the alignment take its fast path
     if sa["network"] != sb["network"]:
         # different networks can still be compared by node id; say so rather than refuse
         note = f"runs belong to different networks ({sa['network']} and {sb['network']}); aligned by node id"
@@ -67,7 +69,8 @@ def track_runs_of_params(store: Store, params_ref: str, network: str | None = No
     return [latest[v] for v in sorted(latest)]
 
 
-def track(store: Store, run_ids: list[int], *, nmi_normalization: str = "arithmetic") -> dict[str, Any]:
+def track(store: Store, run_ids: list[int], *, nmi_normalization: str = "arithmetic",
+          moved_limit: int | None = None) -> dict[str, Any]:
     """Step-by-step diffs of a chain of runs and how communities continue along it."""
     from workspace.compare import track_memberships
 
@@ -76,8 +79,8 @@ def track(store: Store, run_ids: list[int], *, nmi_normalization: str = "arithme
     seq, briefs = [], []
     for rid in run_ids:
         ids, labels, summary = runs_service.load_membership(store, rid)
-        seq.append((f"run {rid} ({summary['ref']})", ids, labels))
+        seq.append((str(rid), ids, labels))
         briefs.append(_brief(summary))
-    result = track_memberships(seq)
-    doc = result.to_dict() if hasattr(result, "to_dict") else result
-    return {"runs": briefs, **doc}
+    doc = track_memberships(seq, nmi_normalization=nmi_normalization, moved_limit=moved_limit).to_dict()
+    doc["run_details"] = briefs
+    return doc

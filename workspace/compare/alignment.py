@@ -1,0 +1,138 @@
+"""Alignment of two node sets by node id (runs on different network versions)."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from workspace.errors import UsageError
+
+
+@dataclass(frozen=True, eq=False)
+class NodeAlignment:
+    """Index maps between two canonical (sorted, unique) node-id arrays.
+
+    Attributes
+    ----------
+    common_a, common_b : ndarray of int64, shape (n_common,)
+        Positions in A and in B of the shared ids; ``ids_a[common_a] ==
+        ids_b[common_b]``, ascending.
+    only_a : ndarray of int64, shape (n_a - n_common,)
+        Positions in A of ids missing from B, ascending.
+    only_b : ndarray of int64, shape (n_b - n_common,)
+        Positions in B of ids missing from A, ascending.
+    n_a, n_b : int
+        Sizes of the two node sets.
+    """
+
+    common_a: np.ndarray
+    common_b: np.ndarray
+    only_a: np.ndarray
+    only_b: np.ndarray
+    n_a: int
+    n_b: int
+
+    @property
+    def n_common(self) -> int:
+        return int(self.common_a.shape[0])
+
+    @property
+    def n_union(self) -> int:
+        return self.n_a + self.n_b - self.n_common
+
+    @property
+    def coverage(self) -> float:
+        """``|A ∩ B| / |A ∪ B|`` (Jaccard index of the node sets); 0.0 if both are empty."""
+        u = self.n_union
+        return self.n_common / u if u else 0.0
+
+    @property
+    def identical(self) -> bool:
+        return self.n_common == self.n_a == self.n_b
+
+
+def as_node_ids(x, name: str) -> np.ndarray:
+    """Check and return a canonical node-id array (1-D str, strictly ascending).
+
+    Raises
+    ------
+    UsageError
+        If the array is not 1-D, does not hold strings, or is not sorted
+        ascending without repeats (the canonical order of a network version).
+    """
+    arr = np.asarray(x)
+    if arr.ndim != 1:
+        raise UsageError(f"{name} must be a 1-D array of node ids, got shape {arr.shape}")
+    if arr.size == 0:
+        return np.zeros(0, dtype="<U1")
+    if arr.dtype.kind == "O":
+        if not all(isinstance(v, str) for v in arr.tolist()):
+            raise UsageError(f"{name} must hold str node ids")
+        arr = arr.astype(np.str_)
+    elif arr.dtype.kind != "U":
+        raise UsageError(f"{name} must hold str node ids, got dtype {arr.dtype}")
+    if arr.shape[0] > 1:
+        bad = ~(arr[1:] > arr[:-1])
+        if bad.any():
+            i = int(np.flatnonzero(bad)[0]) + 1
+            raise UsageError(f"{name} must be sorted ascending without repeats: "
+                             f"{arr[i]!r} at position {i} follows {arr[i - 1]!r}")
+    return arr
+
+
+def align_nodes(node_ids_a, node_ids_b) -> NodeAlignment:
+    """Align two canonical node-id arrays by id.
+
+    .. math:: \\mathrm{coverage} = \\frac{|A \\cap B|}{|A \\cup B|}
+
+    Parameters
+    ----------
+    node_ids_a, node_ids_b : ndarray of str, shape (n_a,) and (n_b,)
+        Sorted ascending, unique (the canonical node order of a network
+        version).
+
+    Returns
+    -------
+    NodeAlignment
+        Positions of shared ids in both arrays and of the ids found on one
+        side only.
+
+    Raises
+    ------
+    UsageError
+        If either array is not a canonical node-id array.
+
+    Notes
+    -----
+    The same array object on both sides (runs on one network version) and
+    equal arrays are detected in O(1) and O(n); otherwise every id of A is looked up
+    in B by binary search (``np.searchsorted``), O(n_a log n_b) string
+    comparisons. The coverage is the Jaccard index of the two node sets.
+
+    References
+    ----------
+    Jaccard, P. (1912). The distribution of the flora in the alpine zone.
+    New Phytologist 11, 37-50.
+    """
+    a = as_node_ids(node_ids_a, "node_ids_a")
+    b = a if node_ids_b is node_ids_a else as_node_ids(node_ids_b, "node_ids_b")
+    na, nb = a.shape[0], b.shape[0]
+    if a is b or (na == nb and np.array_equal(a, b)):
+        idx = np.arange(na, dtype=np.int64)
+        empty = np.zeros(0, dtype=np.int64)
+        return NodeAlignment(idx, idx.copy(), empty, empty.copy(), na, nb)
+    if na == 0 or nb == 0:
+        empty = np.zeros(0, dtype=np.int64)
+        return NodeAlignment(empty, empty.copy(), np.arange(na, dtype=np.int64),
+                             np.arange(nb, dtype=np.int64), na, nb)
+    pos = np.searchsorted(b, a)
+    clipped = np.minimum(pos, nb - 1)
+    found = (pos < nb) & (b[clipped] == a)
+    common_a = np.flatnonzero(found).astype(np.int64)
+    common_b = pos[found].astype(np.int64)
+    only_a = np.flatnonzero(~found).astype(np.int64)
+    in_a = np.zeros(nb, dtype=bool)
+    in_a[common_b] = True
+    only_b = np.flatnonzero(~in_a).astype(np.int64)
+    return NodeAlignment(common_a, common_b, only_a, only_b, na, nb)
