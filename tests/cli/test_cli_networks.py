@@ -72,7 +72,7 @@ def test_not_found_and_usage_exit_codes(cli):
 
 BAD_INPUTS = [
     # (file name, content, expected fragment of the message, expect a line number)
-    ("empty.csv", "", "no edge", False),
+    ("empty.csv", "", "no records", False),
     ("header_only.csv", "source,target,weight\n", "no edge", False),
     ("nan.csv", "source,target,weight\na,b,1\nb,c,nan\n", ":3:", True),
     ("negative.csv", "source,target,weight\na,b,1\nb,c,-2\n", ":3:", True),
@@ -84,7 +84,7 @@ BAD_INPUTS = [
     ("unknown.xyz", "a b\n", "format", False),
     ("bad.graphml", "<graphml><graph edgedefault='undirected'><node id='a'/>", "", False),
     ("bad.json", "{\"nodes\": [", "", False),
-    ("bad.mtx", "%%MatrixMarket matrix coordinate real general\n3 2 1\n1 1 1\n", "", False),
+    ("bad.mtx", "%%MatrixMarket matrix coordinate real general\n3 2 1\n1 1 1\n", "square", False),
 ]
 
 
@@ -108,6 +108,8 @@ def test_bad_input_leaves_store_untouched(cli, store_path, tmp_path, name, conte
 
 
 def test_missing_file_and_directory(cli, tmp_path, store_path):
+    good = write_edges(tmp_path / "good.csv", [("a", "b", 1)], header=None)
+    assert cli("import", good, "--project", "p", "--network", "n").code == 0
     before = dump_store(store_path)
     r = cli("import", tmp_path / "nope.csv", "--project", "p", "--network", "n")
     assert r.code == 1 and "nope.csv" in r.err

@@ -106,14 +106,20 @@ def print_changes(out, ch: dict, limit: int | None) -> None:
     out.fields([("nodes added", ch["nodes_added"]), ("nodes removed", ch["nodes_removed"]),
                 ("edges added", ch["edges_added"]), ("edges removed", ch["edges_removed"]),
                 ("weights changed", ch["weights_changed"])])
-    for key, label in (("added_nodes", "+ node"), ("removed_nodes", "- node")):
-        for item in (ch.get(key) or [])[: limit or None]:
-            out.line(f"  {label} {item}")
-    for key, label in (("added_edges", "+ edge"), ("removed_edges", "- edge")):
-        for e in (ch.get(key) or [])[: limit or None]:
-            out.line(f"  {label} {e[0]} — {e[1]}")
-    for e in (ch.get("changed_weights") or [])[: limit or None]:
-        out.line(f"  ~ edge {e[0]} — {e[1]}: {e[2]:g} -> {e[3]:g}")
+    listings = ch.get("listings") or {}
+    cut = slice(None, limit)
+    for item in (listings.get("nodes_added") or [])[cut]:
+        out.line(f"  + node {item}")
+    for item in (listings.get("nodes_removed") or [])[cut]:
+        out.line(f"  - node {item}")
+    for u, v in (listings.get("edges_added") or [])[cut]:
+        out.line(f"  + edge {u} — {v}")
+    for u, v in (listings.get("edges_removed") or [])[cut]:
+        out.line(f"  - edge {u} — {v}")
+    for u, v, old, new in (listings.get("weights_changed") or [])[cut]:
+        out.line(f"  ~ edge {u} — {v}: weight {old:g} -> {new:g}")
+    if ch.get("truncated") or (limit and any(len(x) > limit for x in listings.values())):
+        out.line(f"  (listings cut; --limit N or --json for more)")
 
 
 def cmd_show(args) -> int:

@@ -1,0 +1,74 @@
+"""structural_changes against a hand-constructed pair and against Python set algebra."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from workspace.domain import GraphData
+from workspace.io import structural_changes
+
+
+def graph_from(edges: dict[tuple[str, str], float], extra_nodes=()) -> GraphData:
+    """Canonical GraphData built with plain Python sorting (independent of the readers)."""
+    ids = sorted({x for e in edges for x in e} | set(extra_nodes))
+    index = {x: i for i, x in enumerate(ids)}
+    rows = sorted((min(index[a], index[b]), max(index[a], index[b]), w)
+                  for (a, b), w in edges.items())
+    return GraphData(node_ids=np.array(ids), edge_u=np.array([r[0] for r in rows], dtype=np.int64),
+                     edge_v=np.array([r[1] for r in rows], dtype=np.int64),
+                     weight=np.array([r[2] for r in rows], dtype=np.float64))
+
+
+def test_hand_constructed_pair():
+    old = graph_from({("a", "b"): 1.0, ("b", "c"): 2.0, ("c", "d"): 1.0, ("d", "e"): 4.0},
+                     extra_nodes=["lonely"])
+    new = graph_from({("a", "b"): 1.0, ("b", "c"): 3.0, ("c", "f"): 1.0, ("a", "f"): 5.0,
+                      ("d", "e"): 4.0})
+    # by hand: node f added, node lonely removed; edges a-f, c-f added; c-d removed;
+    # b-c weight 2 -> 3
+    changes = structural_changes(old, new)
+    assert {k: changes[k] for k in ("nodes_added", "nodes_removed", "edges_added",
+                                    "edges_removed", "weights_changed")} == {
+        "nodes_added": 1, "nodes_removed": 1, "edges_added": 2, "edges_removed": 1,
+        "weights_changed": 1}
+    assert changes["listings"] == {
+        "nodes_added": ["f"], "nodes_removed": ["lonely"],
+        "edges_added": [["a", "f"], ["c", "f"]], "edges_removed": [["c", "d"]],
+        "weights_changed": [["b", "c", 2.0, 3.0]]}
+    assert changes["truncated"] is False
+    limited = structural_changes(old, new, limit=1)
+    assert limited["edges_added"] == 2 and limited["listings"]["edges_added"] == [["a", "f"]]
+    assert limited["truncated"] is True
+    same = structural_changes(old, old)
+    assert all(same[k] == 0 for k in ("nodes_added", "nodes_removed", "edges_added",
+                                      "edges_removed", "weights_changed"))
+
+
+def test_random_pair_matches_set_algebra():
+    rng = np.random.default_rng(5)
+
+    def random_edges(n_nodes, m):
+        out = {}
+        while len(out) < m:
+            a, b = rng.integers(0, n_nodes, 2)
+            if a != b:
+                out[tuple(sorted((f"n{a}", f"n{b}")))] = float(rng.integers(1, 4))
+        return out
+
+    e_old, e_new = random_edges(300, 2000), random_edges(330, 2100)
+    for key in list(e_old)[:500]:  # shared edges, some with new weights
+        e_new[key] = e_old[key] if rng.random() < 0.7 else e_old[key] + 1
+    old, new = graph_from(e_old), graph_from(e_new)
+    changes = structural_changes(old, new)
+    # reference: Python set algebra on (sorted) id pairs
+    n_old = set(old.node_ids.tolist())
+    n_new = set(new.node_ids.tolist())
+    assert changes["listings"]["nodes_added"] == sorted(n_new - n_old)
+    assert changes["listings"]["nodes_removed"] == sorted(n_old - n_new)
+    assert changes["listings"]["edges_added"] == [list(e) for e in sorted(set(e_new) - set(e_old))]
+    assert changes["listings"]["edges_removed"] == [list(e)
+                                                    for e in sorted(set(e_old) - set(e_new))]
+    changed = sorted(k for k in set(e_old) & set(e_new) if e_old[k] != e_new[k])
+    assert changes["listings"]["weights_changed"] == [[a, b, e_old[(a, b)], e_new[(a, b)]]
+                                                      for a, b in changed]
+    assert changes["weights_changed"] == len(changed) > 0

@@ -1,0 +1,115 @@
+"""Membership files: write -> read round trip, renumbering, and outside readers
+(Python's csv module, json, networkx.read_graphml) on the files written.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+
+import networkx as nx
+import numpy as np
+import pytest
+
+from workspace.domain import GraphData
+from workspace.errors import InputError, ParameterError
+from workspace.io import read_membership, write_membership
+
+IDS = np.array(sorted(["007", "7", " padded ", "with,comma", 'say "hi"', "Ärger", "日本", "z"]))
+
+
+def canonical(labels: np.ndarray) -> np.ndarray:
+    """Renumber by first appearance in node order (-1 kept): written independently of the
+    code under test, by a plain loop."""
+    mapping: dict[int, int] = {}
+    out = []
+    for x in labels.tolist():
+        if x < 0:
+            out.append(-1)
+            continue
+        mapping.setdefault(x, len(mapping))
+        out.append(mapping[x])
+    return np.array(out, dtype=np.int64)
+
+
+@pytest.mark.parametrize("fmt", ["csv", "json", "graphml"])
+def test_round_trip(tmp_path, fmt):
+    labels = canonical(np.array([0, 0, 1, -1, 2, 1, 0, 3]))
+    path = tmp_path / f"m.{fmt}"
+    written = write_membership(path, IDS, labels, format=fmt)
+    assert written == 7
+    read_back, info = read_membership(path, IDS)
+    assert np.array_equal(read_back, labels)
+    assert read_back.dtype == np.int64
+    assert info["missing"] == 1
+    assert info["communities"] == {0: "0", 1: "1", 2: "2", 3: "3"}
+
+
+def test_names_become_labels_by_first_appearance(tmp_path):
+    path = tmp_path / "m.csv"
+    rows = [("z", "blue"), ("007", "red"), ("7", "green"), ("Ärger", "red"), (" padded ", "blue")]
+    with open(path, "w", newline="", encoding="utf-8") as out:
+        writer = csv.writer(out)
+        writer.writerow(["community", "extra", "node"])
+        writer.writerows((c, "x", n) for n, c in rows)
+    labels, info = read_membership(path, IDS)
+    name_of = dict(rows)
+    expected_names = [name_of.get(x) for x in IDS.tolist()]
+    codes = {}
+    expected = [-1 if n is None else codes.setdefault(n, len(codes)) for n in expected_names]
+    assert labels.tolist() == expected
+    assert info["communities"] == {v: k for k, v in codes.items()}
+    assert info["missing"] == len(IDS) - len(rows)
+
+
+def test_csv_is_plain_rfc4180(tmp_path):
+    labels = canonical(np.arange(len(IDS)) % 3)
+    write_membership(tmp_path / "m.csv", IDS, labels)
+    with open(tmp_path / "m.csv", newline="", encoding="utf-8") as f:
+        rows = list(csv.reader(f))  # Python's csv module as the outside reader
+    assert rows[0] == ["node", "community"]
+    assert rows[1:] == [[i, str(c)] for i, c in zip(IDS.tolist(), labels.tolist())]
+
+
+def test_json_layout(tmp_path):
+    labels = canonical(np.array([0, 1, 0, 1, 0, 1, 0, -1]))
+    write_membership(tmp_path / "m.json", IDS, labels, format="json")
+    document = json.loads((tmp_path / "m.json").read_text(encoding="utf-8"))
+    assert document == {"nodes": [{"id": i, "community": c} for i, c in
+                                   zip(IDS.tolist(), labels.tolist()) if c >= 0]}
+
+
+def test_graphml_with_graph_reads_in_networkx(tmp_path):
+    graph = GraphData(node_ids=np.array(["a", "b", "c", "d"]), edge_u=np.array([0, 1, 2]),
+                      edge_v=np.array([1, 2, 3]), weight=np.array([1.5, 2.0, 0.25]))
+    labels = np.array([0, 0, 1, 1])
+    write_membership(tmp_path / "m.graphml", graph.node_ids, labels, format="graphml",
+                     graph=graph)
+    G = nx.read_graphml(tmp_path / "m.graphml")  # networkx.read_graphml as reference reader
+    assert nx.get_node_attributes(G, "community") == {"a": 0, "b": 0, "c": 1, "d": 1}
+    assert {frozenset((u, v)): d["weight"] for u, v, d in G.edges(data=True)} == {
+        frozenset(("a", "b")): 1.5, frozenset(("b", "c")): 2.0, frozenset(("c", "d")): 0.25}
+    assert np.array_equal(read_membership(tmp_path / "m.graphml", graph.node_ids)[0], labels)
+
+
+def test_write_errors(tmp_path):
+    with pytest.raises(ParameterError):
+        write_membership(tmp_path / "m.csv", IDS, np.zeros(3, dtype=int))
+    with pytest.raises(ParameterError):
+        write_membership(tmp_path / "m.txt", IDS, np.zeros(len(IDS), dtype=int), format="txt")
+    with pytest.raises(InputError, match="line break"):
+        write_membership(tmp_path / "m.csv", np.array(["a\nb"]), np.array([0]))
+
+
+def test_read_errors(tmp_path):
+    path = tmp_path / "m.csv"
+    path.write_text("node,community\n007,a\n7,\n")
+    with pytest.raises(InputError) as err:
+        read_membership(path, IDS)
+    assert err.value.line == 3 and "empty community" in str(err.value)
+    path.write_text("node,community\n007,a\n7,b,extra\n")
+    with pytest.raises(InputError) as err:
+        read_membership(path, IDS)
+    assert err.value.line == 3 and "expected 2 fields" in str(err.value)
+    with pytest.raises(InputError, match="membership format"):
+        read_membership(tmp_path / "m.parquet", IDS)

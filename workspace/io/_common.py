@@ -1,0 +1,264 @@
+"""Shared pieces of the readers: raw bytes, line numbers, edge records, weights.
+
+Nothing here parses characters by hand: bytes are scanned with ``bytes``
+methods, ``re`` and numpy, strings are converted with pyarrow.compute kernels.
+"""
+
+from __future__ import annotations
+
+import codecs
+import gzip
+import os
+import re
+import zlib
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from workspace.errors import InputError
+
+Progress = Callable[[str, int, "int | None"], None] | None
+
+UTF8_BOM = b"\xef\xbb\xbf"
+_CHUNK = 1 << 24  # 16 MiB per read call, so progress moves on big files
+
+
+def report_progress(progress: Progress, stage: str, done: int, total: int | None) -> None:
+    """Call ``progress(stage, done, total)`` when a callback was given."""
+    if progress is not None:
+        progress(stage, done, total)
+
+
+def read_bytes(path: str, progress: Progress = None) -> bytes:
+    """Whole file as bytes; gzip data (magic ``1f 8b``) is decompressed.
+
+    Raises
+    ------
+    InputError
+        Missing file, a directory, no permission, an OS read error or damaged
+        gzip data; the message names the file.
+    """
+    if not os.path.exists(path):
+        raise InputError("no such file", path=path)
+    if os.path.isdir(path):
+        raise InputError("is a directory, not a network file", path=path)
+    try:
+        with open(path, "rb") as raw:
+            total = os.fstat(raw.fileno()).st_size
+            if raw.read(2) == b"\x1f\x8b":
+                raw.seek(0)
+                with gzip.GzipFile(fileobj=raw) as unzipped:
+                    parts = []
+                    while True:
+                        block = unzipped.read(_CHUNK)
+                        if not block:
+                            break
+                        parts.append(block)
+                        report_progress(progress, "read", raw.tell(), total)
+                    return b"".join(parts)
+            raw.seek(0)
+            parts = []
+            done = 0
+            while True:
+                block = raw.read(_CHUNK)
+                if not block:
+                    break
+                parts.append(block)
+                done += len(block)
+                report_progress(progress, "read", done, total)
+            return parts[0] if len(parts) == 1 else b"".join(parts)
+    except PermissionError:
+        raise InputError("permission denied", path=path) from None
+    except (gzip.BadGzipFile, EOFError, zlib.error) as err:
+        raise InputError(f"damaged gzip data ({err})", path=path) from None
+    except OSError as err:
+        raise InputError(f"cannot read file: {err.strerror or err}", path=path) from None
+
+
+def strip_bom(data: bytes) -> bytes:
+    """Drop a leading UTF-8 byte-order mark (it must not become part of an id)."""
+    return data[3:] if data.startswith(UTF8_BOM) else data
+
+
+def normalise_newlines(data: bytes) -> bytes:
+    r"""Turn ``\r\n`` and lone ``\r`` line ends into ``\n``; line count is unchanged."""
+    if b"\r" not in data:
+        return data
+    return re.sub(rb"\r\n?", b"\n", data)
+
+
+def check_utf8(data: bytes, path: str) -> None:
+    """Raise InputError with the 1-based line of the first invalid UTF-8 byte."""
+    if data.isascii():
+        return
+    try:
+        codecs.utf_8_decode(data, "strict", True)
+    except UnicodeDecodeError as err:
+        line = data.count(b"\n", 0, err.start) + 1
+        column = err.start - (data.rfind(b"\n", 0, err.start) + 1) + 1
+        raise InputError(
+            f"invalid UTF-8 byte 0x{data[err.start]:02x} at byte column {column}; "
+            "save the file as UTF-8", path=path, line=line) from None
+
+
+class LineMap:
+    r"""Where each non-blank line of a buffer sits.
+
+    Lines end at ``\n`` (after :func:`normalise_newlines`). ``rows[k]`` is the
+    0-based line index of the k-th non-blank line, so a record that a parser
+    reports as row ``k`` (0-based, blank lines skipped) is on file line
+    ``rows[k] + 1``; ``starts[k]`` is its byte offset.
+    """
+
+    def __init__(self, data: bytes) -> None:
+        codes = np.frombuffer(data, dtype=np.uint8)
+        newline = np.flatnonzero(codes == 10)
+        starts = np.empty(newline.size + 1, dtype=np.int64)
+        starts[0] = 0
+        starts[1:] = newline + 1
+        ends = np.empty_like(starts)
+        ends[:-1] = newline
+        ends[-1] = codes.size
+        self.rows = np.flatnonzero(ends > starts)
+        self.starts = starts[self.rows]
+
+    @property
+    def n_rows(self) -> int:
+        return int(self.rows.size)
+
+    def line(self, row: int) -> int | None:
+        """1-based file line of non-blank row ``row`` (None if out of range)."""
+        if 0 <= row < self.rows.size:
+            return int(self.rows[row]) + 1
+        return None
+
+
+def count_nonblank_lines(data: bytes) -> int:
+    """Number of non-blank ``\\n``-separated lines, cheaply when there are no blank lines."""
+    if not data:
+        return 0
+    if b"\n\n" not in data and not data.startswith(b"\n"):
+        return data.count(b"\n") + (0 if data.endswith(b"\n") else 1)
+    return LineMap(data).n_rows
+
+
+@dataclass
+class EdgeRecords:
+    """Edge records as read from a file, before any policy is applied.
+
+    Attributes
+    ----------
+    path, format : str
+        Source file and reader format name.
+    source, target : pyarrow string Array or ChunkedArray, length m
+        Endpoint ids per record, verbatim.
+    weight : ndarray of float64, shape (m,)
+        Finite, non-negative weights (1.0 when unweighted).
+    weighted : bool
+        Whether a weight column / attribute was used.
+    directed : bool
+        The input declares itself directed (arcs ``source -> target``).
+    extra_nodes : pyarrow string Array or None
+        Declared node ids (GraphML ``<node>``, JSON ``nodes``, Matrix Market
+        ``1..n``); nodes without edges stay in the graph as isolated nodes.
+    locate : callable(int) -> (line or None, label or None)
+        Where record ``i`` sits in the file.
+    locate_node : callable(int) -> (line or None, label or None)
+        Where declared node ``j`` sits in the file.
+    """
+
+    path: str
+    format: str
+    source: pa.Array | pa.ChunkedArray
+    target: pa.Array | pa.ChunkedArray
+    weight: np.ndarray
+    weighted: bool
+    directed: bool = False
+    extra_nodes: pa.Array | None = None
+    locate: Callable[[int], tuple[int | None, str | None]] = lambda i: (None, f"record {i + 1}")
+    locate_node: Callable[[int], tuple[int | None, str | None]] = lambda j: (None, f"node {j + 1}")
+    notes: list[str] = field(default_factory=list)
+
+    @property
+    def n_records(self) -> int:
+        return int(len(self.source))
+
+    def error(self, index: int, message: str, *, node: bool = False) -> InputError:
+        """InputError for record ``index`` (or declared node ``index``), with its line."""
+        line, label = (self.locate_node if node else self.locate)(int(index))
+        if label:
+            message = f"{message} ({label})"
+        return InputError(message, path=self.path, line=line)
+
+
+def first_cast_failure(values: pa.Array | pa.ChunkedArray, target_type: pa.DataType) -> int:
+    """Index of the first element of ``values`` that ``pc.cast`` refuses.
+
+    Bisection over slices, each cast done by the Arrow kernel: O(m log m) work
+    in C, only run on the error path. Assumes at least one element fails.
+    """
+    lo, hi = 0, len(values)
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        try:
+            pc.cast(values.slice(lo, mid - lo), target_type)
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            hi = mid
+        else:
+            lo = mid
+    return lo
+
+
+def to_float64(values: pa.Array | pa.ChunkedArray) -> pa.Array | pa.ChunkedArray | None:
+    """``pc.cast`` to float64, retrying with ASCII/Unicode blanks trimmed; None on failure."""
+    try:
+        return pc.cast(values, pa.float64())
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        pass
+    try:
+        return pc.cast(pc.utf8_trim_whitespace(values), pa.float64())
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        return None
+
+
+def weights_from_strings(values: pa.Array | pa.ChunkedArray,
+                         fail: Callable[[int, str], InputError]) -> np.ndarray:
+    """Parse weight strings into float64 and validate them.
+
+    Accepted: what Arrow's string-to-double cast accepts (decimal and
+    exponent notation, surrounding blanks trimmed). Refused, at the first
+    offending record in file order: non-numeric text, NaN, +-inf, negatives.
+    ``fail(i, message)`` builds the error for record ``i``.
+    """
+    parsed = to_float64(values)
+    if parsed is None:
+        trimmed = pc.utf8_trim_whitespace(values)
+        i = first_cast_failure(trimmed, pa.float64())
+        raise fail(i, f"weight {values[i].as_py()!r} is not a number")
+    if isinstance(parsed, pa.ChunkedArray):
+        parsed = parsed.combine_chunks() if parsed.num_chunks != 1 else parsed.chunk(0)
+    weight = parsed.to_numpy(zero_copy_only=False).astype(np.float64, copy=False)
+    check_weights(weight, lambda i, msg: fail(i, f"weight {values[i].as_py()!r} {msg}"))
+    return weight
+
+
+def check_weights(weight: np.ndarray, fail: Callable[[int, str], InputError]) -> None:
+    """Refuse NaN, infinite or negative weights at the first offending index."""
+    bad = ~np.isfinite(weight)
+    bad |= weight < 0
+    if bad.any():
+        i = int(np.argmax(bad))
+        value = weight[i]
+        if np.isnan(value):
+            raise fail(i, "is NaN; weights must be finite numbers >= 0")
+        if np.isinf(value):
+            raise fail(i, "is infinite; weights must be finite numbers >= 0")
+        raise fail(i, "is negative; weights must be finite numbers >= 0")
+
+
+def string_array(values: list[str]) -> pa.Array:
+    """A pyarrow string array from a list of Python strings."""
+    return pa.array(values, type=pa.string())

@@ -1,0 +1,356 @@
+"""Delimited edge lists: CSV, TSV and whitespace-separated text.
+
+Parsing is done by ``pyarrow.csv`` (multi-threaded C++ reader) with every
+column typed as a string, so ids such as ``"007"`` stay verbatim. Whitespace
+files are first normalised with ``bytes.translate`` and ``re`` (runs of blanks
+become one space; blanks at line ends go) and then read by the same reader
+with a single-space delimiter and quoting off.
+"""
+
+from __future__ import annotations
+
+import io
+import re
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.compute as pc
+import pyarrow.csv as pa_csv
+
+from workspace.domain import ImportPolicy
+from workspace.errors import InputError, ParameterError
+from workspace.io._common import (
+    EdgeRecords,
+    LineMap,
+    Progress,
+    check_utf8,
+    count_nonblank_lines,
+    normalise_newlines,
+    report_progress,
+    strip_bom,
+    to_float64,
+    weights_from_strings,
+)
+
+WHITESPACE = "whitespace"
+DEFAULT_DELIMITER = {"csv": ",", "tsv": "\t", "edgelist": WHITESPACE}
+DELIMITER_ALIASES = {
+    "comma": ",", "tab": "\t", "\\t": "\t", "semicolon": ";", "pipe": "|",
+    "whitespace": WHITESPACE, "space": WHITESPACE, " ": WHITESPACE,
+}
+#: First-line field pairs read as column names by ``header="auto"`` (case-insensitive).
+ENDPOINT_HEADER_NAMES = frozenset({
+    ("source", "target"), ("from", "to"), ("src", "dst"), ("node1", "node2"),
+    ("node_1", "node_2"), ("tail", "head"), ("head", "tail"), ("id1", "id2"),
+})
+_SAMPLE_BYTES = 1 << 18
+_WHITESPACE_TABLE = bytes.maketrans(b"\t\v\f", b"   ")
+_EXPECTED = re.compile(r"Expected (\d+) columns, got (\d+)")
+
+
+def resolve_delimiter(fmt: str, delimiter: str | None) -> str:
+    """The delimiter for ``fmt``: the policy's (aliases resolved) or the format's default.
+
+    Raises ParameterError for a delimiter that is not one character, a
+    quote, or a line break.
+    """
+    if delimiter is None:
+        return DEFAULT_DELIMITER[fmt]
+    value = DELIMITER_ALIASES.get(delimiter.lower() if len(delimiter) > 1 else delimiter, delimiter)
+    if value == WHITESPACE:
+        return value
+    if len(value) != 1 or value in "\"\r\n":
+        raise ParameterError(
+            f"delimiter must be one character, 'tab' or 'whitespace', not {delimiter!r}")
+    return value
+
+
+def _remove_comments(data: bytes, comment: str) -> bytes:
+    """Cut every line at the comment marker, together with blanks before it."""
+    marker = comment.encode("utf-8")
+    if marker not in data:
+        return data
+    return re.sub(rb"[ \t]*" + re.escape(marker) + rb"[^\n]*", b"", data)
+
+
+def _normalise_whitespace(data: bytes) -> bytes:
+    """Blank runs -> one space, no blank at line start or end (line count kept)."""
+    data = data.translate(_WHITESPACE_TABLE)
+    if b"  " in data:
+        data = re.sub(rb" {2,}", b" ", data)
+    if data.startswith(b" ") or data.endswith(b" ") or b"\n " in data or b" \n" in data:
+        data = re.sub(rb"(?m)^ | $", b"", data)
+    return data
+
+
+class _Csv:
+    """pyarrow.csv with one set of parse options; everything read as strings."""
+
+    def __init__(self, path: str, data: bytes, delimiter: str, quoting: bool) -> None:
+        self.path = path
+        self.data = data
+        self.parse_kwargs = dict(delimiter=delimiter, quote_char='"' if quoting else False,
+                                 double_quote=quoting, escape_char=False,
+                                 newlines_in_values=False, ignore_empty_lines=True)
+        self._lines: LineMap | None = None
+
+    @property
+    def lines(self) -> LineMap:
+        if self._lines is None:
+            self._lines = LineMap(self.data)
+        return self._lines
+
+    def read(self, data: bytes, n_columns: int | None, include: list[int] | None,
+             threads: bool) -> pa.Table:
+        names = None if n_columns is None else [f"f{i}" for i in range(n_columns)]
+        read_options = pa_csv.ReadOptions(use_threads=threads, autogenerate_column_names=True,
+                                          block_size=1 << 22)
+        convert = dict(strings_can_be_null=False, quoted_strings_can_be_null=False,
+                       check_utf8=False)
+        if names is not None:
+            convert["column_types"] = {name: pa.string() for name in names}
+            if include is not None:
+                convert["include_columns"] = [names[i] for i in include]
+        try:
+            return pa_csv.read_csv(io.BytesIO(data), read_options=read_options,
+                                   parse_options=pa_csv.ParseOptions(**self.parse_kwargs),
+                                   convert_options=pa_csv.ConvertOptions(**convert))
+        except pa.ArrowInvalid as err:
+            raise self._explain(data, n_columns, include, err) from None
+
+    def _explain(self, data: bytes, n_columns, include, err: Exception) -> InputError:
+        text = str(err)
+        if "Empty CSV file" in text:
+            return InputError("the file holds no records", path=self.path)
+        if _EXPECTED.search(text):
+            bad: list = []
+
+            def handler(row):
+                if not bad:
+                    bad.append(row)
+                return "skip"
+
+            options = dict(self.parse_kwargs, invalid_row_handler=handler)
+            try:
+                pa_csv.read_csv(io.BytesIO(data),
+                                read_options=pa_csv.ReadOptions(use_threads=False,
+                                                                autogenerate_column_names=True),
+                                parse_options=pa_csv.ParseOptions(**options),
+                                convert_options=pa_csv.ConvertOptions(
+                                    column_types={f"f{i}": pa.string()
+                                                  for i in range(n_columns or 0)},
+                                    check_utf8=False))
+            except pa.ArrowInvalid:
+                pass
+            if bad:
+                row = bad[0]
+                first = self.lines.line(0)
+                line = self.lines.line(row.number - 1) if row.number is not None else None
+                return InputError(
+                    f"expected {row.expected_columns} fields (as on line {first}), "
+                    f"found {row.actual_columns}", path=self.path, line=line)
+        return InputError(f"cannot be read as delimited text: {text}", path=self.path)
+
+
+def _is_numeric(values: pa.Array | pa.ChunkedArray) -> bool:
+    return len(values) > 0 and to_float64(values) is not None
+
+
+def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
+                   progress: Progress = None) -> EdgeRecords:
+    """Read a delimited edge list into :class:`EdgeRecords`.
+
+    Parameters
+    ----------
+    path : str
+        File name, for messages.
+    data : bytes
+        File content.
+    fmt : {"csv", "tsv", "edgelist"}
+        Default delimiter ``","``, tab, or runs of blanks.
+    policy : ImportPolicy
+        ``delimiter``, ``comment``, ``header`` and ``weight`` are used here.
+    progress : callable or None, default None
+
+    Returns
+    -------
+    EdgeRecords
+        One record per data line; columns 0 and 1 are the endpoints.
+
+    Raises
+    ------
+    InputError
+        Invalid UTF-8, wrong field count, empty id, bad weight, unknown weight
+        column, no records; each with file and 1-based line.
+    ParameterError
+        A weight column that is an endpoint column, a weight name with
+        ``header="no"``.
+
+    Notes
+    -----
+    Line numbers count every physical line (header, blank and comment lines
+    included). Quoting: CSV and other one-character delimiters follow
+    RFC 4180 (``"`` quotes, ``""`` inside); TSV (IANA text/tab-separated-values)
+    and whitespace files have no quoting. Line breaks inside quoted values are
+    refused. See :func:`workspace.io.read_network` for the header rule.
+
+    References
+    ----------
+    Y. Shafranovich, RFC 4180 (2005); IANA media type text/tab-separated-values
+    (1993); Apache Arrow ``pyarrow.csv.read_csv`` (Arrow 15, 2024).
+    """
+    delimiter = resolve_delimiter(fmt, policy.delimiter)
+    data = normalise_newlines(strip_bom(data))
+    check_utf8(data, path)
+    if policy.comment:
+        data = _remove_comments(data, policy.comment)
+    if delimiter == WHITESPACE:
+        data = _normalise_whitespace(data)
+        reader = _Csv(path, data, " ", quoting=False)
+    else:
+        reader = _Csv(path, data, delimiter, quoting=delimiter != "\t")
+    notes: list[str] = []
+    shown = {"\t": "tab", " ": "blank runs", WHITESPACE: "blank runs"}.get(delimiter, repr(delimiter))
+
+    # --- first non-blank line (column count) and a sample of up to 256 KiB of whole lines
+    lead = re.match(rb"\n*", data).end()
+    if lead == len(data):
+        raise InputError("the file holds no records", path=path)
+    header_line = data.count(b"\n", 0, lead) + 1
+    first_end = data.find(b"\n", lead)
+    first_table = reader.read(data[lead:] if first_end < 0 else data[lead:first_end + 1],
+                              None, None, threads=False)
+    n_columns = first_table.num_columns
+    if n_columns < 2:
+        raise InputError(f"expected at least 2 fields (two endpoint ids) separated by {shown}, "
+                         f"found 1", path=path, line=header_line)
+    sample_bytes = data
+    if len(data) > _SAMPLE_BYTES:
+        cut = data.rfind(b"\n", 0, _SAMPLE_BYTES)
+        sample_bytes = data[:cut + 1] if cut >= 0 else data
+    sample = reader.read(sample_bytes, n_columns, None, threads=False)
+    first_row = [sample.column(i)[0].as_py() for i in range(n_columns)]
+
+    # --- header decision (rules documented in read_network)
+    header, candidate_reason = _header_decision(policy, sample, first_row)
+    weight_index = _weight_column(policy, path, header, first_row, n_columns, header_line)
+
+    report_progress(progress, "parse", 0, None)
+    include = [0, 1] + ([weight_index] if weight_index is not None else [])
+    table = reader.read(data, n_columns, include, threads=True)
+    expected_rows = table.num_rows
+    if reader.parse_kwargs["quote_char"] and b'"' in data:
+        expected_rows = count_nonblank_lines(data)
+    if table.num_rows != expected_rows:
+        raise InputError(f"{table.num_rows} records parsed from {expected_rows} non-blank lines: "
+                         "a quoted value spans a line break, which is not supported",
+                         path=path)
+    report_progress(progress, "parse", table.num_rows, table.num_rows)
+    source = table.column(0)
+    target = table.column(1)
+
+    if header and candidate_reason is not None:
+        # guard: column names never double as node ids further down
+        rest = [source.slice(1), target.slice(1)]
+        names = [first_row[0], first_row[1]]
+        if any(pc.any(pc.equal(col, name)).as_py() for col in rest for name in names):
+            header = False
+            notes.append(f"header=auto: line {header_line} read as data: its fields "
+                         f"{names[0]!r}/{names[1]!r} also occur as node ids below")
+        else:
+            notes.append(f"header=auto: line {header_line} read as column names "
+                         f"({candidate_reason}): {', '.join(map(str, first_row))}")
+    elif policy.header == "auto" and not header:
+        notes.append(f"header=auto: line {header_line} read as data")
+    elif header:
+        reason = "header=yes" if policy.header == "yes" else "a weight column is named"
+        notes.append(f"line {header_line} read as column names ({reason}): "
+                     f"{', '.join(map(str, first_row))}")
+    start = 1 if header else 0
+    if table.num_rows - start == 0:
+        raise InputError("the file holds a header but no edge records", path=path,
+                         line=header_line)
+    if weight_index is None and n_columns > 2:
+        extra = first_row[2:] if header else [f"column {i}" for i in range(2, n_columns)]
+        notes.append(f"no weight column chosen: {', '.join(map(str, extra))} ignored; "
+                     "edges weigh 1")
+
+    def locate(i: int) -> tuple[int | None, str | None]:
+        return reader.lines.line(i + start), None
+
+    source = source.slice(start)
+    target = target.slice(start)
+    m = len(source)
+    if weight_index is not None:
+        column = table.column(2).slice(start)
+
+        def fail(i: int, message: str) -> InputError:
+            return InputError(message, path=path, line=locate(i)[0])
+
+        weight = weights_from_strings(column, fail)
+        label = f"column {first_row[weight_index]!r}" if header else f"column {weight_index}"
+        notes.append(f"weights from {label}")
+    else:
+        weight = np.ones(m, dtype=np.float64)
+    notes.insert(0, f"fields separated by {shown}")
+    return EdgeRecords(path=path, format=fmt, source=source, target=target, weight=weight,
+                       weighted=weight_index is not None, directed=False, locate=locate,
+                       notes=notes)
+
+
+def _header_decision(policy: ImportPolicy, sample: pa.Table,
+                     first_row: list[str]) -> tuple[bool, str | None]:
+    """(header?, reason when auto found a candidate that still needs the id guard)."""
+    if policy.header == "yes":
+        return True, None
+    if policy.header == "no":
+        return False, None
+    if isinstance(policy.weight, str) and not policy.weight.isdigit():
+        return True, None  # a weight column named by the user means there is a header
+    if any(_is_numeric(pa.array([value], pa.string())) for value in first_row):
+        return False, None
+    names = (first_row[0].strip().lower(), first_row[1].strip().lower())
+    if names in ENDPOINT_HEADER_NAMES:
+        return True, "it names the endpoint columns"
+    below = sample.slice(1)
+    if below.num_rows == 0:
+        return False, None
+    for i, value in enumerate(first_row):
+        if _is_numeric(below.column(i)):
+            return True, (f"field {value!r} is not a number while the column below it is "
+                          "numeric")
+    return False, None
+
+
+def _weight_column(policy: ImportPolicy, path: str, header: bool, first_row: list[str],
+                   n_columns: int, header_line: int | None) -> int | None:
+    """0-based index of the weight column or None (unweighted)."""
+    weight = policy.weight
+    if weight is None:
+        return None
+    index: int | None = None
+    if isinstance(weight, str) and not weight.isdigit():
+        if not header:
+            raise ParameterError(f"weight column {weight!r} is named, but header='no'; "
+                                 "use a 0-based column index or header='yes'")
+        matches = [i for i, name in enumerate(first_row) if name == weight]
+        if not matches:
+            matches = [i for i, name in enumerate(first_row)
+                       if name.strip().lower() == weight.strip().lower()]
+        if len(matches) != 1:
+            raise InputError(f"no single column named {weight!r} in the header "
+                             f"(columns: {', '.join(map(str, first_row))})",
+                             path=path, line=header_line)
+        index = matches[0]
+    else:
+        if isinstance(weight, str) and header and weight in first_row:
+            index = first_row.index(weight)
+        else:
+            index = int(weight)
+    if index in (0, 1):
+        raise ParameterError(f"weight column {weight!r} is an endpoint column; endpoint ids "
+                             "are columns 0 and 1")
+    if not 0 <= index < n_columns:
+        raise InputError(f"weight column {index} (0-based) does not exist: the file has "
+                         f"{n_columns} columns", path=path, line=header_line)
+    return index

@@ -1,0 +1,364 @@
+"""Membership files: which community each node belongs to.
+
+Formats: CSV with the header ``node,community`` (RFC 4180 quoting), JSON
+``{"nodes": [{"id": ..., "community": ...}]}`` and GraphML whose nodes carry a
+``community`` attribute. Community labels read back are renumbered by first
+appearance in canonical node order, the numbering the rest of the package uses.
+"""
+
+from __future__ import annotations
+
+import csv
+import json
+import os
+import re
+from xml.etree.ElementTree import ParseError
+from xml.sax.saxutils import quoteattr
+
+import defusedxml
+import defusedxml.ElementTree as safe_etree
+import numpy as np
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from workspace.errors import InputError, ParameterError
+from workspace.io._common import (
+    check_utf8,
+    normalise_newlines,
+    read_bytes,
+    string_array,
+    strip_bom,
+)
+from workspace.io.delimited import _Csv
+from workspace.io.node_link import _id_text
+
+MEMBERSHIP_FORMATS = ("csv", "json", "graphml")
+_XML_FORBIDDEN = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
+
+
+def _membership_format(path: str, format: str | None) -> str:
+    if format is not None:
+        if format not in MEMBERSHIP_FORMATS:
+            raise ParameterError(f"membership format must be one of "
+                                 f"{', '.join(MEMBERSHIP_FORMATS)}, not {format!r}")
+        return format
+    name = path.lower().removesuffix(".gz")
+    for suffix, fmt in ((".csv", "csv"), (".json", "json"), (".graphml", "graphml"),
+                        (".xml", "graphml")):
+        if name.endswith(suffix):
+            return fmt
+    raise InputError("cannot tell the membership format from the file name; use .csv, "
+                     ".json or .graphml", path=path)
+
+
+def _labels(path: str, node_ids: np.ndarray, nodes: pa.Array, communities: pa.Array,
+            locate) -> tuple[np.ndarray, dict]:
+    """Records (node id, community name) -> labels by node index + info."""
+    n = int(node_ids.size)
+    known = pa.array(np.asarray(node_ids, dtype=str), type=pa.string())
+    index = pc.index_in(nodes, value_set=known)
+    if index.null_count:
+        i = int(np.flatnonzero(index.is_null().to_numpy(zero_copy_only=False))[0])
+        line, label = locate(i)
+        raise InputError(f"node {nodes[i].as_py()!r} is not in the network"
+                         + (f" ({label})" if label else ""), path=path, line=line)
+    index = index.to_numpy().astype(np.int64)
+    if index.size:
+        order = np.argsort(index, kind="stable")
+        repeat = np.flatnonzero(index[order][1:] == index[order][:-1]) + 1
+        if repeat.size:
+            p = repeat[np.argmin(order[repeat])]
+            i, first = int(order[p]), int(order[p - 1])
+            line, label = locate(i)
+            first_line, first_label = locate(first)
+            where = f"line {first_line}" if first_line is not None else first_label
+            raise InputError(f"node {nodes[i].as_py()!r} is listed twice (first at {where})"
+                             + (f" ({label})" if label else ""), path=path, line=line)
+    lengths = pc.binary_length(communities)
+    if len(communities) and pc.min(lengths).as_py() == 0:
+        i = pc.index(lengths, 0).as_py()
+        line, label = locate(i)
+        raise InputError(f"node {nodes[i].as_py()!r} has an empty community"
+                         + (f" ({label})" if label else ""), path=path, line=line)
+    encoded = pc.dictionary_encode(communities)
+    codes = encoded.indices.to_numpy(zero_copy_only=False).astype(np.int64)
+    names = encoded.dictionary.to_pylist()
+    by_node = np.full(n, -1, dtype=np.int64)
+    by_node[index] = codes
+    present = by_node >= 0
+    seen, first_at = np.unique(by_node[present], return_index=True)
+    order = seen[np.argsort(first_at)]
+    relabel = np.full(len(names), -1, dtype=np.int64)
+    relabel[order] = np.arange(order.size)
+    labels = np.where(present, relabel[np.maximum(by_node, 0)], -1).astype(np.int64)
+    info = {
+        "records": int(len(nodes)),
+        "missing": int(n - np.count_nonzero(present)),
+        "communities": {int(relabel[c]): names[c] for c in order.tolist()},
+    }
+    return labels, info
+
+
+def read_membership(path: str | os.PathLike, node_ids: np.ndarray, *,
+                    format: str | None = None) -> tuple[np.ndarray, dict]:
+    """Read a membership file against a network's canonical node ids.
+
+    Community names (any string) become integers by first appearance in
+    canonical node order: with ``c(i)`` the name of node ``i``, label
+    ``L(i) = |{c(j) : j < first index of c(i)}|``, i.e. the first node's
+    community is 0, the next new community 1, and so on.
+
+    Parameters
+    ----------
+    path : str or PathLike
+        ``.csv`` (header with columns ``node`` and ``community``; other
+        columns ignored), ``.json`` or ``.graphml`` (node attribute
+        ``community``), unless ``format`` says otherwise.
+    node_ids : ndarray of str, shape (n,)
+        The network's canonical node ids.
+    format : {"csv", "json", "graphml"} or None, default None
+        None means by file extension.
+
+    Returns
+    -------
+    labels : ndarray of int64, shape (n,)
+        Label of node ``node_ids[i]``; -1 where the file does not list it.
+    info : dict
+        ``records`` (int), ``missing`` (nodes not in the file), ``communities``
+        (dict label -> community name as written in the file).
+
+    Raises
+    ------
+    InputError
+        Missing/unreadable file, missing ``node,community`` header, a node
+        that is not in the network, a node listed twice, an empty community,
+        wrong field counts, invalid UTF-8 - with file and 1-based line
+        (JSON: the ``nodes[i]`` index).
+
+    Notes
+    -----
+    A file written by :func:`write_membership` reads back to exactly the
+    labels written when those are numbered by first appearance (the
+    package's canonical numbering); otherwise to the same partition.
+
+    References
+    ----------
+    Y. Shafranovich, "Common Format and MIME Type for Comma-Separated Values
+    (CSV) Files", RFC 4180 (2005).
+    """
+    path = os.fspath(path)
+    fmt = _membership_format(path, format)
+    data = read_bytes(path)
+    if fmt == "csv":
+        return _read_csv(path, data, node_ids)
+    if fmt == "json":
+        return _read_json(path, data, node_ids)
+    return _read_graphml(path, data, node_ids)
+
+
+def _read_csv(path: str, data: bytes, node_ids: np.ndarray):
+    data = normalise_newlines(strip_bom(data))
+    check_utf8(data, path)
+    reader = _Csv(path, data, ",", quoting=True)
+    if reader.lines.n_rows == 0:
+        raise InputError("the membership file is empty", path=path)
+    begin = int(reader.lines.starts[0])
+    end = data.find(b"\n", begin)
+    first = reader.read(data[begin:] if end < 0 else data[begin:end + 1], None, None,
+                        threads=False)
+    header = [first.column(i)[0].as_py() for i in range(first.num_columns)] \
+        if first.num_rows else []
+    if "node" not in header or "community" not in header:
+        raise InputError("a membership CSV needs the header line node,community (found: "
+                         f"{','.join(map(str, header))})", path=path, line=reader.lines.line(0))
+    columns = [header.index("node"), header.index("community")]
+    table = reader.read(data, len(header), columns, threads=True)
+    nodes = table.column(0).slice(1).combine_chunks()
+    communities = table.column(1).slice(1).combine_chunks()
+    return _labels(path, node_ids, nodes, communities,
+                   lambda i: (reader.lines.line(i + 1), None))
+
+
+def _read_json(path: str, data: bytes, node_ids: np.ndarray):
+    data = strip_bom(data)
+    check_utf8(data, path)
+    try:
+        document = json.loads(data.decode("utf-8"))
+    except json.JSONDecodeError as err:
+        raise InputError(f"not valid JSON: {err.msg}", path=path, line=err.lineno) from None
+    if not isinstance(document, dict) or not isinstance(document.get("nodes"), list):
+        raise InputError('a membership JSON needs {"nodes": [{"id": ..., "community": ...}]}',
+                         path=path)
+    entries = document["nodes"]
+    ids = [_id_text(e.get("id")) if isinstance(e, dict) else None for e in entries]
+    names = [_id_text(e.get("community")) if isinstance(e, dict) else None for e in entries]
+    for values, what in ((ids, "id"), (names, "community")):
+        if None in values:
+            j = values.index(None)
+            raise InputError(f"nodes[{j}]: {what} must be a string or integer", path=path)
+    return _labels(path, node_ids, string_array(ids), string_array(names),
+                   lambda i: (None, f"nodes[{i}]"))
+
+
+class _CommunityTarget:
+    """Node ids and their ``community`` data values from GraphML, with lines."""
+
+    def __init__(self) -> None:
+        self.expat = None
+        self.keys: set[str] = set()
+        self.ids: list[str] = []
+        self.values: list[str | None] = []
+        self.lines: list[int] = []
+        self.text: list[str] | None = None
+        self.depth = 0
+        self.node_depth: int | None = None
+
+    def start(self, tag, attrib):
+        name = tag.rsplit("}", 1)[-1]
+        self.depth += 1
+        if name == "key" and attrib.get("attr.name") == "community" \
+                and attrib.get("for", "all") in ("node", "all"):
+            self.keys.add(attrib.get("id", ""))
+        elif name == "node" and self.node_depth is None:
+            self.node_depth = self.depth
+            self.ids.append(attrib.get("id"))
+            self.values.append(None)
+            self.lines.append(int(self.expat.CurrentLineNumber))
+        elif name == "data" and self.node_depth == self.depth - 1 \
+                and attrib.get("key") in self.keys:
+            self.text = []
+
+    def data(self, text):
+        if self.text is not None:
+            self.text.append(text)
+
+    def end(self, tag):
+        name = tag.rsplit("}", 1)[-1]
+        if name == "data" and self.text is not None:
+            self.values[-1] = "".join(self.text).strip()
+            self.text = None
+        if name == "node" and self.node_depth == self.depth:
+            self.node_depth = None
+        self.depth -= 1
+
+    def close(self):
+        return None
+
+
+def _read_graphml(path: str, data: bytes, node_ids: np.ndarray):
+    target = _CommunityTarget()
+    parser = safe_etree.DefusedXMLParser(target=target)
+    target.expat = parser.parser
+    try:
+        parser.feed(data)
+        parser.close()
+    except ParseError as err:
+        raise InputError(f"not well-formed XML: {err}", path=path,
+                         line=err.position[0] if getattr(err, "position", None) else None) \
+            from None
+    except defusedxml.DefusedXmlException as err:
+        raise InputError(f"refused: entity declarations or external references ({err})",
+                         path=path) from None
+    if None in target.ids:
+        j = target.ids.index(None)
+        raise InputError("<node> without an id attribute", path=path, line=target.lines[j])
+    kept = [j for j, value in enumerate(target.values) if value is not None]
+    lines = [target.lines[j] for j in kept]
+    return _labels(path, node_ids, string_array([target.ids[j] for j in kept]),
+                   string_array([target.values[j] for j in kept]),
+                   lambda i: (lines[i], None))
+
+
+def write_membership(path: str | os.PathLike, node_ids: np.ndarray, labels: np.ndarray,
+                     format: str = "csv", *, graph=None) -> int:
+    """Write node -> community labels; nodes labelled -1 are left out.
+
+    Parameters
+    ----------
+    path : str or PathLike
+        Output file (overwritten).
+    node_ids : ndarray of str, shape (n,)
+    labels : ndarray of int, shape (n,)
+        Community of each node, -1 for none.
+    format : {"csv", "json", "graphml"}, default "csv"
+        CSV: header ``node,community``, RFC 4180 quoting, UTF-8, ``\\n``.
+        JSON: ``{"nodes": [{"id": str, "community": int}, ...]}``.
+        GraphML: ``<key attr.name="community" attr.type="int" for="node">``.
+    graph : GraphData or None, default None
+        GraphML only: also write its edges with a ``weight`` attribute, so
+        the file shows the partition on the network.
+
+    Returns
+    -------
+    int
+        Number of nodes written.
+
+    Raises
+    ------
+    ParameterError
+        Unknown format, lengths that differ, ``graph`` whose ids differ.
+    InputError
+        An id that the format cannot carry (a line break in CSV, an XML
+        control character in GraphML).
+
+    References
+    ----------
+    RFC 4180 (2005); U. Brandes et al., "GraphML Progress Report" (2002).
+    """
+    path = os.fspath(path)
+    if format not in MEMBERSHIP_FORMATS:
+        raise ParameterError(f"membership format must be one of "
+                             f"{', '.join(MEMBERSHIP_FORMATS)}, not {format!r}")
+    node_ids = np.asarray(node_ids)
+    labels = np.asarray(labels)
+    if node_ids.shape != labels.shape or node_ids.ndim != 1:
+        raise ParameterError("node_ids and labels must be 1-D arrays of the same length")
+    keep = np.flatnonzero(labels >= 0)
+    ids = node_ids[keep].tolist()
+    values = labels[keep].astype(np.int64).tolist()
+    if format == "csv":
+        bad = next((x for x in ids if "\n" in x or "\r" in x), None)
+        if bad is not None:
+            raise InputError(f"node id {bad!r} holds a line break, which a membership CSV "
+                             "cannot carry; write json or graphml", path=path)
+        with open(path, "w", encoding="utf-8", newline="") as out:
+            writer = csv.writer(out, lineterminator="\n")
+            writer.writerow(["node", "community"])
+            writer.writerows(zip(ids, values))
+    elif format == "json":
+        with open(path, "w", encoding="utf-8") as out:
+            json.dump({"nodes": [{"id": i, "community": c} for i, c in zip(ids, values)]},
+                      out, ensure_ascii=False, indent=None)
+            out.write("\n")
+    else:
+        all_ids = node_ids.tolist()
+        bad = next((x for x in all_ids if _XML_FORBIDDEN.search(x)), None)
+        if bad is not None:
+            raise InputError(f"node id {bad!r} holds a character XML cannot carry; write "
+                             "json", path=path)
+        if graph is not None and not np.array_equal(graph.node_ids, node_ids):
+            raise ParameterError("graph node ids differ from node_ids")
+        label_of = labels.astype(np.int64).tolist()
+        parts = ['<?xml version="1.0" encoding="UTF-8"?>\n',
+                 '<graphml xmlns="http://graphml.graphdrawing.org/xmlns">\n',
+                 '  <key id="community" for="node" attr.name="community" attr.type="int"/>\n']
+        if graph is not None:
+            parts.append('  <key id="weight" for="edge" attr.name="weight" '
+                         'attr.type="double"/>\n')
+        parts.append('  <graph id="G" edgedefault="undirected">\n')
+        for node, label in zip(all_ids, label_of):
+            if label >= 0:
+                parts.append(f'    <node id={quoteattr(node)}><data key="community">{label}'
+                             '</data></node>\n')
+            else:
+                parts.append(f'    <node id={quoteattr(node)}/>\n')
+        if graph is not None:
+            names = graph.node_ids
+            for a, b, w in zip(names[graph.edge_u].tolist(), names[graph.edge_v].tolist(),
+                               graph.weight.tolist()):
+                parts.append(f'    <edge source={quoteattr(a)} target={quoteattr(b)}>'
+                             f'<data key="weight">{w!r}</data></edge>\n')
+        parts.append("  </graph>\n</graphml>\n")
+        with open(path, "w", encoding="utf-8") as out:
+            out.write("".join(parts))
+    return len(ids)
