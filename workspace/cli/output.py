@@ -52,8 +52,10 @@ class Out:
         if self._console is None:
             from rich.console import Console
 
-            self._console = Console(file=sys.stderr if self.json_mode else sys.stdout, highlight=False,
-                                    soft_wrap=False)
+            stream = sys.stderr if self.json_mode else sys.stdout
+            # piped output is read by people and scripts alike: do not fold it at 80 columns
+            width = None if stream.isatty() else 200
+            self._console = Console(file=stream, highlight=False, soft_wrap=False, width=width)
         return self._console
 
     def line(self, text: str = "") -> None:
