@@ -108,7 +108,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--repeats", type=int, default=1,
                    help="repeat with seeds seed..seed+N-1 for a consensus and per-node stability")
     p.add_argument("--perturb", type=float, default=None,
-                   help="with --repeats: share of edges each repeat drops at random (default 0.1)")
+                   help="with --repeats: sd of the random factor (mean 1) on each edge weight per repeat (default 0.5; "
+                        "0 = vary the seed only)")
 
     p = add("rerun", "repeat a run from its record and check the membership is identical", "runs", "cmd_rerun")
     p.add_argument("run", type=int)

@@ -45,7 +45,7 @@ def normalize_k(method: str, k: Any) -> str | None:
         return None
     if isinstance(k, str) and k.strip().lower() == "auto":
         if not info.supports_auto_k:
-            raise ParameterError(f"method {method!r} cannot choose k by itself; give --k N")
+            raise ParameterError(f"method {method!r} cannot choose k by itself (k='auto'); give a number")
         return "auto"
     try:
         value = int(k)

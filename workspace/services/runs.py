@@ -29,7 +29,7 @@ from workspace.store.schema import Network, NetworkVersion, Project, Run, RunCom
 
 Progress = Callable[[str, int, int | None], None]
 MAX_REPEATS = 500
-DEFAULT_PERTURB = 0.1
+DEFAULT_PERTURB = 0.5  # sd of the multiplicative edge-weight noise of each repeat
 
 
 @dataclass(frozen=True)
@@ -131,8 +131,8 @@ def prepare_run(store: Store, ref: str | VersionRef, *, params_ref: str | None =
         raise ParameterError(f"repeats must be an integer from 1 to {MAX_REPEATS}, got {repeats!r}")
     if perturb is None:
         perturb = DEFAULT_PERTURB if repeats > 1 else 0.0
-    if not 0.0 <= float(perturb) < 0.5:
-        raise ParameterError(f"perturb (share of edges dropped per repeat) must be in [0, 0.5), got {perturb!r}")
+    if not 0.0 <= float(perturb) <= 2.0:
+        raise ParameterError(f"perturb (sd of the edge-weight noise per repeat) must be in [0, 2], got {perturb!r}")
     if perturb > 0 and repeats == 1:
         raise ParameterError("perturb applies to repeated runs; give --repeats N (N >= 2) as well")
     vref = VersionRef.parse(ref) if isinstance(ref, str) else ref
@@ -159,13 +159,20 @@ def prepare_run(store: Store, ref: str | VersionRef, *, params_ref: str | None =
 
 # --- computing (no store access) ------------------------------------------------------------
 
-def _perturbed(A, fraction: float, seed: int):
-    """Drop each undirected edge independently with probability ``fraction`` (seeded)."""
+def _perturbed(A, spread: float, seed: int):
+    """Multiply each undirected edge's weight by independent Gamma noise with mean 1 and sd ``spread``.
+
+    Every edge keeps a positive weight, so the graph's components never change
+    (dropping edges instead would split sparse graphs into many pieces). With
+    ``spread`` = 1 the factors are Exp(1): the Bayesian bootstrap of edge weights
+    (Rubin 1981). Seeded: the same seed gives the same perturbed graph.
+    """
     import scipy.sparse as sp
 
     upper = sp.triu(A, k=0, format="coo")
-    keep = np.random.default_rng([seed, 0x5EED]).random(upper.nnz) >= fraction
-    r, c, w = upper.row[keep], upper.col[keep], upper.data[keep]
+    shape = 1.0 / spread**2
+    factor = np.random.default_rng([seed, 0x5EED]).gamma(shape, 1.0 / shape, size=upper.nnz)
+    r, c, w = upper.row, upper.col, upper.data * factor
     off = r != c
     B = sp.csr_array((np.concatenate([w, w[off]]), (np.concatenate([r, c[off]]), np.concatenate([c, r[off]]))),
                      shape=A.shape)
@@ -177,8 +184,8 @@ def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None
             cancel: Callable[[], bool] | None = None) -> Computed:
     """Run the method (``spec.repeats`` times with seeds seed … seed+N−1) on the graph.
 
-    With repeats, each repeat drops a seeded random share ``spec.perturb`` of the
-    edges; the stored membership is the consensus (each node's most frequent
+    With repeats, each repeat multiplies edge weights by seeded random noise of
+    standard deviation ``spec.perturb`` (see :func:`_perturbed`); the stored membership is the consensus (each node's most frequent
     community after matching every repeat to the first by overlap), and the
     per-node stability is the share of repeats that keep the node in it.
     """
