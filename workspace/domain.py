@@ -18,26 +18,50 @@ INDEX_DTYPE = np.int64
 WEIGHT_DTYPE = np.float64
 
 
+_VECTOR_LIMIT = 1 << 28  # bytes of the padded code-point matrix the vectorised path may build
+
+
 def encode_node_ids(node_ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Pack string node ids as (offsets int64 of length n+1, UTF-8 bytes uint8).
 
     The packed form is what gets stored and hashed: it has no pickled objects
-    and no fixed-width padding, so it stays small for long ids.
+    and no fixed-width padding, so it stays small for long ids. ASCII ids take a
+    vectorised path (their code points are their UTF-8 bytes); others a loop.
+    Both give the same bytes.
     """
+    node_ids = np.asarray(node_ids)
+    n = node_ids.shape[0]
+    offsets = np.zeros(n + 1, dtype=np.int64)
+    if n == 0:
+        return offsets, np.zeros(0, dtype=np.uint8)
+    if node_ids.dtype.kind == "U" and node_ids.dtype.itemsize and n * node_ids.dtype.itemsize <= _VECTOR_LIMIT:
+        width = node_ids.dtype.itemsize // 4
+        points = np.ascontiguousarray(node_ids).view(np.uint32).reshape(n, width)
+        lengths = np.strings.str_len(node_ids).astype(np.int64)
+        mask = np.arange(width)[None, :] < lengths[:, None]
+        chosen = points[mask]
+        if chosen.size == 0 or (chosen.max() < 128 and chosen.min() > 0):
+            np.cumsum(lengths, out=offsets[1:])
+            return offsets, chosen.astype(np.uint8)
     encoded = [str(x).encode("utf-8") for x in node_ids.tolist()]
-    lengths = np.fromiter((len(b) for b in encoded), dtype=np.int64, count=len(encoded))
-    offsets = np.zeros(len(encoded) + 1, dtype=np.int64)
-    np.cumsum(lengths, out=offsets[1:])
-    data = np.frombuffer(b"".join(encoded), dtype=np.uint8)
-    return offsets, data
+    np.cumsum(np.fromiter(map(len, encoded), dtype=np.int64, count=n), out=offsets[1:])
+    return offsets, np.frombuffer(b"".join(encoded), dtype=np.uint8).copy()
 
 
 def decode_node_ids(offsets: np.ndarray, data: np.ndarray) -> np.ndarray:
     """Inverse of :func:`encode_node_ids`; returns a numpy ``str`` array."""
+    n = offsets.shape[0] - 1
+    if n <= 0:
+        return np.array([], dtype="<U1")
+    lengths = np.diff(offsets)
+    width = max(int(lengths.max()), 1)
+    if n * width * 4 <= _VECTOR_LIMIT and (data.size == 0 or (data.max() < 128 and data.min() > 0)):
+        points = np.zeros((n, width), dtype=np.uint32)
+        points[np.arange(width)[None, :] < lengths[:, None]] = data
+        return points.view(f"<U{width}").reshape(n)
     raw = data.tobytes()
     off = offsets.tolist()
-    ids = [raw[off[i]:off[i + 1]].decode("utf-8") for i in range(len(off) - 1)]
-    return np.array(ids, dtype=NODE_ID_DTYPE) if ids else np.array([], dtype="<U1")
+    return np.array([raw[off[i]:off[i + 1]].decode("utf-8") for i in range(n)], dtype=NODE_ID_DTYPE)
 
 
 @dataclass(frozen=True, eq=False)

@@ -1,0 +1,1 @@
+"""The workspace's screens (each module is imported when its screen is first opened)."""

@@ -1,0 +1,130 @@
+"""Node lookup: where one node sits in every run of every version of a network."""
+
+from __future__ import annotations
+
+from typing import Any
+
+from rich.text import Text
+from textual import on, work
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical
+from textual.screen import Screen
+from textual.widgets import Footer, Input, Label, Select, Static
+
+from workspace.tui.widgets.detail import MUTED, fmt_value
+from workspace.tui.widgets.paged_table import Column, ListSource, PagedTable
+
+
+def _what(value, row) -> str:
+    return row["method"] if row.get("kind") != "attached" else f"⇲ {row.get('label') or 'attached'}"
+
+
+WHERE_COLUMNS = [
+    Column("run", "run", 6, "right"),
+    Column("version", "version", 8, "right", format=lambda v, r: f"@{v}"),
+    Column("method", "method / grouping", 0, format=_what),
+    Column("k", "k", 4, "right"),
+    Column("community", "community", 10, "right",
+           format=lambda v, r: ("absent" if not r.get("present") else "—") if v is None else f"c{v}"),
+    Column("community_size", "its size", 9, "right", format=lambda v, r: "" if v is None else str(v)),
+    Column("stability", "stability", 9, "right", format=lambda v, r: "" if v is None else f"{v:.2f}"),
+]
+
+
+class LookupScreen(Screen):
+    """Follow a node across runs and versions."""
+
+    TITLE = "Node lookup"
+    BINDINGS = [Binding("ctrl+f", "find", "Node box", priority=True)]
+
+    def __init__(self) -> None:
+        super().__init__(id="lookup")
+        self.result: dict[str, Any] | None = None
+
+    def compose(self) -> ComposeResult:
+        with Horizontal(id="lookup-top", classes="field-row"):
+            yield Label("network", classes="name short")
+            yield Select([], prompt="network", id="lookup-network")
+            yield Label("node", classes="name short")
+            yield Input("", id="lookup-node", placeholder="node id, then enter")
+        with Vertical(classes="pane", id="lookup-pane"):
+            yield Static("Where the node sits", classes="pane-title")
+            yield Static(Text("choose a network, type a node id and press enter", style=MUTED),
+                         id="lookup-summary")
+            yield PagedTable(WHERE_COLUMNS, id="lookup-runs", empty_text="no runs to show")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        self._load_networks()
+        self.on_screen_resume()
+
+    def _load_networks(self) -> None:
+        from workspace.services.browse import outline
+
+        try:
+            nets = [n["ref"] for p in outline(self.app.store) for n in p["networks"]]
+        except Exception as exc:  # noqa: BLE001
+            self.app.report(exc)
+            return
+        sel = self.query_one("#lookup-network", Select)
+        current = sel.value
+        sel.set_options([(n, n) for n in nets])
+        if current in nets:
+            sel.value = current
+        elif len(nets) == 1:
+            sel.value = nets[0]
+
+    def on_screen_resume(self) -> None:
+        net = getattr(self.app, "lookup_network", None)
+        if net:
+            self.app.lookup_network = None
+            self._load_networks()
+            self.query_one("#lookup-network", Select).value = net
+        self.query_one("#lookup-node", Input).focus()
+
+    def action_find(self) -> None:
+        self.query_one("#lookup-node", Input).focus()
+
+    @on(Input.Submitted, "#lookup-node")
+    def _submitted(self, event: Input.Submitted) -> None:
+        net = self.query_one("#lookup-network", Select).value
+        node = event.value.strip()
+        if not isinstance(net, str):
+            self.notify("choose a network first", severity="error")
+            return
+        if not node:
+            self.notify("type a node id", severity="error")
+            return
+        self.lookup(node, net)
+
+    @work(thread=True, exclusive=True, group="lookup", exit_on_error=False)
+    def lookup(self, node: str, network: str) -> None:
+        from workspace.services.runs import where_node
+
+        try:
+            result = where_node(self.app.store, node, network)
+        except Exception as exc:  # noqa: BLE001
+            self.app.call_from_thread(self.app.report, exc)
+            self.app.call_from_thread(self.query_one("#lookup-summary", Static).update,
+                                      Text(str(exc), style="#d0705a"))
+            self.app.call_from_thread(self.query_one("#lookup-runs", PagedTable).set_source, ListSource([]))
+            return
+        self.app.call_from_thread(self.show_result, result)
+
+    def show_result(self, r: dict[str, Any]) -> None:
+        self.result = r
+        runs = r.get("runs") or []
+        t = Text()
+        t.append(f"{r['node']}", style="bold")
+        t.append(f" in {r['network']}: present in version(s) "
+                 f"{', '.join('@' + str(v) for v in r['versions_with_node'])}; {len(runs)} finished run(s)")
+        comms = {}
+        for row in runs:
+            if row.get("community") is not None:
+                comms.setdefault(row["version"], set()).add(row["community"])
+        if comms:
+            t.append("\n" + "  ".join(f"@{v}: communities {fmt_value(sorted(c))}" for v, c in sorted(comms.items())),
+                     style=MUTED)
+        self.query_one("#lookup-summary", Static).update(t)
+        self.query_one("#lookup-runs", PagedTable).set_source(ListSource(runs))

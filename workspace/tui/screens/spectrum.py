@@ -1,0 +1,94 @@
+"""Spectrum: a run's computed eigenvalues with the largest gap marked, and its community sizes."""
+
+from __future__ import annotations
+
+from textual import on
+from textual.app import ComposeResult
+from textual.binding import Binding
+from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.screen import Screen
+from textual.widgets import Footer, Input, Label, Static
+
+from workspace.tui.widgets.charts import SizeHistogram, SpectrumPlot
+from workspace.tui.widgets.detail import fmt_value
+
+# diagnostics keys under which a method may report the k it derived from the spectrum itself
+SUGGESTED_KEYS = ("eigengap_suggestion", "suggested_k", "k_suggested", "eigengap_k", "auto_k", "k_auto")
+
+
+class SpectrumScreen(Screen):
+    """Eigenvalue bars and community-size histogram of one run."""
+
+    TITLE = "Spectrum"
+    BINDINGS = [
+        Binding("left_square_bracket", "step(-1)", "Older run"),
+        Binding("right_square_bracket", "step(1)", "Newer run"),
+        Binding("ctrl+f", "focus_run", "Run id box", priority=True),
+    ]
+
+    def __init__(self) -> None:
+        super().__init__(id="spectrum")
+        self.run_id: int | None = None
+
+    def compose(self) -> ComposeResult:
+        with Horizontal(id="spectrum-top", classes="field-row"):
+            yield Label("run", classes="name")
+            yield Input("", id="spectrum-run", placeholder="run id, then enter", type="integer")
+            yield Static("", id="spectrum-summary")
+        with VerticalScroll(id="spectrum-body"):
+            with Vertical(classes="pane"):
+                yield Static("Eigenvalues (solver order)", classes="pane-title")
+                yield SpectrumPlot(id="spectrum-plot")
+            with Vertical(classes="pane"):
+                yield Static("Community sizes", classes="pane-title")
+                yield SizeHistogram(id="size-histogram")
+        yield Footer()
+
+    def on_screen_resume(self) -> None:
+        run = getattr(self.app, "current_run", None)
+        if run is not None and run != self.run_id:
+            self.show_run(run)
+        self.query_one("#spectrum-body").focus()
+
+    def on_mount(self) -> None:
+        self.on_screen_resume()
+
+    def action_focus_run(self) -> None:
+        self.query_one("#spectrum-run", Input).focus()
+
+    @on(Input.Submitted, "#spectrum-run")
+    def _typed(self, event: Input.Submitted) -> None:
+        try:
+            run = int(event.value)
+        except ValueError:
+            self.notify("type a run id (a whole number)", severity="error")
+            return
+        self.show_run(run)
+
+    def action_step(self, delta: int) -> None:
+        if self.run_id is not None:
+            self.show_run(max(1, self.run_id + delta))
+
+    def show_run(self, run_id: int) -> None:
+        from workspace.services.runs import show_run
+
+        try:
+            run = show_run(self.app.store, run_id)
+        except Exception as exc:  # noqa: BLE001
+            self.app.report(exc)
+            return
+        self.run_id = run_id
+        self.app.current_run = run_id
+        self.query_one("#spectrum-run", Input).value = str(run_id)
+        what = run["method"] if run["kind"] == "computed" else f"attached: {run.get('label')}"
+        self.query_one("#spectrum-summary", Static).update(
+            f"  {run['ref']} · {what} · {run['status']} · k = {fmt_value(run.get('k'))}")
+        diag = run.get("diagnostics") or {}
+        suggested = next((diag[k] for k in SUGGESTED_KEYS if isinstance(diag.get(k), int)), None)
+        note_bits = [f"{k}: {fmt_value(diag[k])}" for k in ("operator", "solver", "matvecs", "eigensolves",
+                                                            "residual_norm_max", "r") if k in diag]
+        if suggested is not None:
+            note_bits.insert(0, f"solver's eigengap suggestion: k = {suggested}")
+        self.query_one(SpectrumPlot).show(run.get("eigenvalues") or [], suggested=run.get("k"),
+                                          note="  ".join(note_bits))
+        self.query_one(SizeHistogram).show(run.get("communities") or [])
