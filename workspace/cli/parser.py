@@ -149,6 +149,10 @@ def build_parser() -> argparse.ArgumentParser:
     add("verify", "check every stored array against its hash, and the database's integrity", "upkeep",
         "cmd_verify")
 
+    p = add("delete", "delete a project or a network with everything in it (asks first)", "upkeep", "cmd_delete")
+    p.add_argument("target", metavar="PROJECT[/NETWORK]")
+    p.add_argument("--yes", action="store_true", help="do not ask")
+
     p = add("demo", "build the invented demo workspace and open it", "demo", "cmd_demo")
     p.add_argument("--no-ui", action="store_true", help="build only; do not open the terminal workspace")
     p.add_argument("--rebuild", action="store_true", help="delete and rebuild the default demo store")

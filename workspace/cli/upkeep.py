@@ -18,3 +18,30 @@ def cmd_verify(args) -> int:
                 who = "; ".join(f.get("belongs_to", []))
                 out.line(f"  {f['kind']}: {f.get('detail', '')} {('— ' + who) if who else ''}".rstrip())
     return 0 if res["ok"] else 1
+
+
+def cmd_delete(args) -> int:
+    import sys
+
+    from workspace.errors import UsageError
+    from workspace.services.delete import delete_target, describe_target
+
+    with session(args) as (store, out):
+        what = describe_target(store, args.target)
+        if not args.yes:
+            if not sys.stdin.isatty():
+                raise UsageError(f"deleting {args.target} needs confirmation: run it in a terminal or add --yes")
+            sys.stderr.write(f"delete {what['kind']} {args.target}: {what['networks']} network(s), "
+                             f"{what['versions']} version(s), {what['runs']} run(s), "
+                             f"{what['parameter_sets']} parameter set(s)? type the name to confirm: ")
+            sys.stderr.flush()
+            if sys.stdin.readline().strip() != args.target:
+                out.note("cutbook: nothing deleted")
+                return 1
+        res = delete_target(store, args.target)
+        if args.json:
+            emit_json(res)
+        else:
+            out.line(f"deleted {res['kind']} {args.target}: {res['versions']} version(s), {res['runs']} run(s); "
+                     f"{res['arrays_removed']} stored array(s) no longer used were removed")
+    return 0
