@@ -41,12 +41,15 @@ def build_demo(store: Store, *, say: Callable[[str], None] = lambda s: None) -> 
                                           message=f"shared projects in {year}")
             say(f"imported {res.ref}: {res.nodes} staff, {res.edges} ties")
 
-        p_njw = params.save_params(store, f"{CITY}/districts", method="njw", k=7)
-        p_bethe = params.save_params(store, f"{CITY}/auto-k", method="bethe", k="auto")
+        # k chosen by the eigengap on each month's network
+        p_auto = params.save_params(store, f"{CITY}/districts", method="njw", k="auto")
+        # a second version of the same set: the eight districts the city plans with
+        p_eight = params.save_params(store, f"{CITY}/districts", method="njw", k=8)
         p_split = params.save_params(store, f"{CITY}/two-banks", method="fiedler",
                                      values={"laplacian": "sym", "split": "sweep"})
+        p_mod = params.save_params(store, f"{CITY}/modularity-split", method="leading-eigenvector", k="auto")
         p_lab = params.save_params(store, f"{LAB}/groups", method="shi-malik", k=4)
-        say("saved parameter sets: " + ", ".join(p["ref"] for p in (p_njw, p_bethe, p_split, p_lab)))
+        say("saved parameter sets: " + ", ".join(p["ref"] for p in (p_auto, p_eight, p_split, p_mod, p_lab)))
 
         def run(ref, **kw):
             spec = runs.prepare_run(store, ref, **kw)
@@ -55,12 +58,13 @@ def build_demo(store: Store, *, say: Callable[[str], None] = lambda s: None) -> 
             return out["run"]
 
         ids = summary["runs"]
-        for month_version in range(1, len(scenario.MONTHS) + 1):
-            ids[f"districts@{month_version}"] = run(f"{CITY}/stations@{month_version}", params_ref=f"{CITY}/districts")
-        ids["auto-k@4"] = run(f"{CITY}/stations@4", params_ref=f"{CITY}/auto-k")
+        for v in range(1, len(scenario.MONTHS) + 1):
+            ids[f"districts@{v}"] = run(f"{CITY}/stations@{v}", params_ref=f"{CITY}/districts@1")
         ids["two-banks@1"] = run(f"{CITY}/stations@1", params_ref=f"{CITY}/two-banks")
+        ids["two-banks@4"] = run(f"{CITY}/stations@4", params_ref=f"{CITY}/two-banks")
+        ids["modularity@4"] = run(f"{CITY}/stations@4", params_ref=f"{CITY}/modularity-split")
         ids["louvain@4"] = run(f"{CITY}/stations@4", method="louvain")
-        ids["stability@4"] = run(f"{CITY}/stations@4", params_ref=f"{CITY}/districts", repeats=12)
+        ids["stability@4"] = run(f"{CITY}/stations@4", params_ref=f"{CITY}/districts@2", repeats=12)
         grouping = tmp / "planning-districts.csv"
         with open(grouping, "w", encoding="utf-8") as fh:
             fh.write("node,community\n")

@@ -88,11 +88,11 @@ def bike_trips(month: str) -> EdgeTable:
     pair = [tuple(sorted((district[a], district[b]))) for a, b in zip(i, j)]
     near = np.array([p in NEIGHBOURS or (p[1], p[0]) in NEIGHBOURS for p in pair])
     bridge = np.array([set(p) == set(CINDER_BRIDGE) for p in pair])
-    rate = np.where(same, 9.0, np.where(near, 0.9, 0.08)) * growth
-    if month >= "2026-06":
-        rate = np.where(bridge, 0.05, rate)
+    # riders treat Tannery Row and Ferrow Park as one area while Cinder Bridge is open
+    open_bridge = bridge & (month < "2026-06")
+    rate = np.where(same | open_bridge, 9.0, np.where(near, 0.9, 0.08)) * growth
     # a station pair gets a trip count only if riders use it at all this month
-    used = rng.random(i.shape[0]) < np.where(same, 0.75, np.where(near, 0.22, 0.03))
+    used = rng.random(i.shape[0]) < np.where(same, 0.75, np.where(open_bridge, 0.6, np.where(near, 0.22, 0.03)))
     trips = rng.poisson(rate) * used
     keep = trips > 0
     return EdgeTable([ids[x] for x in i[keep]], [ids[y] for y in j[keep]], trips[keep].astype(int).tolist())

@@ -84,10 +84,12 @@ def _print_track(out, res: dict) -> None:
         for e in step.get("events") or []:
             kinds[e["kind"]] = kinds.get(e["kind"], 0) + 1
         out.line(f"run {a['run']} -> run {b['run']}: ARI {fmt(step.get('ari'))}  NMI {fmt(step.get('nmi'))}  "
-                 f"moved {step.get('moved')}  events: " + (", ".join(f"{n} {k}" for k, n in kinds.items()) or "none"))
+                 f"moved {step.get('moved')}  nodes -{_count(step.get('only_in_a'))}/+{_count(step.get('only_in_b'))}"
+                 f"  events: " + (", ".join(f"{n} {k}" for k, n in kinds.items()) or "none"))
     lineage = res.get("lineage") or []
     if lineage:
         out.line("community threads (run:community[size])")
         for t in lineage:
             path = " -> ".join(f"{p['run']}:{p['community']}[{p['size']}]" for p in t["path"])
-            out.line(f"  {t.get('origin', '')}: {path} ({t.get('fate', '')})")
+            origin, fate = (fmt(t.get(key)) if t.get(key) else "-" for key in ("origin", "fate"))
+            out.line(f"  {origin.replace('_', ' ')}: {path} -> {fate.replace('_', ' ')}")
