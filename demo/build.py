@@ -31,14 +31,15 @@ def build_demo(store: Store, *, say: Callable[[str], None] = lambda s: None) -> 
             note = {"2026-03": "March trips (baseline)", "2026-04": "April trips: spring ridership",
                     "2026-05": "May trips: Lantern Wharf district opens",
                     "2026-06": "June trips: Cinder Bridge closed for repairs"}[month]
-            res = networks.import_network(store, f, project=CITY, network="stations", policy=policy, message=note)
+            res = networks.import_network(store, f, project=CITY, network="stations", policy=policy, message=note,
+                                          source_label=f.name)
             say(f"imported {res.ref}: {res.nodes} stations, {res.edges} station pairs — {note}")
         for year in (2025, 2026):
             f = tmp / f"ties-{year}.csv"
             scenario.lab_ties(year).to_csv(f, header=("person_a", "person_b", "projects"))
             res = networks.import_network(store, f, project=LAB, network="co-working",
                                           policy=ImportPolicy(weight="projects", duplicates="sum"),
-                                          message=f"shared projects in {year}")
+                                          message=f"shared projects in {year}", source_label=f.name)
             say(f"imported {res.ref}: {res.nodes} staff, {res.edges} ties")
 
         # k chosen by the eigengap on each month's network

@@ -92,4 +92,5 @@ def _print_track(out, res: dict) -> None:
         for t in lineage:
             path = " -> ".join(f"{p['run']}:{p['community']}[{p['size']}]" for p in t["path"])
             origin, fate = (fmt(t.get(key)) if t.get(key) else "-" for key in ("origin", "fate"))
+            origin = origin.replace("not_compared", "new nodes")
             out.line(f"  {origin.replace('_', ' ')}: {path} -> {fate.replace('_', ' ')}")

@@ -73,8 +73,9 @@ class Out:
         from rich import box
         from rich.table import Table
 
-        t = Table(title=title, box=box.SIMPLE_HEAD, title_justify="left", pad_edge=False,
-                  header_style="bold")
+        if title:
+            self.line(title)
+        t = Table(box=box.SIMPLE_HEAD, pad_edge=False, header_style="bold")
         for c in columns:
             t.add_column(c, justify="right" if c in right else "left", overflow="fold")
         for r in rows:

@@ -50,11 +50,12 @@ def version_summary(v: NetworkVersion, project: str, network: str) -> dict[str, 
 
 def import_network(store: Store, path: str | os.PathLike, *, project: str, network: str,
                    format: str | None = None, policy: ImportPolicy | None = None, message: str = "",
-                   progress: Progress | None = None) -> ImportOutcome:
+                   progress: Progress | None = None, source_label: str | None = None) -> ImportOutcome:
     """Read ``path``, canonicalise it, and record it as the next version of ``project/network``.
 
     Reading and hashing happen outside any transaction; the write is one short
-    transaction. Content equal to the latest version creates nothing. A failed
+    transaction. ``source_label`` replaces the path in the stored report (the
+    path as given is kept otherwise). Content equal to the latest version creates nothing. A failed
     read leaves the store untouched (no project, network or version is created).
     """
     from workspace.io import read_network
@@ -65,6 +66,8 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
     graph, report = read_network(path, format=format, policy=policy, progress=progress)
     content_hash = graph.content_hash()
     report_dict = report.as_dict()
+    if source_label is not None:
+        report_dict["source"] = source_label
     policy_dict = policy.as_dict()
     if progress:
         progress("store", 0, None)
@@ -77,7 +80,7 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
                                  latest.n_edges, content_hash, False, json.loads(latest.report_json),
                                  json.loads(latest.policy_json))
         v = repo.add_version(s, net, graph, parent=latest, content_hash=content_hash, message=message,
-                             source_name=os.path.basename(os.fspath(path)), source_format=report.format,
+                             source_name=source_label or os.path.basename(os.fspath(path)), source_format=report.format,
                              policy_json=json.dumps(policy_dict, sort_keys=True),
                              report_json=json.dumps(report_dict, sort_keys=True))
         number = v.number
