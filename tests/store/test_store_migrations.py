@@ -28,8 +28,12 @@ def _revisions():
     return ScriptDirectory.from_config(cfg)
 
 
-def test_one_head():
-    assert len(_revisions().get_heads()) == 1
+def test_one_head_and_the_code_knows_it():
+    heads = _revisions().get_heads()
+    assert len(heads) == 1
+    from workspace.store.db import HEAD_REVISION
+
+    assert heads[0] == HEAD_REVISION  # update HEAD_REVISION when adding a migration
 
 
 def test_models_and_migrations_agree(tmp_path):

@@ -5,7 +5,7 @@ from __future__ import annotations
 import os
 from typing import Callable
 
-from workspace.store.db import Store, head_revision, migrate, resolve_store_url, _make_engine, _current_revision
+from workspace.store.db import HEAD_REVISION, Store, _current_revision, _make_engine, migrate, resolve_store_url
 
 
 def open_workspace(store: str | os.PathLike | None = None, *,
@@ -21,7 +21,7 @@ def open_workspace(store: str | os.PathLike | None = None, *,
     with engine.connect() as conn:
         current = _current_revision(conn)
         conn.rollback()
-    if current != head_revision():
+    if current != HEAD_REVISION:
         backup = migrate(url)
         if backup is not None and notify:
             notify(f"cutbook: store upgraded to the current schema; previous copy kept at {backup}")
