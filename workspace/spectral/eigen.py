@@ -1,0 +1,606 @@
+"""The eigensolver chain: dense ``eigh`` → ARPACK ``eigsh`` → LOBPCG.
+
+Every eigenproblem in the package is posed as "the ``m`` algebraically
+largest eigenpairs of a symmetric operator ``M``" — the smallest eigenpairs
+of a Laplacian are obtained from a shifted operator ``M = cI - L`` whose
+spectrum is non-negative, e.g. ``I + D^-1/2 A D^-1/2 = 2I - L_sym`` — so
+ARPACK runs with ``which='LA'`` and no shift-invert (a sparse LU of a
+small-world graph fills in catastrophically).
+
+The operator is wrapped in a counting ``LinearOperator`` whose matvec
+checks ``cancel``, the matvec budget and the time limit, and reports
+``progress(stage, matvecs)``.
+"""
+
+from __future__ import annotations
+
+import os
+import time
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, field
+from typing import Callable
+
+import numpy as np
+import scipy.linalg as sla
+import scipy.sparse as sp
+from scipy.sparse.linalg import ArpackError, ArpackNoConvergence, LinearOperator, eigsh, lobpcg
+
+from workspace.errors import Cancelled, ComputeError
+
+from .laplacians import degrees, inverse_sqrt_degrees, normalized_adjacency
+
+__all__ = ["SolverContext", "SymmetricOperator", "EigenSolution", "largest_eigenpairs",
+           "laplacian_eigenpairs", "fix_signs"]
+
+
+class _BudgetExceeded(Exception):
+    """Internal: the matvec budget or time limit ran out inside a solver."""
+
+
+@dataclass
+class SolverContext:
+    """Limits, callbacks and counters shared by all eigenproblems of one call.
+
+    Attributes
+    ----------
+    seed : int
+        Seeds the start vectors (``numpy.random.default_rng(seed)``).
+    dense_threshold : int, default 1000
+        Operators with ``n <= dense_threshold`` are solved densely.
+    eig_tol : float, default 1e-6
+        ARPACK relative tolerance; LOBPCG uses it scaled by the spectral radius bound.
+    max_matvecs : int, default 50000
+        Budget of operator applications per eigenproblem (columns count).
+    time_limit_s : float, default 0
+        Wall-time limit per eigenproblem; 0 means none.
+    progress : callable(stage: str, matvecs: int) or None
+    cancel : callable() -> bool or None
+    threads : int, default 1
+        Threads for the sparse products of the iterative solvers (row
+        blocks; 0 = all CPUs available to the process). Results do not
+        depend on it: each output entry is computed by one thread. (On the
+        2-core test machine, under load, 2 threads gave no speed-up: the
+        product is memory-bound; hence the default 1.)
+    """
+
+    seed: int = 0
+    dense_threshold: int = 1000
+    eig_tol: float = 1e-6
+    max_matvecs: int = 50000
+    time_limit_s: float = 0.0
+    progress: Callable[[str, int], None] | None = None
+    cancel: Callable[[], bool] | None = None
+    threads: int = 1
+    matvecs: int = 0
+    solvers: list = field(default_factory=list)
+    iterations: int = 0
+    residual_norms: list = field(default_factory=list)
+    warnings: list = field(default_factory=list)
+    _problem_matvecs: int = 0
+    _problem_start: float = 0.0
+    _last_report: float = 0.0
+
+    def check_cancel(self) -> None:
+        """Raise :class:`workspace.errors.Cancelled` if ``cancel()`` says so."""
+        if self.cancel is not None and self.cancel():
+            raise Cancelled("partition cancelled")
+
+    def report(self, stage: str, force: bool = True) -> None:
+        """Call ``progress(stage, matvecs)`` (at most every 0.2 s unless forced)."""
+        if self.progress is None:
+            return
+        now = time.perf_counter()
+        if force or now - self._last_report >= 0.2:
+            self._last_report = now
+            self.progress(stage, int(self.matvecs))
+
+    def start_problem(self) -> None:
+        self._problem_matvecs = 0
+        self._problem_start = time.perf_counter()
+
+    def tick(self, count: int, stage: str) -> None:
+        """Account for ``count`` operator applications; enforce limits."""
+        self.matvecs += count
+        self._problem_matvecs += count
+        self.check_cancel()
+        if self._problem_matvecs > self.max_matvecs:
+            raise _BudgetExceeded(f"matvec budget max_matvecs={self.max_matvecs} used up")
+        if self.time_limit_s > 0 and time.perf_counter() - self._problem_start > self.time_limit_s:
+            raise _BudgetExceeded(f"time limit time_limit_s={self.time_limit_s:g} reached")
+        self.report(stage, force=False)
+
+
+#: Sparse matrices with fewer stored entries are multiplied in one thread.
+PARALLEL_MIN_NNZ = 200_000
+
+
+def available_cpus() -> int:
+    """CPUs this process may run on (affinity-aware)."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def _block_product(block, X, out, start, stop):
+    out[start:stop] = block @ X
+
+
+class RowBlockMatrix:
+    """A CSR matrix cut into row blocks that are multiplied in parallel.
+
+    The blocks are views on the parent's ``data``/``indices`` (only a
+    small ``indptr`` is copied). scipy's sparse kernels release the GIL,
+    so the blocks run concurrently in a thread pool; every output row is
+    produced by exactly one thread, so the result is bit-identical to the
+    single-threaded product.
+    """
+
+    def __init__(self, S: sp.csr_array, executor: ThreadPoolExecutor, parts: int) -> None:
+        self.shape = S.shape
+        self.executor = executor
+        n = S.shape[0]
+        targets = np.linspace(0, S.nnz, parts + 1)
+        cuts = np.searchsorted(S.indptr, targets).clip(0, n)
+        cuts[0], cuts[-1] = 0, n
+        cuts = np.unique(cuts)
+        self.blocks = []
+        for a, b in zip(cuts[:-1], cuts[1:]):
+            p0, p1 = S.indptr[a], S.indptr[b]
+            blk = sp.csr_array((S.data[p0:p1], S.indices[p0:p1], S.indptr[a:b + 1] - p0),
+                               shape=(int(b - a), S.shape[1]))
+            self.blocks.append((int(a), int(b), blk))
+
+    def __matmul__(self, X: np.ndarray) -> np.ndarray:
+        out = np.empty((self.shape[0],) + X.shape[1:], dtype=np.float64)
+        futures = [self.executor.submit(_block_product, blk, X, out, a, b)
+                   for a, b, blk in self.blocks[1:]]
+        a, b, blk = self.blocks[0]
+        _block_product(blk, X, out, a, b)
+        for f in futures:
+            f.result()
+        return out
+
+
+class SymmetricOperator:
+    r"""A real symmetric ``n × n`` operator ``M x = S x + diag(c) x + low-rank``.
+
+    Parameters
+    ----------
+    S : scipy sparse matrix, shape (n, n)
+        Symmetric sparse part (scaled by ``scale``).
+    diagonal : float or ndarray of float64, shape (n,), default 0
+        Added diagonal.
+    scale : float, default 1
+        Multiplies ``S``.
+    rank_one : ndarray, shape (n,), optional
+        Vector ``u``; the term ``- u (u^T x) / rank_one_denominator`` is added.
+    rank_one_denominator : float, default 1
+    """
+
+    def __init__(self, S, diagonal=0.0, scale: float = 1.0, rank_one=None,
+                 rank_one_denominator: float = 1.0) -> None:
+        self.S = S
+        self.n = S.shape[0]
+        self.diagonal = diagonal
+        self.scale = float(scale)
+        self.rank_one = rank_one
+        self.rank_one_denominator = float(rank_one_denominator)
+
+    def apply(self, X: np.ndarray) -> np.ndarray:
+        """``M @ X`` for a vector or an ``n × b`` block."""
+        Y = self.S @ X
+        if self.scale != 1.0:
+            Y *= self.scale
+        diag = self.diagonal
+        if np.ndim(diag) == 0:
+            if diag != 0.0:
+                Y += diag * X
+        else:
+            Y += diag[:, None] * X if X.ndim == 2 else diag * X
+        if self.rank_one is not None:
+            u = self.rank_one
+            Y -= np.multiply.outer(u, (u @ X) / self.rank_one_denominator)
+        return Y
+
+    def parallel(self, executor: ThreadPoolExecutor, parts: int) -> "SymmetricOperator":
+        """Same operator with the sparse part multiplied by ``parts`` threads."""
+        if parts < 2 or not sp.issparse(self.S) or self.S.nnz < PARALLEL_MIN_NNZ:
+            return self
+        S = self.S if isinstance(self.S, sp.csr_array) else sp.csr_array(self.S)
+        return SymmetricOperator(RowBlockMatrix(S, executor, parts), self.diagonal, self.scale,
+                                 self.rank_one, self.rank_one_denominator)
+
+    def to_dense(self) -> np.ndarray:
+        """The dense ``n × n`` matrix (only for small ``n``)."""
+        M = self.S.toarray() if sp.issparse(self.S) else np.array(self.S, dtype=np.float64)
+        M = M * self.scale if self.scale != 1.0 else M.astype(np.float64, copy=False)
+        M[np.diag_indices(self.n)] += self.diagonal
+        if self.rank_one is not None:
+            M -= np.multiply.outer(self.rank_one, self.rank_one) / self.rank_one_denominator
+        return M
+
+
+@dataclass
+class EigenSolution:
+    """Eigenpairs returned by the chain.
+
+    Attributes
+    ----------
+    values : ndarray of float64, shape (m,)
+        Eigenvalues in the order documented by the caller.
+    vectors : ndarray of float64, shape (n, m)
+        Matching eigenvectors (columns), signs fixed by :func:`fix_signs`.
+    solver : str
+        ``"dense-eigh"``, ``"arpack-eigsh"`` or ``"lobpcg"``.
+    matvecs : int
+        Operator applications used (0 for dense).
+    residual_norms : list of float
+        :math:`\\|M x - \\mu x\\|_2` per pair, for the operator actually solved.
+    """
+
+    values: np.ndarray
+    vectors: np.ndarray
+    solver: str
+    matvecs: int
+    residual_norms: list
+
+
+def fix_signs(V: np.ndarray) -> np.ndarray:
+    """Make the largest-magnitude entry of every column positive (in place).
+
+    Parameters
+    ----------
+    V : ndarray of float64, shape (n, m)
+
+    Returns
+    -------
+    ndarray, shape (n, m)
+        ``V`` itself, each column multiplied by ±1.
+
+    Notes
+    -----
+    Ties in magnitude go to the lowest row index. An eigenvector is defined
+    up to sign; fixing it makes downstream results reproducible (common
+    practice; cf. sklearn.utils.extmath.svd_flip).
+
+    References
+    ----------
+    Bro, Acar & Kolda (2008), Resolving the sign ambiguity in the singular
+    value decomposition, J. Chemometrics 22.
+    """
+    if V.size == 0:
+        return V
+    idx = np.argmax(np.abs(V), axis=0)
+    signs = np.sign(V[idx, np.arange(V.shape[1])])
+    signs[signs == 0] = 1.0
+    V *= signs
+    return V
+
+
+def largest_eigenpairs(op: SymmetricOperator, m: int, ctx: SolverContext, *,
+                       stage: str = "eigensolver", bound: float | None = None,
+                       extra: int = 0) -> EigenSolution:
+    r"""The ``m`` algebraically largest eigenpairs of a symmetric operator.
+
+    Chain: if ``n <= ctx.dense_threshold`` or ``m >= n - 1``, dense
+    ``scipy.linalg.eigh`` (LAPACK ``syevr``) on the explicit matrix;
+    otherwise ARPACK ``eigsh(which='LA')`` with a start vector drawn from
+    ``default_rng(ctx.seed)``; if ARPACK does not converge within its
+    iteration budget, LOBPCG (Knyazev 2001) started from ARPACK's best
+    vectors.
+
+    Parameters
+    ----------
+    op : SymmetricOperator
+        ``n × n`` symmetric operator.
+    m : int
+        Number of eigenpairs, ``1 <= m <= n``.
+    ctx : SolverContext
+        Seed, limits, callbacks; counters are updated.
+    stage : str, default "eigensolver"
+        Name passed to ``progress``.
+    bound : float, optional
+        Upper bound on the spectral radius (scales the LOBPCG tolerance).
+    extra : int, default 0
+        Further eigenvalues wanted beyond the ``m`` pairs, for display, the
+        eigengap and the tie test. On the dense path they are exact; on the
+        iterative path they are Ritz values of the deflated operator
+        :math:`P M P`, :math:`P = I - VV^T` (requires ``M`` positive
+        semidefinite, true of every shifted operator here), computed with a
+        loose tolerance that is tightened (1e-2, 1e-3, 1e-4, then
+        ``ctx.eig_tol``) only while the gap to the m-th value is not larger
+        than three residual bounds — eigenvalues next to a wide gap
+        converge slowly and need no precision.
+
+    Returns
+    -------
+    EigenSolution
+        ``values`` descending (largest first), shape (m + extra,) (fewer if
+        ``n`` is small); ``vectors`` shape (n, m).
+
+    Raises
+    ------
+    workspace.errors.ComputeError
+        All solvers failed, or the matvec/time budget ran out; the message
+        says which and with what residual.
+    workspace.errors.Cancelled
+        ``ctx.cancel()`` returned True.
+
+    Notes
+    -----
+    ARPACK (implicitly restarted Lanczos) is used in its regular mode; the
+    callers make the wanted end of the spectrum the algebraically largest
+    by a shift, which leaves Krylov subspaces and eigenvectors unchanged.
+
+    References
+    ----------
+    Lehoucq, Sorensen & Yang (1998), ARPACK Users' Guide, SIAM.
+    Knyazev (2001), Toward the optimal preconditioned eigensolver: LOBPCG,
+    SIAM J. Sci. Comput. 23(2).
+    """
+    n = op.n
+    if not 1 <= m <= n:
+        raise ComputeError(f"cannot compute {m} eigenpairs of a {n}-node operator")
+    ctx.check_cancel()
+    ctx.start_problem()
+    ctx.report(stage)
+    if n <= ctx.dense_threshold or m + extra >= n - 1:
+        M = op.to_dense()
+        total = min(n, m + extra)
+        try:
+            w, V = sla.eigh(M, subset_by_index=[n - total, n - 1], driver="evr")
+        except (np.linalg.LinAlgError, ValueError) as exc:  # pragma: no cover - LAPACK failure
+            raise ComputeError(f"dense eigensolver failed: {exc}") from None
+        w = w[::-1].copy()
+        V = np.ascontiguousarray(V[:, ::-1])
+        fix_signs(V)
+        V = V[:, :m]
+        res = np.linalg.norm(M @ V - V * w[:m], axis=0)
+        sol = EigenSolution(w, V, "dense-eigh", 0, [float(r) for r in res])
+        _record(ctx, sol)
+        ctx.check_cancel()
+        return sol
+
+    threads = ctx.threads if ctx.threads > 0 else available_cpus()
+    if threads > 1 and sp.issparse(op.S) and op.S.nnz >= PARALLEL_MIN_NNZ:
+        with ThreadPoolExecutor(max_workers=threads - 1) as executor:
+            return _iterative(op.parallel(executor, threads), m, ctx, stage, bound, extra)
+    return _iterative(op, m, ctx, stage, bound, extra)
+
+
+def _iterative(op: SymmetricOperator, m: int, ctx: SolverContext, stage: str,
+               bound: float | None, extra: int) -> EigenSolution:
+    """ARPACK, then LOBPCG; see :func:`largest_eigenpairs`."""
+    n = op.n
+
+    def mv(x):
+        ctx.tick(1, stage)
+        return op.apply(x)
+
+    def mm(X):
+        ctx.tick(X.shape[1], stage)
+        return op.apply(X)
+
+    lin = LinearOperator((n, n), matvec=mv, matmat=mm, rmatvec=mv, dtype=np.float64)
+    rng = np.random.default_rng(ctx.seed)
+    v0 = rng.uniform(-1.0, 1.0, n)
+    ncv = min(n, max(2 * m + 1, 20))
+    maxiter = max(1, ctx.max_matvecs // max(1, ncv - m))
+    start = ctx.matvecs
+    X0 = None
+    why = ""
+    try:
+        w, V = eigsh(lin, k=m, which="LA", v0=v0, ncv=ncv, tol=ctx.eig_tol, maxiter=maxiter)
+        solver = "arpack-eigsh"
+    except ArpackNoConvergence as exc:
+        why = f"ARPACK did not converge ({len(exc.eigenvalues)} of {m} pairs)"
+        X0 = exc.eigenvectors if exc.eigenvectors is not None and exc.eigenvectors.size else None
+        solver = ""
+    except ArpackError as exc:
+        why = f"ARPACK failed ({exc})"
+        solver = ""
+    except _BudgetExceeded as exc:
+        raise ComputeError(f"eigensolver stopped: {exc} after {ctx.matvecs - start} matvecs "
+                           f"(n={n}, {m} eigenpairs); raise the limit or eig_tol") from None
+    if not solver:
+        ctx.warnings.append(f"{why}; falling back to LOBPCG")
+        X = rng.standard_normal((n, m))
+        if X0 is not None:
+            X[:, :X0.shape[1]] = X0
+        lob_tol = max(ctx.eig_tol, 1e-9) * (bound if bound else 1.0) * 10
+        try:
+            w, V = lobpcg(lin, X, tol=lob_tol, maxiter=max(20, ctx.max_matvecs // (3 * m)),
+                          largest=True)
+        except _BudgetExceeded as exc:
+            raise ComputeError(f"eigensolver stopped: {why}, then LOBPCG: {exc}") from None
+        except Exception as exc:  # LOBPCG raises assorted LinAlgErrors on breakdown
+            raise ComputeError(f"eigensolvers failed: {why}; LOBPCG: {exc}") from None
+        solver = "lobpcg"
+    order = np.argsort(w)[::-1]
+    w = np.asarray(w, dtype=np.float64)[order]
+    V = np.ascontiguousarray(np.asarray(V, dtype=np.float64)[:, order])
+    fix_signs(V)
+    R = op.apply(V)
+    R -= V * w
+    res = np.linalg.norm(R, axis=0)
+    del R
+    ctx.matvecs += m
+    if solver == "lobpcg":
+        scale = bound if bound else max(1.0, float(np.max(np.abs(w))))
+        if float(res.max()) > 1e-3 * scale:
+            raise ComputeError(f"eigensolvers failed: {why}; LOBPCG residual {res.max():.2e} "
+                               f"is too large (n={n}, {m} eigenpairs)")
+    if extra > 0:
+        w = np.concatenate([w, _deflated_values(op, V, w, extra, ctx, stage, rng)])
+    sol = EigenSolution(w, V, solver, ctx.matvecs - start, [float(r) for r in res])
+    _record(ctx, sol)
+    ctx.report(stage)
+    return sol
+
+
+def _deflated_values(op: SymmetricOperator, V: np.ndarray, w: np.ndarray, extra: int,
+                     ctx: SolverContext, stage: str, rng: np.random.Generator) -> np.ndarray:
+    """Next ``extra`` eigenvalues after ``w`` from the deflated operator (see largest_eigenpairs)."""
+    n = op.n
+    extra = min(extra, n - V.shape[1] - 1)
+    if extra <= 0:
+        return np.array([], dtype=np.float64)
+
+    VT = np.ascontiguousarray(V.T)       # (m, n): two contiguous gemv per projection
+
+    def project(x):
+        return x - (VT @ x) @ VT
+
+    def mv(x):
+        # Krylov vectors built from a projected start stay in range(P), so
+        # P M P x = P M x up to rounding: one projection per step suffices
+        ctx.tick(1, stage)
+        return project(op.apply(x))
+
+    lin = LinearOperator((n, n), matvec=mv, rmatvec=mv, dtype=np.float64)
+    v0 = project(rng.uniform(-1.0, 1.0, n))
+    est = None
+    for tol in sorted({1e-2, 1e-3, 1e-4, ctx.eig_tol}, reverse=True):
+        if tol < ctx.eig_tol:
+            continue
+        try:
+            est = np.sort(eigsh(lin, k=extra, which="LA", v0=v0, tol=tol,
+                                ncv=min(n, max(2 * extra + 1, 12)), return_eigenvectors=False,
+                                maxiter=max(1, ctx.max_matvecs // 20)))[::-1]
+        except (ArpackNoConvergence, ArpackError):
+            break
+        except _BudgetExceeded:
+            break
+        delta = tol * max(abs(float(est[0])), 1e-300)
+        if float(w[-1]) - float(est[0]) > 3.0 * delta:
+            break
+    if est is None:
+        ctx.warnings.append("could not estimate the eigenvalues beyond the ones used")
+        return np.array([], dtype=np.float64)
+    return np.asarray(est, dtype=np.float64)
+
+
+def _record(ctx: SolverContext, sol: EigenSolution) -> None:
+    ctx.solvers.append(sol.solver)
+    ctx.residual_norms.extend(sol.residual_norms)
+
+
+def shifted_laplacian_operator(A, laplacian: str, d: np.ndarray | None = None,
+                               regularizer: float = 0.0):
+    r"""Operator whose largest eigenpairs are the smallest of a Laplacian.
+
+    Returns ``(op, shift, post)`` with :math:`\lambda(L) = \mathrm{shift} - \mu(M)`:
+
+    - ``"sym"``/``"rw"``: :math:`M = I + D^{-1/2} A D^{-1/2}` (+1 on isolated
+      nodes), shift 2, spectrum in [0, 2];
+    - ``"unnormalized"``: :math:`M = cI - L = (c - D) + A` with
+      :math:`c = 2 d_{max}` (Gershgorin bound on the spectrum of ``L``).
+
+    ``post`` maps the eigenvectors of ``M`` to those of the Laplacian
+    (``D^-1/2 V`` for ``"rw"``, identity otherwise).
+
+    Parameters
+    ----------
+    A : scipy sparse matrix, shape (n, n)
+    laplacian : {"unnormalized", "sym", "rw"}
+    d : ndarray, shape (n,), optional
+        Degrees.
+    regularizer : float, default 0
+        :math:`\tau` of :math:`D_\tau = D + \tau I` (normalised kinds only).
+
+    Returns
+    -------
+    op : SymmetricOperator
+    shift : float
+    post : callable or None
+
+    Raises
+    ------
+    ValueError
+        Unknown Laplacian.
+
+    References
+    ----------
+    Chung (1997), Spectral Graph Theory (spectrum of L_sym in [0, 2]);
+    Gershgorin (1931) for the bound on the spectrum of L.
+    """
+    A = A if isinstance(A, sp.csr_array) else sp.csr_array(A, dtype=np.float64)
+    if d is None:
+        d = degrees(A)
+    if laplacian in ("sym", "rw"):
+        N = normalized_adjacency(A, d, regularizer=regularizer)
+        isolated = d + regularizer <= 0
+        diag = 1.0 + isolated.astype(np.float64) if isolated.any() else 1.0
+        op = SymmetricOperator(N, diagonal=diag)
+        if laplacian == "rw":
+            s = inverse_sqrt_degrees(d)
+
+            def post(V, s=s):
+                return V * s[:, None]
+        else:
+            post = None
+        return op, 2.0, post
+    if laplacian == "unnormalized":
+        c = 2.0 * float(d.max()) if d.size else 0.0
+        c = c if c > 0 else 1.0
+        op = SymmetricOperator(A, diagonal=c - d)
+        return op, c, None
+    raise ValueError(f"unknown Laplacian {laplacian!r}")
+
+
+def laplacian_eigenpairs(A, m: int, *, laplacian: str = "sym", seed: int = 0,
+                         dense_threshold: int = 1000, eig_tol: float = 1e-10,
+                         max_matvecs: int = 50000, time_limit_s: float = 0.0,
+                         progress=None, cancel=None, threads: int = 1) -> EigenSolution:
+    r"""The ``m`` smallest eigenpairs of a graph Laplacian.
+
+    Solves :math:`L x = \lambda x` for :math:`L = D - A`, or
+    :math:`L_{sym} = I - D^{-1/2} A D^{-1/2}`, or the random-walk form
+    :math:`L_{rw} = I - D^{-1} A` (equivalently the generalised problem
+    :math:`L u = \lambda D u`, with :math:`u = D^{-1/2} v` for the
+    eigenvectors ``v`` of :math:`L_{sym}`), through the chain of
+    :func:`largest_eigenpairs` on a shifted operator.
+
+    Parameters
+    ----------
+    A : scipy sparse matrix, shape (n, n)
+        Symmetric adjacency, weights >= 0.
+    m : int
+        Number of eigenpairs, ``1 <= m <= n``.
+    laplacian : {"unnormalized", "sym", "rw"}, default "sym"
+    seed : int, default 0
+    dense_threshold : int, default 1000
+    eig_tol : float, default 1e-10
+    max_matvecs : int, default 50000
+    time_limit_s : float, default 0 (no limit)
+    progress, cancel : callables, optional
+        As in :func:`workspace.spectral.partition`.
+    threads : int, default 1
+        Threads for large sparse products (0 = all available CPUs).
+
+    Returns
+    -------
+    EigenSolution
+        ``values`` ascending, shape (m,); ``vectors`` shape (n, m):
+        orthonormal for ``"unnormalized"``/``"sym"``, D-orthonormal
+        (:math:`U^T D U = I`) for ``"rw"``.
+
+    Raises
+    ------
+    workspace.errors.ComputeError, workspace.errors.Cancelled
+
+    References
+    ----------
+    Chung (1997), Spectral Graph Theory, AMS; von Luxburg (2007), A tutorial
+    on spectral clustering, Statistics and Computing 17(4).
+    """
+    ctx = SolverContext(seed=seed, dense_threshold=dense_threshold, eig_tol=eig_tol,
+                        max_matvecs=max_matvecs, time_limit_s=time_limit_s,
+                        progress=progress, cancel=cancel, threads=threads)
+    A = sp.csr_array(A, dtype=np.float64)
+    op, shift, post = shifted_laplacian_operator(A, laplacian)
+    sol = largest_eigenpairs(op, m, ctx, bound=shift)
+    values = shift - sol.values
+    V = sol.vectors if post is None else post(sol.vectors)
+    return EigenSolution(values, V, sol.solver, sol.matvecs, sol.residual_norms)

@@ -1,0 +1,445 @@
+"""The public entry point :func:`partition`."""
+
+from __future__ import annotations
+
+import time
+from typing import Any, Callable
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.csgraph import connected_components
+
+from workspace.errors import ComputeError, ParameterError
+
+from .baselines import run_baseline
+from .bisection import fiedler_bisection, recursive_bisection
+from .eigen import SolverContext, laplacian_eigenpairs
+from .kway import assign_rows, bethe_embedding, eigengap_k, laplacian_embedding
+from .laplacians import degrees
+from .methods import METHODS, MethodInfo, validate_params
+from .modularity import leading_eigenvector
+from .quality import quality_measures
+from .result import PartitionResult, canonical_labels
+
+__all__ = ["partition"]
+
+_MAX_RESIDUALS_LISTED = 64
+
+
+def _prepare_adjacency(A) -> sp.csr_array:
+    if not sp.issparse(A):
+        raise ComputeError(f"adjacency must be a scipy.sparse matrix (got {type(A).__name__})")
+    if A.ndim != 2 or A.shape[0] != A.shape[1]:
+        raise ComputeError(f"adjacency must be square (got shape {A.shape})")
+    A = A if isinstance(A, sp.csr_array) else sp.csr_array(A)
+    if A.dtype != np.float64:
+        if A.dtype.kind not in "biuf":
+            raise ComputeError(f"adjacency must hold real weights (dtype {A.dtype})")
+        A = A.astype(np.float64)
+    if not A.has_canonical_format:
+        A = A.copy()
+        A.sum_duplicates()
+    if A.nnz:
+        data = A.data
+        if not np.all(np.isfinite(data)):
+            raise ComputeError("adjacency has NaN or infinite weights")
+        if data.min() < 0:
+            i = int(np.searchsorted(A.indptr, int(np.argmin(data)), side="right") - 1)
+            raise ComputeError(f"adjacency has negative weights (min {data.min():g} in row {i}); "
+                               "weights must be >= 0")
+    T = A.T.tocsr()
+    T.sort_indices()
+    symmetric = (np.array_equal(T.indptr, A.indptr) and np.array_equal(T.indices, A.indices)
+                 and np.allclose(T.data, A.data, rtol=1e-10, atol=0.0))
+    del T
+    if not symmetric:
+        raise ComputeError("adjacency is not symmetric; symmetrise it (A + A.T)/2 or import it "
+                           "as undirected")
+    return A
+
+
+def _resolve_k(info: MethodInfo, k: Any, n: int) -> int | None:
+    """Return the integer k, or None for "auto"."""
+    name = info.name
+    if k is None:
+        k = info.default_k
+    if isinstance(k, str):
+        text = k.strip().lower()
+        if text == "auto":
+            if not info.supports_auto_k:
+                raise ParameterError(f"{name} does not support k='auto'; give an integer k"
+                                     + (f" (it always makes {info.fixed_k} parts)" if info.fixed_k else ""))
+            return None
+        try:
+            k = int(text)
+        except ValueError:
+            raise ParameterError(f"k={k!r} is neither an integer nor 'auto'") from None
+    if isinstance(k, (bool, np.bool_)) or not isinstance(k, (int, np.integer)):
+        raise ParameterError(f"k={k!r} is neither an integer nor 'auto'")
+    k = int(k)
+    if not info.accepts_k:
+        raise ParameterError(f"{name} chooses the number of communities itself; pass k=None or 'auto'")
+    if info.fixed_k is not None and k != info.fixed_k:
+        raise ParameterError(f"{name} always makes {info.fixed_k} parts (got k={k}); "
+                             "use recursive, njw or shi-malik for more")
+    if k < 2:
+        raise ParameterError(f"k must be at least 2 (got k={k})")
+    if k >= n:
+        raise ComputeError(f"k={k} must be smaller than the number of nodes (n={n})")
+    return k
+
+
+def _union_eigenvalues(chunks: list[np.ndarray]) -> np.ndarray:
+    if not chunks:
+        return np.array([], dtype=np.float64)
+    return np.sort(np.concatenate(chunks)).astype(np.float64)
+
+
+def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
+              progress: Callable[[str, int], None] | None = None,
+              cancel: Callable[[], bool] | None = None, **params) -> PartitionResult:
+    r"""Partition the nodes of an undirected weighted graph into communities.
+
+    Parameters
+    ----------
+    A : scipy.sparse matrix or array, shape (n, n)
+        Symmetric adjacency, weights >= 0, row ``i`` = node ``i``; a
+        diagonal entry is a self-loop (counted once in the degree).
+    method : str
+        A key of :data:`workspace.spectral.methods.METHODS`: ``fiedler``,
+        ``recursive``, ``shi-malik``, ``njw``, ``regularized``, ``bethe``,
+        ``leading-eigenvector``, ``girvan-newman``, ``greedy-modularity``,
+        ``louvain``, ``label-propagation``.
+    k : int, "auto" or None, default None
+        Number of communities; None means the method's ``default_k``;
+        "auto" lets the method choose (eigengap for the k-way Laplacian
+        methods, number of negative Bethe Hessian eigenvalues for
+        ``bethe``, positive modularity gain for ``leading-eigenvector``,
+        conductance threshold for ``recursive``).
+    seed : int, default 0
+        Seeds start vectors, k-means++ and randomised baselines.
+    progress : callable(stage: str, matvecs: int), optional
+    cancel : callable() -> bool, optional
+        Polled inside every operator application; True stops the work.
+    **params
+        Method parameters, validated by
+        :func:`workspace.spectral.methods.validate_params` (strings such as
+        ``"0.5"`` or ``"true"`` are converted).
+
+    Returns
+    -------
+    PartitionResult
+        ``labels`` int64 (n,), canonical numbering; see the class.
+
+    Raises
+    ------
+    workspace.errors.ParameterError
+        Unknown method or parameter, wrong type or range, unsupported k.
+    workspace.errors.ComputeError
+        Fewer than 3 nodes, no edges, ``k >= n``, non-symmetric or negative
+        weights, a disconnected graph under ``components="error"``, more
+        components than ``k``, solver failure or budget exhausted.
+    workspace.errors.Cancelled
+        ``cancel()`` returned True.
+
+    Notes
+    -----
+    Components. The connected components are found first (a graph is
+    never embedded as a whole while disconnected). Nodes without any edge
+    to another node ("isolated") are never embedded; they are collected
+    in **one extra community** (``diagnostics["unassigned_community"]``),
+    and a warning says so. ``components="each"`` (default) partitions each
+    component of two or more nodes in its own right: with an integer ``k``
+    and ``c`` such components, ``k < c`` is an error, ``k = c`` gives the
+    components, and for ``k > c`` component ``i`` gets ``k_i`` parts where
+    the ``k_i`` count how many of the ``k`` smallest eigenvalues of the
+    union spectrum of :math:`L_{sym}` belong to it (what an embedding of the
+    whole graph would do, without its ambiguity). ``components="largest"``
+    partitions only the largest component; all other nodes go to the
+    extra community. ``components="error"`` refuses disconnected graphs.
+
+    Determinism: start vectors and k-means++ use ``default_rng(seed)``,
+    eigenvector signs are fixed (largest-magnitude entry positive), labels
+    are renumbered by first appearance; the same input and seed give
+    bit-identical labels on the same machine and library versions.
+
+    References
+    ----------
+    von Luxburg (2007), A tutorial on spectral clustering, Statistics and
+    Computing 17(4) — and the reference of each method in ``METHODS``.
+    """
+    t0 = time.perf_counter()
+    if method not in METHODS:
+        raise ParameterError(f"unknown method {method!r}; known: {', '.join(METHODS)}")
+    info = METHODS[method]
+    p = validate_params(method, params)
+    if isinstance(seed, (bool, np.bool_)) or not isinstance(seed, (int, np.integer)) or seed < 0:
+        raise ParameterError(f"seed must be a non-negative integer (got {seed!r})")
+    seed = int(seed)
+    A = _prepare_adjacency(A)
+    n = A.shape[0]
+    if n < 3:
+        raise ComputeError(f"the graph has {n} node(s); partitioning needs at least 3")
+    k_req = _resolve_k(info, k, n)
+    offdiag = A.nnz - int(np.count_nonzero(A.diagonal()))
+    if offdiag == 0 or not np.any(A.data > 0):
+        raise ComputeError("the graph has no edges between distinct nodes; nothing to partition")
+
+    ctx = SolverContext(seed=seed, dense_threshold=p.get("dense_threshold", 1000),
+                        eig_tol=p.get("eig_tol", 1e-6), max_matvecs=p.get("max_matvecs", 50000),
+                        time_limit_s=p.get("time_limit_s", 0.0), progress=progress, cancel=cancel,
+                        threads=p.get("threads", 1))
+    ctx.check_cancel()
+    ctx.report("components")
+    ncomp, comp = connected_components(A, directed=False)
+    comp_sizes = np.bincount(comp, minlength=ncomp)
+    isolated = comp_sizes[comp] == 1
+    n_isolated = int(isolated.sum())
+    nontrivial = np.flatnonzero(comp_sizes >= 2)
+    # order components by size (desc), then by their first node
+    first_node = np.full(ncomp, n, dtype=np.int64)
+    np.minimum.at(first_node, comp, np.arange(n))
+    nontrivial = nontrivial[np.lexsort((first_node[nontrivial], -comp_sizes[nontrivial]))]
+    policy = p["components"]
+    warnings: list[str] = []
+    if policy == "error" and ncomp > 1:
+        raise ComputeError(f"the graph is disconnected ({len(nontrivial)} components of 2+ nodes, "
+                           f"{n_isolated} isolated nodes) and components='error'; use "
+                           "components=each or components=largest")
+    kept = nontrivial[:1] if policy == "largest" else nontrivial
+    kept_mask = np.isin(comp, kept) if len(kept) != len(nontrivial) or n_isolated else None
+    outside = n - (int(comp_sizes[kept].sum()))
+
+    labels = np.full(n, -1, dtype=np.int64)
+    eig_chunks: list[np.ndarray] = []
+    diag_extra: dict[str, Any] = {}
+    eigengap: int | None = None
+    k_for_ties: int | None = None
+
+    if info.family == "baseline":
+        nodes = np.arange(n) if kept_mask is None else np.flatnonzero(kept_mask)
+        sub = A if kept_mask is None else _induced(A, nodes)
+        ctx.report(method)
+        if k_req is not None and k_req >= nodes.shape[0]:
+            raise ComputeError(f"k={k_req} must be smaller than the {nodes.shape[0]} nodes partitioned")
+        labels[nodes] = run_baseline(sub, method, k_req, seed, p)
+        ctx.check_cancel()
+    else:
+        comp_nodes = _component_node_lists(comp, kept)
+        if method == "recursive":
+            nodes = np.arange(n) if kept_mask is None else np.flatnonzero(kept_mask)
+            sub = A if kept_mask is None else _induced(A, nodes)
+            if k_req is not None and k_req > nodes.shape[0]:
+                raise ComputeError(f"k={k_req} exceeds the {nodes.shape[0]} nodes partitioned")
+            lab, vals, extra = recursive_bisection(
+                sub, ctx, k=k_req, laplacian=p["laplacian"], split=p["split"],
+                objective=p["objective"], max_conductance=p["max_conductance"],
+                min_size=p["min_size"], max_parts=p["max_parts"], extra=p["extra_eigenvalues"])
+            labels[nodes] = lab
+            eig_chunks.append(vals)
+            diag_extra.update(extra)
+            k_for_ties = 2
+        else:
+            alloc = _allocate(A, comp_nodes, k_req, method, ctx, p, warnings)
+            two_m = float(degrees(A).sum())
+            next_label = 0
+            for nodes, k_i in zip(comp_nodes, alloc):
+                ctx.check_cancel()
+                if k_i == 1:
+                    labels[nodes] = next_label
+                    next_label += 1
+                    continue
+                sub = _induced(A, nodes) if len(comp_nodes) > 1 or kept_mask is not None else A
+                lab, vals, extra = _run_spectral(sub, method, k_i, ctx, p, two_m)
+                labels[nodes] = lab + next_label
+                next_label += int(lab.max()) + 1
+                eig_chunks.append(vals)
+                for key, val in extra.items():
+                    if key in ("r",) and key in diag_extra:
+                        diag_extra.setdefault("r_per_component", [diag_extra["r"]]).append(val)
+                    elif isinstance(val, (int, float)) and key in diag_extra and key != "r":
+                        diag_extra[key] += val
+                    elif isinstance(val, list) and key in diag_extra:
+                        diag_extra[key] = diag_extra[key] + val
+                    else:
+                        diag_extra.setdefault(key, val)
+            if method in ("fiedler",) and len(comp_nodes) == 1:
+                k_for_ties = 2
+            elif method in ("njw", "shi-malik", "regularized", "bethe") and len(comp_nodes) == 1:
+                k_for_ties = int(labels[comp_nodes[0]].max() - labels[comp_nodes[0]].min() + 1)
+    eigenvalues = _union_eigenvalues(eig_chunks)
+    if method == "leading-eigenvector":
+        eigenvalues = (np.concatenate(eig_chunks) if eig_chunks else np.array([], dtype=np.float64))
+
+    # eigengap suggestion and the uniqueness warning (Laplacian-type spectra)
+    if method in ("fiedler", "recursive", "njw", "shi-malik", "regularized") and eigenvalues.size >= 2:
+        eigengap = eigengap_k(eigenvalues)
+    elif method == "bethe":
+        eigengap = int(np.sum(eigenvalues < 0)) if eigenvalues.size else None
+    if k_for_ties is not None and eigenvalues.size > k_for_ties and method != "leading-eigenvector":
+        lo, hi = float(eigenvalues[k_for_ties - 1]), float(eigenvalues[k_for_ties])
+        scale = max(abs(lo), abs(hi))
+        slack = 10.0 * ctx.eig_tol * (2.0 if method != "bethe" else scale + 1.0) \
+            if "arpack-eigsh" in ctx.solvers or "lobpcg" in ctx.solvers else 1e-12 * max(scale, 1.0)
+        if hi - lo <= p["tie_tol"] * scale + slack:
+            warnings.append(f"eigenvalues {k_for_ties} and {k_for_ties + 1} are (nearly) equal "
+                            f"({lo:.10g}, {hi:.10g}): the partition is not unique")
+
+    # isolated / outside nodes: one extra community
+    unassigned_label = None
+    if outside:
+        out_nodes = labels < 0
+        labels[out_nodes] = labels.max() + 1 if (~out_nodes).any() else 0
+        what = (f"{n_isolated} isolated node(s)" if policy != "largest"
+                else f"{outside} node(s) outside the largest component")
+        warnings.append(f"{what} placed in one extra community of their own")
+    labels = canonical_labels(labels)
+    if outside:
+        unassigned_label = int(labels[np.flatnonzero(~_kept_nodes(comp, kept, n))[0]])
+    ctx.report("quality")
+    q = quality_measures(A, labels)
+    communities = q.pop("communities")
+    q["conductance_per_community"] = [row["conductance"] for row in communities]
+    warnings = warnings + ctx.warnings
+    k_out = int(labels.max()) + 1
+    solver_names = list(dict.fromkeys(ctx.solvers))
+    res = ctx.residual_norms
+    diagnostics: dict[str, Any] = {
+        "solver": "+".join(solver_names) if solver_names else ("networkx" if info.family == "baseline" else "none"),
+        "eigensolves": len(ctx.solvers),
+        "matvecs": int(ctx.matvecs),
+        "residual_norm_max": float(max(res)) if res else 0.0,
+        "residual_norms": [float(r) for r in res[:_MAX_RESIDUALS_LISTED]],
+        "wall_time_s": 0.0,
+        "n_nodes": int(n),
+        "n_edges": int((offdiag // 2) + int(np.count_nonzero(A.diagonal()))),
+        "components": int(ncomp),
+        "components_partitioned": int(len(kept)),
+        "largest_component": int(comp_sizes.max()),
+        "isolated_nodes": n_isolated,
+        "unassigned_nodes": int(outside),
+        "unassigned_community": unassigned_label,
+        "eigengap_suggestion": eigengap,
+        "k_requested": "auto" if k_req is None else int(k_req),
+    }
+    for key, val in diag_extra.items():
+        diagnostics[key] = val
+    params_out = dict(p)
+    params_out["seed"] = seed
+    params_out["k_requested"] = diagnostics["k_requested"]
+    diagnostics["wall_time_s"] = float(time.perf_counter() - t0)
+    ctx.report("done")
+    return PartitionResult(labels=labels, k=k_out, method=method, params=params_out,
+                           eigenvalues=eigenvalues, quality=q, communities=communities,
+                           warnings=warnings, diagnostics=diagnostics)
+
+
+def _induced(A: sp.csr_array, nodes: np.ndarray) -> sp.csr_array:
+    """Induced subgraph ``A[nodes][:, nodes]`` (``nodes`` sorted).
+
+    When every dropped node has an empty row (isolated nodes, the common
+    case), the values and row structure are reused as they are and only
+    the column indices are renumbered: O(nnz) with no copy of the values.
+    """
+    n = A.shape[0]
+    if nodes.shape[0] == n:
+        return A
+    dropped = np.ones(n, dtype=bool)
+    dropped[nodes] = False
+    row_nnz = np.diff(A.indptr)
+    if row_nnz[dropped].any():
+        return sp.csr_array(A[nodes][:, nodes])
+    remap = np.full(n, -1, dtype=A.indices.dtype)
+    remap[nodes] = np.arange(nodes.shape[0], dtype=A.indices.dtype)
+    indptr = np.append(A.indptr[nodes], A.indptr[-1]).astype(A.indptr.dtype, copy=False)
+    sub = sp.csr_array((A.data, remap[A.indices], indptr), shape=(nodes.shape[0], nodes.shape[0]))
+    sub.has_sorted_indices = A.has_sorted_indices   # renumbering keeps the order
+    return sub
+
+
+def _kept_nodes(comp: np.ndarray, kept: np.ndarray, n: int) -> np.ndarray:
+    return np.isin(comp, kept)
+
+
+def _component_node_lists(comp: np.ndarray, kept: np.ndarray) -> list[np.ndarray]:
+    if kept.shape[0] == 1:
+        return [np.flatnonzero(comp == kept[0])]
+    order = np.argsort(comp, kind="stable")
+    bounds = np.searchsorted(comp[order], kept)
+    counts = np.bincount(comp)
+    return [order[b:b + counts[c]] for b, c in zip(bounds, kept)]
+
+
+def _allocate(A, comp_nodes: list[np.ndarray], k: int | None, method: str, ctx: SolverContext,
+              p: dict, warnings: list[str]) -> list[int | None]:
+    """Parts per kept component (None = the method decides, for k='auto')."""
+    c = len(comp_nodes)
+    if k is None:
+        return [None] * c
+    if c == 1:
+        return [k]
+    if k < c:
+        raise ComputeError(f"the graph has {c} connected components of 2+ nodes, more than k={k}; "
+                           "ask for k >= the number of components, or use components=largest")
+    if k == c:
+        warnings.append(f"k={k} equals the number of components: the communities are the components")
+        return [1] * c
+    if method == "fiedler":  # pragma: no cover - fixed k=2 < 3 components handled above
+        raise ComputeError("fiedler needs a connected graph")
+    # distribute the k - c extra parts by the union spectrum of L_sym
+    want = k - c + 1
+    pieces = []
+    for idx, nodes in enumerate(comp_nodes):
+        m = min(want, nodes.shape[0])
+        sub = _induced(A, nodes)
+        sol = laplacian_eigenpairs(sub, m, laplacian="sym", seed=ctx.seed,
+                                   dense_threshold=ctx.dense_threshold, eig_tol=ctx.eig_tol,
+                                   max_matvecs=ctx.max_matvecs, time_limit_s=ctx.time_limit_s,
+                                   progress=ctx.progress, cancel=ctx.cancel, threads=ctx.threads)
+        ctx.solvers.append(sol.solver)
+        ctx.matvecs += sol.matvecs
+        for j, val in enumerate(sol.values):
+            pieces.append((0.0 if j == 0 else float(val), j, idx))
+    pieces.sort()
+    alloc = [0] * c
+    for _, _, idx in pieces[:k]:
+        alloc[idx] += 1
+    for idx, nodes in enumerate(comp_nodes):
+        if alloc[idx] >= nodes.shape[0]:
+            alloc[idx] = nodes.shape[0]
+    return alloc
+
+
+def _run_spectral(sub, method: str, k: int | None, ctx: SolverContext, p: dict,
+                  two_m: float) -> tuple[np.ndarray, np.ndarray, dict]:
+    """One connected component; returns (labels 0.., eigenvalues, extra diagnostics)."""
+    n = sub.shape[0]
+    if k is not None and k >= n:
+        return np.arange(n, dtype=np.int64), np.array([], dtype=np.float64), {}
+    if method == "fiedler":
+        lab, vals, extra = fiedler_bisection(sub, ctx, laplacian=p["laplacian"], split=p["split"],
+                                             objective=p["objective"], extra=p["extra_eigenvalues"])
+        return lab, vals, {"split_" + key: val for key, val in extra.items()}
+    if method in ("njw", "shi-malik", "regularized"):
+        tau = 0.0
+        extra: dict[str, Any] = {}
+        if method == "regularized":
+            tau = p["tau"] if p["tau"] >= 0 else float(degrees(sub).mean())
+            extra["tau"] = tau
+        U, vals, k_used = laplacian_embedding(sub, k, method, ctx, extra=p["extra_eigenvalues"],
+                                              k_max=p["k_max"], tau=tau)
+        lab, info = assign_rows(U, k_used, ctx, assign=p["assign"], n_init=p["n_init"],
+                                max_iter=p["kmeans_max_iter"])
+        extra.update(info)
+        return lab, vals, extra
+    if method == "bethe":
+        U, vals, k_used, extra = bethe_embedding(sub, k, ctx, r=p["r"], extra=p["extra_eigenvalues"],
+                                                 k_max=p["k_max"])
+        lab, info = assign_rows(U, k_used, ctx, assign=p["assign"], n_init=p["n_init"],
+                                max_iter=p["kmeans_max_iter"])
+        extra.update(info)
+        return lab, vals, extra
+    if method == "leading-eigenvector":
+        lab, vals, extra = leading_eigenvector(sub, ctx, two_m=two_m, min_gain=p["min_gain"])
+        return lab, vals, extra
+    raise ParameterError(f"unknown method {method!r}")  # pragma: no cover
