@@ -122,15 +122,17 @@ def test_tui_browse_to_a_run_shows_its_measures(demo_path):
     from workspace.tui.widgets.detail import DetailPane, fmt_value
     from workspace.tui.widgets.paged_table import PagedTable
 
-    bethe_run = demo_runs(demo_path)["auto-k@4"]
+    runs_by_key = demo_runs(demo_path)
+    bethe_run = runs_by_key["modularity@4"]  # leading-eigenvector on the June network
+    total = max(runs_by_key.values())
 
     async def go():
         async with workspace(demo_path) as (app, pilot):
             table = app.screen.query_one("#runs", PagedTable)
-            assert table.row_count == 12
-            assert table.visible_rows()[0]["run"] == 12  # newest first
-            assert "Runs in all projects · 12" in static_text(app.screen.query_one("#runs-title"))
-            for _ in range(12 - bethe_run):
+            assert table.row_count == total
+            assert table.visible_rows()[0]["run"] == total  # newest first
+            assert f"Runs in all projects · {total}" in static_text(app.screen.query_one("#runs-title"))
+            for _ in range(total - bethe_run):
                 await pilot.press("down")
             await settle(app, pilot)
             assert table.current_row["run"] == bethe_run
@@ -143,7 +145,7 @@ def test_tui_browse_to_a_run_shows_its_measures(demo_path):
             assert f"modularity" in text
             line = next(ln for ln in text.splitlines() if ln.strip().startswith("modularity"))
             assert line.split()[-1] == fmt_value(float(expected))
-            assert "bethe" in text and "Solver diagnostics" in text and "Provenance" in text
+            assert "leading-eigenvector" in text and "Solver diagnostics" in text and "Provenance" in text
             assert "k (found)      10" in text
             # the outline narrows the list to one version
             tree = app.screen.query_one("#outline")
@@ -151,7 +153,8 @@ def test_tui_browse_to_a_run_shows_its_measures(demo_path):
             node = next(n for n in _walk(tree.root) if (n.data or {}).get("version") == "velmora-bikes/stations@4")
             tree.move_cursor(node)
             await settle(app, pilot)
-            assert table.row_count == 5
+            assert table.row_count == sum(1 for key in runs_by_key if key.endswith("@4")
+                                          and not key.startswith("lab"))
             assert {r["ref"] for r in table.visible_rows()} == {"velmora-bikes/stations@4"}
             vtext = app.screen.query_one("#detail", DetailPane).plain
             assert "Import report" in vtext and "Change from parent" in vtext
@@ -171,7 +174,7 @@ def test_tui_spectrum_marks_the_largest_gap(demo_path):
     from workspace.services.runs import show_run
     from workspace.tui.widgets.charts import SizeHistogram, SpectrumPlot
 
-    run_id = demo_runs(demo_path)["auto-k@4"]
+    run_id = demo_runs(demo_path)["districts@4"]
 
     async def go():
         async with workspace(demo_path) as (app, pilot):

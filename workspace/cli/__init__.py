@@ -13,6 +13,21 @@ from workspace.cli.parser import build_parser
 
 
 def main(argv: list[str] | None = None) -> int:
+    """Run one command; ``argv=None`` means this process's command line (the console script)."""
+    code = _run(argv)
+    if argv is None and "pyarrow" in sys.modules:
+        # Arrow's CSV thread pool can abort interpreter teardown ("terminate called without an
+        # active exception", exit 134) after the result is already out. Everything of ours is
+        # closed by now (the store is disposed when the command returns), so leave at once.
+        try:
+            sys.stdout.flush()
+            sys.stderr.flush()
+        finally:
+            os._exit(code)
+    return code
+
+
+def _run(argv: list[str] | None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     if getattr(args, "handler", None) is None:

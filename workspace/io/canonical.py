@@ -47,9 +47,21 @@ def _first_empty(values: pa.Array) -> int | None:
     return None
 
 
+MAX_ID_BYTES = 4096
+
+
+def _first_too_long(values: pa.Array) -> int | None:
+    if len(values) and pc.max(pc.binary_length(values)).as_py() > MAX_ID_BYTES:
+        return pc.index(pc.greater(pc.binary_length(values), MAX_ID_BYTES), True).as_py()
+    return None
+
+
 def _check_ids(rec: EdgeRecords, source: pa.Array, target: pa.Array, extra: pa.Array | None,
                numeric: bool):
-    """Numeric conversion (if asked) and empty-id check; errors at the earliest record."""
+    """Numeric conversion (if asked), empty-id and id-length checks; errors at the earliest record.
+
+    Node ids are identifiers: longer than ``MAX_ID_BYTES`` (4096) UTF-8 bytes is refused.
+    """
     columns = [source, target] + ([extra] if extra is not None else [])
     if numeric:
         converted = [_numeric_ids(c) for c in columns]
@@ -65,6 +77,12 @@ def _check_ids(rec: EdgeRecords, source: pa.Array, target: pa.Array, extra: pa.A
         endpoint = [(i, k) for i, k in empty if k < 2]
         i, k = min(endpoint) if endpoint else empty[0]
         raise rec.error(i, "empty node id", node=k == 2)
+    long = [(i, k) for k, c in enumerate(columns) if (i := _first_too_long(c)) is not None]
+    if long:
+        i, k = min(long)
+        raise rec.error(i, f"node id longer than {MAX_ID_BYTES} bytes "
+                           f"({len(columns[k][i].as_py().encode())} bytes): is this the right column or file?",
+                        node=k == 2)
     return columns[0], columns[1], (columns[2] if extra is not None else None)
 
 

@@ -44,6 +44,7 @@ ENDPOINT_HEADER_NAMES = frozenset({
     ("node_1", "node_2"), ("tail", "head"), ("head", "tail"), ("id1", "id2"),
 })
 _SAMPLE_BYTES = 1 << 18
+_THREADS_FROM_BYTES = 8 << 20  # below this a single thread is as fast
 _WHITESPACE_TABLE = bytes.maketrans(b"\t\v\f", b"   ")
 _EXPECTED = re.compile(r"Expected (\d+) columns, got (\d+)")
 
@@ -93,6 +94,11 @@ class _Csv:
                                  double_quote=quoting, escape_char=False,
                                  newlines_in_values=False, ignore_empty_lines=True)
         self._lines: LineMap | None = None
+        # Arrow cannot parse a row longer than its block: size blocks to the longest line
+        newlines = np.flatnonzero(np.frombuffer(data, dtype=np.uint8) == 10) if data else np.zeros(0, int)
+        bounds = np.concatenate([[-1], newlines, [len(data)]])
+        longest = int(np.diff(bounds).max()) if bounds.size > 1 else len(data)
+        self.block_size = max(1 << 22, 1 << int(longest + 1024).bit_length())
 
     @property
     def lines(self) -> LineMap:
@@ -103,8 +109,9 @@ class _Csv:
     def read(self, data: bytes, n_columns: int | None, include: list[int] | None,
              threads: bool) -> pa.Table:
         names = None if n_columns is None else [f"f{i}" for i in range(n_columns)]
-        read_options = pa_csv.ReadOptions(use_threads=threads, autogenerate_column_names=True,
-                                          block_size=1 << 22)
+        # threads only pay off on large inputs (and Arrow's pool is best left idle for small ones)
+        read_options = pa_csv.ReadOptions(use_threads=threads and len(data) > _THREADS_FROM_BYTES,
+                                          autogenerate_column_names=True, block_size=self.block_size)
         convert = dict(strings_can_be_null=False, quoted_strings_can_be_null=False,
                        check_utf8=False)
         if names is not None:
@@ -134,7 +141,8 @@ class _Csv:
             try:
                 pa_csv.read_csv(io.BytesIO(data),
                                 read_options=pa_csv.ReadOptions(use_threads=False,
-                                                                autogenerate_column_names=True),
+                                                                autogenerate_column_names=True,
+                                                                block_size=self.block_size),
                                 parse_options=pa_csv.ParseOptions(**options),
                                 convert_options=pa_csv.ConvertOptions(
                                     column_types={f"f{i}": pa.string()
@@ -202,6 +210,11 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
     delimiter = resolve_delimiter(fmt, policy.delimiter)
     data = normalise_newlines(strip_bom(data))
     check_utf8(data, path)
+    stray_bom = data.find(b"\xef\xbb\xbf")
+    if stray_bom >= 0:
+        raise InputError("a byte-order mark (U+FEFF) inside the file, not at its start: were two files "
+                         "joined together? Remove it and import again", path=path,
+                         line=data.count(b"\n", 0, stray_bom) + 1)
     if policy.comment:
         data = _remove_comments(data, policy.comment)
     if delimiter == WHITESPACE:

@@ -71,6 +71,7 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
     policy_dict = policy.as_dict()
     if progress:
         progress("store", 0, None)
+    arrays = repo.encode_graph(graph)  # compress before taking the write lock
     with store.write() as s:
         proj = repo.get_or_create_project(s, project)
         net = repo.get_or_create_network(s, proj, network)
@@ -82,7 +83,7 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
         v = repo.add_version(s, net, graph, parent=latest, content_hash=content_hash, message=message,
                              source_name=source_label or os.path.basename(os.fspath(path)), source_format=report.format,
                              policy_json=json.dumps(policy_dict, sort_keys=True),
-                             report_json=json.dumps(report_dict, sort_keys=True))
+                             report_json=json.dumps(report_dict, sort_keys=True), arrays=arrays)
         number = v.number
     if progress:
         progress("store", 1, 1)

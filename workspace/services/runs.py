@@ -271,6 +271,17 @@ def _json_floats(obj):
 
 def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None = None,
             error: str | None = None) -> None:
+    from workspace.store.blobs import encode_array
+
+    encoded = {}
+    if computed is not None:  # compress before taking the write lock
+        labels = computed.labels
+        encoded["membership"] = encode_array(labels.astype(compact_label_dtype(labels)))
+        if computed.eigenvalues.size:
+            encoded["eigenvalues"] = encode_array(computed.eigenvalues)
+        if computed.stability_counts is not None:
+            c = computed.stability_counts
+            encoded["stability"] = encode_array(c.astype(np.uint8 if c.max(initial=0) < 256 else np.uint16))
     with store.write() as s:
         run = s.get(Run, run_id)
         if run is None or run.status != "running":
@@ -281,12 +292,11 @@ def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None
         if computed is not None:
             labels = computed.labels
             run.k = computed.k
-            run.membership_blob = repo.put_array(s, labels.astype(compact_label_dtype(labels)))
+            run.membership_blob = repo.put_encoded(s, encoded["membership"])
             run.membership_hash = membership_hash(labels)
-            run.eigenvalues_blob = repo.put_array(s, computed.eigenvalues) if computed.eigenvalues.size else None
-            if computed.stability_counts is not None:
-                c = computed.stability_counts
-                run.stability_blob = repo.put_array(s, c.astype(np.uint8 if run.repeats < 256 else np.uint16))
+            run.eigenvalues_blob = repo.put_encoded(s, encoded["eigenvalues"]) if "eigenvalues" in encoded else None
+            if "stability" in encoded:
+                run.stability_blob = repo.put_encoded(s, encoded["stability"])
             run.quality_json = json.dumps(_json_floats(computed.quality), sort_keys=True)
             run.diagnostics_json = json.dumps(_json_floats(computed.diagnostics), sort_keys=True)
             run.warnings_json = json.dumps(computed.warnings)

@@ -433,8 +433,13 @@ def _run_spectral(sub, method: str, k: int | None, ctx: SolverContext, p: dict,
         extra.update(info)
         return lab, vals, extra
     if method == "bethe":
+        if p["weights"] == "ignore":
+            # Saade, Krzakala & Zdeborova (2014) analyse unweighted sparse graphs: with weights in A and
+            # D the number of negative eigenvalues no longer estimates the number of groups
+            sub = sp.csr_array((np.ones_like(sub.data), sub.indices, sub.indptr), shape=sub.shape)
         U, vals, k_used, extra = bethe_embedding(sub, k, ctx, r=p["r"], extra=p["extra_eigenvalues"],
                                                  k_max=p["k_max"])
+        extra["weights"] = p["weights"]
         lab, info = assign_rows(U, k_used, ctx, assign=p["assign"], n_init=p["n_init"],
                                 max_iter=p["kmeans_max_iter"])
         extra.update(info)

@@ -273,6 +273,9 @@ _register(MethodInfo(
     "spectral", True, "auto", (
         ParamSpec("r", "float", 0.0, minimum=0.0, maximum=1e6,
                   help="Bethe Hessian parameter; 0 = sqrt(sum d^2 / sum d - 1)"),
+        ParamSpec("weights", "choice", "ignore", choices=("ignore", "use"),
+                  help="ignore: build H(r) on the unweighted graph (the setting the method's theory "
+                       "and its count of negative eigenvalues are made for); use: put the weights in A and D"),
     ) + _assignment() + _SPECTRAL_TAIL))
 
 _register(MethodInfo(

@@ -10,7 +10,7 @@ from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
 from workspace.domain import GraphData, decode_node_ids, encode_node_ids
-from workspace.store.blobs import decode_array, encode_array
+from workspace.store.blobs import EncodedArray, decode_array, encode_array
 from workspace.store.schema import Blob, Network, NetworkVersion, Project
 
 
@@ -21,8 +21,16 @@ def utcnow() -> datetime:
 # --- blobs -------------------------------------------------------------------
 
 def put_array(session: Session, arr: np.ndarray) -> str:
-    """Store ``arr`` once (content-addressed) and return its hash."""
-    enc = encode_array(arr)
+    """Encode and store ``arr`` once (content-addressed); return its hash.
+
+    Encoding compresses; inside a write transaction prefer :func:`encode_array`
+    beforehand and :func:`put_encoded` within, so the lock is held only for the insert.
+    """
+    return put_encoded(session, encode_array(arr))
+
+
+def put_encoded(session: Session, enc: EncodedArray) -> str:
+    """Insert an already encoded array unless the same content is stored; return its hash."""
     if session.get(Blob, enc.hash) is None:
         session.add(Blob(hash=enc.hash, codec=enc.codec, dtype=enc.dtype, length=enc.length,
                          raw_size=enc.raw_size, data=enc.data))
@@ -101,10 +109,20 @@ def list_versions(session: Session, network_id: int) -> list[NetworkVersion]:
                                 .order_by(NetworkVersion.number)))
 
 
+GRAPH_ARRAYS = ("node_offsets_blob", "node_bytes_blob", "edge_u_blob", "edge_v_blob", "weight_blob")
+
+
+def encode_graph(graph: GraphData) -> dict[str, EncodedArray]:
+    """The five encoded arrays of a version (do this before opening the write transaction)."""
+    offsets, data = encode_node_ids(graph.node_ids)
+    return dict(zip(GRAPH_ARRAYS, map(encode_array, (offsets, data, graph.edge_u, graph.edge_v, graph.weight))))
+
+
 def add_version(session: Session, network: Network, graph: GraphData, *, parent: NetworkVersion | None,
                 content_hash: str, message: str, source_name: str, source_format: str,
-                policy_json: str, report_json: str) -> NetworkVersion:
-    offsets, data = encode_node_ids(graph.node_ids)
+                policy_json: str, report_json: str,
+                arrays: dict[str, EncodedArray] | None = None) -> NetworkVersion:
+    arrays = arrays if arrays is not None else encode_graph(graph)
     version = NetworkVersion(
         network_id=network.id,
         number=(parent.number + 1) if parent is not None else 1,
@@ -113,11 +131,7 @@ def add_version(session: Session, network: Network, graph: GraphData, *, parent:
         n_nodes=graph.n_nodes, n_edges=graph.n_edges, total_weight=float(graph.weight.sum()),
         message=message, source_name=source_name, source_format=source_format,
         policy_json=policy_json, report_json=report_json,
-        node_offsets_blob=put_array(session, offsets),
-        node_bytes_blob=put_array(session, data),
-        edge_u_blob=put_array(session, graph.edge_u),
-        edge_v_blob=put_array(session, graph.edge_v),
-        weight_blob=put_array(session, graph.weight),
+        **{column: put_encoded(session, arrays[column]) for column in GRAPH_ARRAYS},
         created_at=utcnow(),
     )
     session.add(version)

@@ -1,0 +1,141 @@
+"""Concurrent writers on one SQLite store: 4 processes x 5 runs plus 2 importers at once.
+
+Each process is a fresh interpreter that waits for a common start signal (a file) and
+then calls the ``cutbook`` entry point (``workspace.cli.main``) once per command, so
+all six hammer the store together. Every command must succeed without a lock error,
+all 20 runs must be recorded ``done`` with their membership, and both imports (two
+different contents for the same new network) must be recorded as versions 1 and 2.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import json
+import os
+import sqlite3
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import pytest
+
+from graphs import adjacency_to_csv
+
+REPO = Path(__file__).resolve().parents[2]
+
+pytestmark = pytest.mark.slow
+
+DRIVER = r"""
+import contextlib, io, json, os, sys, time
+go, ready, commands = sys.argv[1], sys.argv[2], json.loads(sys.argv[3])
+from workspace.cli import main
+import importlib
+for name in ("workspace.cli.runs", "workspace.cli.networks", "workspace.services.runs", "workspace.services.params",
+             "workspace.services.networks", "workspace.services.store", "workspace.spectral", "workspace.spectral.methods",
+             "workspace.spectral.quality", "workspace.io.delimited", "workspace.io.canonical", "networkx",
+             "scipy.sparse.linalg", "alembic.command", "rich.console", "rich.table"):
+    importlib.import_module(name)  # load everything before the start signal, so the writes overlap
+open(ready, "w").close()
+while not os.path.exists(go):
+    time.sleep(0.005)
+results = []
+for argv in commands:
+    out, err = io.StringIO(), io.StringIO()
+    t0 = time.monotonic()  # CLOCK_MONOTONIC: one clock for all processes of the machine
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        try:
+            code = main(argv)
+        except SystemExit as exc:
+            code = exc.code
+    results.append({"argv": argv, "code": code, "out": out.getvalue(), "err": err.getvalue(),
+                    "t0": t0, "t1": time.monotonic()})
+print(json.dumps(results))
+sys.stdout.flush()
+os._exit(0)  # the harness's own exit (pyarrow can abort at interpreter exit; see test_reliability_bad_inputs)
+"""
+
+
+def _cli(store: Path, *argv: str) -> tuple[int, str, str]:
+    from workspace.cli import main
+
+    out, err = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
+        code = main(["--store", str(store), *map(str, argv)])
+    return code, out.getvalue(), err.getvalue()
+
+
+def test_four_runners_and_two_importers_at_once(tmp_path):
+    from workspace.spectral.generators import planted_partition
+
+    store = tmp_path / "shared.sqlite"
+    A, _ = planted_partition(240, 3, c_in=12.0, c_out=1.0, seed=3)
+    small = adjacency_to_csv(A, tmp_path / "small.csv")
+    assert _cli(store, "import", small, "--project", "p", "--network", "g", "--weight", "weight")[0] == 0
+    bigger = []
+    for i in range(2):
+        B, _ = planted_partition(6000, 4, c_in=10.0, c_out=1.0, seed=10 + i)
+        bigger.append(adjacency_to_csv(B, tmp_path / f"incoming{i}.csv"))
+
+    go = tmp_path / "go"
+    base = ["--store", str(store)]
+    jobs = []
+    for w in range(4):
+        cmds = [base + ["run", "p/g", "--method", "njw", "--k", "3", "--seed", str(5 * w + r), "--json"]
+                for r in range(5)]
+        jobs.append(cmds)
+    for i in range(2):
+        jobs.append([base + ["import", str(bigger[i]), "--project", "incoming", "--network", "shared",
+                             "--weight", "weight", "--json"]])
+    # one BLAS thread per process: six processes share two cores (oversubscribed BLAS threads
+    # only slow the test down; the store's locking is what is under test)
+    env = {**os.environ, "PYTHONPATH": str(REPO), "OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1",
+           "MKL_NUM_THREADS": "1"}
+    ready = [tmp_path / f"ready{i}" for i in range(len(jobs))]
+    procs = [subprocess.Popen([sys.executable, "-c", DRIVER, str(go), str(flag), json.dumps(cmds)],
+                              stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+             for cmds, flag in zip(jobs, ready)]
+    deadline = time.monotonic() + 120
+    while not all(f.exists() for f in ready):
+        assert all(p.poll() is None for p in procs), [p.communicate() for p in procs]
+        assert time.monotonic() < deadline
+        time.sleep(0.02)
+    go.touch()
+    results = []
+    for p in procs:
+        out, err = p.communicate(timeout=240)
+        assert p.returncode == 0, err
+        assert "locked" not in err.lower() and "busy" not in err.lower(), err
+        results.extend(json.loads(out))
+
+    for r in results:
+        assert r["code"] == 0, (r["argv"], r["err"])
+        assert "locked" not in r["err"].lower() and "database is busy" not in r["err"].lower(), r["err"]
+    # the test is only worth something if the writers really overlapped
+    imports = [(r["t0"], r["t1"]) for r in results if r["argv"][2] == "import"]
+    runs = [(r["t0"], r["t1"]) for r in results if r["argv"][2] == "run"]
+    assert imports[0][0] < imports[1][1] and imports[1][0] < imports[0][1], "the two imports did not overlap"
+    assert any(a0 < b1 and b0 < a1 for a0, a1 in imports for b0, b1 in runs), "no run overlapped an import"
+    run_ids = sorted(json.loads(r["out"])["run"] for r in results if r["argv"][2] == "run")
+    assert len(run_ids) == 20 and len(set(run_ids)) == 20
+
+    con = sqlite3.connect(store)
+    try:
+        assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+        rows = con.execute("SELECT id, status, membership_blob, seed FROM runs ORDER BY id").fetchall()
+        assert [r[0] for r in rows] == run_ids
+        assert all(r[1] == "done" and r[2] is not None for r in rows), rows
+        assert sorted(r[3] for r in rows) == list(range(20))
+        versions = con.execute(
+            "SELECT v.number, v.content_hash FROM network_versions v JOIN networks n ON n.id = v.network_id "
+            "JOIN projects p ON p.id = n.project_id WHERE p.name = 'incoming' AND n.name = 'shared' "
+            "ORDER BY v.number").fetchall()
+        assert con.execute("SELECT count(*) FROM projects WHERE name = 'incoming'").fetchone()[0] == 1
+    finally:
+        con.close()
+    imported = {json.loads(r["out"])["content_hash"] for r in results if r["argv"][2] == "import"}
+    assert [v[0] for v in versions] == [1, 2]
+    assert {v[1] for v in versions} == imported and len(imported) == 2
+    code, out, err = _cli(store, "verify", "--json")
+    assert code == 0 and json.loads(out)["ok"] is True, out
