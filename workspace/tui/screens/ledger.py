@@ -34,7 +34,7 @@ def _what(value, row) -> str:
 RUN_COLUMNS = [
     Column("run", "run", 6, "right"),
     Column("status", "status", 11, style=lambda r: STATUS_STYLE.get(r["status"])),
-    Column("ref", "version", 0),
+    Column("ref", "version", 0, format=lambda v, r: (v or "").split("/", 1)[-1]),  # project is in the outline
     Column("method", "method / grouping", 19, format=_what),
     Column("k", "k", 3, "right"),
     Column("created", "started", 11, format=lambda v, r: (v or "").replace("T", " ")[5:16]),
