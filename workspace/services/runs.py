@@ -204,7 +204,7 @@ def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None
 
     if spec.repeats == 1:
         res = partition(A, spec.method, k=k, seed=spec.seed, progress=prog, cancel=cancel, **spec.params)
-        return Computed(labels=canonical_labels(res.labels), k=int(res.k),
+        return Computed(labels=np.asarray(res.labels, dtype=np.int64), k=int(res.k),  # canonical already
                         eigenvalues=np.asarray(res.eigenvalues, dtype=np.float64), quality=dict(res.quality),
                         communities=list(res.communities), warnings=list(res.warnings),
                         diagnostics=dict(res.diagnostics))

@@ -7,26 +7,9 @@ from typing import Any
 
 import numpy as np
 
+from workspace.domain import canonical_labels  # one definition for the whole package
+
 __all__ = ["PartitionResult", "canonical_labels"]
-
-
-def canonical_labels(labels: np.ndarray) -> np.ndarray:
-    """Renumber communities by first appearance in node order.
-
-    Node 0 is in community 0; the first node not in community 0 opens
-    community 1, and so on. Returns int64, shape (n,), values ``0..k-1``.
-    The renumbering is a bijection on community ids, so it changes no
-    partition (common practice for comparing memberships).
-    """
-    labels = np.asarray(labels)
-    if labels.ndim != 1:
-        raise ValueError("labels must be one-dimensional")
-    if labels.shape[0] == 0:
-        return np.empty(0, dtype=np.int64)
-    uniq, first, inverse = np.unique(labels, return_index=True, return_inverse=True)
-    rank = np.empty(uniq.shape[0], dtype=np.int64)
-    rank[np.argsort(first, kind="stable")] = np.arange(uniq.shape[0], dtype=np.int64)
-    return rank[inverse.ravel()]
 
 
 @dataclass(frozen=True, eq=False)

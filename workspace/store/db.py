@@ -118,7 +118,7 @@ def _current_revision(conn) -> str | None:
 
 
 class Store:
-    """An open store: an engine plus transaction helpers. Create with :func:`open_store`."""
+    """An open store: an engine plus transaction helpers (``services.store.open_workspace`` makes one)."""
 
     def __init__(self, url: str, engine: Engine) -> None:
         self.url = url
@@ -223,17 +223,3 @@ def migrate(url: str, *, target: str = "head", backup: bool = True) -> Path | No
         raise
     finally:
         engine.dispose()
-
-
-def open_store(store: str | os.PathLike | None = None, *, upgrade: bool = True) -> Store:
-    """Open (creating if needed) and upgrade the store named by ``store`` / env / default."""
-    url = resolve_store_url(store)
-    engine = _make_engine(url)
-    if upgrade:
-        head = HEAD_REVISION
-        with engine.connect() as conn:
-            current = _current_revision(conn)
-            conn.rollback()
-        if current != head:
-            migrate(url)
-    return Store(url, engine)
