@@ -35,6 +35,15 @@ def run_baseline(A, method: str, k: int | None, seed: int, params: dict) -> np.n
     - ``label-propagation``: asynchronous label propagation (Raghavan et al.
       2007), seeded.
 
+    Components: the caller (:func:`workspace.spectral.partition`) applies
+    the same rule as for the spectral methods under ``components="each"``:
+    an integer ``k`` below the number ``c`` of components of two or more
+    nodes raises ``ComputeError``, ``k = c`` returns the components without
+    calling networkx, and for ``k > c`` the method places the ``k - c``
+    extra parts itself (Girvan–Newman by edge removal, greedy modularity by
+    its merge order, which stops before any merge across components). No
+    community ever spans two components; the caller checks it.
+
     Parameters
     ----------
     A : scipy sparse matrix, shape (n, n)

@@ -254,8 +254,17 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
         ctx.report(method)
         if k_req is not None and k_req >= nodes.shape[0]:
             raise ComputeError(f"k={k_req} must be smaller than the {nodes.shape[0]} nodes partitioned")
-        labels[nodes] = run_baseline(sub, method, k_req, seed, p)
+        # the component rule of the spectral methods (components="each"): k below the number of
+        # components is an error, k equal to it gives the components; a baseline never merges
+        # communities of different components (networkx's greedy agglomeration would, to reach k)
+        if k_req is not None and len(kept) > 1:
+            _allocate(A, [np.empty(0)] * len(kept), k_req, method, ctx, p, warnings, counts_only=True)
+        if k_req is not None and k_req == len(kept) and len(kept) > 1:
+            labels[nodes] = comp[nodes]
+        else:
+            labels[nodes] = run_baseline(sub, method, k_req, seed, p)
         ctx.check_cancel()
+        _check_within_components(labels, comp, method)
     else:
         comp_nodes = _component_node_lists(comp, kept)
         if method == "recursive":
@@ -403,9 +412,26 @@ def _component_node_lists(comp: np.ndarray, kept: np.ndarray) -> list[np.ndarray
     return [order[b:b + counts[c]] for b, c in zip(bounds, kept)]
 
 
+def _check_within_components(labels: np.ndarray, comp: np.ndarray, method: str) -> None:
+    """Raise if a community of a baseline spans two connected components (never expected)."""
+    assigned = labels >= 0
+    if not assigned.any():
+        return
+    lab, cmp = labels[assigned], comp[assigned]
+    first = np.full(int(lab.max()) + 1, -1, dtype=np.int64)
+    first[lab[::-1]] = cmp[::-1]
+    if np.any(first[lab] != cmp):
+        raise ComputeError(f"{method}: a community spans two connected components "
+                           "(the component rule forbids it)")
+
+
 def _allocate(A, comp_nodes: list[np.ndarray], k: int | None, method: str, ctx: SolverContext,
-              p: dict, warnings: list[str]) -> list[int | None]:
-    """Parts per kept component (None = the method decides, for k='auto')."""
+              p: dict, warnings: list[str], counts_only: bool = False) -> list[int | None]:
+    """Parts per kept component (None = the method decides, for k='auto').
+
+    ``counts_only``: apply the component rule (k < c refused, k = c warned)
+    and stop there (the baselines place their k - c extra parts themselves).
+    """
     c = len(comp_nodes)
     if k is None:
         return [None] * c
@@ -417,6 +443,8 @@ def _allocate(A, comp_nodes: list[np.ndarray], k: int | None, method: str, ctx: 
     if k == c:
         warnings.append(f"k={k} equals the number of components: the communities are the components")
         return [1] * c
+    if counts_only:
+        return [None] * c
     if method == "fiedler":  # pragma: no cover - fixed k=2 < 3 components handled above
         raise ComputeError("fiedler needs a connected graph")
     # distribute the k - c extra parts by the union spectrum of L_sym
@@ -478,6 +506,7 @@ def _run_spectral(sub, method: str, k: int | None, ctx: SolverContext, p: dict,
         extra.update(info)
         return lab, vals, extra
     if method == "leading-eigenvector":
-        lab, vals, extra = leading_eigenvector(sub, ctx, two_m=two_m, min_gain=p["min_gain"])
+        lab, vals, extra = leading_eigenvector(sub, ctx, two_m=two_m, min_gain=p["min_gain"],
+                                              refine=p["refine"], refine_max_size=p["refine_max_size"])
         return lab, vals, extra
     raise ParameterError(f"unknown method {method!r}")  # pragma: no cover

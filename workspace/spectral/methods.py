@@ -279,11 +279,15 @@ _register(MethodInfo(
     ) + _assignment() + _SPECTRAL_TAIL))
 
 _register(MethodInfo(
-    "leading-eigenvector", "recursive modularity bisection while the modularity gain is positive",
+    "leading-eigenvector", "recursive modularity bisection with vertex-moving refinement while Q rises",
     "Newman (2006), Modularity and community structure in networks, PNAS 103(23)",
     "spectral", True, "auto", (
         ParamSpec("min_gain", "float", 1e-10, minimum=0.0, maximum=1.0,
                   help="a split is kept only if it raises modularity by more than this"),
+        ParamSpec("refine", "bool", True,
+                  help="fine-tune every split by vertex moves (Newman 2006, Kernighan-Lin style)"),
+        ParamSpec("refine_max_size", "int", 5000, minimum=2, maximum=10**9,
+                  help="groups above this many nodes are split without refinement (O(n^2) per sweep)"),
     ) + _SPECTRAL_TAIL, accepts_k=False))
 
 _register(MethodInfo(
