@@ -178,3 +178,84 @@ def test_demo_june_network_is_not_over_split():
     q_louvain = nx.community.modularity(G, louvain, weight="weight")
     q = nx.community.modularity(G, [set(nodes[i] for i in c) for c in _communities(r.labels)], weight="weight")
     assert q >= q_louvain - 1e-3
+
+
+# ---- 3. one self-loop convention: an undirected loop of weight w counts 2w ------------------
+
+def _mgg():
+    # networkx.margulis_gabber_galil_graph(10): a MultiGraph, 8-regular counting each of its 40
+    # self-loops twice; to_scipy_sparse_array sums parallel edges and writes a loop once (A_ii = w)
+    G = nx.margulis_gabber_galil_graph(10)
+    nodes = list(G.nodes)
+    return G, nodes, nx.to_scipy_sparse_array(G, nodelist=nodes, format="csr", dtype=float)
+
+
+def test_modularity_with_self_loops_matches_networkx_test_value():
+    # networkx's own test (networkx/algorithms/community/tests/test_quality.py, test_modularity):
+    # the MGG graph split into the first and second half of its nodes has Q = 0.13
+    from workspace.spectral import quality_measures
+
+    G, nodes, A = _mgg()
+    assert nx.number_of_selfloops(G) == 40 and A.diagonal().sum() == 40
+    labels = np.array([0] * 50 + [1] * 50)
+    q = quality_measures(A, labels)
+    assert q["modularity"] == pytest.approx(0.13, abs=1e-7)
+    assert q["modularity"] == pytest.approx(nx.community.modularity(G, [set(nodes[:50]), set(nodes[50:])]))
+    # volumes are sums of networkx degrees (a loop counts twice): 8 per node
+    assert [c["volume"] for c in q["communities"]] == [400.0, 400.0]
+
+
+def test_quality_with_weighted_loops_matches_networkx():
+    # karate club with weighted loops added; networkx.community.modularity and nx.cut_size /
+    # nx.volume (degree counts a loop twice) are the references
+    from workspace.spectral import quality_measures
+
+    G = nx.karate_club_graph()
+    for i, w in ((0, 3.0), (5, 1.5), (33, 7.0)):
+        G.add_edge(i, i, weight=w)
+    A = _adj(G)
+    r = partition(A, "njw", k=3)
+    comms = _communities(r.labels)
+    q = quality_measures(A, r.labels)
+    assert q["modularity"] == pytest.approx(nx.community.modularity(G, comms, weight="weight"))
+    for row, c in zip(q["communities"], comms):
+        assert row["volume"] == pytest.approx(nx.volume(G, c, weight="weight"))
+        assert row["cut"] == pytest.approx(nx.cut_size(G, c, weight="weight"))
+    assert r.quality["modularity"] == pytest.approx(q["modularity"])
+
+
+def test_laplacians_with_loops():
+    # L = D - A: a loop cancels, as in networkx.laplacian_matrix; the normalised Laplacian counts
+    # the loop twice, i.e. equals networkx.normalized_laplacian_matrix of the graph whose loop
+    # weights are doubled (Newman 2010, Networks, Sec. 6.2: A_ii = 2 for an undirected self-edge;
+    # recalled from memory)
+    from workspace.spectral.laplacians import laplacian_matrix
+
+    G = nx.karate_club_graph()
+    for i, w in ((0, 3.0), (5, 1.5), (33, 7.0)):
+        G.add_edge(i, i, weight=w)
+    A = _adj(G)
+    L = laplacian_matrix(A, "unnormalized").toarray()
+    assert np.allclose(L, nx.laplacian_matrix(G, nodelist=sorted(G), weight="weight").toarray())
+    G2 = G.copy()
+    for i, j, data in G2.edges(data=True):
+        if i == j:
+            data["weight"] *= 2
+    ref = nx.normalized_laplacian_matrix(G2, nodelist=sorted(G2), weight="weight").toarray()
+    assert np.allclose(laplacian_matrix(A, "sym").toarray(), ref)
+    # the degrees behind them are networkx's (loop counted twice)
+    deg = dict(G.degree(weight="weight"))
+    D = np.array([deg[i] for i in sorted(G)])
+    Lrw = laplacian_matrix(A, "rw").toarray()
+    assert np.allclose(np.diag(D) @ Lrw, L)
+
+
+@pytest.mark.parametrize("method", ["leading-eigenvector", "greedy-modularity", "louvain"])
+def test_modularity_methods_on_a_graph_with_loops_agree_with_networkx(method):
+    # the modularity each method optimises and reports is networkx's on the MGG graph
+    G, nodes, A = _mgg()
+    r = partition(A, method, k="auto")
+    comms = [{nodes[i] for i in c} for c in _communities(r.labels)]
+    assert r.quality["modularity"] == pytest.approx(nx.community.modularity(G, comms))
+    if method == "leading-eigenvector":
+        assert sum(r.diagnostics["gains"]) == pytest.approx(r.quality["modularity"])

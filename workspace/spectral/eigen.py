@@ -27,7 +27,7 @@ from scipy.sparse.linalg import ArpackError, ArpackNoConvergence, LinearOperator
 
 from workspace.errors import Cancelled, ComputeError
 
-from .laplacians import degrees, inverse_sqrt_degrees, normalized_adjacency
+from .laplacians import degrees, inverse_sqrt_degrees, normalized_adjacency, with_loops_doubled
 
 __all__ = ["SolverContext", "SymmetricOperator", "EigenSolution", "largest_eigenpairs",
            "laplacian_eigenpairs", "fix_signs"]
@@ -612,7 +612,8 @@ def laplacian_eigenpairs(A, m: int, *, laplacian: str = "sym", seed: int = 0,
     Parameters
     ----------
     A : scipy sparse matrix, shape (n, n)
-        Symmetric adjacency, weights >= 0.
+        Symmetric adjacency, weights >= 0; a self-loop of weight ``w`` as
+        ``A_ii = w``, counted twice (see :mod:`workspace.spectral.laplacians`).
     m : int
         Number of eigenpairs, ``1 <= m <= n``.
     laplacian : {"unnormalized", "sym", "rw"}, default "sym"
@@ -645,7 +646,7 @@ def laplacian_eigenpairs(A, m: int, *, laplacian: str = "sym", seed: int = 0,
     ctx = SolverContext(seed=seed, dense_threshold=dense_threshold, eig_tol=eig_tol,
                         max_matvecs=max_matvecs, time_limit_s=time_limit_s,
                         progress=progress, cancel=cancel, threads=threads)
-    A = sp.csr_array(A, dtype=np.float64)
+    A = with_loops_doubled(sp.csr_array(A, dtype=np.float64))
     op, shift, post = shifted_laplacian_operator(A, laplacian)
     sol = largest_eigenpairs(op, m, ctx, bound=shift)
     values = shift - sol.values

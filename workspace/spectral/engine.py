@@ -15,7 +15,7 @@ from .baselines import run_baseline
 from .bisection import fiedler_bisection, recursive_bisection
 from .eigen import SolverContext, laplacian_eigenpairs
 from .kway import assign_rows, bethe_embedding, eigengap_k, laplacian_embedding
-from .laplacians import degrees
+from .laplacians import degrees, with_loops_doubled
 from .methods import METHODS, MethodInfo, validate_params
 from .modularity import leading_eigenvector
 from .quality import quality_measures
@@ -136,7 +136,12 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
     ----------
     A : scipy.sparse matrix or array, shape (n, n)
         Symmetric adjacency, weights >= 0, row ``i`` = node ``i``; a
-        diagonal entry is a self-loop (counted once in the degree).
+        diagonal entry ``A_ii = w`` is an undirected self-loop of weight
+        ``w`` (as ``networkx.to_scipy_sparse_array`` writes it). Every
+        method and measure counts it twice, as two edge ends: in the degree
+        :math:`d_i = \sum_j A_{ij} + A_{ii}` and as :math:`2w` on the
+        diagonal of the matrices they build (the convention of Newman's
+        modularity and of networkx's ``modularity`` and ``degree``).
     method : str
         A key of :data:`workspace.spectral.methods.METHODS`: ``fiedler``,
         ``recursive``, ``shi-malik``, ``njw``, ``regularized``, ``bethe``,
@@ -266,10 +271,12 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
         ctx.check_cancel()
         _check_within_components(labels, comp, method)
     else:
+        # the loop convention: an undirected self-loop of weight w counts 2w in A_ii and the degree
+        A_loops = with_loops_doubled(A)
         comp_nodes = _component_node_lists(comp, kept)
         if method == "recursive":
             nodes = np.arange(n) if kept_mask is None else np.flatnonzero(kept_mask)
-            sub = A if kept_mask is None else _induced(A, nodes)
+            sub = A_loops if kept_mask is None else _induced(A_loops, nodes)
             if k_req is not None and k_req > nodes.shape[0]:
                 raise ComputeError(f"k={k_req} exceeds the {nodes.shape[0]} nodes partitioned")
             lab, vals, extra = recursive_bisection(
@@ -282,7 +289,7 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
             k_for_ties = 2
         else:
             alloc = _allocate(A, comp_nodes, k_req, method, ctx, p, warnings)
-            two_m = float(degrees(A).sum())
+            two_m = float(degrees(A_loops).sum())
             next_label = 0
             for nodes, k_i in zip(comp_nodes, alloc):
                 ctx.check_cancel()
@@ -290,7 +297,7 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
                     labels[nodes] = next_label
                     next_label += 1
                     continue
-                sub = _induced(A, nodes) if len(comp_nodes) > 1 or kept_mask is not None else A
+                sub = _induced(A_loops, nodes) if len(comp_nodes) > 1 or kept_mask is not None else A_loops
                 lab, vals, extra = _run_spectral(sub, method, k_i, ctx, p, two_m)
                 labels[nodes] = lab + next_label
                 next_label += int(lab.max()) + 1
@@ -497,7 +504,8 @@ def _run_spectral(sub, method: str, k: int | None, ctx: SolverContext, p: dict,
         if p["weights"] == "ignore":
             # Saade, Krzakala & Zdeborova (2014) analyse unweighted sparse graphs: with weights in A and
             # D the number of negative eigenvalues no longer estimates the number of groups
-            sub = sp.csr_array((np.ones_like(sub.data), sub.indices, sub.indptr), shape=sub.shape)
+            sub = with_loops_doubled(sp.csr_array((np.ones_like(sub.data), sub.indices, sub.indptr),
+                                                  shape=sub.shape))
         U, vals, k_used, extra = bethe_embedding(sub, k, ctx, r=p["r"], extra=p["extra_eigenvalues"],
                                                  k_max=p["k_max"])
         extra["weights"] = p["weights"]

@@ -1,9 +1,21 @@
-"""Degrees, normalised adjacency and the three graph Laplacians.
+r"""Degrees, normalised adjacency and the three graph Laplacians.
 
 Conventions (Chung 1997): for a node of degree 0, ``D^-1/2`` and ``D^-1``
 are taken as 0, so an isolated node has ``(L_sym)_ii = (L_rw)_ii = 0`` and
 contributes the eigenvalue 0, like a component of its own. Row ``i`` is
 node ``i`` throughout.
+
+Self-loops (one convention for every Laplacian and quality measure): an
+undirected loop of weight ``w`` at node ``i`` is given as ``A_ii = w`` (as
+``networkx.to_scipy_sparse_array`` and ``GraphData.adjacency`` write it)
+and counts **twice**, once per edge end: the matrices are built from
+:math:`A' = A + \mathrm{diag}(A_{ii})` (:math:`A'_{ii} = 2w`), so
+:math:`d_i = \sum_{j \ne i} A_{ij} + 2w`. This is the convention of
+Newman's modularity formula and of ``networkx.degree`` and
+``networkx.community.modularity`` (Newman 2010, Networks, Sec. 6.2).
+``L = D - A'`` is unaffected by loops; ``L_sym`` and ``L_rw`` see them
+through the degree and the diagonal (a random walker stays put with
+probability :math:`2w/d_i`).
 """
 
 from __future__ import annotations
@@ -11,7 +23,37 @@ from __future__ import annotations
 import numpy as np
 import scipy.sparse as sp
 
-__all__ = ["degrees", "inverse_sqrt_degrees", "normalized_adjacency", "laplacian_matrix"]
+__all__ = ["degrees", "inverse_sqrt_degrees", "normalized_adjacency", "laplacian_matrix",
+           "with_loops_doubled"]
+
+
+def with_loops_doubled(A) -> sp.csr_array:
+    r"""The loop convention applied: :math:`A' = A + \mathrm{diag}(A_{11}, \dots, A_{nn})`.
+
+    Parameters
+    ----------
+    A : scipy sparse matrix, shape (n, n)
+        Adjacency with an undirected self-loop of weight ``w`` stored as
+        ``A_ii = w``.
+
+    Returns
+    -------
+    scipy.sparse.csr_array, shape (n, n)
+        ``A`` itself (no copy) when it has no self-loop; otherwise a new
+        matrix with ``A'_ii = 2 A_ii``.
+
+    References
+    ----------
+    Newman (2010), Networks: An Introduction, Sec. 6.2 (an undirected
+    self-edge contributes 2 to :math:`A_{ii}`); Newman & Girvan (2004).
+    """
+    A = A if isinstance(A, sp.csr_array) else sp.csr_array(A)
+    diag = A.diagonal()
+    if not np.any(diag):
+        return A
+    out = sp.csr_array(A + sp.diags_array(diag.astype(A.dtype, copy=False)))
+    out.sort_indices()
+    return out
 
 
 def degrees(A) -> np.ndarray:
@@ -27,8 +69,9 @@ def degrees(A) -> np.ndarray:
 
     Notes
     -----
-    A diagonal entry (self-loop) counts once. O(nnz); rows without entries
-    get 0.
+    Plain row sums of the matrix given: pass :func:`with_loops_doubled`
+    of the adjacency for the package's loop convention (a loop counts
+    twice). O(nnz); rows without entries get 0.
 
     References
     ----------
@@ -116,9 +159,13 @@ def laplacian_matrix(A, kind: str = "sym") -> sp.csr_array:
     where :math:`I'` has 1 on the diagonal of non-isolated nodes and 0 on
     isolated ones (Chung 1997).
 
+    built from :math:`A' = A + \mathrm{diag}(A_{ii})` and its row sums
+    :math:`D` (a self-loop counts twice; see the module notes).
+
     Parameters
     ----------
     A : scipy sparse matrix, shape (n, n)
+        Symmetric adjacency; a loop of weight ``w`` as ``A_ii = w``.
     kind : {"unnormalized", "sym", "rw"}, default "sym"
 
     Returns
@@ -135,7 +182,7 @@ def laplacian_matrix(A, kind: str = "sym") -> sp.csr_array:
     Chung (1997), Spectral Graph Theory; von Luxburg (2007), A tutorial on
     spectral clustering, Statistics and Computing 17(4).
     """
-    A = sp.csr_array(A, dtype=np.float64)
+    A = with_loops_doubled(sp.csr_array(A, dtype=np.float64))
     d = degrees(A)
     n = A.shape[0]
     if kind == "unnormalized":

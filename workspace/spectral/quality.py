@@ -9,7 +9,7 @@ import scipy.sparse as sp
 
 from workspace.errors import ComputeError
 
-from .laplacians import degrees
+from .laplacians import degrees, with_loops_doubled
 
 __all__ = ["quality_measures"]
 
@@ -47,8 +47,11 @@ def quality_measures(A, labels, *, per_community: bool = True) -> dict[str, Any]
     Parameters
     ----------
     A : scipy sparse matrix, shape (n, n)
-        Symmetric adjacency, weights >= 0. A diagonal entry ``A_ii`` counts
-        once in ``d_i`` and is never cut.
+        Symmetric adjacency, weights >= 0. A diagonal entry ``A_ii = w``
+        is an undirected self-loop; it counts **twice**, in ``d_i`` and in
+        the community's internal weight (:math:`A_{ii} = 2w` in the
+        formulas above, as in ``networkx.community.modularity``), and is
+        never cut.
     labels : array_like of int, shape (n,)
         Any integer labels (need not be canonical or contiguous).
     per_community : bool, default True
@@ -99,6 +102,7 @@ def quality_measures(A, labels, *, per_community: bool = True) -> dict[str, Any]
     lab = lab.ravel().astype(np.int64, copy=False)
     k = int(values.shape[0])
     sizes = np.bincount(lab, minlength=k).astype(np.int64)
+    A = with_loops_doubled(A)          # the loop convention: A_ii = 2w
     data = A.data.astype(np.float64, copy=False)
     degree = degrees(A)
     volume = np.bincount(lab, weights=degree, minlength=k)
