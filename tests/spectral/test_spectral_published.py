@@ -259,3 +259,68 @@ def test_modularity_methods_on_a_graph_with_loops_agree_with_networkx(method):
     assert r.quality["modularity"] == pytest.approx(nx.community.modularity(G, comms))
     if method == "leading-eigenvector":
         assert sum(r.diagnostics["gains"]) == pytest.approx(r.quality["modularity"])
+
+
+# ---- 4. the eigengap suggestion only where it means something ------------------------------
+
+def _detectable(k, c_in, c_out):
+    # Decelle, Krzakala, Moore & Zdeborová (2011): |c_in - c_out| > k sqrt(c)
+    c = (c_in + (k - 1) * c_out) / k
+    return abs(c_in - c_out) > k * np.sqrt(c)
+
+
+@pytest.mark.parametrize("k,n,c_in,c_out", [(3, 1500, 30.0, 2.0), (5, 2000, 40.0, 2.0),
+                                            (8, 2400, 60.0, 2.0)])
+@pytest.mark.parametrize("method", ["njw", "shi-malik", "regularized", "bethe"])
+def test_eigengap_suggests_the_planted_k(method, k, n, c_in, c_out):
+    from workspace.spectral import planted_partition
+
+    assert _detectable(k, c_in, c_out)
+    A, truth = planted_partition(n, k, c_in, c_out, seed=4)
+    auto = partition(A, method, k="auto", components="largest")
+    assert auto.diagnostics["eigengap_suggestion"] == k
+    # an integer k with eigenvalues beyond k + 1 computed: the same suggestion
+    wide = partition(A, method, k=k, extra_eigenvalues=4, components="largest")
+    assert wide.diagnostics["eigengap_suggestion"] == k
+
+
+def test_no_suggestion_from_only_k_plus_one_eigenvalues():
+    from workspace.spectral import planted_partition
+
+    A, _ = planted_partition(1500, 3, 30.0, 2.0, seed=4)
+    for method in ("njw", "shi-malik", "regularized"):
+        r = partition(A, method, k=4, components="largest")      # 5 eigenvalues: no suggestion
+        assert r.eigenvalues.size == 5 and r.diagnostics["eigengap_suggestion"] is None
+    r = partition(A, "fiedler", components="largest")            # lambda_1..3 only
+    assert r.diagnostics["eigengap_suggestion"] is None
+
+
+def test_trivial_first_gap_never_wins():
+    # on a sparse planted graph the gap lambda_2 - lambda_1 is the largest computed one; the
+    # eigengap heuristic (von Luxburg 2007, Sec. 8.3) is about the gap after the k-th value,
+    # k >= 2 - a connected graph always has the trivial first gap
+    from workspace.spectral import planted_partition
+    from workspace.spectral.kway import eigengap_k
+
+    A, _ = planted_partition(6000, 3, 10.0, 1.0, seed=3)
+    r = partition(A, "njw", k="auto", components="largest")
+    gaps = np.diff(r.eigenvalues)
+    assert np.argmax(gaps) == 0                                # the first gap is the largest
+    assert r.diagnostics["eigengap_suggestion"] == 3 and r.k >= 3
+    # a hand-made spectrum: gaps 0.9, 0.1, 0.05, 0.25 -> k = 4, never 1
+    assert eigengap_k(np.array([0.0, 0.9, 1.0, 1.05, 1.3])) == 4
+    assert eigengap_k(np.array([0.0, 0.5])) is None
+
+
+def test_no_suggestion_for_recursive_modularity_or_several_components():
+    from workspace.spectral import planted_partition
+
+    A1, _ = planted_partition(600, 3, 30.0, 2.0, seed=1)
+    A2, _ = planted_partition(600, 2, 30.0, 2.0, seed=2)
+    two = sp.csr_array(sp.block_diag([A1, A2]))
+    for method in ("njw", "shi-malik", "regularized", "bethe"):
+        r = partition(two, method, k="auto")                    # eigenvalues of two sub-problems
+        assert r.diagnostics["eigengap_suggestion"] is None, method
+    for method in ("recursive", "leading-eigenvector"):
+        r = partition(A1, method, k="auto", components="largest")
+        assert r.diagnostics["eigengap_suggestion"] is None, method

@@ -170,7 +170,7 @@ def _walk(node):
 
 
 def test_tui_spectrum_marks_the_largest_gap(demo_path):
-    """Spectrum of a run: bars, the largest gap marked, and the histogram of community sizes."""
+    """Spectrum of a run: bars, the run's eigengap marked, and the histogram of community sizes."""
     from workspace.services.runs import show_run
     from workspace.tui.widgets.charts import SizeHistogram, SpectrumPlot
 
@@ -182,11 +182,14 @@ def test_tui_spectrum_marks_the_largest_gap(demo_path):
             await pilot.press("3")
             await settle(app, pilot)
             plot = app.screen.query_one(SpectrumPlot)
-            eig = show_run(app.store, run_id)["eigenvalues"]
-            # the eigengap heuristic (von Luxburg 2007, section 8.1) recomputed with numpy here
-            k = int(np.argmax(np.abs(np.diff(eig)))) + 1
+            shown = show_run(app.store, run_id)
+            eig = shown["eigenvalues"]
+            # the eigengap heuristic (von Luxburg 2007, section 8.3) recomputed with numpy here,
+            # without the trivial first gap lambda_1 -> lambda_2
+            k = int(np.argmax(np.diff(eig)[1:])) + 2
+            assert shown["diagnostics"]["eigengap_suggestion"] == k
             rendered = plot.render().plain
-            assert f"largest gap λ{k}→λ{k + 1}" in rendered and f"⇒  k = {k}" in rendered
+            assert f"eigengap λ{k}→λ{k + 1}" in rendered and f"⇒  k = {k}" in rendered
             assert "█" in rendered
             hist = app.screen.query_one(SizeHistogram).render().plain
             sizes = [c["size"] for c in show_run(app.store, run_id)["communities"]]

@@ -25,7 +25,7 @@ def _print_run(out, r: dict) -> None:
     if eig:
         out.line("  eigenvalues " + " ".join(f"{x:.4g}" for x in eig[:12]) + (" …" if len(eig) > 12 else ""))
     diag = r.get("diagnostics") or {}
-    if diag.get("eigengap_suggestion") is not None:
+    if isinstance(diag.get("eigengap_suggestion"), int) and diag["eigengap_suggestion"] >= 2:
         out.line(f"  eigengap suggests k={diag['eigengap_suggestion']}")
     for w in r.get("warnings") or []:
         out.line(f"  warning: {w}")

@@ -319,11 +319,8 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
     if method == "leading-eigenvector":
         eigenvalues = (np.concatenate(eig_chunks) if eig_chunks else np.array([], dtype=np.float64))
 
-    # eigengap suggestion and the uniqueness warning (Laplacian-type spectra)
-    if method in ("fiedler", "recursive", "njw", "shi-malik", "regularized") and eigenvalues.size >= 2:
-        eigengap = eigengap_k(eigenvalues)
-    elif method == "bethe":
-        eigengap = int(np.sum(eigenvalues < 0)) if eigenvalues.size else None
+    # eigengap suggestion (see _eigengap_suggestion) and the uniqueness warning
+    eigengap = _eigengap_suggestion(method, eigenvalues, k_req, len(eig_chunks), p)
     if k_for_ties is not None and eigenvalues.size > k_for_ties and method != "leading-eigenvector":
         lo, hi = float(eigenvalues[k_for_ties - 1]), float(eigenvalues[k_for_ties])
         scale = max(abs(lo), abs(hi))
@@ -381,6 +378,37 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
     return PartitionResult(labels=labels, k=k_out, method=method, params=params_out,
                            eigenvalues=eigenvalues, quality=q, communities=communities,
                            warnings=warnings, diagnostics=diagnostics)
+
+
+def _eigengap_suggestion(method: str, eigenvalues: np.ndarray, k_req: int | None, problems: int,
+                         p: dict) -> int | None:
+    r"""The k the computed spectrum suggests, or None where it would mean nothing.
+
+    - ``fiedler``, ``njw``, ``shi-malik``, ``regularized``: the eigengap
+      :math:`\arg\max_{2 \le i < m}(\lambda_{i+1} - \lambda_i)` of
+      :func:`eigengap_k` (never the trivial first gap, so never k = 1),
+      among ``k_max`` candidates for ``k="auto"``;
+    - ``bethe``: the number of negative eigenvalues of :math:`H(r)`
+      (Saade et al. 2014), only when a non-negative one was computed too
+      (then the count is exact whatever k was asked for).
+
+    None when the eigenvalues come from several sub-problems (components
+    partitioned each in its own right), for ``recursive`` (its spectrum is
+    the first bisection's) and ``leading-eigenvector`` (modularity
+    eigenvalues of nested groups), and when an integer k was asked for
+    with fewer than k + 2 eigenvalues computed (with k + 1 values every gap
+    beyond k is unseen, so the answer could only confirm k or be smaller;
+    raise ``extra_eigenvalues`` to get one).
+    """
+    m = int(eigenvalues.size)
+    if problems != 1 or method not in ("fiedler", "njw", "shi-malik", "regularized", "bethe"):
+        return None
+    if method == "bethe":          # exact once a non-negative eigenvalue was computed
+        negative = int(np.sum(eigenvalues < 0))
+        return negative if 0 < negative < m else None
+    if k_req is not None and m < k_req + 2:
+        return None
+    return eigengap_k(eigenvalues, p.get("k_max") if k_req is None else None)
 
 
 def _induced(A: sp.csr_array, nodes: np.ndarray) -> sp.csr_array:

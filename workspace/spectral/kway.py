@@ -16,19 +16,29 @@ __all__ = ["laplacian_embedding", "bethe_embedding", "assign_rows", "eigengap_k"
 
 
 def eigengap_k(values: np.ndarray, k_max: int | None = None) -> int | None:
-    r"""Eigengap heuristic: :math:`\hat k = \arg\max_{1 \le i < m} (\lambda_{i+1} - \lambda_i)`.
+    r"""Eigengap heuristic: :math:`\hat k = \arg\max_{2 \le i < m} (\lambda_{i+1} - \lambda_i)`.
 
-    ``values`` ascending (1-based :math:`\lambda_1 \le \dots \le \lambda_m`);
-    returns ``None`` for fewer than 2 values; the first maximiser on ties;
-    ``k_max`` bounds the answer. (von Luxburg 2007, Sec. 8.3.)
+    ``values`` ascending (1-based :math:`\lambda_1 \le \dots \le \lambda_m`)
+    of one Laplacian-type operator of a connected graph. The trivial first
+    gap :math:`\lambda_2 - \lambda_1` is never a candidate: on a connected
+    graph :math:`\lambda_1 = 0` and that gap is often the largest one
+    without saying anything about k (a "partition" into one part is no
+    answer). Returns ``None`` for fewer than 3 values; the first maximiser
+    on ties; ``k_max`` bounds the answer (only gaps with :math:`i \le k_{max}`
+    are compared).
+
+    References
+    ----------
+    von Luxburg (2007), A tutorial on spectral clustering, Statistics and
+    Computing 17(4), Sec. 8.3.
     """
     values = np.asarray(values, dtype=np.float64)
-    if values.shape[0] < 2:
+    if values.shape[0] < 3:
         return None
-    gaps = np.diff(values)
+    gaps = np.diff(values)[1:]                     # gaps after lambda_2, lambda_3, ...
     if k_max is not None:
-        gaps = gaps[:k_max]
-    return int(np.argmax(gaps)) + 1
+        gaps = gaps[:max(k_max - 1, 1)]
+    return int(np.argmax(gaps)) + 2
 
 
 def laplacian_embedding(A, k: int | None, method: str, ctx: SolverContext, *, extra: int = 1,

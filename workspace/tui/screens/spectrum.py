@@ -85,10 +85,12 @@ class SpectrumScreen(Screen):
             f"  {run['ref']} · {what} · {run['status']} · k = {fmt_value(run.get('k'))}")
         diag = run.get("diagnostics") or {}
         suggested = next((diag[k] for k in SUGGESTED_KEYS if isinstance(diag.get(k), int)), None)
+        if suggested is not None and suggested < 2:   # runs recorded before the trivial gap was excluded
+            suggested = None
         note_bits = [f"{k}: {fmt_value(diag[k])}" for k in ("operator", "solver", "matvecs", "eigensolves",
                                                             "residual_norm_max", "r") if k in diag]
         if suggested is not None:
             note_bits.insert(0, f"solver's eigengap suggestion: k = {suggested}")
         self.query_one(SpectrumPlot).show(run.get("eigenvalues") or [], suggested=run.get("k"),
-                                          note="  ".join(note_bits))
+                                          note="  ".join(note_bits), gap_k=suggested)
         self.query_one(SizeHistogram).show(run.get("communities") or [])

@@ -89,7 +89,7 @@ def _fmt(x: float) -> str:
 
 
 class SpectrumPlot(Widget):
-    """Eigenvalues as bars; the largest gap and the k it suggests are marked."""
+    """Eigenvalues as bars; the run's eigengap suggestion, when it has one, is marked."""
 
     DEFAULT_CSS = "SpectrumPlot { height: 18; }"
 
@@ -97,12 +97,17 @@ class SpectrumPlot(Widget):
         super().__init__(id=id, classes=classes)
         self.values: list[float] = []
         self.suggested: int | None = None
+        self.gap_k: int | None = None
         self.note = ""
 
-    def show(self, values: Sequence[float], *, suggested: int | None = None, note: str = "") -> None:
+    def show(self, values: Sequence[float], *, suggested: int | None = None, note: str = "",
+             gap_k: int | None = None) -> None:
+        """``gap_k``: the k the run's own eigengap rule suggested; only that gap is marked
+        (None: no gap is marked - the run's spectrum carries no meaningful suggestion)."""
         self.values = [float(v) for v in values]
         self.suggested = suggested
         self.note = note
+        self.gap_k = gap_k if gap_k is not None and 1 <= gap_k < len(self.values) else None
         self.refresh()
 
     def render(self) -> RenderableType:
@@ -112,7 +117,7 @@ class SpectrumPlot(Widget):
                         style=INK_MUTED)
         width = max(self.size.width, 30)
         rows = max(self.size.height - 5, 4)
-        gap = largest_gap(values)
+        gap = None if self.gap_k is None else (self.gap_k, abs(values[self.gap_k] - values[self.gap_k - 1]))
         m = len(values)
         axis_w = 10
         bar_w = max(1, min(5, (width - axis_w - 1) // max(m, 1) - 1))
@@ -143,7 +148,7 @@ class SpectrumPlot(Widget):
             k, size = gap
             marker = " " * (axis_w + k * (bar_w + 1) - 1) + "▲"
             text.append(marker, style=Style(color=BRICK, bold=True))
-            text.append(f" largest gap λ{k}→λ{k + 1} = {_fmt(size)}  ⇒  k = {k}", style=BRICK)
+            text.append(f" eigengap λ{k}→λ{k + 1} = {_fmt(size)}  ⇒  k = {k}", style=BRICK)
         if self.suggested is not None:
             text.append(f"    the run found k = {self.suggested}", style=AMBER)
         if shown < m:
