@@ -66,7 +66,7 @@ def decode_node_ids(offsets: np.ndarray, data: np.ndarray) -> np.ndarray:
 
 @dataclass(frozen=True, eq=False)
 class GraphData:
-    """An undirected weighted graph in canonical form.
+    """A weighted graph in canonical form (undirected unless ``directed``).
 
     Attributes
     ----------
@@ -74,16 +74,21 @@ class GraphData:
         Unique node ids, sorted ascending by code point. Row ``i`` of every
         matrix built from this graph is node ``node_ids[i]``.
     edge_u, edge_v : ndarray of int64, shape (m,)
-        Endpoint indices into ``node_ids`` with ``edge_u <= edge_v`` (equality
-        only for kept self-loops); pairs sorted lexicographically, unique.
+        Undirected: endpoint indices into ``node_ids`` with ``edge_u <= edge_v``
+        (equality only for kept self-loops). Directed: the arc
+        ``edge_u -> edge_v`` (either order; ``u -> v`` and ``v -> u`` are two
+        arcs). Pairs sorted lexicographically, unique.
     weight : ndarray of float64, shape (m,)
         Positive finite edge weights (1.0 for unweighted input).
+    directed : bool, default False
+        Arcs kept with their direction (import policy ``directed="keep"``).
     """
 
     node_ids: np.ndarray
     edge_u: np.ndarray
     edge_v: np.ndarray
     weight: np.ndarray
+    directed: bool = False
 
     @property
     def n_nodes(self) -> int:
@@ -94,13 +99,20 @@ class GraphData:
         return int(self.edge_u.shape[0])
 
     def adjacency(self):
-        """Symmetric ``scipy.sparse.csr_array`` A with A[u, v] = A[v, u] = w.
+        """``scipy.sparse.csr_array`` A: symmetric with A[u, v] = A[v, u] = w.
 
-        A kept self-loop (u, u, w) puts w on the diagonal once.
+        A kept self-loop (u, u, w) puts w on the diagonal once. For a
+        directed graph A[u, v] = w for the arc u -> v only (row = tail).
         """
         import scipy.sparse as sp
 
         n = self.n_nodes
+        if self.directed:
+            A = sp.csr_array((np.asarray(self.weight, dtype=np.float64),
+                              (self.edge_u, self.edge_v)), shape=(n, n))
+            A.sum_duplicates()
+            A.sort_indices()
+            return A
         off = self.edge_u != self.edge_v
         rows = np.concatenate([self.edge_u, self.edge_v[off]])
         cols = np.concatenate([self.edge_v, self.edge_u[off]])
@@ -117,10 +129,12 @@ class GraphData:
         little-endian int64; node-id offsets (int64 LE) and UTF-8 bytes;
         ``edge_u``, ``edge_v`` (int64 LE); ``weight`` (float64 LE). Equal graphs
         therefore hash equal whatever file, line order or endpoint order they
-        came from.
+        came from. A directed graph uses the tag ``b"cutbook-digraph-1\\0"``
+        instead (so it never hashes equal to the undirected graph of the same
+        arrays; undirected hashes are unchanged).
         """
         offsets, data = encode_node_ids(self.node_ids)
-        h = hashlib.sha256(b"cutbook-graph-1\0")
+        h = hashlib.sha256(b"cutbook-digraph-1\0" if self.directed else b"cutbook-graph-1\0")
         h.update(np.array([self.n_nodes, self.n_edges], dtype="<i8").tobytes())
         h.update(offsets.astype("<i8", copy=False).tobytes())
         h.update(data.tobytes())
@@ -165,8 +179,11 @@ class ImportPolicy:
     duplicates : {"sum", "max", "first", "error"}
         What to do when a pair appears more than once (reversed pairs count).
     self_loops : {"drop", "keep", "error"}
-    directed : {"error", "sum", "max", "min", "mean"}
-        How asymmetric directed input is symmetrised; "error" refuses it.
+    directed : {"error", "sum", "max", "min", "mean", "keep"}
+        How asymmetric directed input is symmetrised; "error" refuses it;
+        "keep" keeps the direction (a directed version: rows of a delimited
+        file are arcs first column -> second; an edge of a file that
+        declares itself undirected becomes two arcs).
     weight : str or int or None
         Weight column by name or 0-based index (delimited files) or attribute
         name (GraphML, JSON); None means unweighted (weight 1).

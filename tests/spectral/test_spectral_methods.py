@@ -15,7 +15,7 @@ from workspace.spectral.result import canonical_labels
 
 ISSUE_METHODS = {"fiedler", "recursive", "shi-malik", "njw", "regularized", "bethe",
                  "leading-eigenvector", "girvan-newman", "greedy-modularity", "louvain",
-                 "label-propagation"}
+                 "label-propagation", "directed-walk"}
 
 
 def test_registry_lists_every_method_with_schema():

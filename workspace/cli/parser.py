@@ -55,8 +55,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="repeated pairs, reversed pairs included (default: max)")
     g.add_argument("--self-loops", choices=["drop", "keep", "error"], default="drop",
                    help="edges from a node to itself (default: drop)")
-    g.add_argument("--directed", choices=["error", "sum", "max", "min", "mean"], default="error",
-                   help="rule that makes directed input undirected; 'error' refuses asymmetric input")
+    g.add_argument("--directed", choices=["error", "sum", "max", "min", "mean", "keep"], default="error",
+                   help="rule that makes directed input undirected; 'error' refuses asymmetric input; "
+                        "'keep' keeps direction (rows are arcs source -> target)")
     g.add_argument("--weight", metavar="COLUMN",
                    help="weight column by name or 0-based index (default: unweighted, weight 1)")
     g.add_argument("--numeric-ids", action="store_true", help="read node ids as integers ('007' -> '7')")

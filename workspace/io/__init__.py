@@ -77,7 +77,7 @@ SAMPLES_DIR = Path(__file__).resolve().parent / "samples"
 _CHOICES = {
     "duplicates": ("sum", "max", "first", "error"),
     "self_loops": ("drop", "keep", "error"),
-    "directed": ("error", "sum", "max", "min", "mean"),
+    "directed": ("error", "sum", "max", "min", "mean", "keep"),
     "header": ("auto", "yes", "no"),
 }
 
@@ -153,7 +153,10 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
         the undirected weight of ``{a, b}`` from the arc weights
         ``W_ab, W_ba`` (0 when missing) is ``sum: W_ab + W_ba``,
         ``max``/``min``: max/min of the two, ``mean: (W_ab + W_ba) / 2``;
-        ``error`` refuses input with any asymmetric pair.
+        ``error`` refuses input with any asymmetric pair; ``keep`` keeps the
+        direction and makes a directed version (rows of a delimited file are
+        arcs ``first column -> second``; an edge of a file declaring itself
+        undirected becomes two arcs).
         ``weight`` (None): column name or 0-based index (delimited), edge
         attribute name (GraphML, JSON); for Matrix Market any value selects
         the stored values. None: unweighted, every edge weighs 1.

@@ -200,6 +200,31 @@ def merge_duplicates(key: np.ndarray, weight: np.ndarray, record: np.ndarray, ru
     return key[starts], merged_weight, None if record is None else record[starts], merged
 
 
+#: formats whose rows carry no direction of their own: under ``directed="keep"`` a row is an arc
+DELIMITED_FORMATS = ("csv", "tsv", "edgelist")
+
+
+def count_asymmetric(key: np.ndarray, weight: np.ndarray, n: int) -> int:
+    """Unordered pairs ``{a, b}`` (a != b) whose two arcs differ: one missing or other weight.
+
+    ``key`` holds unique sorted arc keys ``a * n + b``.
+    """
+    a, b = key // n, key % n
+    proper = a != b
+    if not proper.any():
+        return 0
+    a, b, w = a[proper], b[proper], weight[proper]
+    reverse = b * n + a
+    pos = np.searchsorted(key, reverse)
+    pos_clipped = np.minimum(pos, key.size - 1)
+    found = key[pos_clipped] == reverse
+    same = np.zeros(a.size, dtype=bool)
+    same[found] = weight[pos_clipped[found]] == w[found]
+    # a pair with both arcs of different weight is seen twice, a single arc once
+    both_differ = int(np.count_nonzero(found & ~same)) // 2
+    return int(np.count_nonzero(~found)) + both_differ
+
+
 def _symmetrise(key: np.ndarray, weight: np.ndarray, record: np.ndarray, n: int, rule: str,
                 node_ids: np.ndarray, rec: EdgeRecords):
     """Directed arcs (unique ``a * n + b`` keys) -> undirected pairs by ``rule``.
@@ -271,7 +296,10 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
     self-loops dropped / kept / refused; duplicates merged per
     ``policy.duplicates`` (undirected input: ``{u, v}`` and ``{v, u}`` are
     the same pair; directed input: same-direction repeats); directed input
-    symmetrised per ``policy.directed``.
+    symmetrised per ``policy.directed``, or (``"keep"``) kept as arcs: the
+    key is ``i_a * n + i_b``, same-direction repeats merge, and the graph is
+    directed (rows of a delimited file are arcs; an edge of a file that
+    declares itself undirected becomes two arcs).
 
     Parameters
     ----------
@@ -359,12 +387,31 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         a, b = str(node_ids[key // n]), str(node_ids[key % n])
         first_line, first_label = rec.locate(first)
         where = f"line {first_line}" if first_line is not None else first_label
-        arrow = "->" if rec.directed else "-"
+        arrow = "->" if rec.directed or policy.directed == "keep" else "-"
         return rec.error(repeat, f"duplicate edge {a!r} {arrow} {b!r} (first at "
                                  f"{where}); choose --duplicates sum|max|first")
 
     asymmetric = 0
-    if rec.directed:
+    keep_direction = policy.directed == "keep"
+    if keep_direction:
+        if not rec.directed and rec.format not in DELIMITED_FORMATS:
+            # a file that declares itself undirected: each edge is two arcs of its weight
+            proper = u != v
+            u, v = np.concatenate([u, v[proper]]), np.concatenate([v, u[proper]])
+            weight = np.concatenate([weight, weight[proper]])
+            if record is not None:
+                record = np.concatenate([record, record[proper]])
+            notes.append(f"direction kept: the file declares undirected edges; each of the "
+                         f"{int(np.count_nonzero(proper))} edge(s) between two nodes read as two arcs")
+        key = u * n + v
+        key, weight, record, merged = merge_duplicates(key, weight, record, policy.duplicates,
+                                                       on_duplicate, n * n)
+        report_progress(progress, "canonicalise", 2, 4)
+        asymmetric = count_asymmetric(key, weight, n)
+        notes.append(f"direction kept: {key.size} arc(s), {asymmetric} asymmetric pair(s)")
+        if loops_kept:
+            loops_kept = int(np.count_nonzero(key // n == key % n))
+    elif rec.directed:
         key = u * n + v
         key, weight, record, merged = merge_duplicates(key, weight, record, policy.duplicates,
                                                        on_duplicate, n * n)
@@ -407,7 +454,7 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
     edge_v = key - edge_u * n
     graph = GraphData(node_ids=node_ids, edge_u=edge_u.astype(np.int64, copy=False),
                       edge_v=edge_v.astype(np.int64, copy=False),
-                      weight=np.ascontiguousarray(weight, dtype=np.float64))
+                      weight=np.ascontiguousarray(weight, dtype=np.float64), directed=keep_direction)
     report = build_report(graph, rec, m_read, loops_found, loops_kept, merged, asymmetric,
                           zero_dropped, notes)
     report_progress(progress, "canonicalise", 4, 4)

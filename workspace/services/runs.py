@@ -159,15 +159,23 @@ def prepare_run(store: Store, ref: str | VersionRef, *, params_ref: str | None =
 
 # --- computing (no store access) ------------------------------------------------------------
 
-def _perturbed(A, spread: float, seed: int):
+def _perturbed(A, spread: float, seed: int, directed: bool = False):
     """Multiply each undirected edge's weight by independent Gamma noise with mean 1 and sd ``spread``.
 
     Every edge keeps a positive weight, so the graph's components never change
     (dropping edges instead would split sparse graphs into many pieces). With
     ``spread`` = 1 the factors are Exp(1): the Bayesian bootstrap of edge weights
-    (Rubin 1981). Seeded: the same seed gives the same perturbed graph.
+    (Rubin 1981). Seeded: the same seed gives the same perturbed graph. A directed
+    graph gets one factor per arc.
     """
     import scipy.sparse as sp
+
+    if directed:
+        arcs = sp.csr_array(A, copy=True)
+        shape = 1.0 / spread**2
+        arcs.data = arcs.data * np.random.default_rng([seed, 0x5EED]).gamma(shape, 1.0 / shape,
+                                                                             size=arcs.nnz)
+        return arcs
 
     upper = sp.triu(A, k=0, format="coo")
     shape = 1.0 / spread**2
@@ -203,7 +211,8 @@ def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None
             progress(label, matvecs, total)
 
     if spec.repeats == 1:
-        res = partition(A, spec.method, k=k, seed=spec.seed, progress=prog, cancel=cancel, **spec.params)
+        res = partition(A, spec.method, k=k, seed=spec.seed, progress=prog, cancel=cancel,
+                        directed=graph.directed, **spec.params)
         return Computed(labels=np.asarray(res.labels, dtype=np.int64), k=int(res.k),  # canonical already
                         eigenvalues=np.asarray(res.eigenvalues, dtype=np.float64), quality=dict(res.quality),
                         communities=list(res.communities), warnings=list(res.warnings),
@@ -216,14 +225,15 @@ def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None
         if cancel is not None and cancel():
             raise Cancelled("run cancelled")
         repeat[0] = r
-        Ar = _perturbed(A, spec.perturb, spec.seed + r) if spec.perturb > 0 else A
-        res = partition(Ar, spec.method, k=k, seed=spec.seed + r, progress=prog, cancel=cancel, **spec.params)
+        Ar = _perturbed(A, spec.perturb, spec.seed + r, directed=graph.directed) if spec.perturb > 0 else A
+        res = partition(Ar, spec.method, k=k, seed=spec.seed + r, progress=prog, cancel=cancel,
+                        directed=graph.directed, **spec.params)
         if first is None:
             first = res
         runs.append(np.asarray(res.labels))
     labels, counts = consensus_membership(runs)
     labels = canonical_labels(labels)
-    q = quality_measures(A, labels)
+    q = quality_measures(A, labels, directed=graph.directed)
     warnings = list(first.warnings)
     diagnostics = dict(first.diagnostics)
     diagnostics["repeats"] = spec.repeats
@@ -410,9 +420,9 @@ def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, labe
         warnings.append(f"{missing} node(s) of {version_ref} are not in the file; measures use the other "
                         f"{int(assigned.sum())}")
         idx = np.flatnonzero(assigned)
-        q = quality_measures(A[idx][:, idx], labels[idx])
+        q = quality_measures(A[idx][:, idx], labels[idx], directed=graph.directed)
     else:
-        q = quality_measures(A, labels)
+        q = quality_measures(A, labels, directed=graph.directed)
     communities = q.pop("communities", None) or []
     spec = RunSpec(version_ref=version_ref, version_id=version.id, method="attached", k=None,
                    params={"source": os.path.basename(os.fspath(path))})

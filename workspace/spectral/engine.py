@@ -13,6 +13,7 @@ from workspace.errors import ComputeError, ParameterError
 
 from .baselines import run_baseline
 from .bisection import fiedler_bisection, recursive_bisection
+from .directed import directed_embedding, symmetrised
 from .eigen import SolverContext, laplacian_eigenpairs
 from .kway import assign_rows, bethe_embedding, eigengap_k, laplacian_embedding
 from .laplacians import degrees, with_loops_doubled
@@ -63,7 +64,7 @@ def _is_symmetric(A: sp.csr_array, rtol: float = 1e-10) -> bool:
     return bool(np.all(np.abs(AV - ATV) <= rtol * (AV + ATV)))
 
 
-def _prepare_adjacency(A) -> sp.csr_array:
+def _prepare_adjacency(A, check_symmetry: bool = True) -> sp.csr_array:
     if not sp.issparse(A):
         raise ComputeError(f"adjacency must be a scipy.sparse matrix (got {type(A).__name__})")
     if A.ndim != 2 or A.shape[0] != A.shape[1]:
@@ -84,9 +85,9 @@ def _prepare_adjacency(A) -> sp.csr_array:
             i = int(np.searchsorted(A.indptr, int(np.argmin(data)), side="right") - 1)
             raise ComputeError(f"adjacency has negative weights (min {data.min():g} in row {i}); "
                                "weights must be >= 0")
-    if not _is_symmetric(A):
-        raise ComputeError("adjacency is not symmetric; symmetrise it (A + A.T)/2 or import it "
-                           "as undirected")
+    if check_symmetry and not _is_symmetric(A):
+        raise ComputeError("adjacency is not symmetric; symmetrise it (A + A.T)/2, import it "
+                           "as undirected, or pass directed=True for a directed graph")
     return A
 
 
@@ -129,8 +130,9 @@ def _union_eigenvalues(chunks: list[np.ndarray]) -> np.ndarray:
 
 def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
               progress: Callable[[str, int], None] | None = None,
-              cancel: Callable[[], bool] | None = None, **params) -> PartitionResult:
-    r"""Partition the nodes of an undirected weighted graph into communities.
+              cancel: Callable[[], bool] | None = None, directed: bool = False,
+              **params) -> PartitionResult:
+    r"""Partition the nodes of a weighted graph into communities.
 
     Parameters
     ----------
@@ -158,6 +160,14 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
     progress : callable(stage: str, matvecs: int), optional
     cancel : callable() -> bool, optional
         Polled inside every operator application; True stops the work.
+    directed : bool, default False
+        ``A`` is the arc matrix of a directed graph (``A_ij`` = weight of
+        the arc i -> j; need not be symmetric). ``directed-walk`` uses the
+        direction; every other method runs on the symmetrised graph
+        :math:`A + A^T` (the two arcs of a pair summed; a loop arc becomes
+        an undirected loop of its weight) and a warning says so. Components
+        are the weakly connected ones; quality measures are the directed
+        ones (see :func:`workspace.spectral.quality.quality_measures`).
     **params
         Method parameters, validated by
         :func:`workspace.spectral.methods.validate_params` (strings such as
@@ -213,13 +223,18 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
     if isinstance(seed, (bool, np.bool_)) or not isinstance(seed, (int, np.integer)) or seed < 0:
         raise ParameterError(f"seed must be a non-negative integer (got {seed!r})")
     seed = int(seed)
-    A = _prepare_adjacency(A)
+    A = _prepare_adjacency(A, check_symmetry=not directed)
     n = A.shape[0]
+    A_arcs = A if directed else None
+    S = symmetrised(A) if directed else A          # the undirected graph behind the components
+    uses_direction = directed and info.directed
+    if directed and not info.directed:
+        A = S
     if n < 3:
         raise ComputeError(f"the graph has {n} node(s); partitioning needs at least 3")
     k_req = _resolve_k(info, k, n)
-    offdiag = A.nnz - int(np.count_nonzero(A.diagonal()))
-    if offdiag == 0 or not np.any(A.data > 0):
+    offdiag = S.nnz - int(np.count_nonzero(S.diagonal()))
+    if offdiag == 0 or not np.any(S.data > 0):
         raise ComputeError("the graph has no edges between distinct nodes; nothing to partition")
 
     ctx = SolverContext(seed=seed, dense_threshold=p.get("dense_threshold", 1000),
@@ -228,7 +243,7 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
                         threads=p.get("threads", 1))
     ctx.check_cancel()
     ctx.report("components")
-    ncomp, comp = _components(A)
+    ncomp, comp = _components(S)
     comp_sizes = np.bincount(comp, minlength=ncomp)
     isolated = comp_sizes[comp] == 1
     n_isolated = int(isolated.sum())
@@ -239,6 +254,9 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
     nontrivial = nontrivial[np.lexsort((first_node[nontrivial], -comp_sizes[nontrivial]))]
     policy = p["components"]
     warnings: list[str] = []
+    if directed and not info.directed:
+        warnings.append(f"the graph is directed; {method} is a method for undirected graphs and ran on "
+                         "the symmetrised graph A + A^T (the weights of the two arcs of a pair summed)")
     if policy == "error" and ncomp > 1:
         raise ComputeError(f"the graph is disconnected ({len(nontrivial)} components of 2+ nodes, "
                            f"{n_isolated} isolated nodes) and components='error'; use "
@@ -272,7 +290,7 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
         _check_within_components(labels, comp, method)
     else:
         # the loop convention: an undirected self-loop of weight w counts 2w in A_ii and the degree
-        A_loops = with_loops_doubled(A)
+        A_loops = A if uses_direction else with_loops_doubled(A)
         comp_nodes = _component_node_lists(comp, kept)
         if method == "recursive":
             nodes = np.arange(n) if kept_mask is None else np.flatnonzero(kept_mask)
@@ -288,7 +306,7 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
             diag_extra.update(extra)
             k_for_ties = 2
         else:
-            alloc = _allocate(A, comp_nodes, k_req, method, ctx, p, warnings)
+            alloc = _allocate(S, comp_nodes, k_req, method, ctx, p, warnings)
             two_m = float(degrees(A_loops).sum())
             next_label = 0
             for nodes, k_i in zip(comp_nodes, alloc):
@@ -313,7 +331,8 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
                         diag_extra.setdefault(key, val)
             if method in ("fiedler",) and len(comp_nodes) == 1:
                 k_for_ties = 2
-            elif method in ("njw", "shi-malik", "regularized", "bethe") and len(comp_nodes) == 1:
+            elif method in ("njw", "shi-malik", "regularized", "bethe", "directed-walk") \
+                    and len(comp_nodes) == 1:
                 k_for_ties = int(labels[comp_nodes[0]].max() - labels[comp_nodes[0]].min() + 1)
     eigenvalues = _union_eigenvalues(eig_chunks)
     if method == "leading-eigenvector":
@@ -342,7 +361,7 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
     if outside:
         unassigned_label = int(labels[np.flatnonzero(~_kept_nodes(comp, kept, n))[0]])
     ctx.report("quality")
-    q = quality_measures(A, labels)
+    q = quality_measures(A_arcs if directed else A, labels, directed=directed)
     communities = q.pop("communities")
     q["conductance_per_community"] = [row["conductance"] for row in communities]
     warnings = warnings + ctx.warnings
@@ -366,6 +385,7 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
         "unassigned_nodes": int(outside),
         "unassigned_community": unassigned_label,
         "eigengap_suggestion": eigengap,
+        "directed": bool(directed),
         "k_requested": "auto" if k_req is None else int(k_req),
     }
     for key, val in diag_extra.items():
@@ -401,7 +421,8 @@ def _eigengap_suggestion(method: str, eigenvalues: np.ndarray, k_req: int | None
     raise ``extra_eigenvalues`` to get one).
     """
     m = int(eigenvalues.size)
-    if problems != 1 or method not in ("fiedler", "njw", "shi-malik", "regularized", "bethe"):
+    if problems != 1 or method not in ("fiedler", "njw", "shi-malik", "regularized", "bethe",
+                                       "directed-walk"):
         return None
     if method == "bethe":          # exact once a non-negative eigenvalue was computed
         negative = int(np.sum(eigenvalues < 0))
@@ -537,6 +558,13 @@ def _run_spectral(sub, method: str, k: int | None, ctx: SolverContext, p: dict,
         U, vals, k_used, extra = bethe_embedding(sub, k, ctx, r=p["r"], extra=p["extra_eigenvalues"],
                                                  k_max=p["k_max"])
         extra["weights"] = p["weights"]
+        lab, info = assign_rows(U, k_used, ctx, assign=p["assign"], n_init=p["n_init"],
+                                max_iter=p["kmeans_max_iter"])
+        extra.update(info)
+        return lab, vals, extra
+    if method == "directed-walk":
+        U, vals, k_used, extra = directed_embedding(sub, k, ctx, walk=p["walk"], alpha=p["alpha"],
+                                                    extra=p["extra_eigenvalues"], k_max=p["k_max"])
         lab, info = assign_rows(U, k_used, ctx, assign=p["assign"], n_init=p["n_init"],
                                 max_iter=p["kmeans_max_iter"])
         extra.update(info)

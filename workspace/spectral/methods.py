@@ -146,6 +146,9 @@ class MethodInfo:
     accepts_k : bool
         Whether an explicit integer k is accepted.
     params : tuple of ParamSpec
+    directed : bool
+        Made for directed graphs (uses the direction of arcs); every other
+        method runs on the symmetrised graph of a directed input.
     """
 
     name: str
@@ -157,6 +160,7 @@ class MethodInfo:
     params: tuple[ParamSpec, ...] = field(default_factory=tuple)
     fixed_k: int | None = None
     accepts_k: bool = True
+    directed: bool = False
 
     def param(self, name: str) -> ParamSpec:
         for p in self.params:
@@ -289,6 +293,19 @@ _register(MethodInfo(
         ParamSpec("refine_max_size", "int", 5000, minimum=2, maximum=10**9,
                   help="groups above this many nodes are split without refinement (O(n^2) per sweep)"),
     ) + _SPECTRAL_TAIL, accepts_k=False))
+
+_register(MethodInfo(
+    "directed-walk", "k-way on the random-walk Laplacian of a directed graph (stationary distribution)",
+    "Chung (2005), Laplacians and the Cheeger inequality for directed graphs, Annals of "
+    "Combinatorics 9(1); Zhou, Huang & Schölkopf (2005), Learning from labeled and unlabeled "
+    "data on a directed graph, ICML",
+    "spectral", True, 2, (
+        ParamSpec("walk", "choice", "auto", choices=("auto", "random", "lazy", "pagerank"),
+                  help="transition matrix: D^-1 A, (I + D^-1 A)/2, or with teleportation; auto: random if "
+                       "strongly connected and aperiodic, lazy if periodic, else pagerank"),
+        ParamSpec("alpha", "float", 0.95, minimum=0.01, maximum=0.999,
+                  help="pagerank walk: probability of following an arc (1 - alpha teleports)"),
+    ) + _assignment() + _SPECTRAL_TAIL, directed=True))
 
 _register(MethodInfo(
     "girvan-newman", "divisive edge-betweenness removal until k components (networkx)",

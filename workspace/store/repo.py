@@ -144,10 +144,18 @@ def load_node_ids(session: Session, version: NetworkVersion) -> np.ndarray:
                            get_array(session, version.node_bytes_blob))
 
 
+def version_is_directed(version: NetworkVersion) -> bool:
+    """A version imported with ``--directed keep`` holds arcs (read from its recorded policy)."""
+    import json
+
+    return json.loads(version.policy_json or "{}").get("directed") == "keep"
+
+
 def load_graph(session: Session, version: NetworkVersion) -> GraphData:
     return GraphData(
         node_ids=load_node_ids(session, version),
         edge_u=get_array(session, version.edge_u_blob),
         edge_v=get_array(session, version.edge_v_blob),
         weight=get_array(session, version.weight_blob),
+        directed=version_is_directed(version),
     )
