@@ -164,3 +164,32 @@ def test_random_walk_needs_out_arcs_and_components_rule_holds():
     comp_of = {v: i for i, c in enumerate(nx.weakly_connected_components(two)) for v in c}
     for community in _communities(r.labels):
         assert len({comp_of[v] for v in community}) == 1
+
+
+def test_iterative_path_agrees_with_the_dense_one():
+    # the same directed SBM (networkx.stochastic_block_model) solved densely (LAPACK eigh, LU for
+    # phi) and matrix-free (power iteration for phi, ARPACK on I + Theta): same spectrum, same split
+    sizes = [200, 200, 200]
+    p = [[0.05, 0.004, 0.004], [0.004, 0.05, 0.004], [0.004, 0.004, 0.05]]
+    G = nx.stochastic_block_model(sizes, p, directed=True, seed=11)
+    A = _arcs(G, list(range(600)))
+    dense = partition(A, "directed-walk", k=3, directed=True, extra_eigenvalues=3, components="largest")
+    sparse = partition(A, "directed-walk", k=3, directed=True, extra_eigenvalues=3, dense_threshold=0,
+                       eig_tol=1e-10, components="largest")
+    assert dense.diagnostics["solver"] == "dense-eigh" and "arpack" in sparse.diagnostics["solver"]
+    assert np.allclose(dense.eigenvalues[:3], sparse.eigenvalues[:3], atol=1e-7)
+    assert adjusted_rand_score(dense.labels, sparse.labels) == 1.0
+    truth = np.repeat(np.arange(3), sizes)
+    assert adjusted_rand_score(truth, dense.labels) > 0.95
+
+
+def test_plain_walk_on_a_graph_that_is_not_strongly_connected_is_refused():
+    # 0->1->2->0 drains into the closed class {3, 4}: the plain walk's stationary distribution is
+    # 0 on {0, 1, 2} (Chung 2005 assumes a strongly connected graph); auto picks pagerank
+    G = nx.DiGraph([(0, 1), (1, 2), (2, 0), (2, 3), (3, 4), (4, 3)])
+    A = _arcs(G)
+    assert choose_walk(A) == "pagerank"
+    with pytest.raises(ComputeError, match="not strongly connected.*pagerank"):
+        partition(A, "directed-walk", k=2, directed=True, walk="random")
+    r = partition(A, "directed-walk", k=2, directed=True)
+    assert sorted(map(sorted, _communities(r.labels))) == [[0, 1, 2], [3, 4]]

@@ -143,14 +143,18 @@ def _dense_P(P0, a, b, c) -> np.ndarray:
 
 
 def stationary_distribution(P0, a: float, b: float, c, *, dense_threshold: int = 1000,
-                            tol: float = 1e-13, max_iter: int = 100000) -> np.ndarray:
+                            tol: float = 1e-13, max_iter: int = 100000,
+                            check=None) -> np.ndarray:
     r""":math:`\phi` with :math:`\phi^T P = \phi^T`, :math:`\phi \ge 0`, :math:`\sum \phi = 1`.
 
-    Dense (``n <= dense_threshold``): the null vector of :math:`(I - P)^T` by
-    a least-squares solve with the normalisation row appended. Otherwise
-    power iteration :math:`\phi \leftarrow P^T \phi` (products with the CSC
-    view of ``P0``, no transposed copy) until the 1-norm change is below
-    ``tol``; lazy and teleporting walks converge geometrically.
+    Dense (``n <= min(dense_threshold, 2000)``): the linear system
+    :math:`(I - P)^T \phi = 0` with its last equation replaced by
+    :math:`\sum_i \phi_i = 1` (LU; non-singular exactly when the chain
+    has one closed class). Otherwise power iteration
+    :math:`\phi \leftarrow P^T \phi` (products with the CSC view of ``P0``,
+    no transposed copy) until the 1-norm change is below ``tol``; lazy and
+    teleporting walks converge geometrically. ``check`` (optional callable)
+    is called every 64 iterations (cancellation).
 
     Raises
     ------
@@ -160,16 +164,21 @@ def stationary_distribution(P0, a: float, b: float, c, *, dense_threshold: int =
         connected; use the pagerank walk).
     """
     n = P0.shape[0]
-    if n <= dense_threshold:
-        P = _dense_P(P0, a, b, c)
-        M = np.vstack([(np.eye(n) - P).T, np.ones((1, n))])
-        rhs = np.zeros(n + 1)
+    if n <= min(dense_threshold, 2000):
+        M = (np.eye(n) - _dense_P(P0, a, b, c)).T
+        M[-1, :] = 1.0
+        rhs = np.zeros(n)
         rhs[-1] = 1.0
-        phi = np.linalg.lstsq(M, rhs, rcond=None)[0]
+        try:
+            phi = np.linalg.solve(M, rhs)
+        except np.linalg.LinAlgError:
+            phi = np.zeros(n)                    # singular: more than one closed class
     else:
         phi = np.full(n, 1.0 / n)
         PT = P0.T
-        for _ in range(max_iter):
+        for step in range(max_iter):
+            if check is not None and step % 64 == 0:
+                check()
             new = a * (PT @ phi) + b * phi
             if c is not None:
                 new += float(c @ phi) / n
@@ -182,7 +191,7 @@ def stationary_distribution(P0, a: float, b: float, c, *, dense_threshold: int =
             raise ComputeError(f"the stationary distribution did not converge in {max_iter} steps; "
                                "use walk=lazy or walk=pagerank")
     phi = np.where(np.abs(phi) < 1e-300, 0.0, phi)
-    if np.any(phi <= 1e-15 * phi.max()):
+    if not np.all(np.isfinite(phi)) or np.any(phi <= 1e-15 * np.abs(phi).max(initial=0.0)):
         raise ComputeError("the random walk never reaches some nodes (the graph is not strongly "
                            "connected); use walk=pagerank")
     return phi / phi.sum()
@@ -243,7 +252,7 @@ def directed_laplacian(A, *, walk: str = "auto", alpha: float = 0.95) -> np.ndar
     A = sp.csr_array(A, dtype=np.float64)
     walk = choose_walk(A) if walk == "auto" else walk
     P0, a, b, c = walk_parts(A, walk, alpha)
-    phi = stationary_distribution(P0, a, b, c, dense_threshold=max(A.shape[0], 1))
+    phi = stationary_distribution(P0, a, b, c, dense_threshold=2000)
     op = _DirectedOperator(P0, a, b, c, phi)
     return 2.0 * np.eye(A.shape[0]) - op.to_dense()
 
@@ -285,7 +294,8 @@ def directed_embedding(A, k: int | None, ctx: SolverContext, *, walk: str = "aut
     used = choose_walk(A) if walk == "auto" else walk
     P0, a, b, c = walk_parts(A, used, alpha)
     ctx.report("stationary distribution")
-    phi = stationary_distribution(P0, a, b, c, dense_threshold=ctx.dense_threshold)
+    phi = stationary_distribution(P0, a, b, c, dense_threshold=ctx.dense_threshold,
+                                  check=ctx.check_cancel)
     op = _DirectedOperator(P0, a, b, c, phi)
     m = min(n, k if k is not None else k_max)
     sol = largest_eigenpairs(op, m, ctx, stage="directed", bound=2.0, extra=extra)
