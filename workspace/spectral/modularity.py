@@ -63,38 +63,38 @@ def refine_split(Ag, dg: np.ndarray, two_m: float, s: np.ndarray, ctx: SolverCon
     s = np.array(s, dtype=np.float64)
     n = s.shape[0]
     row_in = np.asarray(Ag.sum(axis=0)).ravel()        # symmetric: column sums = row sums
-    B_diag = Ag.diagonal() - dg * dg / two_m - (row_in - dg * dg.sum() / two_m)
     diag_shift = -(row_in - dg * dg.sum() / two_m)
-
-    def B_times(x):
-        return Ag @ x - dg * (dg @ x) / two_m + diag_shift * x
-
+    B_diag = Ag.diagonal() - dg * dg / two_m + diag_shift
+    indptr, indices, data = Ag.indptr, Ag.indices, Ag.data
+    # delta_j = base_j + w_j * sigma with sigma = d.t: the rank-one part of B t is -d sigma / 2m,
+    # so a move changes sigma (one number) and base only at the mover's neighbours
     improved = 0
     tol = 1e-12 * 2.0 * two_m
     for _ in range(max_sweeps):
-        Bs = B_times(s)
         t = s.copy()
-        moved = np.zeros(n, dtype=bool)
+        As = Ag @ t + diag_shift * t
+        base = -4.0 * t * As + 4.0 * B_diag
+        w = 4.0 * t * dg / two_m
+        sigma = float(dg @ t)
         total = 0.0
         best_total, best_step = 0.0, -1
         order_moves = np.empty(n, dtype=np.int64)
         for step in range(n):
             if ctx is not None and step % 256 == 0:
                 ctx.check_cancel()
-            delta = -4.0 * t * (Bs - B_diag * t)
-            delta[moved] = -np.inf
-            i = int(np.argmax(delta))
-            total += float(delta[i])
-            moved[i] = True
+            key = w * sigma
+            key += base
+            i = int(np.argmax(key))
+            total += float(key[i])
             order_moves[step] = i
-            # B s changes by -2 t_i B[:, i]
-            col = np.zeros(n)
-            lo, hi = Ag.indptr[i], Ag.indptr[i + 1]
-            col[Ag.indices[lo:hi]] = Ag.data[lo:hi]
-            col -= dg * (dg[i] / two_m)
-            col[i] += diag_shift[i]
-            Bs -= 2.0 * t[i] * col
-            t[i] = -t[i]
+            ti = t[i]
+            lo, hi = indptr[i], indptr[i + 1]
+            nb = indices[lo:hi]
+            base[nb] += 8.0 * ti * t[nb] * data[lo:hi]
+            sigma -= 2.0 * ti * dg[i]
+            t[i] = -ti
+            base[i] = -np.inf                          # moved: never chosen again this sweep
+            w[i] = 0.0
             if total > best_total + tol:
                 best_total, best_step = total, step
         if best_step < 0:
