@@ -147,8 +147,8 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
     method : str
         A key of :data:`workspace.spectral.methods.METHODS`: ``fiedler``,
         ``recursive``, ``shi-malik``, ``njw``, ``regularized``, ``bethe``,
-        ``leading-eigenvector``, ``girvan-newman``, ``greedy-modularity``,
-        ``louvain``, ``label-propagation``.
+        ``leading-eigenvector``, ``directed-walk``, ``girvan-newman``,
+        ``greedy-modularity``, ``louvain``, ``label-propagation``.
     k : int, "auto" or None, default None
         Number of communities; None means the method's ``default_k``;
         "auto" lets the method choose (eigengap for the k-way Laplacian

@@ -43,6 +43,8 @@ class PartitionResult:
           leading eigenvalues ``μ`` of the normalised adjacency);
         - ``regularized``: ``I - D_τ^-1/2 A D_τ^-1/2``;
         - ``bethe``: the Bethe Hessian ``H(r)`` (negative ones first);
+        - ``directed-walk``: Chung's directed Laplacian
+          ``I - (Φ^1/2 P Φ^-1/2 + Φ^-1/2 P^T Φ^1/2)/2``;
         - ``leading-eigenvector``: the leading eigenvalue of the
           (generalised) modularity matrix of every split tried, in
           descending order of discovery as computed (not sorted);
