@@ -14,8 +14,16 @@ from workspace.store.schema import Network, NetworkVersion, ParamSet, ParamSetVe
 
 
 def diff_runs(store: Store, run_a: int, run_b: int, *, nodes: str = "common",
-              nmi_normalization: str = "arithmetic", moved_limit: int | None = None) -> dict[str, Any]:
-    """Scores, matched communities, events, moved nodes and the contingency table of two runs."""
+              nmi_normalization: str = "arithmetic", moved_limit: int | None = None,
+              dense_table: bool = False, moved_rows: bool = False) -> dict[str, Any]:
+    """Scores, matched communities, events, moved nodes and the contingency table of two runs.
+
+    The contingency comes sparse (``cells``: ``[a, b, count]`` per non-zero cell); with
+    ``dense_table`` also as a dense ``counts`` list of lists, for tables of at most
+    ``workspace.compare.diff.DENSE_LIMIT`` cells (ParameterError otherwise). ``moved_rows``
+    gives ``moved_nodes`` as ``[node, from, to, from_match]`` rows (the JSON form) instead of
+    dicts.
+    """
     from workspace.compare import compare_memberships
 
     if nodes not in ("common", "all"):
@@ -31,7 +39,7 @@ def diff_runs(store: Store, run_a: int, run_b: int, *, nodes: str = "common",
         note = None
     d = compare_memberships(ids_a, labels_a, ids_b, labels_b, nodes=nodes, nmi_normalization=nmi_normalization,
                             moved_limit=moved_limit)
-    out = {"a": _brief(sa), "b": _brief(sb), "nodes": nodes, **d.to_dict()}
+    out = {"a": _brief(sa), "b": _brief(sb), "nodes": nodes, **d.to_dict(dense=dense_table, moved_rows=moved_rows)}
     if note:
         out.setdefault("notes", []).append(note)
     return out
@@ -70,8 +78,9 @@ def track_runs_of_params(store: Store, params_ref: str, network: str | None = No
 
 
 def track(store: Store, run_ids: list[int], *, nmi_normalization: str = "arithmetic",
-          moved_limit: int | None = None) -> dict[str, Any]:
-    """Step-by-step diffs of a chain of runs and how communities continue along it."""
+          moved_limit: int | None = None, moved_rows: bool = False) -> dict[str, Any]:
+    """Step-by-step diffs of a chain of runs and how communities continue along it
+    (``moved_rows`` as in :func:`diff_runs`)."""
     from workspace.compare import track_memberships
 
     if len(run_ids) < 2:
@@ -81,6 +90,6 @@ def track(store: Store, run_ids: list[int], *, nmi_normalization: str = "arithme
         ids, labels, summary = runs_service.load_membership(store, rid)
         seq.append((str(rid), ids, labels))
         briefs.append(_brief(summary))
-    doc = track_memberships(seq, nmi_normalization=nmi_normalization, moved_limit=moved_limit).to_dict()
+    doc = track_memberships(seq, nmi_normalization=nmi_normalization, moved_limit=moved_limit).to_dict(moved_rows=moved_rows)
     doc["run_details"] = briefs
     return doc
