@@ -84,7 +84,7 @@ def print_diff(out, d: dict, limit: int = 20) -> None:
     out.line(f"ARI {fmt(d['ari'])}   NMI ({d['nmi_normalization']}) {fmt(d['nmi'])}   AMI {fmt(d['ami'])}   "
              f"VI {fmt(d['vi_nats'])} nats / {fmt(d['vi_bits'])} bits")
     scored = d.get("n_scored") or 0
-    share = f" ({fmt(d['moved'] / scored * 100)}% of compared)" if scored else ""
+    share = f" ({d['moved'] / scored:.1%} of compared)" if scored else ""
     out.line(f"moved nodes: {d['moved']:,}{share}")
     matches = d.get("matches") or []
     overlap = sum(int(m["overlap"]) for m in matches)
