@@ -28,10 +28,7 @@ def diff_runs(store: Store, run_a: int, run_b: int, *, nodes: str = "common",
 
     if nodes not in ("common", "all"):
         raise UsageError("--nodes takes 'common' or 'all'")
-    ids_a, labels_a, sa = runs_service.load_membership(store, run_a)
-    ids_b, labels_b, sb = runs_service.load_membership(store, run_b)
-    if sa["ref"] == sb["ref"]:
-        ids_b = ids_a  # same version: one id array lets the alignment take its fast path
+    (ids_a, labels_a, sa), (ids_b, labels_b, sb) = _load_memberships(store, [run_a, run_b])
     if sa["network"] != sb["network"]:
         # different networks can still be compared by node id; say so rather than refuse
         note = f"runs belong to different networks ({sa['network']} and {sb['network']}); aligned by node id"
@@ -42,6 +39,27 @@ def diff_runs(store: Store, run_a: int, run_b: int, *, nodes: str = "common",
     out = {"a": _brief(sa), "b": _brief(sb), "nodes": nodes, **d.to_dict(dense=dense_table, moved_rows=moved_rows)}
     if note:
         out.setdefault("notes", []).append(note)
+    return out
+
+
+def _load_memberships(store: Store, run_ids: list[int]) -> list[tuple[Any, Any, dict[str, Any]]]:
+    """(node_ids, labels int64, run summary) per run, in one read; the node ids of a version are
+    decoded once and shared (the same array lets the alignment take its fast path)."""
+    import numpy as np
+
+    from workspace.store import repo
+
+    out = []
+    ids_of: dict[int, Any] = {}
+    with store.read() as s:
+        for rid in run_ids:
+            run, p, n, v = runs_service._get_run(s, rid)
+            if run.membership_blob is None:
+                raise NotFoundError(f"run {rid} has no membership (status {run.status})")
+            if run.version_id not in ids_of:
+                ids_of[run.version_id] = repo.load_node_ids(s, s.get(NetworkVersion, run.version_id))
+            labels = repo.get_array(s, run.membership_blob).astype(np.int64)
+            out.append((ids_of[run.version_id], labels, runs_service._run_row_dict(run, p, n, v)))
     return out
 
 
@@ -86,8 +104,7 @@ def track(store: Store, run_ids: list[int], *, nmi_normalization: str = "arithme
     if len(run_ids) < 2:
         raise UsageError("a track needs at least two runs")
     seq, briefs = [], []
-    for rid in run_ids:
-        ids, labels, summary = runs_service.load_membership(store, rid)
+    for rid, (ids, labels, summary) in zip(run_ids, _load_memberships(store, run_ids)):
         seq.append((str(rid), ids, labels))
         briefs.append(_brief(summary))
     doc = track_memberships(seq, nmi_normalization=nmi_normalization, moved_limit=moved_limit).to_dict(moved_rows=moved_rows)
