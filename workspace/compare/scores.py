@@ -457,30 +457,32 @@ def _emi_small_mean(Sf: np.ndarray, Tf: np.ndarray, length: np.ndarray, N: int,
     order = np.argsort(length, kind="stable")
     Nf = float(N)
     log_n_st = math.log(N) - np.log(Sf) - np.log(Tf)
+    top = int(length.max())
+    kv_all = np.arange(top, dtype=np.float64)
+    kp1_all = kv_all + 1.0
+    klk_all = kv_all * np.log(np.maximum(kv_all, 1.0))
     i = 0
     n = order.shape[0]
     while i < n:
         width = int(length[order[min(n - 1, i + max(1, block // int(length[order[i]])) - 1)]])
         m = max(1, block // width)
         rows = order[i:i + m]
-        kv = np.arange(width, dtype=np.float64)
-        s_ = Sf[rows, None]
-        t_ = Tf[rows, None]
-        num = (s_ - kv) * (t_ - kv)
-        den = (kv + 1.0) * ((Nf + 1.0) - s_ - t_ + kv)
-        ratio = num / den
+        kv = kv_all[:width]
+        # ratio(k) = (S-k)(T-k) / ((k+1)(N+1-S-T+k))
+        ratio = (Sf[rows, None] - kv) * (Tf[rows, None] - kv)
+        den = ((Nf + 1.0) - Sf[rows] - Tf[rows])[:, None] + kv
+        den *= kp1_all[:width]
+        ratio /= den
         # end each window: a zero ratio after its last column keeps the rest at 0
         ln = length[rows]
-        short = ln < width
-        ratio[np.flatnonzero(short), ln[short] - 1] = 0.0
-        p = np.empty_like(ratio)
-        p[:, 0] = 1.0
-        if width > 1:
-            np.cumprod(ratio[:, :-1], axis=1, out=p[:, 1:])
-        klk = kv * np.log(np.maximum(kv, 1.0))
-        a1 = p @ klk
-        a2 = p @ kv
-        out[rows] = (a1 + log_n_st[rows] * a2) / (Nf * p.sum(axis=1))
+        short = np.flatnonzero(ln < width)
+        ratio[short, ln[short] - 1] = 0.0
+        # p(0) = 1, p(k) = ratio(0) ... ratio(k-1): shift by one column in place
+        p = np.cumprod(ratio, axis=1, out=ratio)
+        a0 = 1.0 + p[:, :-1].sum(axis=1)
+        a1 = p[:, :-1] @ klk_all[1:width]
+        a2 = p[:, :-1] @ kv_all[1:width]
+        out[rows] = (a1 + log_n_st[rows] * a2) / (Nf * a0)
         i += rows.shape[0]
     return out
 
