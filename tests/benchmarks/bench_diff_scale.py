@@ -60,12 +60,51 @@ def cli(store_path: Path, *argv: str) -> subprocess.CompletedProcess:
 
 
 def best_wall(fn, repeat: int):
-    times, out = [], None
+    """Best wall time of ``repeat`` calls, the CPU time (user + system) of the child process in
+    that call, and the last result."""
+    import resource
+
+    best, out = None, None
     for _ in range(repeat):
+        before = resource.getrusage(resource.RUSAGE_CHILDREN)
         t = time.perf_counter()
         out = fn()
-        times.append(time.perf_counter() - t)
-    return min(times), out
+        wall = time.perf_counter() - t
+        after = resource.getrusage(resource.RUSAGE_CHILDREN)
+        cpu = (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
+        if best is None or wall < best[0]:
+            best = (wall, cpu)
+    return best[0], best[1], out
+
+
+def stages(store_path: Path, run_a: int, run_b: int) -> dict[str, float]:
+    """In-process breakdown of the same diff (best of 3 per stage)."""
+    from workspace.cli.diffs import _as_json_doc, _render
+    from workspace.compare import compare_memberships
+    from workspace.services.diffs import _load_memberships
+    from workspace.services.store import open_workspace
+
+    store = open_workspace(store_path)
+    out: dict[str, float] = {}
+
+    def stage(name, fn):
+        times, res = [], None
+        for _ in range(3):
+            t = time.perf_counter()
+            res = fn()
+            times.append(time.perf_counter() - t)
+        out[name] = min(times)
+        return res
+
+    (ia, la, _), (ib, lb, _) = stage("load both", lambda: _load_memberships(store, [run_a, run_b]))
+    d = stage("compare", lambda: compare_memberships(ia, la, ib, lb))
+    from workspace.compare.scores import _expected_mutual_information
+
+    stage("  of which E[I]", lambda: _expected_mutual_information(d.table))
+    doc = stage("to_dict", lambda: d.to_dict(moved_rows=True))
+    stage("JSON text", lambda: _render(_as_json_doc(doc), ""))
+    store.dispose()
+    return out
 
 
 def main() -> None:
@@ -104,6 +143,9 @@ def main() -> None:
 
         bare = best_wall(lambda: subprocess.run([sys.executable, "-c", "pass"], check=True),
                          args.repeat)[0]
+        imports = best_wall(lambda: subprocess.run(
+            [sys.executable, "-c", "import numpy, workspace.services.diffs, workspace.cli.diffs"],
+            check=True, env={**os.environ, "PYTHONPATH": str(ROOT)}), args.repeat)[0]
 
         rows = []
         for name, k in (("fine", args.k), ("few", args.few)):
@@ -116,8 +158,8 @@ def main() -> None:
                           f"{name}-{side}", "--json")
                 assert out.returncode == 0, out.stderr.decode()
                 runs.append(str(json.loads(out.stdout)["run"]))
-            wall, out = best_wall(lambda: cli(store_path, "diff", runs[0], runs[1], "--json"),
-                                  args.repeat)
+            wall, cpu, out = best_wall(lambda: cli(store_path, "diff", runs[0], runs[1], "--json"),
+                                       args.repeat)
             assert out.returncode == 0, out.stderr.decode()
             doc = json.loads(out.stdout)
             # reference: scikit-learn on the same labels (ARI, NMI with the arithmetic mean)
@@ -125,15 +167,20 @@ def main() -> None:
             nmi = normalized_mutual_info_score(a, b)
             cells = doc["contingency"]["cells"]
             rows.append((name, k, wall, len(out.stdout), doc, abs(doc["ari"] - ari),
-                         abs(doc["nmi"] - nmi), len(cells)))
+                         abs(doc["nmi"] - nmi), len(cells), cpu, stages(store_path, int(runs[0]),
+                                                                        int(runs[1]))))
 
         print(f"\n{n:,} nodes, {args.moved:,} moved; whole command `cutbook diff A B --json`, "
-              f"best of {args.repeat}; empty interpreter {bare:.3f} s")
-        print(f"{'case':<6}{'k':>6}{'wall s':>9}{'/empty':>8}{'JSON MB':>9}{'cells':>8}{'matches':>9}"
-              f"{'moved':>9}{'|dARI|':>9}{'|dNMI|':>9}")
-        for name, k, wall, size, doc, dari, dnmi, ncells in rows:
-            print(f"{name:<6}{k:>6}{wall:>9.3f}{wall / bare:>8.1f}{size / 1e6:>9.2f}{ncells:>8}"
+              f"best of {args.repeat}; empty interpreter {bare:.3f} s; interpreter + numpy + the "
+              f"diff command's modules {imports:.3f} s")
+        print(f"{'case':<6}{'k':>6}{'wall s':>9}{'CPU s':>8}{'/empty':>8}{'JSON MB':>9}{'cells':>8}"
+              f"{'matches':>9}{'moved':>9}{'|dARI|':>9}{'|dNMI|':>9}")
+        for name, k, wall, size, doc, dari, dnmi, ncells, cpu, _ in rows:
+            print(f"{name:<6}{k:>6}{wall:>9.3f}{cpu:>8.3f}{wall / bare:>8.1f}{size / 1e6:>9.2f}{ncells:>8}"
                   f"{len(doc['matches']):>9}{doc['moved']:>9,}{dari:>9.1e}{dnmi:>9.1e}")
+        print("\nin-process stages (best of 3), ms:")
+        for name, k, *_, st in rows:
+            print(f"  {name:<6} " + "  ".join(f"{key.strip()} {v * 1000:.0f}" for key, v in st.items()))
         fine = rows[0]
         print(f"\nfine case: wall {fine[2]:.3f} s (target < 1.5 s: {'met' if fine[2] < 1.5 else 'MISSED'}), "
               f"JSON {fine[3] / 1e6:.2f} MB (target < 3 MB: {'met' if fine[3] < 3e6 else 'MISSED'})")
