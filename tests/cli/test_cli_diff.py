@@ -122,3 +122,36 @@ def test_diff_text_totals_first_then_largest_rows_and_the_rest_counted(cli, fine
     assert shown == top
     # largest cells: the top count is the largest cell of the table
     assert str(max(n for _, _, n in d["contingency"]["cells"])) in res.out
+
+
+def test_diff_of_similar_memberships_loads_no_solver(cli, store_path, tmp_path):
+    # Two stored memberships that mostly agree: the command imports neither scipy (no
+    # assignment solver is needed: the exchange bound settles every pair) nor the spectral
+    # engine, rich or textual. Checked in a fresh interpreter.
+    import os
+    import subprocess
+    import sys
+
+    n, k = 1200, 40
+    assert cli("import", _ring(tmp_path, n), "--project", "p", "--network", "ring").code == 0
+    rng = np.random.default_rng(9)
+    a = rng.integers(0, k, n)
+    b = rng.permutation(k)[a]
+    moved = rng.random(n) < 0.03
+    b[moved] = rng.integers(0, k, int(moved.sum()))
+    runs = [cli("attach", _membership(tmp_path, f"s{i}", lab), "--to", "p/ring", "--label", f"s{i}",
+                "--json").json["run"] for i, lab in enumerate((a, b))]
+    code = (
+        "import contextlib, io, sys\n"
+        "from workspace.cli import main\n"
+        "with contextlib.redirect_stdout(io.StringIO()) as buf:\n"
+        f"    rc = main(['--store', {str(store_path)!r}, 'diff', '{runs[0]}', '{runs[1]}', '--json'])\n"
+        "heavy = sorted(m for m in sys.modules if m.split('.')[0] in ('scipy', 'rich', 'textual', 'sklearn')"
+        " or m.startswith('workspace.spectral'))\n"
+        "print(rc, len(buf.getvalue()) > 0, heavy)\n"
+    )
+    repo = os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__))))
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=120,
+                         env={**os.environ, "PYTHONPATH": repo})
+    assert out.returncode == 0, out.stderr
+    assert out.stdout.strip() == "0 True []"
