@@ -222,7 +222,11 @@ def _as_json_doc(doc: dict) -> dict:
 
 def emit_diff_json(doc: dict) -> None:
     """Write a diff or track document on stdout (see :func:`_render` for the layout)."""
-    sys.stdout.write(_render(_as_json_doc(doc), "") + "\n")
+    from workspace.services.diffs import paused_gc
+
+    with paused_gc():
+        text = _render(_as_json_doc(doc), "")
+    sys.stdout.write(text + "\n")
     sys.stdout.flush()
 
 
