@@ -467,21 +467,24 @@ def _emi_small_mean(Sf: np.ndarray, Tf: np.ndarray, length: np.ndarray, N: int,
         width = int(length[order[min(n - 1, i + max(1, block // int(length[order[i]])) - 1)]])
         m = max(1, block // width)
         rows = order[i:i + m]
-        kv = kv_all[:width]
-        # ratio(k) = (S-k)(T-k) / ((k+1)(N+1-S-T+k))
-        ratio = (Sf[rows, None] - kv) * (Tf[rows, None] - kv)
-        den = ((Nf + 1.0) - Sf[rows] - Tf[rows])[:, None] + kv
-        den *= kp1_all[:width]
+        kv = kv_all[:width, None]
+        # ratio(k) = (S-k)(T-k) / ((k+1)(N+1-S-T+k)); k down the rows, pairs across (the
+        # running product then multiplies whole contiguous rows)
+        s_ = Sf[rows]
+        t_ = Tf[rows]
+        ratio = (s_ - kv) * (t_ - kv)
+        den = ((Nf + 1.0) - s_ - t_) + kv
+        den *= kp1_all[:width, None]
         ratio /= den
-        # end each window: a zero ratio after its last column keeps the rest at 0
+        # end each window: a zero ratio after its last row keeps the rest at 0
         ln = length[rows]
         short = np.flatnonzero(ln < width)
-        ratio[short, ln[short] - 1] = 0.0
-        # p(0) = 1, p(k) = ratio(0) ... ratio(k-1): shift by one column in place
-        p = np.cumprod(ratio, axis=1, out=ratio)
-        a0 = 1.0 + p[:, :-1].sum(axis=1)
-        a1 = p[:, :-1] @ klk_all[1:width]
-        a2 = p[:, :-1] @ kv_all[1:width]
+        ratio[ln[short] - 1, short] = 0.0
+        # p(0) = 1, p(k) = ratio(0) ... ratio(k-1): shift by one row
+        p = np.cumprod(ratio, axis=0, out=ratio)
+        a0 = 1.0 + p[:-1].sum(axis=0)
+        a1 = klk_all[1:width] @ p[:-1]
+        a2 = kv_all[1:width] @ p[:-1]
         out[rows] = (a1 + log_n_st[rows] * a2) / (Nf * a0)
         i += rows.shape[0]
     return out
