@@ -114,17 +114,16 @@ def test_expected_mutual_information_fine_partitions_exact_sum(n, k, seed):
 
 
 @pytest.mark.parametrize("S,T,N", [(1000, 1000, 1_000_000), (300, 5000, 1_000_000),
-                                   (40, 60, 3000), (5, 900, 1000), (2000, 3000, 50_000)])
+                                   (40, 60, 3000), (5, 900, 1000)])
 def test_factorial_moment_window_leaves_out_at_most_the_tail(S, T, N):
     # The upper window end h must satisfy P(K > h) <= tail for K ~ Hypergeometric(N, S, T);
-    # reference: scipy.stats.hypergeom(M=N, n=S, N=T).sf(h) = P(K > h).
+    # reference: scipy.stats.hypergeom(M=N, n=S, N=T).sf(h) = P(K > h). For these small
+    # means it is also within one of the exact quantile (hypergeom.isf), i.e. nearly tight.
     for tail in (1e-6, 1e-12):
         hi = np.array([min(S, T)], dtype=np.int64)
         h = int(_poisson_type_upper(np.array([S]), np.array([T]), N, hi, math.log(tail))[0])
         assert hypergeom(N, S, T).sf(h) <= tail
-        # and it is not absurdly loose: within a few units of the exact quantile
-        exact = int(hypergeom(N, S, T).isf(tail))
-        assert exact <= h or h == min(S, T)
+        assert h <= int(hypergeom(N, S, T).isf(tail)) + 1
 
 
 def _dense_optimum(t) -> int:
