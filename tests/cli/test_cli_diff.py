@@ -155,3 +155,26 @@ def test_diff_of_similar_memberships_loads_no_solver(cli, store_path, tmp_path):
                          env={**os.environ, "PYTHONPATH": repo})
     assert out.returncode == 0, out.stderr
     assert out.stdout.strip() == "0 True []"
+
+
+def test_diff_json_layout_round_trips_awkward_values():
+    # The compact row layout must stay valid JSON for any node id: quotes, brackets, commas,
+    # newlines, tabs, non-ASCII. Reference: the standard library's json.loads gives back the
+    # document (common practice: a writer is checked by an independent reader).
+    from workspace.cli.diffs import _as_json_doc, _render
+
+    ids = ['a"b', "c],[d", "e\nf", "g\th", "ñø✓", "", "x,y", "\\"]
+    doc = {
+        "ari": 0.5, "nmi": float("nan"), "matches": [{"a": 0, "b": 1, "overlap": 3}],
+        "events": [{"kind": "split", "a": [0], "b": [1, 2], "parts": [{"b": 1}, {"b": 2}]}],
+        "moved_nodes": [[v, i, "unassigned" if i % 2 else i + 1, None if i % 3 else 0]
+                        for i, v in enumerate(ids)],
+        "contingency": {"rows": ["absent", 0], "cols": [0, 1], "cells": [["absent", 0, 2], [0, 1, 5]],
+                        "row_sizes": [2, 5], "col_sizes": [2, 5]},
+        "only_in_a_nodes": ids, "steps_like": [],
+    }
+    text = _render(_as_json_doc(doc), "")
+    back = json.loads(text)
+    expected = dict(doc, nmi=None)  # non-finite floats become null
+    assert back == expected
+    assert len(text.splitlines()) > len(ids)  # one row per line, not one value per line
