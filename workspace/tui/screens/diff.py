@@ -77,8 +77,9 @@ def _heat_view(c: dict[str, Any] | None, max_rows: int = 18, max_cols: int = 12
                 counts[i][col_pos[b]] = n
     nnz = int(c.get("nnz", len(c.get("cells") or [])))
     shown = sum(1 for r in counts for v in r if v)
-    title += (f" · largest {len(keep_r)}×{len(keep_c)} of {len(rows):,}×{len(cols):,} · "
-              f"{nnz - shown:,} more non-zero cells") if nnz > shown else ""
+    if nnz > shown:  # short enough for the pane at 120 columns
+        title = (f"Contingency A×B · largest {len(keep_r)}×{len(keep_c)} of {len(rows):,}×{len(cols):,}"
+                 f" · {nnz - shown:,} more cells")
     return {"rows": keep_r, "cols": keep_c, "counts": counts,
             "row_sizes": [size_a.get(x, 0) for x in keep_r],
             "col_sizes": [size_b.get(y, 0) for y in keep_c]}, title
