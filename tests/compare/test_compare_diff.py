@@ -111,7 +111,10 @@ def test_cross_version_alignment_common_and_all():
     assert d2.ami == pytest.approx(adjusted_mutual_info_score(ua, ub), abs=1e-12)
     c = d2.to_dict()["contingency"]
     assert c["rows"] == ["absent", 0, 1] and c["cols"] == ["absent", 3, 4]
-    assert c["counts"] == [[0, 0, 2], [1, 1, 0], [0, 1, 2]]
+    # Sparse cells [a, b, count] by label; the dense form only on request.
+    assert c["cells"] == [["absent", 4, 2], [0, "absent", 1], [0, 3, 1], [1, 3, 1], [1, 4, 2]]
+    assert c["shape"] == [3, 3] and c["nnz"] == 5 and "counts" not in c
+    assert d2.contingency_dict(dense=True)["counts"] == [[0, 0, 2], [1, 1, 0], [0, 1, 2]]
     assert c["row_sizes"] == [2, 2, 3] and c["col_sizes"] == [1, 2, 4]
     # Absent is never matched and absent nodes are never "moved".
     assert all(isinstance(m.a, int) and m.a >= 0 and m.b >= 0 for m in d2.matches)
@@ -206,7 +209,12 @@ def test_moved_limit_and_json_output():
     assert out["moved_nodes_truncated"] is True and len(out["moved_nodes"]) == 10
     assert set(out["moved_nodes"][0]) == {"node", "from", "to", "from_match"}
     assert set(out["matches"][0]) == {"a", "b", "overlap", "jaccard", "size_a", "size_b"}
-    assert set(out["contingency"]) >= {"rows", "cols", "counts", "row_sizes", "col_sizes"}
+    assert set(out["contingency"]) >= {"rows", "cols", "cells", "shape", "nnz", "row_sizes",
+                                       "col_sizes"}
+    assert "counts" not in out["contingency"]
+    rows_out = cut.to_dict(moved_rows=True)["moved_nodes"]
+    assert rows_out == [[m["node"], m["from"], m["to"], m["from_match"]]
+                        for m in cut.moved_nodes()]
     assert out["event_thresholds"] == {"jaccard": 0.3, "share": 0.5, "min_part": 0.1,
                                        "size_change": 0.1}
     # Moved nodes are exactly those whose B label differs from the match of their A label.

@@ -144,7 +144,10 @@ def build_parser() -> argparse.ArgumentParser:
                    help="score shared nodes only (default) or give absent nodes an 'absent' community")
     p.add_argument("--nmi", choices=["arithmetic", "geometric", "max", "min"], default="arithmetic",
                    help="NMI normalisation (default arithmetic)")
-    p.add_argument("--limit", type=int, default=20, help="moved nodes listed in text output (JSON lists all)")
+    p.add_argument("--limit", type=int, default=20,
+                   help="rows per section in text output: matches, events, cells, moved nodes (JSON lists all)")
+    p.add_argument("--dense-table", action="store_true",
+                   help="with --json: add the contingency as a dense 'counts' table (small tables only)")
 
     # --- upkeep -------------------------------------------------------------------------
     add("verify", "check every stored array against its hash, and the database's integrity", "upkeep",

@@ -25,7 +25,8 @@ from workspace.errors import ComputeError, ParameterError, UsageError
 NODE_MODES = ("common", "all")
 #: ``from_match`` value of a moved node whose A community has no match.
 NO_MATCH = -3
-DENSE_LIMIT = 1_000_000
+#: Largest table (r * c cells) given in dense form on request.
+DENSE_LIMIT = 10_000
 
 
 @dataclass(frozen=True, eq=False)
@@ -100,34 +101,63 @@ class MembershipDiff:
     def only_in_b(self) -> int:
         return int(self.only_in_b_ids.shape[0])
 
-    def contingency_dict(self, dense_limit: int = DENSE_LIMIT) -> dict[str, Any]:
-        """The contingency table as plain types.
+    def contingency_dict(self, dense: bool = False) -> dict[str, Any]:
+        """The contingency table as plain types, sparse: only the non-zero cells.
 
         Keys: ``rows`` / ``cols`` (community labels of A / B, "absent" and
         "unassigned" for the special groups), ``row_sizes``, ``col_sizes``,
-        ``counts`` (dense list of lists, or None when ``r * c > dense_limit``)
-        and ``cells`` (``[row_index, col_index, count]`` for every non-zero
-        cell, indices into rows / cols).
+        ``shape`` ``[r, c]``, ``nnz`` and ``cells``: ``[a, b, count]`` for every
+        non-zero cell, with ``a`` / ``b`` the community labels (as in rows /
+        cols), ordered by a then b. With ``dense=True`` (tables of at most
+        :data:`DENSE_LIMIT` cells, else :class:`ParameterError`) also
+        ``counts``, the dense r x c list of lists in rows / cols order.
         """
         t = self.table
         r, c = t.shape
-        counts = t.dense().tolist() if r * c <= dense_limit else None
-        cells = np.stack([t.cell_row, t.cell_col, t.cell_count], axis=1).tolist()
-        return {"rows": [label_to_json(x) for x in t.rows.tolist()],
-                "cols": [label_to_json(x) for x in t.cols.tolist()],
-                "row_sizes": t.row_sizes.tolist(), "col_sizes": t.col_sizes.tolist(),
-                "counts": counts, "cells": cells}
+        rows = [label_to_json(x) for x in t.rows.tolist()]
+        cols = [label_to_json(x) for x in t.cols.tolist()]
+        if t.nnz and (t.rows[0] < 0 or t.cols[0] < 0):
+            cells = [[rows[p], cols[q], n] for p, q, n in
+                     zip(t.cell_row.tolist(), t.cell_col.tolist(), t.cell_count.tolist())]
+        else:  # no special label: the labels are the plain int64 values
+            cells = np.stack([t.rows[t.cell_row], t.cols[t.cell_col], t.cell_count],
+                             axis=1).tolist()
+        out = {"rows": rows, "cols": cols,
+               "row_sizes": t.row_sizes.tolist(), "col_sizes": t.col_sizes.tolist(),
+               "shape": [r, c], "nnz": t.nnz, "cells": cells}
+        if dense:
+            if r * c > DENSE_LIMIT:
+                raise ParameterError(
+                    f"the contingency table is {r} x {c} = {r * c:,} cells; the dense form is "
+                    f"only given up to {DENSE_LIMIT:,} cells (use the sparse cells)")
+            out["counts"] = t.dense().tolist()
+        return out
+
+    def _moved_columns(self) -> tuple[list, list, list, list]:
+        """Moved node ids, from, to, from_match as plain lists (special labels as strings,
+        no match as None)."""
+        def col(arr: np.ndarray) -> list:
+            values = arr.tolist()
+            if arr.shape[0] and int(arr.min()) < 0:
+                values = [x if x >= 0 else (None if x == NO_MATCH else label_to_json(x))
+                          for x in values]
+            return values
+        return (self.moved_ids.tolist(), col(self.moved_from), col(self.moved_to),
+                col(self.moved_from_match))
 
     def moved_nodes(self) -> list[dict[str, Any]]:
         """Moved nodes as ``{"node", "from", "to", "from_match"}`` dicts (ascending id)."""
-        def j(x: int) -> Any:
-            return x if x >= 0 else (None if x == NO_MATCH else label_to_json(x))
-        return [{"node": v, "from": j(f), "to": j(t), "from_match": j(m)}
-                for v, f, t, m in zip(self.moved_ids.tolist(), self.moved_from.tolist(),
-                                      self.moved_to.tolist(), self.moved_from_match.tolist())]
+        return [{"node": v, "from": f, "to": t, "from_match": m}
+                for v, f, t, m in zip(*self._moved_columns())]
 
-    def to_dict(self, dense_limit: int = DENSE_LIMIT) -> dict[str, Any]:
-        """JSON-ready dict (plain str / int / float / list / dict / None only)."""
+    def moved_rows(self) -> list[list[Any]]:
+        """Moved nodes as ``[node, from, to, from_match]`` rows (ascending id)."""
+        return list(map(list, zip(*self._moved_columns())))
+
+    def to_dict(self, dense: bool = False, moved_rows: bool = False) -> dict[str, Any]:
+        """JSON-ready dict (plain str / int / float / list / dict / None only);
+        ``dense`` adds the dense table (see :meth:`contingency_dict`); ``moved_rows``
+        gives ``moved_nodes`` as ``[node, from, to, from_match]`` rows instead of dicts."""
         return {
             "ari": self.ari, "nmi": self.nmi, "nmi_normalization": self.nmi_normalization,
             "ami": self.ami, "ami_normalization": self.nmi_normalization,
@@ -138,12 +168,13 @@ class MembershipDiff:
             "only_in_a_nodes": self.only_in_a_ids.tolist(),
             "only_in_b_nodes": self.only_in_b_ids.tolist(),
             "coverage": self.coverage, "k_a": self.k_a, "k_b": self.k_b,
-            "moved": self.moved, "moved_nodes": self.moved_nodes(),
+            "moved": self.moved,
+            "moved_nodes": self.moved_rows() if moved_rows else self.moved_nodes(),
             "moved_nodes_truncated": self.moved > int(self.moved_ids.shape[0]),
             "matches": [m.to_dict() for m in self.matches],
             "events": [e.to_dict() for e in self.events],
             "event_thresholds": self.event_thresholds.to_dict(),
-            "contingency": self.contingency_dict(dense_limit),
+            "contingency": self.contingency_dict(dense),
         }
 
 
@@ -360,14 +391,14 @@ class TrackResult:
     diffs: tuple[MembershipDiff, ...]
     threads: tuple[CommunityThread, ...]
 
-    def to_dict(self, dense_limit: int = DENSE_LIMIT) -> dict[str, Any]:
+    def to_dict(self, dense: bool = False, moved_rows: bool = False) -> dict[str, Any]:
         """JSON-ready dict: ``runs``, ``steps`` (each a diff dict plus ``from_run`` /
         ``to_run``) and ``lineage`` (threads with ``path`` entries ``{run, community,
         size}``, ``origin`` and ``fate``)."""
         steps = []
         for i, d in enumerate(self.diffs):
             entry = {"from_run": self.runs[i], "to_run": self.runs[i + 1]}
-            entry.update(d.to_dict(dense_limit))
+            entry.update(d.to_dict(dense, moved_rows))
             steps.append(entry)
         lineage = [{"thread": t.thread,
                     "path": [{"run": self.runs[i], "community": k, "size": s}

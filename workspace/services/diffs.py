@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-from typing import Any
+from contextlib import contextmanager
+from typing import Any, Iterator
 
 from sqlalchemy import select
 
@@ -14,26 +15,73 @@ from workspace.store.schema import Network, NetworkVersion, ParamSet, ParamSetVe
 
 
 def diff_runs(store: Store, run_a: int, run_b: int, *, nodes: str = "common",
-              nmi_normalization: str = "arithmetic", moved_limit: int | None = None) -> dict[str, Any]:
-    """Scores, matched communities, events, moved nodes and the contingency table of two runs."""
+              nmi_normalization: str = "arithmetic", moved_limit: int | None = None,
+              dense_table: bool = False, moved_rows: bool = False) -> dict[str, Any]:
+    """Scores, matched communities, events, moved nodes and the contingency table of two runs.
+
+    The contingency comes sparse (``cells``: ``[a, b, count]`` per non-zero cell); with
+    ``dense_table`` also as a dense ``counts`` list of lists, for tables of at most
+    ``workspace.compare.diff.DENSE_LIMIT`` cells (ParameterError otherwise). ``moved_rows``
+    gives ``moved_nodes`` as ``[node, from, to, from_match]`` rows (the JSON form) instead of
+    dicts.
+    """
     from workspace.compare import compare_memberships
 
     if nodes not in ("common", "all"):
         raise UsageError("--nodes takes 'common' or 'all'")
-    ids_a, labels_a, sa = runs_service.load_membership(store, run_a)
-    ids_b, labels_b, sb = runs_service.load_membership(store, run_b)
-    if sa["ref"] == sb["ref"]:
-        ids_b = ids_a  # same version: one id array lets the alignment take its fast path
+    (ids_a, labels_a, sa), (ids_b, labels_b, sb) = _load_memberships(store, [run_a, run_b])
     if sa["network"] != sb["network"]:
         # different networks can still be compared by node id; say so rather than refuse
         note = f"runs belong to different networks ({sa['network']} and {sb['network']}); aligned by node id"
     else:
         note = None
-    d = compare_memberships(ids_a, labels_a, ids_b, labels_b, nodes=nodes, nmi_normalization=nmi_normalization,
-                            moved_limit=moved_limit)
-    out = {"a": _brief(sa), "b": _brief(sb), "nodes": nodes, **d.to_dict()}
+    with paused_gc():
+        d = compare_memberships(ids_a, labels_a, ids_b, labels_b, nodes=nodes,
+                                nmi_normalization=nmi_normalization, moved_limit=moved_limit)
+        out = {"a": _brief(sa), "b": _brief(sb), "nodes": nodes,
+               **d.to_dict(dense=dense_table, moved_rows=moved_rows)}
     if note:
         out.setdefault("notes", []).append(note)
+    return out
+
+
+@contextmanager
+def paused_gc() -> Iterator[None]:
+    """Pause the cyclic garbage collector while a result of many small lists and dicts is built.
+
+    A diff of fine partitions builds ~10^5 small containers (cells, moved nodes); each batch of
+    new containers triggers a collection that walks all of them again, which costs several times
+    the building itself. They hold no reference cycles, so nothing is lost by pausing.
+    """
+    import gc
+
+    was = gc.isenabled()
+    gc.disable()
+    try:
+        yield
+    finally:
+        if was:
+            gc.enable()
+
+
+def _load_memberships(store: Store, run_ids: list[int]) -> list[tuple[Any, Any, dict[str, Any]]]:
+    """(node_ids, labels int64, run summary) per run, in one read; the node ids of a version are
+    decoded once and shared (the same array lets the alignment take its fast path)."""
+    import numpy as np
+
+    from workspace.store import repo
+
+    out = []
+    ids_of: dict[int, Any] = {}
+    with store.read() as s:
+        for rid in run_ids:
+            run, p, n, v = runs_service._get_run(s, rid)
+            if run.membership_blob is None:
+                raise NotFoundError(f"run {rid} has no membership (status {run.status})")
+            if run.version_id not in ids_of:
+                ids_of[run.version_id] = repo.load_node_ids(s, s.get(NetworkVersion, run.version_id))
+            labels = repo.get_array(s, run.membership_blob).astype(np.int64)
+            out.append((ids_of[run.version_id], labels, runs_service._run_row_dict(run, p, n, v)))
     return out
 
 
@@ -70,17 +118,19 @@ def track_runs_of_params(store: Store, params_ref: str, network: str | None = No
 
 
 def track(store: Store, run_ids: list[int], *, nmi_normalization: str = "arithmetic",
-          moved_limit: int | None = None) -> dict[str, Any]:
-    """Step-by-step diffs of a chain of runs and how communities continue along it."""
+          moved_limit: int | None = None, moved_rows: bool = False) -> dict[str, Any]:
+    """Step-by-step diffs of a chain of runs and how communities continue along it
+    (``moved_rows`` as in :func:`diff_runs`)."""
     from workspace.compare import track_memberships
 
     if len(run_ids) < 2:
         raise UsageError("a track needs at least two runs")
     seq, briefs = [], []
-    for rid in run_ids:
-        ids, labels, summary = runs_service.load_membership(store, rid)
+    for rid, (ids, labels, summary) in zip(run_ids, _load_memberships(store, run_ids)):
         seq.append((str(rid), ids, labels))
         briefs.append(_brief(summary))
-    doc = track_memberships(seq, nmi_normalization=nmi_normalization, moved_limit=moved_limit).to_dict()
+    with paused_gc():
+        doc = track_memberships(seq, nmi_normalization=nmi_normalization,
+                                moved_limit=moved_limit).to_dict(moved_rows=moved_rows)
     doc["run_details"] = briefs
     return doc

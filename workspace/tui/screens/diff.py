@@ -46,6 +46,45 @@ def _event_line(ev: Any) -> str:
     return str(ev)
 
 
+def _heat_view(c: dict[str, Any] | None, max_rows: int = 18, max_cols: int = 12
+               ) -> tuple[dict[str, Any] | None, str]:
+    """The part of a sparse contingency (cells ``[a, b, count]``) the heat table shows: the
+    largest A groups, each one's largest B group first, as a small dense table; and a pane
+    title that counts what is left out."""
+    title = "Contingency (rows: A, columns: B)"
+    if not c or not c.get("rows"):
+        return c, title
+    rows, cols = list(c["rows"]), list(c["cols"])
+    size_a = dict(zip(rows, c.get("row_sizes") or []))
+    size_b = dict(zip(cols, c.get("col_sizes") or []))
+    keep_r = sorted(rows, key=lambda x: -(size_a.get(x) or 0))[:max_rows]
+    by_row: dict[Any, list[tuple[int, Any]]] = {x: [] for x in keep_r}
+    for a, b, n in c.get("cells") or []:
+        if a in by_row:
+            by_row[a].append((n, b))
+    keep_c: list[Any] = []
+    for x in keep_r:  # each row's largest column first: matched pairs on the diagonal
+        best = max(by_row[x], key=lambda t: t[0], default=None)
+        if best and best[1] not in keep_c:
+            keep_c.append(best[1])
+    rest = {b for x in keep_r for _, b in by_row[x]} - set(keep_c)
+    keep_c = (keep_c + sorted(rest, key=lambda y: -(size_b.get(y) or 0)))[:max_cols]
+    col_pos = {y: j for j, y in enumerate(keep_c)}
+    counts = [[0] * len(keep_c) for _ in keep_r]
+    for i, x in enumerate(keep_r):
+        for n, b in by_row[x]:
+            if b in col_pos:
+                counts[i][col_pos[b]] = n
+    nnz = int(c.get("nnz", len(c.get("cells") or [])))
+    shown = sum(1 for r in counts for v in r if v)
+    if nnz > shown:  # short enough for the pane at 120 columns
+        title = (f"Contingency A×B · largest {len(keep_r)}×{len(keep_c)} of {len(rows):,}×{len(cols):,}"
+                 f" · {nnz - shown:,} more cells")
+    return {"rows": keep_r, "cols": keep_c, "counts": counts,
+            "row_sizes": [size_a.get(x, 0) for x in keep_r],
+            "col_sizes": [size_b.get(y, 0) for y in keep_c]}, title
+
+
 class DiffScreen(Screen):
     """Compare two runs."""
 
@@ -175,7 +214,9 @@ class DiffScreen(Screen):
         self.query_one("#diff-events", Static).update(ev_text)
         self.moved = list(d.get("moved_nodes") or [])
         self._filter_moved(self.query_one("#diff-search", Input).value)
-        self.query_one("#diff-heat", HeatTable).show(d.get("contingency"))
+        heat, caption = _heat_view(d.get("contingency"))
+        self.query_one("#diff-heat-pane .pane-title", Static).update(caption)
+        self.query_one("#diff-heat", HeatTable).show(heat)
         if isinstance(self.focused, Input) and self.focused.id in ("diff-a", "diff-b"):
             self.query_one("#diff-moved", PagedTable).focus()
 
