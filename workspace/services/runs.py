@@ -17,7 +17,7 @@ from dataclasses import asdict, dataclass, field
 from typing import Any, Callable
 
 import numpy as np
-from sqlalchemy import select, update
+from sqlalchemy import delete, select, update
 
 from workspace.domain import GraphData, VersionRef, canonical_labels, compact_label_dtype, membership_hash
 from workspace.errors import Cancelled, ComputeError, CutbookError, NotFoundError, ParameterError, UsageError
@@ -282,7 +282,7 @@ def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None
         if computed.stability_counts is not None:
             c = computed.stability_counts
             encoded["stability"] = encode_array(c.astype(np.uint8 if c.max(initial=0) < 256 else np.uint16))
-    with store.write() as s:
+    with store.write(needed=sum(len(e.data) for e in encoded.values()) or None) as s:
         run = s.get(Run, run_id)
         if run is None or run.status != "running":
             raise ComputeError(f"run {run_id} is no longer running; its outcome was not recorded")
@@ -309,6 +309,24 @@ def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None
                     s.add(RunMeasure(run_id=run_id, name=name, value=_num(value)))
 
 
+def _record_outcome(store: Store, run_id: int, status: str, **outcome) -> None:
+    """:func:`_finish`; when the disk is too full to store the outcome, take back the run's ``running``
+    record too, so the store is as it was before the command (if even that cannot be written, the
+    next open marks the record interrupted)."""
+    from workspace.errors import NoSpace
+
+    try:
+        _finish(store, run_id, status, **outcome)
+    except NoSpace as exc:
+        try:
+            with store.write() as s:
+                s.execute(delete(Run).where(Run.id == run_id, Run.status == "running"))
+        except CutbookError:
+            pass
+        exc.message += f" (run {run_id} was not recorded)"
+        raise
+
+
 def _num(x):
     if x is None:
         return None
@@ -332,7 +350,7 @@ def execute(store: Store, run_id: int, spec: RunSpec, graph: GraphData, *, progr
         raise ComputeError(f"run {run_id} failed: {type(exc).__name__}: {exc}") from exc
     if progress:
         progress("store", 0, None)
-    _finish(store, run_id, "done", computed=computed)
+    _record_outcome(store, run_id, "done", computed=computed)
 
 
 def _load_version_graph(store: Store, version_id: int) -> GraphData:
@@ -420,7 +438,7 @@ def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, labe
                         communities=communities, warnings=warnings,
                         diagnostics={"missing_nodes": missing, "file_rows": info.get("rows")})
     run_id = _insert_running(store, spec, kind="attached", label=label.strip())
-    _finish(store, run_id, "done", computed=computed)
+    _record_outcome(store, run_id, "done", computed=computed)
     out = show_run(store, run_id, include_labels=False)
     out["missing_nodes"] = missing
     return out
@@ -534,7 +552,22 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
     from workspace.io import write_membership
 
     node_ids, labels, summary = load_membership(store, run_id)
-    write_membership(path, node_ids, labels, format=format)
+    # Written beside the target and renamed over it: a full disk or a refused write leaves no partial file.
+    target = os.fspath(path)
+    partial = os.path.join(os.path.dirname(os.path.abspath(target)), f".{os.path.basename(target)}.partial-{os.getpid()}")
+    try:
+        write_membership(partial, node_ids, labels, format=format)
+        os.replace(partial, target)
+    except BaseException as exc:
+        try:
+            os.unlink(partial)
+        except OSError:
+            pass
+        if isinstance(exc, OSError) and exc.filename in (None, partial):
+            exc.filename = target
+        if isinstance(exc, CutbookError) and exc.path == partial:
+            exc.path = target
+        raise
     return {"run": run_id, "path": os.fspath(path), "format": format, "nodes": int(labels.shape[0]),
             "membership_hash": summary["membership_hash"]}
 
