@@ -23,7 +23,8 @@ no space left                          SQLITE_FULL, SQLITE_IOERR_WRITE /      12
                                        _SHMSIZE / _FSYNC / _TRUNCATE,
                                        ENOSPC, EDQUOT, EFBIG
 not a cutbook store / damaged          SQLITE_NOTADB, SQLITE_CORRUPT*,        13
-                                       SQLITE_IOERR_SHORT_READ, missing tables
+                                       SQLITE_IOERR_SHORT_READ; a database
+                                       without cutbook's tables (at open)
 permission denied                      SQLITE_PERM, SQLITE_AUTH, EACCES,      14
                                        EPERM
 =====================================  =====================================  ====
@@ -211,8 +212,6 @@ def _sqlite_fault(name: str, message: str, path: str | None, writing: bool | Non
                           "error); check the disk, then run `cutbook verify`", path=path)
     if name == "SQLITE_NOMEM":
         return StoreError("the database ran out of memory", path=path)
-    if name == "SQLITE_ERROR" and ("no such table" in message or "no such column" in message):
-        return not_a_store(path, "it lacks the tables of this cutbook version")
     return None
 
 
