@@ -58,12 +58,12 @@ def _run(argv: list[str] | None) -> int:
 
 
 def _fail(exc, cause: BaseException | None = None) -> int:
-    """One line on stderr and the error's exit code; CUTBOOK_DEBUG=1 adds the traceback of the fault behind it."""
-    cause = cause or exc.__cause__
-    if cause is not None and os.environ.get("CUTBOOK_DEBUG"):
+    """One line on stderr and the error's exit code; CUTBOOK_DEBUG=1 prints the traceback first
+    (with the database or OS error behind it)."""
+    if os.environ.get("CUTBOOK_DEBUG"):
         import traceback
 
-        traceback.print_exception(cause, file=sys.stderr)
+        traceback.print_exception(cause if cause is not None else exc, file=sys.stderr)
     sys.stderr.write(f"cutbook: error: {exc}\n")
     return exc.exit_code
 

@@ -124,6 +124,10 @@ def _finish_open(url: str, probed, *, notify, create: bool, readonly: str | None
         raise StoreMissing("the database is empty: no store here yet; nothing was created — check the path",
                            path=name)
     if current != HEAD_REVISION:
+        if readonly == faults.FULL_DISK:
+            raise faults.no_space(name, what=f"its schema (revision {current}) needs an upgrade to {HEAD_REVISION} "
+                                             "before this cutbook can read it, and the upgrade has no room; nothing "
+                                             "was changed")
         if readonly is not None:
             raise faults.read_only(name, detail=f"{readonly}, and its schema (revision {current}) needs an upgrade "
                                                 f"to {HEAD_REVISION} before this cutbook can read it")

@@ -158,7 +158,10 @@ def _make_engine(url: str, *, foreign_keys: bool = True, access: str = "rw") -> 
             cur.execute(f"PRAGMA busy_timeout={int(timeout * 1000)}")
             cur.execute(f"PRAGMA foreign_keys={'ON' if foreign_keys else 'OFF'}")
             if access == "rw":
-                cur.execute("PRAGMA journal_mode=WAL")
+                # WAL is a setting kept in the file: made once, for a new store. An existing file keeps
+                # its mode, so opening someone else's database (refused later) does not change it.
+                if cur.execute("PRAGMA page_count").fetchone()[0] == 0:
+                    cur.execute("PRAGMA journal_mode=WAL")
                 cur.execute("PRAGMA synchronous=NORMAL")
             else:
                 cur.execute("PRAGMA query_only=ON")
