@@ -45,9 +45,9 @@ def _run(argv: list[str] | None) -> int:
     except BrokenPipeError:
         return 1
     except Exception as exc:  # a machine fault gets its own line and code; anything else is unexpected
-        from workspace.store.faults import translate
+        from workspace.services.store import translate_fault
 
-        fault = translate(exc, writing=None)
+        fault = translate_fault(exc, writing=None)
         if fault is not None:
             return _fail(fault, exc)
         if os.environ.get("CUTBOOK_DEBUG"):

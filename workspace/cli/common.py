@@ -9,7 +9,7 @@ from workspace.cli.output import Out, ProgressBar, emit_json
 
 
 def _explicit_store(args) -> str | None:
-    from workspace.store.db import ENV_STORE
+    from workspace.services.store import ENV_STORE
 
     return getattr(args, "store", None) or os.environ.get(ENV_STORE) or None
 
@@ -18,7 +18,7 @@ def demo_hint(args) -> str | None:
     """Where the demo store is, when the default store is in use and the demo has been built elsewhere."""
     if _explicit_store(args) is not None:
         return None
-    from workspace.store.db import default_demo_path
+    from workspace.services.store import default_demo_path
 
     demo = default_demo_path()
     if not demo.is_file():
@@ -64,12 +64,9 @@ def session(args, *, writes: bool = False):
 
 
 def _is_empty(store) -> bool:
-    from sqlalchemy import select
+    from workspace.services.networks import list_projects
 
-    from workspace.store.schema import Project
-
-    with store.read() as s:
-        return s.execute(select(Project.id).limit(1)).first() is None
+    return not list_projects(store)
 
 
 @contextmanager

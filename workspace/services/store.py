@@ -16,8 +16,10 @@ from typing import Callable
 
 from workspace.errors import CutbookError, NoSpace, StoreBusy, StoreError, StoreMissing, StoreReadOnly
 from workspace.store import faults
-from workspace.store.db import (HEAD_REVISION, Store, _current_revision, _make_engine, display_name,
-                                inspect_sqlite_file, migrate, resolve_store_url, sqlite_file)
+from workspace.store.db import (ENV_STORE, HEAD_REVISION, Store, _current_revision, _make_engine,  # noqa: F401
+                                default_demo_path, default_store_path, display_name, inspect_sqlite_file, migrate,
+                                resolve_store_url, sqlite_file)
+from workspace.store.faults import translate as translate_fault  # noqa: F401 - the CLI's top level uses it
 
 
 def open_workspace(store: str | os.PathLike | None = None, *,
