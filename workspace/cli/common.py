@@ -47,11 +47,12 @@ def session(args, *, writes: bool = False):
                                require_write=writes)
     except StoreMissing as exc:
         hint = demo_hint(args)
-        if explicit is None:
+        if explicit is None and hint:
+            exc.message = (f"no store yet in the default place — {hint}; `cutbook import FILE --project P "
+                           "--network N` starts your own")
+        elif explicit is None:
             exc.message = ("no store yet in the default place; start one with `cutbook import FILE --project P "
                            "--network N`, or build the demo with `cutbook demo`")
-        if hint:
-            exc.message += f" — {hint}"
         raise
     try:
         if not writes and explicit is None:

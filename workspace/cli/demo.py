@@ -40,6 +40,8 @@ def cmd_demo(args) -> int:
     else:
         summary = build_demo_store(store_arg, say=out.note)
         out.note(f"cutbook: demo built in {time.monotonic() - t0:.1f} s at {store_arg}")
+    if default:
+        out.note(f"cutbook: other commands use it with --store {store_arg} (or export CUTBOOK_STORE={store_arg})")
     if args.json:
         emit_json({"store": store_arg, "built": summary is not None, **(summary or {})})
     if not args.no_ui and not args.json:
