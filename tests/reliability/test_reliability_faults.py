@@ -657,3 +657,29 @@ def test_the_terminal_workspace_on_a_read_only_store(template, tmp_path):
         finally:
             store.dispose()
     assert any(sev == "error" and "read-only" in msg for sev, msg in shown), shown
+
+
+@pytest.mark.parametrize("name", ["runs", "import"])
+def test_store_path_under_a_file(template, tmp_path, name):
+    notes = _notes(tmp_path)
+    store = notes / "store.sqlite"
+    before = snapshot(notes.parent)
+    r = cutbook(store, *ALL[name], files=_files(template, tmp_path))
+    assert_fault(r, MISSING, str(store), f"{notes} is a file, not a folder", "nothing was created")
+    assert snapshot(notes.parent) == before
+
+
+def test_export_where_it_cannot_write(template, tmp_path):
+    """Output files get the same faults as the store: a missing folder (10), a read-only medium (11);
+    no partial file is left beside the target."""
+    store = _place(template, tmp_path / "s")
+    r = cutbook(store, "export", "1", "-o", tmp_path / "nowhere" / "m.csv")
+    assert_fault(r, MISSING, str(tmp_path / "nowhere" / "m.csv"), "does not exist", "nothing was written")
+    assert not (tmp_path / "nowhere").exists()
+    if not mount_allowed(tmp_path):
+        pytest.skip("SKIPPED LOUDLY: cannot bind-mount read-only here; the missing-folder case ran")
+    (tmp_path / "shelf").mkdir()
+    with read_only_view(tmp_path / "shelf", tmp_path / "ro") as view:
+        r = cutbook(store, "export", "1", "-o", view / "m.csv")
+        assert_fault(r, READ_ONLY, str(view / "m.csv"), "read-only medium")
+    assert list((tmp_path / "shelf").iterdir()) == []

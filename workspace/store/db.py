@@ -93,7 +93,7 @@ def inspect_sqlite_file(path: Path) -> str:
         with open(path, "rb") as fh:
             head = fh.read(100)
             size = os.fstat(fh.fileno()).st_size
-    except FileNotFoundError:
+    except (FileNotFoundError, NotADirectoryError):
         return "absent"
     except PermissionError:
         raise faults.permission_denied(os.fspath(path)) from None

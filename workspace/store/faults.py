@@ -173,8 +173,15 @@ def permission_denied(path: str | None, *, writing: bool | None = False) -> Perm
                             "a user who may", path=path)
 
 
-def missing(path: str | None) -> StoreMissing:
+def missing(path: str | None, *, store: bool = True) -> StoreMissing:
+    """No store at ``path`` (``store=False``: a file to write whose folder is missing)."""
     folder = Path(path).parent if path else None
+    blocker = next((p for p in ([folder, *folder.parents] if folder else []) if p.exists()), None)
+    if blocker is not None and not blocker.is_dir():
+        return StoreMissing(f"{blocker} is a file, not a folder; nothing was created — check the path", path=path)
+    if not store:
+        return StoreMissing(f"the folder {folder} does not exist; nothing was written — check the path (or create "
+                            "the folder first)", path=path)
     if folder is not None and not folder.is_dir():
         return StoreMissing(f"the store's folder {folder} does not exist; nothing was created — check the path "
                             "(or create the folder first)", path=path)
@@ -237,9 +244,10 @@ def translate(exc: BaseException, *, path: str | os.PathLike | None = None, writ
                                  "writable place", path=where)
         if code in (errno.EACCES, errno.EPERM):
             return permission_denied(where, writing=writing)
-        if code == errno.ENOENT and where is not None and not Path(where).parent.is_dir():
-            return StoreMissing(f"the folder {Path(where).parent} does not exist — check the path (or create the "
-                                "folder first)", path=where)
+        if code in (errno.ENOENT, errno.ENOTDIR) and where is not None and not Path(where).parent.is_dir():
+            return missing(where, store=False)
+        if where is not None or code in (errno.EIO, errno.ENXIO, errno.ENODEV, errno.ESTALE):
+            return StoreError(f"{exc.strerror or exc} — check the path and the device it is on", path=where)
         return None
     import sqlite3
 
