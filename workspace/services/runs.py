@@ -241,18 +241,23 @@ def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None
 # --- recording ---------------------------------------------------------------------------
 
 def _insert_running(store: Store, spec: RunSpec, *, kind: str = "computed", label: str = "") -> int:
-    pid = os.getpid()
     with store.write() as s:
-        run = Run(version_id=spec.version_id, param_set_version_id=spec.param_set_version_id,
-                  rerun_of=spec.rerun_of, kind=kind, method=spec.method, label=label,
-                  params_json=json.dumps({**spec.params, "perturb": spec.perturb} if spec.repeats > 1
-                                         else spec.params, sort_keys=True),
-                  k_requested=spec.k, seed=spec.seed if kind == "computed" else None, repeats=spec.repeats,
-                  status="running", started_at=repo.utcnow(), host=socket.gethostname(), pid=pid,
-                  process_token=_process_token(pid), provenance_json=json.dumps(provenance(), sort_keys=True))
+        run = _new_run(spec, kind=kind, label=label)
         s.add(run)
         s.flush()
         return run.id
+
+
+def _new_run(spec: RunSpec, *, kind: str = "computed", label: str = "") -> Run:
+    """A ``running`` run record for ``spec`` (not yet added to any session)."""
+    pid = os.getpid()
+    return Run(version_id=spec.version_id, param_set_version_id=spec.param_set_version_id,
+               rerun_of=spec.rerun_of, kind=kind, method=spec.method, label=label,
+               params_json=json.dumps({**spec.params, "perturb": spec.perturb} if spec.repeats > 1
+                                      else spec.params, sort_keys=True),
+               k_requested=spec.k, seed=spec.seed if kind == "computed" else None, repeats=spec.repeats,
+               status="running", started_at=repo.utcnow(), host=socket.gethostname(), pid=pid,
+               process_token=_process_token(pid), provenance_json=json.dumps(provenance(), sort_keys=True))
 
 
 def _json_floats(obj):
@@ -269,8 +274,10 @@ def _json_floats(obj):
     return obj
 
 
-def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None = None,
-            error: str | None = None) -> None:
+def _finish(store: Store, run_id: int | None, status: str, *, computed: Computed | None = None,
+            error: str | None = None, new_run: Run | None = None) -> int:
+    """Record a run's outcome; with ``new_run`` (attached partitions) the run is inserted in the
+    same transaction, so nothing is left half-recorded. Returns the run id."""
     from workspace.store.blobs import encode_array
 
     encoded = {}
@@ -283,6 +290,10 @@ def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None
             c = computed.stability_counts
             encoded["stability"] = encode_array(c.astype(np.uint8 if c.max(initial=0) < 256 else np.uint16))
     with store.write(needed=sum(len(e.data) for e in encoded.values()) or None) as s:
+        if new_run is not None:
+            s.add(new_run)
+            s.flush()
+            run_id = new_run.id
         run = s.get(Run, run_id)
         if run is None or run.status != "running":
             raise ComputeError(f"run {run_id} is no longer running; its outcome was not recorded")
@@ -307,6 +318,7 @@ def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None
             for name, value in computed.quality.items():
                 if isinstance(value, (int, float, np.number)) and not isinstance(value, bool):
                     s.add(RunMeasure(run_id=run_id, name=name, value=_num(value)))
+    return run_id
 
 
 def _record_outcome(store: Store, run_id: int, status: str, **outcome) -> None:
@@ -318,12 +330,14 @@ def _record_outcome(store: Store, run_id: int, status: str, **outcome) -> None:
     try:
         _finish(store, run_id, status, **outcome)
     except NoSpace as exc:
+        store.checkpoint()  # gives back the log's space when the main file has room for its pages
         try:
             with store.write() as s:
                 s.execute(delete(Run).where(Run.id == run_id, Run.status == "running"))
+            exc.message += f" (run {run_id} was not recorded)"
         except CutbookError:
-            pass
-        exc.message += f" (run {run_id} was not recorded)"
+            exc.message += (f" (run {run_id} stays 'running' for now; the next command that opens the store "
+                            "marks it interrupted)")
         raise
 
 
@@ -437,8 +451,8 @@ def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, labe
     computed = Computed(labels=labels, k=int(labels.max()) + 1, eigenvalues=np.empty(0), quality=q,
                         communities=communities, warnings=warnings,
                         diagnostics={"missing_nodes": missing, "file_rows": info.get("rows")})
-    run_id = _insert_running(store, spec, kind="attached", label=label.strip())
-    _record_outcome(store, run_id, "done", computed=computed)
+    run_id = _finish(store, None, "done", computed=computed, new_run=_new_run(spec, kind="attached",
+                                                                             label=label.strip()))
     out = show_run(store, run_id, include_labels=False)
     out["missing_nodes"] = missing
     return out

@@ -256,6 +256,21 @@ class Store:
                 with session.begin():
                     yield session
 
+    def checkpoint(self) -> bool:
+        """SQLite: copy the write-ahead log into the main file and truncate it (frees its disk space).
+        Best effort: returns False when it could not (busy, no room, read-only, not SQLite)."""
+        if not self.is_sqlite or self.readonly is not None:
+            return False
+        try:
+            raw = self.engine.raw_connection()
+            try:
+                busy, _, _ = raw.driver_connection.execute("PRAGMA wal_checkpoint(TRUNCATE)").fetchone()
+            finally:
+                raw.close()
+            return busy == 0
+        except Exception:  # noqa: BLE001 - best effort by contract
+            return False
+
     def dispose(self) -> None:
         self.engine.dispose()
 
