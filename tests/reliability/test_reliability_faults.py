@@ -254,6 +254,14 @@ def test_after_space_is_freed_writes_work_again(full_disk, template, tmp_path):
     assert cutbook(full_disk, "verify").code == 0
 
 
+def test_new_store_on_a_full_disk_leaves_nothing(full_disk, tmp_path):
+    before = snapshot(full_disk.parent)
+    new = full_disk.parent / "new.sqlite"
+    r = cutbook(new, "import", KARATE, "--project", "club", "--network", "karate")
+    assert_fault(r, NO_SPACE, str(new), "no space left")
+    assert snapshot(full_disk.parent) == before
+
+
 def test_import_larger_than_the_free_space(template, tmp_path):
     """Some space left, but less than the new version needs: SQLITE_FULL half way through the
     transaction; the message gives the free space and the size needed; nothing is kept."""

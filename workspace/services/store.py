@@ -70,19 +70,19 @@ def open_workspace(store: str | os.PathLike | None = None, *,
         current, tables = _probe(engine, name)
     except NoSpace:
         engine.dispose()
-        _remove_empty_side_files(path)
+        _remove_leftovers(path, new=state == "absent")
         if require_write or state != "present":
             raise
         return _open_read_only(url, path, notify=notify, reason=faults.FULL_DISK)
     except BaseException:
         engine.dispose()
-        _remove_empty_side_files(path)
+        _remove_leftovers(path, new=state == "absent")
         raise
     try:
         return _finish_open(url, (current, tables), notify=notify, create=create, readonly=None, engine=engine)
     except BaseException:
         engine.dispose()
-        _remove_empty_side_files(path)
+        _remove_leftovers(path, new=state == "absent")
         raise
 
 
@@ -177,6 +177,17 @@ def _open_read_only(url: str, path: Path, *, notify, reason: str) -> Store:
             raise
     assert last is not None
     raise last
+
+
+def _remove_leftovers(path: Path, *, new: bool) -> None:
+    """After a failed open: the stub side files, and the store file itself if this open made it empty."""
+    _remove_empty_side_files(path)
+    if new:
+        try:
+            if path.stat().st_size == 0:
+                path.unlink()
+        except OSError:
+            pass
 
 
 def _remove_empty_side_files(path: Path) -> None:
