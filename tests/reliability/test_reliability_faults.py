@@ -70,6 +70,15 @@ WRITES = {
 ALL = {**READS, **WRITES}
 
 
+def loud_skip(reason: str) -> None:
+    """Skip, and say so in pytest's warnings summary too (shown without -rs): a fault test that
+    could not run must not pass unnoticed."""
+    import warnings
+
+    warnings.warn(reason, stacklevel=2)
+    pytest.skip(reason)
+
+
 class Result:
     def __init__(self, code: int, out: str, err: str) -> None:
         self.code, self.out, self.err = code, out, err
@@ -209,7 +218,7 @@ def fill(folder: Path, leave: int = 0) -> None:
 @pytest.fixture
 def full_disk(template, tmp_path):
     if not mount_allowed(tmp_path):
-        pytest.skip("SKIPPED LOUDLY: this kernel/user may not mount a tmpfs (needs root or CAP_SYS_ADMIN); "
+        loud_skip("SKIPPED LOUDLY: this kernel/user may not mount a tmpfs (needs root or CAP_SYS_ADMIN); "
                     "the RLIMIT_FSIZE tests below still cover writes that run out of space")
     with tmpfs(tmp_path / "full", 2048) as mnt:
         store = _place(template, mnt)
@@ -266,7 +275,7 @@ def test_import_larger_than_the_free_space(template, tmp_path):
     """Some space left, but less than the new version needs: SQLITE_FULL half way through the
     transaction; the message gives the free space and the size needed; nothing is kept."""
     if not mount_allowed(tmp_path):
-        pytest.skip("SKIPPED LOUDLY: cannot mount a tmpfs here; see the RLIMIT_FSIZE test")
+        loud_skip("SKIPPED LOUDLY: cannot mount a tmpfs here; see the RLIMIT_FSIZE test")
     import numpy as np
 
     rng = np.random.default_rng(7)
@@ -323,7 +332,7 @@ def read_only_store(request, template, tmp_path):
     source = _place(template, tmp_path / "src")
     if request.param == "read-only medium":
         if not mount_allowed(tmp_path):
-            pytest.skip("SKIPPED LOUDLY: cannot bind-mount read-only here (needs root or CAP_SYS_ADMIN); "
+            loud_skip("SKIPPED LOUDLY: cannot bind-mount read-only here (needs root or CAP_SYS_ADMIN); "
                         "the read-only file case still runs")
         with read_only_view(source.parent, tmp_path / "ro") as view:
             yield view / "store.sqlite", "read-only medium"
@@ -334,7 +343,7 @@ def read_only_store(request, template, tmp_path):
         source.chmod(0o644)
         return
     if not _chattr(source, "+i"):
-        pytest.skip("SKIPPED LOUDLY: running as root and this filesystem has no immutable attribute (chattr +i); "
+        loud_skip("SKIPPED LOUDLY: running as root and this filesystem has no immutable attribute (chattr +i); "
                     "root ignores mode bits, so no read-only file can be made here")
     try:
         yield source, "read-only"
@@ -360,7 +369,7 @@ def test_read_only_medium_with_a_live_write_ahead_log(template, tmp_path):
     """A store copied while another connection kept its -wal (committed work not yet in the main
     file): on a read-only medium that work is still seen (SQLite ``?mode=ro`` reads the log)."""
     if not mount_allowed(tmp_path):
-        pytest.skip("SKIPPED LOUDLY: cannot bind-mount read-only here")
+        loud_skip("SKIPPED LOUDLY: cannot bind-mount read-only here")
     live = _place(template, tmp_path / "live")
     holder = sqlite3.connect(live)  # a second connection: the importer's close is not the last one
     holder.execute("SELECT 1 FROM projects").fetchall()
@@ -510,7 +519,7 @@ def _can_drop_caps() -> bool:
 @pytest.mark.parametrize("name", ["projects", "show-run", "import"])
 def test_permission_denied(template, tmp_path, name):
     if not _can_drop_caps():
-        pytest.skip("SKIPPED LOUDLY: running as root without CAP_SETPCAP; cannot make root obey mode bits")
+        loud_skip("SKIPPED LOUDLY: running as root without CAP_SETPCAP; cannot make root obey mode bits")
     store = _place(template, tmp_path / "locked")
     before = snapshot(store.parent)
     store.chmod(0o000)
@@ -530,7 +539,7 @@ def test_migration_backup_on_a_full_disk(tmp_path):
     """A store at the first schema revision with data needs an upgrade (and a backup copy first);
     on a full disk the copy fails: the store is untouched and the partial copy is gone."""
     if not mount_allowed(tmp_path):
-        pytest.skip("SKIPPED LOUDLY: cannot mount a tmpfs here")
+        loud_skip("SKIPPED LOUDLY: cannot mount a tmpfs here")
     from workspace.store.db import HEAD_REVISION, migrate, resolve_store_url
 
     with tmpfs(tmp_path / "mig", 1024) as mnt:
@@ -639,7 +648,7 @@ def test_default_store_missing_or_empty_points_at_the_demo_store(tmp_path, monke
 def test_the_terminal_workspace_on_a_read_only_store(template, tmp_path):
     """The UI opens a read-only store for browsing; starting a run is refused with the read-only line."""
     if not mount_allowed(tmp_path):
-        pytest.skip("SKIPPED LOUDLY: cannot bind-mount read-only here")
+        loud_skip("SKIPPED LOUDLY: cannot bind-mount read-only here")
     import asyncio
 
     from workspace.services.store import open_workspace
@@ -685,7 +694,7 @@ def test_export_where_it_cannot_write(template, tmp_path):
     assert_fault(r, MISSING, str(tmp_path / "nowhere" / "m.csv"), "does not exist", "nothing was written")
     assert not (tmp_path / "nowhere").exists()
     if not mount_allowed(tmp_path):
-        pytest.skip("SKIPPED LOUDLY: cannot bind-mount read-only here; the missing-folder case ran")
+        loud_skip("SKIPPED LOUDLY: cannot bind-mount read-only here; the missing-folder case ran")
     (tmp_path / "shelf").mkdir()
     with read_only_view(tmp_path / "shelf", tmp_path / "ro") as view:
         r = cutbook(store, "export", "1", "-o", view / "m.csv")
@@ -699,7 +708,7 @@ def test_run_and_attach_with_too_little_space_record_nothing(tmp_path):
     attachment (one transaction) leaves the store's bytes as they were; the computed run takes its
     'running' record back, so the store holds exactly the rows it held before; no file is left over."""
     if not mount_allowed(tmp_path):
-        pytest.skip("SKIPPED LOUDLY: cannot mount a tmpfs here")
+        loud_skip("SKIPPED LOUDLY: cannot mount a tmpfs here")
     import numpy as np
 
     n = 20_000

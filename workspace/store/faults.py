@@ -77,9 +77,12 @@ def _existing_dir(path: str | None) -> Path | None:
     if not path:
         return None
     p = Path(path)
-    for candidate in (p if p.is_dir() else p.parent, *p.parents):
-        if candidate.is_dir():
-            return candidate
+    try:
+        for candidate in (p if p.is_dir() else p.parent, *p.parents):
+            if candidate.is_dir():
+                return candidate
+    except OSError:  # a folder on the way that may not be searched
+        pass
     return None
 
 
