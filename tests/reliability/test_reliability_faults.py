@@ -738,3 +738,51 @@ def test_run_and_attach_with_too_little_space_record_nothing(tmp_path):
         (mnt / "filler").unlink()
         assert cutbook(store, "run", "p/ring", "--method", "label-propagation").code == 0
         assert cutbook(store, "attach", members, "--to", "p/ring", "--label", "survey").code == 0
+
+
+@pytest.mark.parametrize("kind", ["text file", "truncated store", "missing folder", "no store here"])
+def test_ui_refuses_what_it_cannot_open(template, tmp_path, kind):
+    """`cutbook ui` fails at opening, before the terminal UI starts, with the same line and code."""
+    store, code = {"text file": (lambda: _notes(tmp_path), DAMAGED),
+                   "truncated store": (lambda: _truncated(template, tmp_path), DAMAGED),
+                   "missing folder": (lambda: tmp_path / "gone" / "store.sqlite", MISSING),
+                   "no store here": (lambda: tmp_path / "typo.sqlite", MISSING)}[kind]
+    store = store()
+    folder = store.parent if store.parent.is_dir() else tmp_path
+    before = snapshot(folder)
+    assert_fault(cutbook(store, "ui"), code, str(store))
+    assert snapshot(folder) == before
+
+
+@pytest.mark.parametrize("fault", ["read-only medium", "full disk", "text file", "missing folder"])
+def test_demo_build_meets_the_faults(tmp_path, fault):
+    """`cutbook demo --no-ui --store PATH` writes a whole workspace; each fault stops it cleanly."""
+    from workspace.services.store import open_workspace
+
+    if fault in ("read-only medium", "full disk") and not mount_allowed(tmp_path):
+        loud_skip("SKIPPED LOUDLY: cannot mount here (needs root or CAP_SYS_ADMIN)")
+    if fault == "text file":
+        store = _notes(tmp_path)
+        before = snapshot(store.parent)
+        assert_fault(cutbook(store, "demo", "--no-ui"), DAMAGED, str(store), "not a cutbook store")
+        assert snapshot(store.parent) == before
+    elif fault == "missing folder":
+        store = tmp_path / "gone" / "demo.sqlite"
+        assert_fault(cutbook(store, "demo", "--no-ui"), MISSING, str(store), "does not exist")
+        assert not (tmp_path / "gone").exists()
+    elif fault == "read-only medium":
+        (tmp_path / "src").mkdir()
+        open_workspace(tmp_path / "src" / "demo.sqlite").dispose()  # an empty store
+        with read_only_view(tmp_path / "src", tmp_path / "ro") as view:
+            before = snapshot(view)
+            r = cutbook(view / "demo.sqlite", "demo", "--no-ui")
+            assert_fault(r, READ_ONLY, str(view / "demo.sqlite"), "read-only medium")
+            assert snapshot(view) == before
+    else:
+        with tmpfs(tmp_path / "full", 1024) as mnt:
+            open_workspace(mnt / "demo.sqlite").dispose()
+            fill(mnt)
+            before = snapshot(mnt)
+            r = cutbook(mnt / "demo.sqlite", "demo", "--no-ui")
+            assert_fault(r, NO_SPACE, str(mnt / "demo.sqlite"), "no space left")
+            assert snapshot(mnt) == before

@@ -30,7 +30,7 @@ def cmd_demo(args) -> int:
         for suffix in ("", "-wal", "-shm"):
             Path(store_arg + suffix).unlink(missing_ok=True)
     t0 = time.monotonic()
-    state = demo_exists(store_arg)
+    state = demo_exists(store_arg, create_dirs=default)
     if state == "demo":
         out.note(f"cutbook: the demo store is already built at {store_arg} (--rebuild to make it again)")
         summary = None
