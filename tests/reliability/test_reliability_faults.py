@@ -786,3 +786,45 @@ def test_demo_build_meets_the_faults(tmp_path, fault):
             r = cutbook(mnt / "demo.sqlite", "demo", "--no-ui")
             assert_fault(r, NO_SPACE, str(mnt / "demo.sqlite"), "no space left")
             assert snapshot(mnt) == before
+
+
+def test_sqlite_result_codes_map_to_their_class(tmp_path):
+    """Errors raised by SQLite itself (sqlite.org/rescode.html names them) map to one class each,
+    with the path and without SQLite's own wording."""
+    from workspace.store.faults import translate
+
+    def fault(fn, path):
+        try:
+            fn()
+        except sqlite3.Error as exc:
+            return translate(exc, path=path, writing=True)
+        raise AssertionError("SQLite raised nothing")
+
+    notes = _notes(tmp_path)
+    err = fault(lambda: sqlite3.connect(notes).execute("SELECT 1 FROM sqlite_master").fetchall(), notes)
+    assert err.exit_code == DAMAGED and "not a cutbook store" in str(err)          # SQLITE_NOTADB
+
+    missing_dir = tmp_path / "gone" / "x.db"
+    err = fault(lambda: sqlite3.connect(missing_dir).execute("SELECT 1").fetchall(), missing_dir)
+    assert err.exit_code == MISSING and "does not exist" in str(err)               # SQLITE_CANTOPEN
+
+    db = tmp_path / "t.db"
+    con = sqlite3.connect(db)
+    con.execute("CREATE TABLE t (x)")
+    con.commit()
+    con.close()
+    ro = sqlite3.connect(f"file:{db}?mode=ro", uri=True)
+    err = fault(lambda: ro.execute("INSERT INTO t VALUES (1)"), db)
+    ro.close()
+    assert err.exit_code == READ_ONLY and "read-only" in str(err)                   # SQLITE_READONLY
+
+    a = sqlite3.connect(db, isolation_level=None)
+    a.execute("BEGIN IMMEDIATE")
+    b = sqlite3.connect(db, timeout=0.05, isolation_level=None)
+    err = fault(lambda: b.execute("BEGIN IMMEDIATE"), db)
+    a.execute("ROLLBACK")
+    a.close()
+    b.close()
+    assert err.exit_code == BUSY and "busy" in str(err)                             # SQLITE_BUSY
+    for e in (err,):
+        assert "database is locked" not in str(e) and "INSERT" not in str(e)
