@@ -423,7 +423,7 @@ def test_not_a_store_or_damaged(template, tmp_path, kind, name):
     elif kind == "foreign database":
         store, words = _foreign_sqlite(tmp_path), ("not a cutbook store", "without cutbook's tables")
     elif kind == "truncated store":
-        store, words = _truncated(template, tmp_path), ("damaged", "cut short", "cutbook verify", "backup")
+        store, words = _truncated(template, tmp_path), ("damaged", "cut short", "backup copy")
     else:
         store, words = tmp_path / "a-folder", ("not a cutbook store", "folder")
         store.mkdir()

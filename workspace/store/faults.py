@@ -143,9 +143,10 @@ def read_only(path: str | None, *, detail: str | None = None) -> StoreReadOnly:
                          "copy the store to a writable place to change it", path=path)
 
 
-def damaged(path: str | None, what: str) -> StoreDamaged:
-    """A damaged store: point at `cutbook verify` and at the backup copies migrations leave next to it."""
-    advice = "run `cutbook verify` on it"
+def damaged(path: str | None, what: str, *, verify: bool = True) -> StoreDamaged:
+    """A damaged store: point at the backup copies migrations leave next to it, and at `cutbook verify`
+    when the store still opens (``verify=False`` for a file cut short, which does not)."""
+    advice = "go back to a backup copy (schema upgrades leave STORE.backup-* next to the store)"
     if path:
         p = Path(path)
         try:
@@ -153,9 +154,9 @@ def damaged(path: str | None, what: str) -> StoreDamaged:
         except OSError:
             backups = []
         if backups:
-            advice += f", or go back to its newest backup copy {backups[-1]}"
-        else:
-            advice += ", or go back to a backup copy (schema upgrades leave STORE.backup-* next to the store)"
+            advice = f"go back to its newest backup copy {backups[-1]}"
+    if verify:
+        advice += ", or run `cutbook verify` to see which records are affected"
     return StoreDamaged(f"the store is damaged ({what}); nothing was written — {advice}", path=path)
 
 
