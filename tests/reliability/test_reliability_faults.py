@@ -306,6 +306,7 @@ def _cli_process(store: Path, *argv, preexec=None, env=None) -> Result:
     return Result(p.returncode, p.stdout, p.stderr)
 
 
+@pytest.mark.slow
 def test_file_size_limit_refuses_the_write_and_changes_nothing(template, tmp_path):
     store = _place(template, tmp_path / "limited")
     before = snapshot(store.parent)
