@@ -829,3 +829,28 @@ def test_sqlite_result_codes_map_to_their_class(tmp_path):
     assert err.exit_code == BUSY and "busy" in str(err)                             # SQLITE_BUSY
     for e in (err,):
         assert "database is locked" not in str(e) and "INSERT" not in str(e)
+
+
+@pytest.mark.slow
+def test_read_only_file_while_its_owner_is_connected(template, tmp_path):
+    """A store file we may read but not write, while another connection keeps committed work in its
+    -wal: reading goes through SQLite's locks and the log (``mode=ro``), so that work is seen; a write
+    is refused as read-only. (As root the reader runs without CAP_DAC_OVERRIDE, so mode bits apply.)"""
+    if not _can_drop_caps():
+        loud_skip("SKIPPED LOUDLY: running as root without CAP_SETPCAP; cannot make root obey mode bits")
+    store = _place(template, tmp_path / "shared")
+    holder = sqlite3.connect(store)
+    holder.execute("SELECT 1 FROM projects").fetchall()
+    try:
+        assert cutbook(store, *WRITES["import"], files=_files(template, tmp_path)).code == 0
+        assert Path(f"{store}-wal").stat().st_size > 0
+        store.chmod(0o444)
+        drop = _without_dac_override if os.geteuid() == 0 else None
+        r = _cli_process(store, "networks", "--json", preexec=drop)
+        assert r.code == 0, r.err
+        assert [n["network"] for n in json.loads(r.out)] == ["karate", "other"]
+        r = _cli_process(store, "params", "save", "club/three", "--method", "njw", preexec=drop)
+        assert_fault(r, READ_ONLY, str(store), "the file is read-only")
+    finally:
+        store.chmod(0o644)
+        holder.close()

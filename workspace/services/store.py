@@ -151,11 +151,18 @@ def _finish_open(url: str, probed, *, notify, create: bool, readonly: str | None
 
 
 def _open_read_only(url: str, path: Path, *, notify, reason: str) -> Store:
-    """Open for reading only: ``?mode=ro`` when a write-ahead log is present, else (or if that fails)
-    ``?immutable=1``, which needs no ``-shm`` file (SQLite "URI filenames", 2022: immutable)."""
+    """Open for reading only.
+
+    A ``-wal`` or ``-shm`` beside the file means a writer may be connected (or left work in the log):
+    ``?mode=ro`` then takes SQLite's locks and reads the log. Without them no writer is connected
+    (a WAL-mode writer always has both), and ``?immutable=1`` reads the main file alone with no
+    ``-shm`` at all — the only way on a read-only medium (SQLite "URI filenames": mode, immutable).
+    If ``mode=ro`` cannot use the ``-shm`` here, the main file is read alone, with a note when the
+    log holds work that is then not shown.
+    """
     name = os.fspath(path)
-    wal = Path(f"{path}-wal")
-    attempts = ["ro", "immutable"] if wal.exists() and wal.stat().st_size > 0 else ["immutable"]
+    wal, shm = Path(f"{path}-wal"), Path(f"{path}-shm")
+    attempts = ["ro", "immutable"] if wal.exists() or shm.exists() else ["immutable"]
     last: CutbookError | None = None
     for access in attempts:
         engine = _make_engine(url, access=access)
@@ -167,7 +174,7 @@ def _open_read_only(url: str, path: Path, *, notify, reason: str) -> Store:
             if access == "ro":  # the -shm file cannot be used here: read the main file alone
                 continue
             raise
-        if access == "immutable" and len(attempts) > 1 and notify:
+        if access == "immutable" and len(attempts) > 1 and notify and wal.exists() and wal.stat().st_size > 0:
             notify(f"cutbook: {name}: its write-ahead log cannot be read here ({reason}); showing the store as of "
                    "its last checkpoint")
         try:
