@@ -24,7 +24,7 @@ from sqlalchemy.orm import Session, sessionmaker
 from workspace.errors import CutbookError, StoreError
 from workspace.store import faults
 
-BUSY_TIMEOUT_MS = 60_000  # the default wait for another writer; $CUTBOOK_BUSY_TIMEOUT (seconds) overrides it
+BUSY_TIMEOUT_MS = 60_000
 # The newest migration's revision id. Checking a store against it needs no Alembic import, which
 # keeps every command's start-up short; tests/store checks it equals Alembic's own head.
 HEAD_REVISION = "0002"
