@@ -39,8 +39,11 @@ class CliResult:
 
 @pytest.fixture
 def cli(store_path, capsys):
-    """Run ``cutbook`` in-process against the temporary store."""
+    """Run ``cutbook`` in-process against the temporary store (made empty first: read commands never create one)."""
     from workspace.cli import main
+    from workspace.services.store import open_workspace
+
+    open_workspace(store_path).dispose()
 
     def run(*argv: str) -> CliResult:
         capsys.readouterr()

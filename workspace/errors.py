@@ -4,8 +4,32 @@ Every error carries a user-facing ``message`` and, where it applies, the
 ``path`` and 1-based ``line`` of the input it concerns. Front ends print
 ``str(error)`` (one line, no traceback) and exit with ``error.exit_code``.
 
-Exit codes (the CLI contract): 0 ok, 1 failure, 2 usage, 3 not found,
-4 conflict or lock, 130 cancelled by the user.
+Exit codes (the CLI contract; README "Exit codes and machine faults" says
+what each means for the user's data):
+
+===  =====================================================================
+0    ok
+1    failure (a bad input file, a failed computation, an unexpected error)
+2    usage or invalid parameters
+3    not found (project, network, version, parameter set, run)
+4    conflict or lock: the store is busy beyond the wait (another process
+     is writing), or the request conflicts with what the store holds
+10   no store at that path: the file or its folder does not exist (read
+     commands never create a store)
+11   the store is read-only: read-only medium, read-only file or folder,
+     or (server stores) a role or transaction without write permission;
+     reading works, every write is refused
+12   no space left: the device is full (or a file-size limit was reached)
+     while writing the store or an output file
+13   not a cutbook store, or a damaged one (truncated, malformed)
+14   permission denied: a file or folder cannot be read (or an output
+     file cannot be written)
+130  cancelled by the user
+===  =====================================================================
+
+Codes 10-14 are machine faults: the command changed nothing in the store.
+``workspace.store.faults`` is the one place that turns database and
+operating-system errors into these classes.
 """
 
 from __future__ import annotations
@@ -58,8 +82,42 @@ class ConflictError(CutbookError):
     exit_code = 4
 
 
+class StoreBusy(ConflictError):
+    """Another process held the store's write lock for longer than the wait."""
+
+
 class StoreError(CutbookError):
     """The store cannot be opened or is in a state the code refuses to touch."""
+
+
+class StoreMissing(StoreError):
+    """No store at the given path (the file or its folder does not exist)."""
+
+    exit_code = 10
+
+
+class StoreReadOnly(StoreError):
+    """The store can be read but not written (medium, file, folder or database role)."""
+
+    exit_code = 11
+
+
+class NoSpace(StoreError):
+    """No space left on the device (or a file-size limit) while writing."""
+
+    exit_code = 12
+
+
+class StoreDamaged(StoreError):
+    """The file is not a cutbook store, or the store is damaged."""
+
+    exit_code = 13
+
+
+class PermissionDenied(StoreError):
+    """A file or folder cannot be read (or an output file written) for lack of permission."""
+
+    exit_code = 14
 
 
 class ComputeError(CutbookError):

@@ -38,19 +38,34 @@ def _run(argv: list[str] | None) -> int:
     try:
         return int(args.handler(args) or 0)
     except CutbookError as exc:
-        sys.stderr.write(f"cutbook: error: {exc}\n")
-        return exc.exit_code
+        return _fail(exc)
     except KeyboardInterrupt:
         sys.stderr.write("cutbook: interrupted\n")
         return 130
     except BrokenPipeError:
         return 1
-    except Exception as exc:  # an unexpected failure: one line, traceback only on request
+    except Exception as exc:  # a machine fault gets its own line and code; anything else is unexpected
+        from workspace.services.store import translate_fault
+
+        fault = translate_fault(exc, writing=None)
+        if fault is not None:
+            return _fail(fault, exc)
         if os.environ.get("CUTBOOK_DEBUG"):
             raise
         sys.stderr.write(f"cutbook: internal error: {type(exc).__name__}: {exc} "
                          "(set CUTBOOK_DEBUG=1 for the traceback)\n")
         return 1
+
+
+def _fail(exc, cause: BaseException | None = None) -> int:
+    """One line on stderr and the error's exit code; CUTBOOK_DEBUG=1 prints the traceback first
+    (with the database or OS error behind it)."""
+    if os.environ.get("CUTBOOK_DEBUG"):
+        import traceback
+
+        traceback.print_exception(cause if cause is not None else exc, file=sys.stderr)
+    sys.stderr.write(f"cutbook: error: {exc}\n")
+    return exc.exit_code
 
 
 if __name__ == "__main__":  # pragma: no cover

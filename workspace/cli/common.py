@@ -2,22 +2,72 @@
 
 from __future__ import annotations
 
+import os
 from contextlib import contextmanager
 
 from workspace.cli.output import Out, ProgressBar, emit_json
 
 
+def _explicit_store(args) -> str | None:
+    from workspace.services.store import ENV_STORE
+
+    return getattr(args, "store", None) or os.environ.get(ENV_STORE) or None
+
+
+def demo_hint(args) -> str | None:
+    """Where the demo store is, when the default store is in use and the demo has been built elsewhere."""
+    if _explicit_store(args) is not None:
+        return None
+    from workspace.services.store import default_demo_path
+
+    demo = default_demo_path()
+    if not demo.is_file():
+        return None
+    return (f"the demo workspace has its own store: add --store {demo} "
+            f"(or export CUTBOOK_STORE={demo}) to see it")
+
+
 @contextmanager
-def session(args):
-    """Open the store named by --store/env/default; yield (store, out)."""
+def session(args, *, writes: bool = False):
+    """Open the store named by --store/env/default; yield (store, out).
+
+    Commands that write (``writes=True``) may create a new store (and, for the
+    default location only, its folders) and are refused at once on a store that
+    cannot be written. Commands that only read never create anything: a path
+    with no store gives "no store here" (exit 10), and a read-only store opens
+    for reading.
+    """
+    from workspace.errors import StoreMissing
     from workspace.services.store import open_workspace
 
     out = Out(bool(getattr(args, "json", False)))
-    store = open_workspace(getattr(args, "store", None), notify=out.note)
+    explicit = _explicit_store(args)
     try:
+        store = open_workspace(explicit, notify=out.note, create=writes, create_dirs=explicit is None,
+                               require_write=writes)
+    except StoreMissing as exc:
+        hint = demo_hint(args)
+        if explicit is None and hint:
+            exc.message = (f"no store yet in the default place — {hint}; `cutbook import FILE --project P "
+                           "--network N` starts your own")
+        elif explicit is None:
+            exc.message = ("no store yet in the default place; start one with `cutbook import FILE --project P "
+                           "--network N`, or build the demo with `cutbook demo`")
+        raise
+    try:
+        if not writes and explicit is None:
+            hint = demo_hint(args)
+            if hint and _is_empty(store):
+                out.note(f"cutbook: {hint}")
         yield store, out
     finally:
         store.dispose()
+
+
+def _is_empty(store) -> bool:
+    from workspace.services.networks import list_projects
+
+    return not list_projects(store)
 
 
 @contextmanager
@@ -29,4 +79,4 @@ def progress_bar(enabled: bool = True):
         bar.close()
 
 
-__all__ = ["session", "progress_bar", "emit_json", "Out"]
+__all__ = ["session", "progress_bar", "emit_json", "Out", "demo_hint"]

@@ -30,7 +30,7 @@ def cmd_demo(args) -> int:
         for suffix in ("", "-wal", "-shm"):
             Path(store_arg + suffix).unlink(missing_ok=True)
     t0 = time.monotonic()
-    state = demo_exists(store_arg)
+    state = demo_exists(store_arg, create_dirs=default)
     if state == "demo":
         out.note(f"cutbook: the demo store is already built at {store_arg} (--rebuild to make it again)")
         summary = None
@@ -40,6 +40,8 @@ def cmd_demo(args) -> int:
     else:
         summary = build_demo_store(store_arg, say=out.note)
         out.note(f"cutbook: demo built in {time.monotonic() - t0:.1f} s at {store_arg}")
+    if default:
+        out.note(f"cutbook: other commands use it with --store {store_arg} (or export CUTBOOK_STORE={store_arg})")
     if args.json:
         emit_json({"store": store_arg, "built": summary is not None, **(summary or {})})
     if not args.no_ui and not args.json:

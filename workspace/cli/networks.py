@@ -42,7 +42,7 @@ def print_report(out, report: dict) -> None:
 def cmd_import(args) -> int:
     from workspace.services.networks import import_network
 
-    with session(args) as (store, out), progress_bar() as bar:
+    with session(args, writes=True) as (store, out), progress_bar() as bar:
         res = import_network(store, args.file, project=args.project, network=args.network, format=args.format,
                              policy=_policy(args), message=args.message, progress=bar)
         bar.close()

@@ -8,7 +8,7 @@ from workspace.cli.common import Out, emit_json, session
 def cmd_params(args) -> int:
     from workspace.services import params as svc
 
-    with session(args) as (store, out):
+    with session(args, writes=args.params_action == "save") as (store, out):
         if args.params_action == "save":
             res = svc.save_params(store, args.name, method=args.method, k=args.k, values=svc.parse_sets(args.set))
             if args.json:

@@ -7,7 +7,8 @@ import argparse
 EPILOG = """\
 references: project/network[@version] (latest version when @version is left out).
 store: --store PATH|URL, else $CUTBOOK_STORE, else a file in your user data folder.
-exit codes: 0 ok, 1 failure, 2 usage, 3 not found, 4 conflict or lock, 130 cancelled.
+exit codes: 0 ok, 1 failure, 2 usage, 3 not found, 4 conflict or lock (store busy), 10 no store there,
+11 store read-only, 12 no space left, 13 not a cutbook store or damaged, 14 permission denied, 130 cancelled.
 Every command takes --json: one JSON document on stdout, human text on stderr."""
 
 

@@ -37,7 +37,7 @@ def cmd_run(args) -> int:
     from workspace.services import params as psvc
     from workspace.services import runs as svc
 
-    with session(args) as (store, out), progress_bar() as bar:
+    with session(args, writes=True) as (store, out), progress_bar() as bar:
         spec = svc.prepare_run(store, args.ref, params_ref=args.params, method=args.method,
                                sets=psvc.parse_sets(args.set), k=args.k, seed=args.seed, repeats=args.repeats,
                                perturb=args.perturb)
@@ -72,7 +72,7 @@ def _print_communities(out, r: dict, limit: int = 30) -> None:
 def cmd_rerun(args) -> int:
     from workspace.services import runs as svc
 
-    with session(args) as (store, out), progress_bar() as bar:
+    with session(args, writes=True) as (store, out), progress_bar() as bar:
         res = svc.rerun(store, args.run, progress=bar)
         bar.close()
         if args.json:
@@ -86,7 +86,7 @@ def cmd_rerun(args) -> int:
 def cmd_attach(args) -> int:
     from workspace.services import runs as svc
 
-    with session(args) as (store, out):
+    with session(args, writes=True) as (store, out):
         res = svc.attach(store, args.file, args.to, label=args.label)
         if args.json:
             emit_json(res)

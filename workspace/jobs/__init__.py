@@ -30,7 +30,7 @@ def _child(store_url: str, spec: dict[str, Any], events, stop) -> None:
 
     run_id = None
     try:
-        store = open_workspace(store_url)
+        store = open_workspace(store_url, create=False, require_write=True)
         spec_obj = RunSpec(**spec)
         graph = runs._load_version_graph(store, spec_obj.version_id)
         run_id = runs._insert_running(store, spec_obj)

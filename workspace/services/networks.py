@@ -72,7 +72,7 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
     if progress:
         progress("store", 0, None)
     arrays = repo.encode_graph(graph)  # compress before taking the write lock
-    with store.write() as s:
+    with store.write(needed=sum(len(a.data) for a in arrays.values())) as s:
         proj = repo.get_or_create_project(s, project)
         net = repo.get_or_create_network(s, proj, network)
         latest = repo.latest_version(s, net.id)

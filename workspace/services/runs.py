@@ -17,7 +17,7 @@ from dataclasses import asdict, dataclass, field
 from typing import Any, Callable
 
 import numpy as np
-from sqlalchemy import select, update
+from sqlalchemy import delete, select, update
 
 from workspace.domain import GraphData, VersionRef, canonical_labels, compact_label_dtype, membership_hash
 from workspace.errors import Cancelled, ComputeError, CutbookError, NotFoundError, ParameterError, UsageError
@@ -251,18 +251,23 @@ def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None
 # --- recording ---------------------------------------------------------------------------
 
 def _insert_running(store: Store, spec: RunSpec, *, kind: str = "computed", label: str = "") -> int:
-    pid = os.getpid()
     with store.write() as s:
-        run = Run(version_id=spec.version_id, param_set_version_id=spec.param_set_version_id,
-                  rerun_of=spec.rerun_of, kind=kind, method=spec.method, label=label,
-                  params_json=json.dumps({**spec.params, "perturb": spec.perturb} if spec.repeats > 1
-                                         else spec.params, sort_keys=True),
-                  k_requested=spec.k, seed=spec.seed if kind == "computed" else None, repeats=spec.repeats,
-                  status="running", started_at=repo.utcnow(), host=socket.gethostname(), pid=pid,
-                  process_token=_process_token(pid), provenance_json=json.dumps(provenance(), sort_keys=True))
+        run = _new_run(spec, kind=kind, label=label)
         s.add(run)
         s.flush()
         return run.id
+
+
+def _new_run(spec: RunSpec, *, kind: str = "computed", label: str = "") -> Run:
+    """A ``running`` run record for ``spec`` (not yet added to any session)."""
+    pid = os.getpid()
+    return Run(version_id=spec.version_id, param_set_version_id=spec.param_set_version_id,
+               rerun_of=spec.rerun_of, kind=kind, method=spec.method, label=label,
+               params_json=json.dumps({**spec.params, "perturb": spec.perturb} if spec.repeats > 1
+                                      else spec.params, sort_keys=True),
+               k_requested=spec.k, seed=spec.seed if kind == "computed" else None, repeats=spec.repeats,
+               status="running", started_at=repo.utcnow(), host=socket.gethostname(), pid=pid,
+               process_token=_process_token(pid), provenance_json=json.dumps(provenance(), sort_keys=True))
 
 
 def _json_floats(obj):
@@ -279,8 +284,10 @@ def _json_floats(obj):
     return obj
 
 
-def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None = None,
-            error: str | None = None) -> None:
+def _finish(store: Store, run_id: int | None, status: str, *, computed: Computed | None = None,
+            error: str | None = None, new_run: Run | None = None) -> int:
+    """Record a run's outcome; with ``new_run`` (attached partitions) the run is inserted in the
+    same transaction, so nothing is left half-recorded. Returns the run id."""
     from workspace.store.blobs import encode_array
 
     encoded = {}
@@ -292,7 +299,11 @@ def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None
         if computed.stability_counts is not None:
             c = computed.stability_counts
             encoded["stability"] = encode_array(c.astype(np.uint8 if c.max(initial=0) < 256 else np.uint16))
-    with store.write() as s:
+    with store.write(needed=sum(len(e.data) for e in encoded.values()) or None) as s:
+        if new_run is not None:
+            s.add(new_run)
+            s.flush()
+            run_id = new_run.id
         run = s.get(Run, run_id)
         if run is None or run.status != "running":
             raise ComputeError(f"run {run_id} is no longer running; its outcome was not recorded")
@@ -317,6 +328,27 @@ def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None
             for name, value in computed.quality.items():
                 if isinstance(value, (int, float, np.number)) and not isinstance(value, bool):
                     s.add(RunMeasure(run_id=run_id, name=name, value=_num(value)))
+    return run_id
+
+
+def _record_outcome(store: Store, run_id: int, status: str, **outcome) -> None:
+    """:func:`_finish`; when the disk is too full to store the outcome, take back the run's ``running``
+    record too, so the store is as it was before the command (if even that cannot be written, the
+    next open marks the record interrupted)."""
+    from workspace.errors import NoSpace
+
+    try:
+        _finish(store, run_id, status, **outcome)
+    except NoSpace as exc:
+        store.checkpoint()  # gives back the log's space when the main file has room for its pages
+        try:
+            with store.write() as s:
+                s.execute(delete(Run).where(Run.id == run_id, Run.status == "running"))
+            exc.message += f" (run {run_id} was not recorded)"
+        except CutbookError:
+            exc.message += (f" (run {run_id} stays 'running' for now; the next command that opens the store "
+                            "marks it interrupted)")
+        raise
 
 
 def _num(x):
@@ -342,7 +374,7 @@ def execute(store: Store, run_id: int, spec: RunSpec, graph: GraphData, *, progr
         raise ComputeError(f"run {run_id} failed: {type(exc).__name__}: {exc}") from exc
     if progress:
         progress("store", 0, None)
-    _finish(store, run_id, "done", computed=computed)
+    _record_outcome(store, run_id, "done", computed=computed)
 
 
 def _load_version_graph(store: Store, version_id: int) -> GraphData:
@@ -429,8 +461,8 @@ def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, labe
     computed = Computed(labels=labels, k=int(labels.max()) + 1, eigenvalues=np.empty(0), quality=q,
                         communities=communities, warnings=warnings,
                         diagnostics={"missing_nodes": missing, "file_rows": info.get("rows")})
-    run_id = _insert_running(store, spec, kind="attached", label=label.strip())
-    _finish(store, run_id, "done", computed=computed)
+    run_id = _finish(store, None, "done", computed=computed, new_run=_new_run(spec, kind="attached",
+                                                                             label=label.strip()))
     out = show_run(store, run_id, include_labels=False)
     out["missing_nodes"] = missing
     return out
@@ -544,7 +576,22 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
     from workspace.io import write_membership
 
     node_ids, labels, summary = load_membership(store, run_id)
-    write_membership(path, node_ids, labels, format=format)
+    # Written beside the target and renamed over it: a full disk or a refused write leaves no partial file.
+    target = os.fspath(path)
+    partial = os.path.join(os.path.dirname(os.path.abspath(target)), f".{os.path.basename(target)}.partial-{os.getpid()}")
+    try:
+        write_membership(partial, node_ids, labels, format=format)
+        os.replace(partial, target)
+    except BaseException as exc:
+        try:
+            os.unlink(partial)
+        except OSError:
+            pass
+        if isinstance(exc, OSError) and exc.filename in (None, partial):
+            exc.filename = target
+        if isinstance(exc, CutbookError) and exc.path == partial:
+            exc.path = target
+        raise
     return {"run": run_id, "path": os.fspath(path), "format": format, "nodes": int(labels.shape[0]),
             "membership_hash": summary["membership_hash"]}
 

@@ -19,10 +19,10 @@ from typing import Iterator
 
 from sqlalchemy import create_engine, event, inspect, text
 from sqlalchemy.engine import Engine, make_url
-from sqlalchemy.exc import OperationalError
 from sqlalchemy.orm import Session, sessionmaker
 
-from workspace.errors import ConflictError, StoreError
+from workspace.errors import CutbookError, StoreError
+from workspace.store import faults
 
 BUSY_TIMEOUT_MS = 60_000
 # The newest migration's revision id. Checking a store against it needs no Alembic import, which
@@ -35,6 +35,11 @@ def default_store_path() -> Path:
     import platformdirs
 
     return Path(platformdirs.user_data_dir("cutbook", appauthor=False)) / "cutbook.sqlite"
+
+
+def default_demo_path() -> Path:
+    """Where ``cutbook demo`` builds its own store when no store is named."""
+    return default_store_path().with_name("demo.sqlite")
 
 
 def resolve_store_url(store: str | os.PathLike | None = None) -> str:
@@ -51,6 +56,68 @@ def resolve_store_url(store: str | os.PathLike | None = None) -> str:
     return "sqlite:///" + os.path.abspath(os.path.expanduser(value))
 
 
+def sqlite_file(url: str) -> Path | None:
+    """The file of an SQLite store URL (None for in-memory or server databases)."""
+    parsed = make_url(url)
+    db = parsed.database
+    if parsed.get_backend_name() != "sqlite" or not db or db == ":memory:" or db.startswith("file:"):
+        return None
+    return Path(db)
+
+
+def display_name(url: str) -> str:
+    """How messages name a store: its file path, or its URL without the password."""
+    path = sqlite_file(url)
+    if path is not None:
+        return os.fspath(path)
+    try:
+        return make_url(url).render_as_string(hide_password=True)
+    except Exception:  # noqa: BLE001 - a URL SQLAlchemy cannot parse is named as given
+        return url
+
+
+SQLITE_MAGIC = b"SQLite format 3\x00"
+
+
+def inspect_sqlite_file(path: Path) -> str:
+    """``"absent"``, ``"empty"`` (0 bytes) or ``"present"``, from the file's first 100 bytes, without SQLite.
+
+    Raises the matching fault for a folder, an unreadable file, a file that is
+    not an SQLite database, or one cut short: its header's page count times its
+    page size (SQLite "Database File Format", section 1.3: offsets 16, 28, 24, 92)
+    is larger than the file.
+    """
+    if path.is_dir():
+        raise faults.not_a_store(path, "it is a folder")
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(100)
+            size = os.fstat(fh.fileno()).st_size
+    except (FileNotFoundError, NotADirectoryError):
+        return "absent"
+    except PermissionError:
+        raise faults.permission_denied(os.fspath(path)) from None
+    except OSError as exc:
+        err = faults.translate(exc, path=path)
+        if err is None:
+            raise
+        raise err from None
+    if size == 0:
+        return "empty"
+    if not head.startswith(SQLITE_MAGIC):
+        raise faults.not_a_store(os.fspath(path))
+    if len(head) < 100:
+        raise faults.damaged(os.fspath(path), f"the file is cut short: {size} bytes, less than its header",
+                             verify=False)
+    page_size = int.from_bytes(head[16:18], "big")
+    page_size = 65536 if page_size == 1 else page_size
+    pages = int.from_bytes(head[28:32], "big")
+    if pages and head[24:28] == head[92:96] and size < pages * page_size:
+        raise faults.damaged(os.fspath(path), f"the file is cut short: {size} of its {pages * page_size} bytes",
+                             verify=False)
+    return "present"
+
+
 def migrations_dir() -> Path:
     """The Alembic folder: ``workspace/migrations`` in a wheel, ``./migrations`` in a checkout."""
     package = Path(__file__).resolve().parent.parent
@@ -60,25 +127,46 @@ def migrations_dir() -> Path:
     raise StoreError(f"schema migrations not found next to {package}; the installation is incomplete")
 
 
-def _make_engine(url: str, *, foreign_keys: bool = True) -> Engine:
+def _make_engine(url: str, *, foreign_keys: bool = True, access: str = "rw") -> Engine:
+    """An engine on ``url``. SQLite ``access``: ``rw`` (WAL), ``ro`` (``?mode=ro``) or ``immutable``.
+
+    ``ro`` still takes SQLite's locks and reads the write-ahead log, so it needs a
+    ``-shm`` file it may use; ``immutable`` (``?immutable=1``) takes no locks and
+    reads only the main file: for read-only media, where nobody can be writing.
+    Neither mode ever creates the file or its folder.
+    """
     parsed = make_url(url)
     is_sqlite = parsed.get_backend_name() == "sqlite"
-    kwargs = {}
+    kwargs: dict = {}
+    timeout = faults.busy_timeout_s()
     if is_sqlite:
+        kwargs["connect_args"] = {"timeout": timeout}
         db = parsed.database
-        if db and db != ":memory:":
-            Path(db).parent.mkdir(parents=True, exist_ok=True)
-        kwargs["connect_args"] = {"timeout": BUSY_TIMEOUT_MS / 1000}
+        if access != "rw" and db and db != ":memory:":
+            from urllib.parse import quote
+
+            uri = "file:" + quote(os.path.abspath(db)) + ("?mode=ro" if access == "ro" else "?immutable=1")
+
+            def _connect():
+                return sqlite3.connect(uri, uri=True, timeout=timeout, check_same_thread=False)
+
+            kwargs = {"creator": _connect}
     engine = create_engine(url, **kwargs)
     if is_sqlite:
         @event.listens_for(engine, "connect")
         def _on_connect(dbapi_conn, _record):  # pragma: no cover - exercised by every test
             dbapi_conn.isolation_level = None  # we emit BEGIN ourselves (see _on_begin)
             cur = dbapi_conn.cursor()
-            cur.execute(f"PRAGMA busy_timeout={BUSY_TIMEOUT_MS}")
+            cur.execute(f"PRAGMA busy_timeout={int(timeout * 1000)}")
             cur.execute(f"PRAGMA foreign_keys={'ON' if foreign_keys else 'OFF'}")
-            cur.execute("PRAGMA journal_mode=WAL")
-            cur.execute("PRAGMA synchronous=NORMAL")
+            if access == "rw":
+                # WAL is a setting kept in the file: made once, for a new store. An existing file keeps
+                # its mode, so opening someone else's database (refused later) does not change it.
+                if cur.execute("PRAGMA page_count").fetchone()[0] == 0:
+                    cur.execute("PRAGMA journal_mode=WAL")
+                cur.execute("PRAGMA synchronous=NORMAL")
+            else:
+                cur.execute("PRAGMA query_only=ON")
             cur.close()
 
         @event.listens_for(engine, "begin")
@@ -118,11 +206,19 @@ def _current_revision(conn) -> str | None:
 
 
 class Store:
-    """An open store: an engine plus transaction helpers (``services.store.open_workspace`` makes one)."""
+    """An open store: an engine plus transaction helpers (``services.store.open_workspace`` makes one).
 
-    def __init__(self, url: str, engine: Engine) -> None:
+    Every database fault inside :meth:`read` and :meth:`write` leaves as one of
+    the errors of :mod:`workspace.store.faults` (no SQL text). A store opened
+    read-only (``readonly`` gives the reason) refuses :meth:`write` before
+    touching the database.
+    """
+
+    def __init__(self, url: str, engine: Engine, *, readonly: str | None = None) -> None:
         self.url = url
         self.engine = engine
+        self.readonly = readonly
+        self.name = display_name(url)
         self._write_engine = engine.execution_options(cutbook_write=True)
         self._read_sessions = sessionmaker(bind=engine, expire_on_commit=False)
         self._write_sessions = sessionmaker(bind=self._write_engine, expire_on_commit=False)
@@ -133,26 +229,49 @@ class Store:
 
     @property
     def sqlite_path(self) -> Path | None:
-        db = self.engine.url.database
-        return Path(db) if self.is_sqlite and db and db != ":memory:" else None
+        return sqlite_file(self.url)
+
+    def refusal(self) -> CutbookError:
+        """The error a write gets on this read-only store."""
+        if self.readonly == faults.FULL_DISK:
+            return faults.no_space(self.name)
+        return faults.read_only(self.name, detail=self.readonly)
 
     @contextmanager
     def read(self) -> Iterator[Session]:
-        with self._read_sessions() as session:
-            with session.begin():
-                yield session
-
-    @contextmanager
-    def write(self) -> Iterator[Session]:
-        """One short write transaction; commits on success, rolls back on any error."""
-        with self._write_sessions() as session:
-            try:
+        with faults.translating(self.name):
+            with self._read_sessions() as session:
                 with session.begin():
                     yield session
-            except OperationalError as exc:
-                if "locked" in str(exc).lower() or "busy" in str(exc).lower():
-                    raise ConflictError(f"the store is locked by another writer ({exc.orig})") from exc
-                raise
+
+    @contextmanager
+    def write(self, *, needed: int | None = None) -> Iterator[Session]:
+        """One short write transaction; commits on success, rolls back on any error.
+
+        ``needed``: about how many bytes the transaction adds (named in a 'no space' message).
+        """
+        if self.readonly is not None:
+            raise self.refusal()
+        free = faults.disk_free(self.sqlite_path) if self.is_sqlite else None
+        with faults.translating(self.name, writing=True, needed=needed, free=free):
+            with self._write_sessions() as session:
+                with session.begin():
+                    yield session
+
+    def checkpoint(self) -> bool:
+        """SQLite: copy the write-ahead log into the main file and truncate it (frees its disk space).
+        Best effort: returns False when it could not (busy, no room, read-only, not SQLite)."""
+        if not self.is_sqlite or self.readonly is not None:
+            return False
+        try:
+            raw = self.engine.raw_connection()
+            try:
+                busy, _, _ = raw.driver_connection.execute("PRAGMA wal_checkpoint(TRUNCATE)").fetchone()
+            finally:
+                raw.close()
+            return busy == 0
+        except Exception:  # noqa: BLE001 - best effort by contract
+            return False
 
     def dispose(self) -> None:
         self.engine.dispose()
@@ -170,15 +289,33 @@ def _has_data(conn) -> bool:
 
 
 def _backup_sqlite(path: Path, revision: str | None) -> Path:
+    """Copy the store next to itself (SQLite's online backup); a copy that fails is removed."""
     stamp = datetime.now(timezone.utc).strftime("%Y%m%dT%H%M%SZ")
     target = path.with_name(f"{path.name}.backup-{revision or 'empty'}-{stamp}")
-    src = sqlite3.connect(str(path), timeout=BUSY_TIMEOUT_MS / 1000)
-    dst = sqlite3.connect(str(target))
     try:
-        src.backup(dst)
-    finally:
-        dst.close()
-        src.close()
+        src = sqlite3.connect(str(path), timeout=faults.busy_timeout_s())
+        try:
+            dst = sqlite3.connect(str(target))
+            try:
+                src.backup(dst)
+            finally:
+                dst.close()
+        finally:
+            src.close()
+    except BaseException as exc:
+        target.unlink(missing_ok=True)
+        for suffix in ("-journal", "-wal", "-shm"):
+            Path(f"{target}{suffix}").unlink(missing_ok=True)
+        if not isinstance(exc, Exception):
+            raise
+        err = faults.translate(exc, path=target, writing=True)
+        if isinstance(err, faults.NoSpace):
+            err = faults.no_space(os.fspath(target), needed=path.stat().st_size,
+                                  what="copying the store before its schema upgrade failed; the store was not "
+                                       "changed and the partial copy was removed")
+        if err is None:
+            raise
+        raise err from exc
     return target
 
 
@@ -187,7 +324,8 @@ def migrate(url: str, *, target: str = "head", backup: bool = True) -> Path | No
 
     Foreign keys are off while migrating (batch table rebuilds would otherwise
     cascade-delete child rows); ``PRAGMA foreign_key_check`` runs before commit
-    and any violation aborts the upgrade. Returns the backup path, if one was made.
+    and any violation aborts the upgrade. Returns the backup path, if one was made;
+    an upgrade that fails (no space, say) rolls back and removes its backup copy.
     """
     from alembic import command
     from alembic.script import ScriptDirectory
@@ -197,29 +335,30 @@ def migrate(url: str, *, target: str = "head", backup: bool = True) -> Path | No
     engine = _make_engine(url, foreign_keys=False)
     backup_path = None
     try:
-        with engine.execution_options(cutbook_write=True).connect() as conn:
-            with conn.begin():
-                current = _current_revision(conn)
-                if current is not None and current not in known:
-                    raise StoreError(
-                        f"this store has schema revision {current}, newer than this cutbook knows; "
-                        "upgrade cutbook to open it (the store was not touched)")
-                wanted = script.get_revision(target).revision if target != "head" else script.get_current_head()
-                if current == wanted:
-                    return None
-                if backup and engine.dialect.name == "sqlite" and _has_data(conn):
-                    db = engine.url.database
-                    if db and db != ":memory:":
-                        backup_path = _backup_sqlite(Path(db), current)
-                command.upgrade(_alembic_config(conn), target)
-                if engine.dialect.name == "sqlite":
-                    bad = conn.exec_driver_sql("PRAGMA foreign_key_check").fetchall()
-                    if bad:
-                        raise StoreError(f"migration left {len(bad)} broken references; upgrade rolled back")
+        with faults.translating(display_name(url), writing=True):
+            with engine.execution_options(cutbook_write=True).connect() as conn:
+                with conn.begin():
+                    current = _current_revision(conn)
+                    if current is not None and current not in known:
+                        raise StoreError(
+                            f"this store has schema revision {current}, newer than this cutbook knows; "
+                            "upgrade cutbook to open it (the store was not touched)")
+                    wanted = script.get_revision(target).revision if target != "head" else script.get_current_head()
+                    if current == wanted:
+                        return None
+                    if backup and engine.dialect.name == "sqlite" and _has_data(conn):
+                        db = sqlite_file(url)
+                        if db is not None:
+                            backup_path = _backup_sqlite(db, current)
+                    command.upgrade(_alembic_config(conn), target)
+                    if engine.dialect.name == "sqlite":
+                        bad = conn.exec_driver_sql("PRAGMA foreign_key_check").fetchall()
+                        if bad:
+                            raise StoreError(f"migration left {len(bad)} broken references; upgrade rolled back")
         return backup_path
-    except OperationalError as exc:
-        if "locked" in str(exc).lower():
-            raise ConflictError(f"the store is locked by another process ({exc.orig})") from exc
+    except BaseException:
+        if backup_path is not None:
+            backup_path.unlink(missing_ok=True)
         raise
     finally:
         engine.dispose()

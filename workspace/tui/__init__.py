@@ -26,9 +26,10 @@ def run_app(store: str | None) -> int:
     from workspace.services.store import open_workspace
 
     try:
-        opened = open_workspace(store, notify=lambda line: print(line, file=sys.stderr))
+        # Never creates a store (a mistyped path says so); a read-only store opens for browsing.
+        opened = open_workspace(store, notify=lambda line: print(line, file=sys.stderr), create=False)
     except CutbookError as exc:
-        print(f"cutbook: {exc}", file=sys.stderr)
+        print(f"cutbook: error: {exc}", file=sys.stderr)
         return exc.exit_code
     try:
         from workspace.tui.app import CutbookApp

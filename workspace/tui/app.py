@@ -132,6 +132,8 @@ class CutbookApp(App):
         self.register_theme(INK_THEME)
         self.theme = "cutbook-ink"
         self.sub_title = self.store.url.removeprefix("sqlite:///")
+        if getattr(self.store, "readonly", None):  # browsing works; launching and saving are refused
+            self.sub_title += f"  (read-only: {self.store.readonly})"
         self.push_screen(self.workspace_screen("ledger"))
         self.set_interval(self.poll_interval, self._poll_job, name="run-job-poll")
 
@@ -220,6 +222,9 @@ class CutbookApp(App):
     def start_job(self, spec) -> None:
         from workspace.jobs import RunJob
 
+        if getattr(self.store, "readonly", None):
+            self.report(self.store.refusal())
+            return
         try:
             self.job = RunJob(self.store.url, spec).start()
         except Exception as exc:  # noqa: BLE001
