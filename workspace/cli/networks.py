@@ -138,6 +138,9 @@ def cmd_show(args) -> int:
         out.line(f"{info['ref']}   {info['nodes']} nodes, {info['edges']} edges   hash {info['content_hash']}")
         out.fields([("created", info["created"]), ("message", info["message"] or "-"),
                     ("parent", info["parent"] or "- (first version)")])
+        from workspace.cli.notes import print_annotations
+
+        print_annotations(out, info)
         out.line("")
         out.line("import report")
         print_report(out, info["report"])

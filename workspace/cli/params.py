@@ -34,6 +34,9 @@ def cmd_params(args) -> int:
                 out.line(f"{res['ref']}   method {res['method']}   k {res['k'] or 'default'}   "
                          f"versions {', '.join(map(str, res['versions']))}")
                 out.fields(list(res["params"].items()))
+                from workspace.cli.notes import print_annotations
+
+                print_annotations(out, res)
     return 0
 
 

@@ -108,8 +108,16 @@ def list_networks(store: Store, project: str | None = None) -> list[dict[str, An
 def _network(s, ref: VersionRef) -> Network:
     net = repo.find_network(s, ref.project, ref.network)
     if net is None:
-        raise NotFoundError(f"no network {ref.project}/{ref.network}")
+        raise network_not_found(s, ref.project, ref.network)
     return net
+
+
+def network_not_found(s, project: str, network: str) -> NotFoundError:
+    """``no network P/N`` with a 'did you mean' among the store's project/network names."""
+    from workspace.services.suggest import close_names, hint
+
+    names = [f"{r.project}/{r.network}" for r in repo.list_networks(s)]
+    return NotFoundError(f"no network {project}/{network}{hint(close_names(f'{project}/{network}', names))}")
 
 
 def resolve_version(s, ref: VersionRef) -> NetworkVersion:
@@ -126,7 +134,12 @@ def list_versions(store: Store, ref: str | VersionRef) -> list[dict[str, Any]]:
     ref = VersionRef.parse(ref) if isinstance(ref, str) else ref
     with store.read() as s:
         net = _network(s, ref)
-        return [version_summary(v, ref.project, ref.network) for v in repo.list_versions(s, net.id)]
+        from workspace.services.annotations import current_for
+
+        versions = repo.list_versions(s, net.id)
+        ann = current_for(s, "version", [v.id for v in versions])
+        return [{**version_summary(v, ref.project, ref.network), "tags": ann.get(v.id, {}).get("tags", [])}
+                for v in versions]
 
 
 def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20) -> dict[str, Any]:
@@ -137,6 +150,9 @@ def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20)
     with store.read() as s:
         v = resolve_version(s, ref)
         out = version_summary(v, ref.project, ref.network)
+        from workspace.services.annotations import current_for
+
+        out.update(current_for(s, "version", [v.id]).get(v.id, {"tags": [], "notes": []}))
         out["policy"] = json.loads(v.policy_json)
         out["report"] = json.loads(v.report_json)
         out["parent"] = None

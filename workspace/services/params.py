@@ -130,6 +130,9 @@ def show_params(store: Store, ref: str) -> dict[str, Any]:
         out["versions"] = list(s.scalars(select(ParamSetVersion.number)
                                          .where(ParamSetVersion.param_set_id == v.param_set_id)
                                          .order_by(ParamSetVersion.number)))
+        from workspace.services.annotations import current_for
+
+        out.update(current_for(s, "params", [v.id]).get(v.id, {"tags": [], "notes": []}))
         return out
 
 
@@ -143,4 +146,8 @@ def list_params(store: Store, project: str | None = None) -> list[dict[str, Any]
              .order_by(Project.name, ParamSet.name, ParamSetVersion.number))
         if project is not None:
             q = q.where(Project.name == project)
-        return [_row_dict(p, n, v) for p, n, v in s.execute(q).all()]
+        rows = s.execute(q).all()
+        from workspace.services.annotations import current_for
+
+        ann = current_for(s, "params", [v.id for _, _, v in rows])
+        return [{**_row_dict(p, n, v), "tags": ann.get(v.id, {}).get("tags", [])} for p, n, v in rows]
