@@ -73,12 +73,17 @@ def _current(rows: Iterable[Annotation]) -> tuple[list[str], list[dict[str, Any]
         elif a.action == "untag":
             tags.pop(a.text, None)
         else:
-            notes.append({"note": a.text, "added": a.created_at.isoformat(timespec="seconds")})
+            notes.append({"note": a.text, "added": _iso(a.created_at)})
     return sorted(tags), notes
 
 
 def _event(a: Annotation) -> dict[str, Any]:
-    return {"id": a.id, "action": a.action, "text": a.text, "at": a.created_at.isoformat(timespec="seconds")}
+    return {"id": a.id, "action": a.action, "text": a.text, "at": _iso(a.created_at)}
+
+
+def _iso(t) -> str:
+    """UTC time as the other listings print it (SQLite hands the value back without its zone)."""
+    return t.replace(tzinfo=None).isoformat(timespec="seconds")
 
 
 def _state(s, kind: str, row_id: int, ref: str, added: list[Annotation] | None = None) -> dict[str, Any]:
