@@ -378,3 +378,18 @@ def test_read_only_commands_leave_the_store_as_it_was(cli, club, store_path):
                  ("tagged", "keep"), ("where", "m01"), ("diff", "--track", club["njw2"], club["njw4"])):
         assert cli(*argv).code == 0, argv
     assert dump_store(store_path) == before
+
+
+def test_unknown_names_get_did_you_mean(cli, club, store_path):
+    cli("params", "save", "club/two", "--method", "njw", "--k", "2")
+    before = dump_store(store_path)
+    for argv, expected in ((("networks", "--project", "Club"), "did you mean club?"),
+                           (("params", "list", "clu"), "did you mean club?"),
+                           (("params", "show", "club/tw"), "did you mean club/two?"),
+                           (("run", "club/Karate", "--method", "njw"), "did you mean club/karate?"),
+                           (("delete", "CLUB", "--yes"), "did you mean club?"),
+                           (("show", "club/karate@5"), "its versions are 1 to 1")):
+        r = cli(*argv)
+        _one_line_error(r, 3)
+        assert expected in r.err, (argv, r.err)
+    assert dump_store(store_path) == before

@@ -39,10 +39,9 @@ def describe_target(store: Store, target: str) -> dict[str, Any]:
     with store.read() as s:
         proj = repo.find_project(s, project)
         if proj is None:
-            from workspace.services.suggest import close_names, hint
+            from workspace.services.networks import project_not_found
 
-            names = [r.name for r in repo.list_projects(s)]
-            raise NotFoundError(f"no project named {project!r}{hint(close_names(project, names))}")
+            raise project_not_found(s, project)
         nets = select(Network.id).where(Network.project_id == proj.id)
         if network:
             net = repo.find_network(s, project, network)

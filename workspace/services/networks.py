@@ -100,7 +100,7 @@ def list_projects(store: Store) -> list[dict[str, Any]]:
 def list_networks(store: Store, project: str | None = None) -> list[dict[str, Any]]:
     with store.read() as s:
         if project is not None and repo.find_project(s, project) is None:
-            raise NotFoundError(f"no project named {project!r}")
+            raise project_not_found(s, project)
         return [{"project": r.project, "network": r.network, "latest_version": r.latest,
                  "created": r.created_at.isoformat(timespec="seconds")} for r in repo.list_networks(s, project)]
 
@@ -120,13 +120,23 @@ def network_not_found(s, project: str, network: str) -> NotFoundError:
     return NotFoundError(f"no network {project}/{network}{hint(close_names(f'{project}/{network}', names))}")
 
 
+def project_not_found(s, project: str) -> NotFoundError:
+    """``no project named 'P'`` with a 'did you mean' among the store's project names."""
+    from workspace.services.suggest import close_names, hint
+
+    names = [r.name for r in repo.list_projects(s)]
+    return NotFoundError(f"no project named {project!r}{hint(close_names(project, names))}")
+
+
 def resolve_version(s, ref: VersionRef) -> NetworkVersion:
     """The version row ``ref`` names (latest when it names none). For services only."""
     net = _network(s, ref)
     v = repo.find_version(s, net.id, ref.version)
     if v is None:
         what = f"version {ref.version}" if ref.version is not None else "any version"
-        raise NotFoundError(f"network {ref.project}/{ref.network} has no {what}")
+        latest = repo.latest_version(s, net.id)
+        have = f" (its versions are 1 to {latest.number})" if latest is not None else ""
+        raise NotFoundError(f"network {ref.project}/{ref.network} has no {what}{have}")
     return v
 
 

@@ -113,7 +113,11 @@ def find_params(s, ref: str) -> tuple[str, str, ParamSetVersion]:
     ps = s.scalar(select(ParamSet).join(Project, Project.id == ParamSet.project_id)
                   .where(Project.name == project, ParamSet.name == name))
     if ps is None:
-        raise NotFoundError(f"no parameter set {project}/{name}")
+        from workspace.services.suggest import close_names, hint
+
+        names = [f"{p}/{n}" for p, n in s.execute(select(Project.name, ParamSet.name)
+                                                 .join(ParamSet, ParamSet.project_id == Project.id)).all()]
+        raise NotFoundError(f"no parameter set {project}/{name}{hint(close_names(f'{project}/{name}', names))}")
     q = select(ParamSetVersion).where(ParamSetVersion.param_set_id == ps.id)
     q = q.where(ParamSetVersion.number == version) if version is not None else \
         q.order_by(ParamSetVersion.number.desc()).limit(1)
@@ -139,7 +143,9 @@ def show_params(store: Store, ref: str) -> dict[str, Any]:
 def list_params(store: Store, project: str | None = None) -> list[dict[str, Any]]:
     with store.read() as s:
         if project is not None and repo.find_project(s, project) is None:
-            raise NotFoundError(f"no project named {project!r}")
+            from workspace.services.networks import project_not_found
+
+            raise project_not_found(s, project)
         q = (select(Project.name, ParamSet.name, ParamSetVersion)
              .join(ParamSet, ParamSet.project_id == Project.id)
              .join(ParamSetVersion, ParamSetVersion.param_set_id == ParamSet.id)
