@@ -393,3 +393,22 @@ def test_unknown_names_get_did_you_mean(cli, club, store_path):
         _one_line_error(r, 3)
         assert expected in r.err, (argv, r.err)
     assert dump_store(store_path) == before
+
+
+def test_semicolon_file_with_decimal_commas_is_not_read_as_phantom_ids(cli, tmp_path, store_path):
+    # `a;b;1,5` split at the comma gives ids "a;b;1" and "5" that exist nowhere: refuse, name --delimiter
+    f = tmp_path / "eu.csv"
+    f.write_text("a;b;1,5\nb;c;2,5\nc;a;3,5\n", encoding="utf-8")
+    cli("projects")
+    before = dump_store(store_path)
+    r = cli("import", f, "--project", "p", "--network", "eu")
+    _one_line_error(r, 1)
+    assert f"{f}:1: " in r.err and "--delimiter ';'" in r.err
+    assert dump_store(store_path) == before
+    r = cli("import", f, "--project", "p", "--network", "eu", "--delimiter", ";", "--json")
+    assert r.code == 0, r.err
+    # reference: networkx.read_edgelist with the same separator, weights left aside
+    G = nx.read_edgelist(f, delimiter=";", data=False)
+    assert (r.json["nodes"], r.json["edges"]) == (G.number_of_nodes(), G.number_of_edges())
+    # an explicit --delimiter ',' reads the file as it is (the user asked for it)
+    assert cli("import", f, "--project", "p", "--network", "as-is", "--delimiter", ",").code == 0
