@@ -236,6 +236,7 @@ def test_tags_and_notes_are_insert_only_events(cli, club, store_path):
     # versions and parameter sets
     assert cli("tag", "club/karate@1", "clean").code == 0
     assert cli("versions", "club/karate", "--json").json[0]["tags"] == ["clean"]
+    assert "clean" in cli("versions", "club/karate").out
     assert cli("show", "club/karate", "--json").json["tags"] == ["clean"]
     assert cli("params", "save", "club/two", "--method", "njw", "--k", "2").code == 0
     assert cli("note", "club/two", "for the report", "--params").code == 0

@@ -96,9 +96,11 @@ def cmd_versions(args) -> int:
         if args.json:
             emit_json(rows)
         else:
-            out.table(["version", "nodes", "edges", "hash", "created", "source", "message"],
+            tags = any(r.get("tags") for r in rows)  # a tags column only once something is tagged
+            out.table(["version", "nodes", "edges", "hash", "created", "source", "message"] + ["tags"] * tags,
                       [(r["version"], r["nodes"], r["edges"], r["content_hash"][:12], r["created"], r["source"],
-                        r["message"]) for r in rows], right=["version", "nodes", "edges"])
+                        r["message"]) + ((" ".join(r["tags"]),) if tags else ()) for r in rows],
+                      right=["version", "nodes", "edges"])
     return 0
 
 
