@@ -413,3 +413,29 @@ def test_semicolon_file_with_decimal_commas_is_not_read_as_phantom_ids(cli, tmp_
     assert (r.json["nodes"], r.json["edges"]) == (G.number_of_nodes(), G.number_of_edges())
     # an explicit --delimiter ',' reads the file as it is (the user asked for it)
     assert cli("import", f, "--project", "p", "--network", "as-is", "--delimiter", ",").code == 0
+
+
+@pytest.mark.slow
+def test_delete_run_in_a_terminal_asks_for_the_ids(cli, club, store_path):
+    import os
+    import pty
+    import subprocess
+    import sys
+
+    env = {**os.environ, "PYTHONPATH": str(REPO)}
+    run = club["fiedler"]
+    for typed, code in ((b"yes\n", 1), (f"{run}\n".encode(), 0)):
+        before = dump_store(store_path)
+        master, slave = pty.openpty()
+        try:
+            os.write(master, typed)
+            proc = subprocess.run([sys.executable, "-m", "workspace.cli", "--store", str(store_path), "delete-run",
+                                   str(run)], stdin=slave, capture_output=True, text=True, env=env, timeout=120)
+        finally:
+            os.close(slave)
+            os.close(master)
+        assert proc.returncode == code, proc.stderr
+        assert f"type {run} and press Enter to delete" in proc.stderr
+        if code == 1:
+            assert "nothing deleted" in proc.stderr and dump_store(store_path) == before
+    assert cli("show", run).code == 3
