@@ -114,8 +114,8 @@ def build_parser() -> argparse.ArgumentParser:
     p = add("rerun", "repeat a run from its record and check the membership is identical", "runs", "cmd_rerun")
     p.add_argument("run", type=int)
 
-    p = add("attach", "store a partition from a membership file (node,community CSV; node-link JSON or GraphML "
-               "with a 'community' node attribute) as a run", "runs", "cmd_attach")
+    p = add("attach", "store a partition from a membership file (CSV, JSON or GraphML) as a run", "runs",
+            "cmd_attach")
     p.add_argument("file", help="CSV with columns node,community; .json node-link or .graphml with a 'community' "
                                 "attribute on each node")
     p.add_argument("--to", required=True, metavar="PROJECT/NETWORK[@V]")
@@ -131,7 +131,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=["csv", "json", "graphml"], default="csv")
     p.add_argument("-o", "--output", required=True, metavar="FILE")
 
-    p = add("where", "a node's community in every run of every version", "runs", "cmd_where")
+    p = add("where", "a node's community in every run of every version (of every network unless --network)",
+            "runs", "cmd_where")
     p.add_argument("node")
     p.add_argument("--network", metavar="PROJECT/NETWORK", help="search this network only (default: every network)")
 
@@ -168,7 +169,8 @@ def build_parser() -> argparse.ArgumentParser:
                               ("untag", "take tags off a run, network version or parameter set", "cmd_untag"),
                               ("annotations", "the tags, notes and annotation history of a run, network "
                                               "version or parameter set", "cmd_annotations")):
-        p = add(name, help_ + " (the record itself never changes)", "notes", func)
+        p = add(name, help_, "notes", func)
+        p.description = help_ + "; the annotated record itself never changes (annotations are events of their own)"
         p.add_argument("target", metavar="TARGET", help=target_help)
         if name == "note":
             p.add_argument("text", help="the note")
