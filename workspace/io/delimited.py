@@ -66,10 +66,10 @@ def resolve_delimiter(fmt: str, delimiter: str | None) -> str:
     return value
 
 
-def _delimiter_hint(line: bytes) -> str:
+def _delimiter_hint(line: bytes, current: str) -> str:
     """A hint naming the separator a one-field first line seems to use (``""`` when none fits)."""
     for sep, name in ((b";", "';'"), (b"\t", "tab"), (b"|", "'|'"), (b",", "','")):
-        if sep in line:
+        if sep in line and sep.decode() != current:
             return f"; the line looks separated by {name}: give --delimiter {name}"
     if len(line.split()) >= 2:
         return "; the line looks separated by blanks: give --delimiter whitespace (or --format edgelist)"
@@ -266,7 +266,7 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
     n_columns = first_table.num_columns
     if n_columns < 2:
         raise InputError(f"expected at least 2 fields (two endpoint ids) separated by {shown}, "
-                         f"found 1{_delimiter_hint(data[lead:] if first_end < 0 else data[lead:first_end])}",
+                         f"found 1{_delimiter_hint(data[lead:] if first_end < 0 else data[lead:first_end], delimiter)}",
                          path=path, line=header_line)
     sample_bytes = data
     if len(data) > _SAMPLE_BYTES:
