@@ -389,7 +389,8 @@ def test_unknown_names_get_did_you_mean(cli, club, store_path):
                            (("params", "show", "club/tw"), "did you mean club/two?"),
                            (("run", "club/Karate", "--method", "njw"), "did you mean club/karate?"),
                            (("delete", "CLUB", "--yes"), "did you mean club?"),
-                           (("show", "club/karate@5"), "its versions are 1 to 1")):
+                           (("show", "club/karate@5"), "its versions are 1 to 1"),
+                           (("params", "show", "club/two@4"), "its versions are 1 to 1")):
         r = cli(*argv)
         _one_line_error(r, 3)
         assert expected in r.err, (argv, r.err)

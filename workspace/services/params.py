@@ -123,7 +123,10 @@ def find_params(s, ref: str) -> tuple[str, str, ParamSetVersion]:
         q.order_by(ParamSetVersion.number.desc()).limit(1)
     v = s.scalar(q)
     if v is None:
-        raise NotFoundError(f"parameter set {project}/{name} has no version {version}")
+        newest = s.scalar(select(ParamSetVersion.number).where(ParamSetVersion.param_set_id == ps.id)
+                          .order_by(ParamSetVersion.number.desc()).limit(1))
+        raise NotFoundError(f"parameter set {project}/{name} has no version {version} "
+                            f"(its versions are 1 to {newest})")
     return project, name, v
 
 
