@@ -119,3 +119,23 @@ def test_suggestions():
     # difflib.get_close_matches (standard library) supplies near spellings for short name lists
     assert close_names("velmora/staions", ["velmora/stations", "orrin/lab"]) == ["velmora/stations"]
     assert hint([]) == "" and hint(["a", "b"]) == "; did you mean a or b?"
+
+
+def test_delete_runs_refuses_a_run_another_record_points_at(ring, store_path):
+    # a table this module does not know (say, a later feature's) referring to a run: the delete is refused
+    # as a conflict and nothing changes, rather than leaving a reference to nothing
+    import sqlite3
+
+    from tests_support import dump_store
+    from workspace.services.delete import delete_runs
+
+    run = _run(ring)
+    con = sqlite3.connect(store_path)
+    con.execute("CREATE TABLE later_feature (id INTEGER PRIMARY KEY, run_id INTEGER REFERENCES runs(id))")
+    con.execute("INSERT INTO later_feature (run_id) VALUES (?)", (run,))
+    con.commit()
+    con.close()
+    before = dump_store(store_path)
+    with pytest.raises(ConflictError, match="referred to by other records"):
+        delete_runs(ring, [run])
+    assert dump_store(store_path) == before
