@@ -127,6 +127,29 @@ def test_attach_reads_json_and_graphml_as_the_help_says(cli, club, tmp_path):
         assert _labels(cli, tmp_path, r.json["run"]) == base
 
 
+def test_attach_reads_other_separators_and_names_delimiter(cli, club, tmp_path, store_path):
+    base = _labels(cli, tmp_path, club["njw4"])
+    rows = "".join(f"{n};{c}\n" for n, c in base.items())
+    semi = tmp_path / "m.csv"
+    semi.write_text("node;community\n" + rows, encoding="utf-8")
+    before = dump_store(store_path)
+    r = cli("attach", semi, "--to", "club/karate", "--label", "semi")
+    _one_line_error(r, 1)
+    assert f"{semi}:1: " in r.err and "--delimiter ';'" in r.err
+    assert dump_store(store_path) == before
+    r = cli("attach", semi, "--to", "club/karate", "--label", "semi", "--delimiter", ";", "--json")
+    assert r.code == 0, r.err
+    assert _labels(cli, tmp_path, r.json["run"]) == base
+    tsv = tmp_path / "m.tsv"
+    tsv.write_text("node\tcommunity\n" + rows.replace(";", "\t"), encoding="utf-8")
+    assert _labels(cli, tmp_path, cli("attach", tsv, "--to", "club/karate", "--label", "tsv", "--json")
+                   .json["run"]) == base
+    other = tmp_path / "m.groups"
+    other.write_text("node,community\n" + rows.replace(";", ","), encoding="utf-8")
+    _one_line_error(cli("attach", other, "--to", "club/karate", "--label", "x"), 1)  # unknown extension
+    assert cli("attach", other, "--to", "club/karate", "--label", "x", "--format", "csv").code == 0
+
+
 @pytest.mark.parametrize("sep, hint", [(";", "--delimiter ';'"), ("|", "--delimiter '|'"), ("\t", "--delimiter tab"),
                                        (" ", "--delimiter whitespace")])
 def test_wrongly_delimited_file_suggests_delimiter(cli, tmp_path, store_path, sep, hint):

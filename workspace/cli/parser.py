@@ -120,6 +120,9 @@ def build_parser() -> argparse.ArgumentParser:
                                 "attribute on each node")
     p.add_argument("--to", required=True, metavar="PROJECT/NETWORK[@V]")
     p.add_argument("--label", required=True, help="what this grouping is, e.g. 'field-survey'")
+    p.add_argument("--format", choices=["csv", "json", "graphml"],
+                   help="membership file format (default: by extension; .tsv and .txt are CSV)")
+    p.add_argument("--delimiter", metavar="SEP", help="CSV field separator: ',' (default), ';', 'tab', '|', ...")
 
     p = add("runs", "list runs, newest first", "runs", "cmd_runs")
     p.add_argument("ref", nargs="?", metavar="PROJECT[/NETWORK[@V]]")

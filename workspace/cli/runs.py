@@ -87,7 +87,8 @@ def cmd_attach(args) -> int:
     from workspace.services import runs as svc
 
     with session(args) as (store, out):
-        res = svc.attach(store, args.file, args.to, label=args.label)
+        res = svc.attach(store, args.file, args.to, label=args.label, format=args.format,
+                         delimiter=args.delimiter)
         if args.json:
             emit_json(res)
         else:

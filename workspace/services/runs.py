@@ -386,8 +386,10 @@ def rerun(store: Store, run_id: int, *, progress: Progress | None = None,
 
 # --- attached partitions -------------------------------------------------------------------
 
-def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, label: str) -> dict[str, Any]:
-    """Store a partition read from a ``node,community`` CSV as a run of kind ``attached``."""
+def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, label: str,
+           format: str | None = None, delimiter: str | None = None) -> dict[str, Any]:
+    """Store a partition read from a membership file (see :func:`workspace.io.read_membership`) as a run
+    of kind ``attached``; ``format`` and ``delimiter`` are passed on to the reader."""
     from workspace.io import read_membership
     from workspace.spectral.quality import quality_measures
 
@@ -398,7 +400,7 @@ def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, labe
         version = resolve_version(s, vref)
         graph = repo.load_graph(s, version)
         version_ref = f"{vref.project}/{vref.network}@{version.number}"
-    labels, info = read_membership(path, graph.node_ids)
+    labels, info = read_membership(path, graph.node_ids, format=format, delimiter=delimiter)
     labels = canonical_labels(labels)
     missing = int((labels < 0).sum())
     warnings = []
