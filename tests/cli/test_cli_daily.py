@@ -99,6 +99,9 @@ def test_where_searches_every_network_and_suggests_near_ids(cli, club, tmp_path,
     r = cli("where", "zz")
     _one_line_error(r, 3)
     assert "did you mean" not in r.err
+    r = cli("where", "x1", "--network", "club/karate")
+    _one_line_error(r, 3)
+    assert "but is in side/tri" in r.err
     r = cli("where", "m00", "--network", "club/karat")
     _one_line_error(r, 3)
     assert "did you mean club/karate?" in r.err

@@ -556,6 +556,24 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
             "membership_hash": summary["membership_hash"]}
 
 
+def _networks_holding(store: Store, node: str, *, exclude: str) -> list[str]:
+    """Names of the networks (other than ``exclude``) with a version that has the node."""
+    held = []
+    with store.read() as s:
+        for project_name, net in s.execute(select(Project.name, Network).select_from(Network)
+                                           .join(Network.project).order_by(Project.name, Network.name)).all():
+            name = f"{project_name}/{net.name}"
+            if name == exclude:
+                continue
+            for v in repo.list_versions(s, net.id):
+                ids = repo.load_node_ids(s, v)
+                pos = int(np.searchsorted(ids, node))
+                if pos < ids.shape[0] and ids[pos] == node:
+                    held.append(name)
+                    break
+    return held
+
+
 def where_node(store: Store, node: str, network: str | None = None) -> dict[str, Any]:
     """That node's community (and its size) in every finished run of every version of a network.
 
@@ -609,6 +627,11 @@ def where_node(store: Store, node: str, network: str | None = None) -> dict[str,
                             entry["stability"] = float(repo.get_array(s, run.stability_blob)[pos]) / run.repeats
                     rows.append(entry)
     if not found_in:
+        if vref is not None:
+            elsewhere = _networks_holding(store, node, exclude=f"{vref.project}/{vref.network}")
+            if elsewhere:
+                raise NotFoundError(f"node {node!r} is in no version of {vref.project}/{vref.network} but is in "
+                                    f"{', '.join(elsewhere)} (leave out --network to search every network)")
         where = f"no version of {vref.project}/{vref.network}" if vref is not None else "no network of this store"
         raise NotFoundError(f"node {node!r} is in {where}{hint(near[:MAX_SUGGESTIONS])}")
     if vref is None:  # searching everywhere: only the networks that hold the node
