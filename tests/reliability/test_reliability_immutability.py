@@ -203,7 +203,7 @@ def test_delete_in_a_terminal_needs_the_name_typed_back(workspace_with_work, sto
             os.close(slave)
             os.close(master)
         assert proc.returncode == code, proc.stderr
-        assert "type the name to confirm" in proc.stderr
+        assert "type club/karate and press Enter" in proc.stderr
         if code == 1:
             assert "nothing deleted" in proc.stderr
             assert dump_store(store_path) == before

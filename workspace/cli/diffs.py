@@ -21,7 +21,11 @@ def cmd_diff(args) -> int:
     with session(args) as (store, out):
         if args.track is not None:
             run_ids = list(args.runs)
-            if args.track:
+            if args.track.strip().isdigit():
+                # `diff --track 1 2 3`: argparse hands the first run id to --track's optional value;
+                # a parameter set is always PROJECT/NAME, so a bare number is the chain's first run
+                run_ids = [int(args.track)] + run_ids
+            elif args.track:
                 if run_ids:
                     raise UsageError("give either --track PROJECT/PARAMS or run ids, not both")
                 run_ids = diffs.track_runs_of_params(store, args.track, args.network)

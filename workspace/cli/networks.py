@@ -96,9 +96,11 @@ def cmd_versions(args) -> int:
         if args.json:
             emit_json(rows)
         else:
-            out.table(["version", "nodes", "edges", "hash", "created", "source", "message"],
+            tags = any(r.get("tags") for r in rows)  # a tags column only once something is tagged
+            out.table(["version", "nodes", "edges", "hash", "created", "source", "message"] + ["tags"] * tags,
                       [(r["version"], r["nodes"], r["edges"], r["content_hash"][:12], r["created"], r["source"],
-                        r["message"]) for r in rows], right=["version", "nodes", "edges"])
+                        r["message"]) + ((" ".join(r["tags"]),) if tags else ()) for r in rows],
+                      right=["version", "nodes", "edges"])
     return 0
 
 
@@ -138,6 +140,9 @@ def cmd_show(args) -> int:
         out.line(f"{info['ref']}   {info['nodes']} nodes, {info['edges']} edges   hash {info['content_hash']}")
         out.fields([("created", info["created"]), ("message", info["message"] or "-"),
                     ("parent", info["parent"] or "- (first version)")])
+        from workspace.cli.notes import print_annotations
+
+        print_annotations(out, info)
         out.line("")
         out.line("import report")
         print_report(out, info["report"])

@@ -23,9 +23,11 @@ def cmd_params(args) -> int:
             elif not rows:
                 out.line("no parameter sets")
             else:
-                out.table(["parameter set", "method", "k", "values", "created"],
+                tags = any(r.get("tags") for r in rows)  # a tags column only once something is tagged
+                out.table(["parameter set", "method", "k", "values", "created"] + ["tags"] * tags,
                           [(r["ref"], r["method"], r["k"] or "default",
-                            " ".join(f"{k}={v}" for k, v in r["params"].items()), r["created"]) for r in rows])
+                            " ".join(f"{k}={v}" for k, v in r["params"].items()), r["created"])
+                           + ((" ".join(r["tags"]),) if tags else ()) for r in rows])
         else:
             res = svc.show_params(store, args.name)
             if args.json:
@@ -34,6 +36,9 @@ def cmd_params(args) -> int:
                 out.line(f"{res['ref']}   method {res['method']}   k {res['k'] or 'default'}   "
                          f"versions {', '.join(map(str, res['versions']))}")
                 out.fields(list(res["params"].items()))
+                from workspace.cli.notes import print_annotations
+
+                print_annotations(out, res)
     return 0
 
 

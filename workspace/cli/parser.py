@@ -116,10 +116,15 @@ def build_parser() -> argparse.ArgumentParser:
     p = add("rerun", "repeat a run from its record and check the membership is identical", "runs", "cmd_rerun")
     p.add_argument("run", type=int)
 
-    p = add("attach", "store a partition from a node,community CSV as a run", "runs", "cmd_attach")
-    p.add_argument("file")
+    p = add("attach", "store a partition from a membership file (CSV, JSON or GraphML) as a run", "runs",
+            "cmd_attach")
+    p.add_argument("file", help="CSV with columns node,community; .json node-link or .graphml with a 'community' "
+                                "attribute on each node")
     p.add_argument("--to", required=True, metavar="PROJECT/NETWORK[@V]")
     p.add_argument("--label", required=True, help="what this grouping is, e.g. 'field-survey'")
+    p.add_argument("--format", choices=["csv", "json", "graphml"],
+                   help="membership file format (default: by extension; .tsv and .txt are CSV)")
+    p.add_argument("--delimiter", metavar="SEP", help="CSV field separator: ',' (default), ';', 'tab', '|', ...")
 
     p = add("runs", "list runs, newest first", "runs", "cmd_runs")
     p.add_argument("ref", nargs="?", metavar="PROJECT[/NETWORK[@V]]")
@@ -131,15 +136,16 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=["csv", "json", "graphml"], default="csv")
     p.add_argument("-o", "--output", required=True, metavar="FILE")
 
-    p = add("where", "a node's community in every run of every version", "runs", "cmd_where")
+    p = add("where", "a node's community in every run of every version (of every network unless --network)",
+            "runs", "cmd_where")
     p.add_argument("node")
-    p.add_argument("--network", required=True, metavar="PROJECT/NETWORK")
+    p.add_argument("--network", metavar="PROJECT/NETWORK", help="search this network only (default: every network)")
 
     # --- comparing -------------------------------------------------------------------
     p = add("diff", "compare the memberships of two runs, or follow a chain of runs", "diffs", "cmd_diff")
     p.add_argument("runs", nargs="*", type=int, metavar="RUN", help="two runs (or, with --track, a chain)")
     p.add_argument("--track", nargs="?", const="", default=None, metavar="PROJECT/PARAMS",
-                   help="follow a chain: the runs given, or the latest run of a parameter set on each version")
+                   help="follow a chain: --track RUN RUN …, or the latest run of a parameter set on each version")
     p.add_argument("--network", metavar="PROJECT/NETWORK", help="with --track PARAMS: which network")
     p.add_argument("--nodes", choices=["common", "all"], default="common",
                    help="score shared nodes only (default) or give absent nodes an 'absent' community")
@@ -157,6 +163,45 @@ def build_parser() -> argparse.ArgumentParser:
     p = add("delete", "delete a project or a network with everything in it (asks first)", "upkeep", "cmd_delete")
     p.add_argument("target", metavar="PROJECT[/NETWORK]")
     p.add_argument("--yes", action="store_true", help="do not ask")
+
+    # --- housekeeping: single runs, annotations, members, comparison matrix ---------------
+    p = add("delete-run", "delete runs (cancelled or test runs) with their measures and annotations (asks first)",
+            "housekeeping", "cmd_delete_run")
+    p.add_argument("runs", nargs="+", type=int, metavar="RUN")
+    p.add_argument("--yes", action="store_true", help="do not ask")
+
+    target_help = "a run id, a network version PROJECT/NETWORK[@V] (latest when @V is left out), or with " \
+                  "--params a parameter set PROJECT/NAME[@V]"
+    for name, help_, func in (("note", "add a note to a run, network version or parameter set", "cmd_note"),
+                              ("tag", "put tags on a run, network version or parameter set", "cmd_tag"),
+                              ("untag", "take tags off a run, network version or parameter set", "cmd_untag"),
+                              ("annotations", "the tags, notes and annotation history of a run, network "
+                                              "version or parameter set", "cmd_annotations")):
+        p = add(name, help_, "notes", func)
+        p.description = help_ + "; the annotated record itself never changes (annotations are events of their own)"
+        p.add_argument("target", metavar="TARGET", help=target_help)
+        if name == "note":
+            p.add_argument("text", help="the note")
+        elif name != "annotations":
+            p.add_argument("tags", nargs="+", metavar="TAG", help="one word each")
+        p.add_argument("--params", action="store_true", help="TARGET is a parameter set")
+    p = add("tagged", "everything that currently carries a tag", "notes", "cmd_tagged")
+    p.add_argument("tag")
+
+    p = add("members", "the nodes in each community of a run (or in one community)", "housekeeping", "cmd_members")
+    p.add_argument("run", type=int)
+    p.add_argument("community", nargs="?", type=int, help="only this community")
+    p.add_argument("--limit", type=int, default=None,
+                   help="nodes listed per community (text default 50; --json lists all unless given)")
+    p.add_argument("--offset", type=int, default=0, help="skip this many nodes of each community first")
+
+    p = add("compare", "ARI, NMI and VI of every pair of several runs (a comparison matrix)", "housekeeping",
+            "cmd_compare")
+    p.add_argument("runs", nargs="+", type=int, metavar="RUN")
+    p.add_argument("--nodes", choices=["common", "all"], default="common",
+                   help="score shared nodes only (default) or give absent nodes an 'absent' group")
+    p.add_argument("--nmi", choices=["arithmetic", "geometric", "max", "min"], default="arithmetic",
+                   help="NMI normalisation (default arithmetic)")
 
     p = add("demo", "build the invented demo workspace and open it", "demo", "cmd_demo")
     p.add_argument("--no-ui", action="store_true", help="build only; do not open the terminal workspace")

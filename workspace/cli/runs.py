@@ -87,7 +87,8 @@ def cmd_attach(args) -> int:
     from workspace.services import runs as svc
 
     with session(args, writes=True) as (store, out):
-        res = svc.attach(store, args.file, args.to, label=args.label)
+        res = svc.attach(store, args.file, args.to, label=args.label, format=args.format,
+                         delimiter=args.delimiter)
         if args.json:
             emit_json(res)
         else:
@@ -132,6 +133,9 @@ def show_run(args) -> int:
                     ("started", res["created"]), ("finished", res["finished"]),
                     ("solver", (res["diagnostics"] or {}).get("solver")),
                     ("provenance", " ".join(f"{k}={v}" for k, v in res["provenance"].items()))])
+        from workspace.cli.notes import print_annotations
+
+        print_annotations(out, res)
         _print_communities(out, res)
     return 0
 
@@ -156,10 +160,14 @@ def cmd_where(args) -> int:
         if args.json:
             emit_json(res)
             return 0
-        out.line(f"node {res['node']} in {res['network']}: present in versions "
-                 + ", ".join(map(str, res["versions_with_node"])))
-        out.table(["run", "version", "method", "community", "size", "stability"],
-                  [(r["run"], r["version"], r["method"] if r["kind"] == "computed" else f"attached:{r['label']}",
-                    r["community"] if r["present"] else "(absent)", r["community_size"], r["stability"])
+        for held in res["networks_with_node"]:
+            out.line(f"node {res['node']} in {held['network']}: present in versions "
+                     + ", ".join(map(str, held["versions"])))
+        several = len(res["networks_with_node"]) > 1 or res["network"] is None
+        cols = (["run"] + (["network"] if several else []) + ["version", "method", "community", "size", "stability"])
+        out.table(cols,
+                  [[r["run"]] + ([r["network"]] if several else [])
+                   + [r["version"], r["method"] if r["kind"] == "computed" else f"attached:{r['label']}",
+                      r["community"] if r["present"] else "(absent)", r["community_size"], r["stability"]]
                    for r in res["runs"]], right=["run", "version", "community", "size", "stability"])
     return 0

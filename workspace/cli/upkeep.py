@@ -33,7 +33,8 @@ def cmd_delete(args) -> int:
                 raise UsageError(f"deleting {args.target} needs confirmation: run it in a terminal or add --yes")
             sys.stderr.write(f"delete {what['kind']} {args.target}: {what['networks']} network(s), "
                              f"{what['versions']} version(s), {what['runs']} run(s), "
-                             f"{what['parameter_sets']} parameter set(s)? type the name to confirm: ")
+                             f"{what['parameter_sets']} parameter set(s)?\n"
+                             f"type {args.target} and press Enter to delete (anything else keeps it): ")
             sys.stderr.flush()
             if sys.stdin.readline().strip() != args.target:
                 out.note("cutbook: nothing deleted")

@@ -66,6 +66,36 @@ def resolve_delimiter(fmt: str, delimiter: str | None) -> str:
     return value
 
 
+def _delimiter_hint(line: bytes, current: str) -> str:
+    """A hint naming the separator a one-field first line seems to use (``""`` when none fits)."""
+    for sep, name in ((b";", "';'"), (b"\t", "tab"), (b"|", "'|'"), (b",", "','")):
+        if sep in line and sep.decode() != current:
+            return f"; the line looks separated by {name}: give --delimiter {name}"
+    if len(line.split()) >= 2:
+        return "; the line looks separated by blanks: give --delimiter whitespace (or --format edgelist)"
+    return ""
+
+
+def _refuse_foreign_separator(sample: pa.Table, shown: str, path: str, line: int) -> None:
+    """Refuse a file whose every first-column value holds another separator (default delimiter only).
+
+    ``a;b;1,5`` read with ``,`` gives two fields, ``a;b;1`` and ``5``: ids that
+    exist in no network. When the first field of every sampled line holds the
+    same ``;``, tab or ``|`` the file is almost surely separated by it (with
+    decimal commas); an explicit ``--delimiter`` reads it as it is.
+    """
+    import pyarrow.compute as pc
+
+    col = sample.column(0)
+    if len(col) == 0:
+        return
+    for sep, name in ((";", "';'"), ("\t", "tab"), ("|", "'|'")):
+        if pc.all(pc.match_substring(col, sep)).as_py():
+            raise InputError(f"every line's first field holds {name}: the file looks separated by {name}, "
+                             f"not {shown}; give --delimiter {name}, or --delimiter {shown} to read it as it is",
+                             path=path, line=line)
+
+
 def _remove_comments(data: bytes, comment: str) -> bytes:
     """Cut every line at the comment marker, together with blanks before it."""
     marker = comment.encode("utf-8")
@@ -236,13 +266,16 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
     n_columns = first_table.num_columns
     if n_columns < 2:
         raise InputError(f"expected at least 2 fields (two endpoint ids) separated by {shown}, "
-                         f"found 1", path=path, line=header_line)
+                         f"found 1{_delimiter_hint(data[lead:] if first_end < 0 else data[lead:first_end], delimiter)}",
+                         path=path, line=header_line)
     sample_bytes = data
     if len(data) > _SAMPLE_BYTES:
         cut = data.rfind(b"\n", 0, _SAMPLE_BYTES)
         sample_bytes = data[:cut + 1] if cut >= 0 else data
     sample = reader.read(sample_bytes, n_columns, None, threads=False)
     first_row = [sample.column(i)[0].as_py() for i in range(n_columns)]
+    if policy.delimiter is None and delimiter == ",":
+        _refuse_foreign_separator(sample, shown, path, header_line)
 
     # --- header decision (rules documented in read_network)
     header, candidate_reason = _header_decision(policy, sample, first_row)

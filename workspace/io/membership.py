@@ -29,7 +29,7 @@ from workspace.io._common import (
     string_array,
     strip_bom,
 )
-from workspace.io.delimited import _Csv
+from workspace.io.delimited import WHITESPACE, _Csv, _delimiter_hint, resolve_delimiter
 from workspace.io.node_link import _id_text
 
 MEMBERSHIP_FORMATS = ("csv", "json", "graphml")
@@ -43,12 +43,12 @@ def _membership_format(path: str, format: str | None) -> str:
                                  f"{', '.join(MEMBERSHIP_FORMATS)}, not {format!r}")
         return format
     name = path.lower().removesuffix(".gz")
-    for suffix, fmt in ((".csv", "csv"), (".json", "json"), (".graphml", "graphml"),
-                        (".xml", "graphml")):
+    for suffix, fmt in ((".csv", "csv"), (".tsv", "csv"), (".txt", "csv"), (".json", "json"),
+                        (".graphml", "graphml"), (".xml", "graphml")):
         if name.endswith(suffix):
             return fmt
     raise InputError("cannot tell the membership format from the file name; use .csv, "
-                     ".json or .graphml", path=path)
+                     ".json or .graphml, or give --format", path=path)
 
 
 def _labels(path: str, node_ids: np.ndarray, nodes: pa.Array, communities: pa.Array,
@@ -100,7 +100,7 @@ def _labels(path: str, node_ids: np.ndarray, nodes: pa.Array, communities: pa.Ar
 
 
 def read_membership(path: str | os.PathLike, node_ids: np.ndarray, *,
-                    format: str | None = None) -> tuple[np.ndarray, dict]:
+                    format: str | None = None, delimiter: str | None = None) -> tuple[np.ndarray, dict]:
     """Read a membership file against a network's canonical node ids.
 
     Community names (any string) become integers by first appearance in
@@ -117,7 +117,10 @@ def read_membership(path: str | os.PathLike, node_ids: np.ndarray, *,
     node_ids : ndarray of str, shape (n,)
         The network's canonical node ids.
     format : {"csv", "json", "graphml"} or None, default None
-        None means by file extension.
+        None means by file extension (``.tsv`` and ``.txt`` are read as CSV).
+    delimiter : str or None, default None
+        CSV field separator (one character, or ``tab``, ``semicolon``, …);
+        None means ``,`` (tab for a ``.tsv`` file).
 
     Returns
     -------
@@ -150,16 +153,20 @@ def read_membership(path: str | os.PathLike, node_ids: np.ndarray, *,
     fmt = _membership_format(path, format)
     data = read_bytes(path)
     if fmt == "csv":
-        return _read_csv(path, data, node_ids)
+        if delimiter is None and path.lower().removesuffix(".gz").endswith(".tsv"):
+            delimiter = "tab"
+        return _read_csv(path, data, node_ids, resolve_delimiter("csv", delimiter))
     if fmt == "json":
         return _read_json(path, data, node_ids)
     return _read_graphml(path, data, node_ids)
 
 
-def _read_csv(path: str, data: bytes, node_ids: np.ndarray):
+def _read_csv(path: str, data: bytes, node_ids: np.ndarray, delimiter: str = ","):
     data = normalise_newlines(strip_bom(data))
     check_utf8(data, path)
-    reader = _Csv(path, data, ",", quoting=True)
+    if delimiter == WHITESPACE:
+        raise ParameterError("a membership file needs a one-character delimiter such as ',', ';' or tab")
+    reader = _Csv(path, data, delimiter, quoting=delimiter != "\t")
     if reader.lines.n_rows == 0:
         raise InputError("the membership file is empty", path=path)
     begin = int(reader.lines.starts[0])
@@ -169,8 +176,11 @@ def _read_csv(path: str, data: bytes, node_ids: np.ndarray):
     header = [first.column(i)[0].as_py() for i in range(first.num_columns)] \
         if first.num_rows else []
     if "node" not in header or "community" not in header:
-        raise InputError("a membership CSV needs the header line node,community (found: "
-                         f"{','.join(map(str, header))})", path=path, line=reader.lines.line(0))
+        sep = "tab" if delimiter == "\t" else delimiter
+        raise InputError(f"a membership CSV needs the header line node{sep}community (found: "
+                         f"{sep.join(map(str, header))})"
+                         + (_delimiter_hint(data[begin:] if end < 0 else data[begin:end], delimiter)
+                            if len(header) == 1 else ""), path=path, line=reader.lines.line(0))
     columns = [header.index("node"), header.index("community")]
     table = reader.read(data, len(header), columns, threads=True)
     nodes = table.column(0).slice(1).combine_chunks()

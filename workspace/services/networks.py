@@ -100,7 +100,7 @@ def list_projects(store: Store) -> list[dict[str, Any]]:
 def list_networks(store: Store, project: str | None = None) -> list[dict[str, Any]]:
     with store.read() as s:
         if project is not None and repo.find_project(s, project) is None:
-            raise NotFoundError(f"no project named {project!r}")
+            raise project_not_found(s, project)
         return [{"project": r.project, "network": r.network, "latest_version": r.latest,
                  "created": r.created_at.isoformat(timespec="seconds")} for r in repo.list_networks(s, project)]
 
@@ -108,8 +108,24 @@ def list_networks(store: Store, project: str | None = None) -> list[dict[str, An
 def _network(s, ref: VersionRef) -> Network:
     net = repo.find_network(s, ref.project, ref.network)
     if net is None:
-        raise NotFoundError(f"no network {ref.project}/{ref.network}")
+        raise network_not_found(s, ref.project, ref.network)
     return net
+
+
+def network_not_found(s, project: str, network: str) -> NotFoundError:
+    """``no network P/N`` with a 'did you mean' among the store's project/network names."""
+    from workspace.services.suggest import close_names, hint
+
+    names = [f"{r.project}/{r.network}" for r in repo.list_networks(s)]
+    return NotFoundError(f"no network {project}/{network}{hint(close_names(f'{project}/{network}', names))}")
+
+
+def project_not_found(s, project: str) -> NotFoundError:
+    """``no project named 'P'`` with a 'did you mean' among the store's project names."""
+    from workspace.services.suggest import close_names, hint
+
+    names = [r.name for r in repo.list_projects(s)]
+    return NotFoundError(f"no project named {project!r}{hint(close_names(project, names))}")
 
 
 def resolve_version(s, ref: VersionRef) -> NetworkVersion:
@@ -118,7 +134,9 @@ def resolve_version(s, ref: VersionRef) -> NetworkVersion:
     v = repo.find_version(s, net.id, ref.version)
     if v is None:
         what = f"version {ref.version}" if ref.version is not None else "any version"
-        raise NotFoundError(f"network {ref.project}/{ref.network} has no {what}")
+        latest = repo.latest_version(s, net.id)
+        have = f" (its versions are 1 to {latest.number})" if latest is not None else ""
+        raise NotFoundError(f"network {ref.project}/{ref.network} has no {what}{have}")
     return v
 
 
@@ -126,7 +144,12 @@ def list_versions(store: Store, ref: str | VersionRef) -> list[dict[str, Any]]:
     ref = VersionRef.parse(ref) if isinstance(ref, str) else ref
     with store.read() as s:
         net = _network(s, ref)
-        return [version_summary(v, ref.project, ref.network) for v in repo.list_versions(s, net.id)]
+        from workspace.services.annotations import current_for
+
+        versions = repo.list_versions(s, net.id)
+        ann = current_for(s, "version", [v.id for v in versions])
+        return [{**version_summary(v, ref.project, ref.network), "tags": ann.get(v.id, {}).get("tags", [])}
+                for v in versions]
 
 
 def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20) -> dict[str, Any]:
@@ -137,6 +160,9 @@ def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20)
     with store.read() as s:
         v = resolve_version(s, ref)
         out = version_summary(v, ref.project, ref.network)
+        from workspace.services.annotations import current_for
+
+        out.update(current_for(s, "version", [v.id]).get(v.id, {"tags": [], "notes": []}))
         out["policy"] = json.loads(v.policy_json)
         out["report"] = json.loads(v.report_json)
         out["parent"] = None

@@ -113,13 +113,20 @@ def find_params(s, ref: str) -> tuple[str, str, ParamSetVersion]:
     ps = s.scalar(select(ParamSet).join(Project, Project.id == ParamSet.project_id)
                   .where(Project.name == project, ParamSet.name == name))
     if ps is None:
-        raise NotFoundError(f"no parameter set {project}/{name}")
+        from workspace.services.suggest import close_names, hint
+
+        names = [f"{p}/{n}" for p, n in s.execute(select(Project.name, ParamSet.name)
+                                                 .join(ParamSet, ParamSet.project_id == Project.id)).all()]
+        raise NotFoundError(f"no parameter set {project}/{name}{hint(close_names(f'{project}/{name}', names))}")
     q = select(ParamSetVersion).where(ParamSetVersion.param_set_id == ps.id)
     q = q.where(ParamSetVersion.number == version) if version is not None else \
         q.order_by(ParamSetVersion.number.desc()).limit(1)
     v = s.scalar(q)
     if v is None:
-        raise NotFoundError(f"parameter set {project}/{name} has no version {version}")
+        newest = s.scalar(select(ParamSetVersion.number).where(ParamSetVersion.param_set_id == ps.id)
+                          .order_by(ParamSetVersion.number.desc()).limit(1))
+        raise NotFoundError(f"parameter set {project}/{name} has no version {version} "
+                            f"(its versions are 1 to {newest})")
     return project, name, v
 
 
@@ -130,17 +137,26 @@ def show_params(store: Store, ref: str) -> dict[str, Any]:
         out["versions"] = list(s.scalars(select(ParamSetVersion.number)
                                          .where(ParamSetVersion.param_set_id == v.param_set_id)
                                          .order_by(ParamSetVersion.number)))
+        from workspace.services.annotations import current_for
+
+        out.update(current_for(s, "params", [v.id]).get(v.id, {"tags": [], "notes": []}))
         return out
 
 
 def list_params(store: Store, project: str | None = None) -> list[dict[str, Any]]:
     with store.read() as s:
         if project is not None and repo.find_project(s, project) is None:
-            raise NotFoundError(f"no project named {project!r}")
+            from workspace.services.networks import project_not_found
+
+            raise project_not_found(s, project)
         q = (select(Project.name, ParamSet.name, ParamSetVersion)
              .join(ParamSet, ParamSet.project_id == Project.id)
              .join(ParamSetVersion, ParamSetVersion.param_set_id == ParamSet.id)
              .order_by(Project.name, ParamSet.name, ParamSetVersion.number))
         if project is not None:
             q = q.where(Project.name == project)
-        return [_row_dict(p, n, v) for p, n, v in s.execute(q).all()]
+        rows = s.execute(q).all()
+        from workspace.services.annotations import current_for
+
+        ann = current_for(s, "params", [v.id for _, _, v in rows])
+        return [{**_row_dict(p, n, v), "tags": ann.get(v.id, {}).get("tags", [])} for p, n, v in rows]

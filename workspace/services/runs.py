@@ -428,8 +428,10 @@ def rerun(store: Store, run_id: int, *, progress: Progress | None = None,
 
 # --- attached partitions -------------------------------------------------------------------
 
-def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, label: str) -> dict[str, Any]:
-    """Store a partition read from a ``node,community`` CSV as a run of kind ``attached``."""
+def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, label: str,
+           format: str | None = None, delimiter: str | None = None) -> dict[str, Any]:
+    """Store a partition read from a membership file (see :func:`workspace.io.read_membership`) as a run
+    of kind ``attached``; ``format`` and ``delimiter`` are passed on to the reader."""
     from workspace.io import read_membership
     from workspace.spectral.quality import quality_measures
 
@@ -440,7 +442,7 @@ def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, labe
         version = resolve_version(s, vref)
         graph = repo.load_graph(s, version)
         version_ref = f"{vref.project}/{vref.network}@{version.number}"
-    labels, info = read_membership(path, graph.node_ids)
+    labels, info = read_membership(path, graph.node_ids, format=format, delimiter=delimiter)
     labels = canonical_labels(labels)
     missing = int((labels < 0).sum())
     warnings = []
@@ -504,7 +506,19 @@ def list_runs(store: Store, ref: str | None = None, *, limit: int | None = None,
     if limit is not None:
         q = q.limit(limit)
     with store.read() as s:
-        return [_run_row_dict(r, p, n, v) for r, p, n, v in s.execute(q).all()]
+        rows = [_run_row_dict(r, p, n, v) for r, p, n, v in s.execute(q).all()]
+        _with_tags(s, "run", rows, "run")
+        return rows
+
+
+def _with_tags(s, kind: str, rows: list[dict[str, Any]], key: str, ids: list[int] | None = None) -> None:
+    """Add each row's current ``tags`` (see :mod:`workspace.services.annotations`)."""
+    from workspace.services.annotations import current_for
+
+    ids = [r[key] for r in rows] if ids is None else ids
+    ann = current_for(s, kind, ids)
+    for row, row_id in zip(rows, ids):
+        row["tags"] = ann.get(row_id, {}).get("tags", [])
 
 
 def count_runs(store: Store) -> int:
@@ -557,6 +571,9 @@ def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict
                              "conductance": c.conductance, "stability": c.stability} for c in comms],
             "host": run.host, "pid": run.pid,
         })
+        from workspace.services.annotations import current_for
+
+        out.update(current_for(s, "run", [run.id]).get(run.id, {"tags": [], "notes": []}))
         if run.started_at and run.finished_at:
             out["wall_time_s"] = (run.finished_at - run.started_at).total_seconds()
         if include_labels and run.membership_blob:
@@ -596,40 +613,88 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
             "membership_hash": summary["membership_hash"]}
 
 
-def where_node(store: Store, node: str, network: str) -> dict[str, Any]:
-    """That node's community (and its size) in every finished run of every version of a network."""
-    vref = VersionRef.parse(network)
-    if vref.version is not None:
-        raise UsageError("--network takes project/network (every version is searched)")
-    rows = []
+def _networks_holding(store: Store, node: str, *, exclude: str) -> list[str]:
+    """Names of the networks (other than ``exclude``) with a version that has the node."""
+    held = []
     with store.read() as s:
-        net = repo.find_network(s, vref.project, vref.network)
-        if net is None:
-            raise NotFoundError(f"no network {vref.project}/{vref.network}")
-        versions = repo.list_versions(s, net.id)
-        present_in = []
-        for v in versions:
-            ids = repo.load_node_ids(s, v)
-            pos = int(np.searchsorted(ids, node))
-            found = pos < ids.shape[0] and ids[pos] == node
-            if found:
-                present_in.append(v.number)
-            runs = s.scalars(select(Run).where(Run.version_id == v.id, Run.membership_blob.is_not(None))
-                             .order_by(Run.id)).all()
-            for run in runs:
-                entry = {"run": run.id, "version": v.number, "method": run.method, "kind": run.kind,
-                         "label": run.label, "k": run.k, "present": found, "community": None,
-                         "community_size": None, "stability": None}
+        for project_name, net in s.execute(select(Project.name, Network).select_from(Network)
+                                           .join(Network.project).order_by(Project.name, Network.name)).all():
+            name = f"{project_name}/{net.name}"
+            if name == exclude:
+                continue
+            for v in repo.list_versions(s, net.id):
+                ids = repo.load_node_ids(s, v)
+                pos = int(np.searchsorted(ids, node))
+                if pos < ids.shape[0] and ids[pos] == node:
+                    held.append(name)
+                    break
+    return held
+
+
+def where_node(store: Store, node: str, network: str | None = None) -> dict[str, Any]:
+    """That node's community (and its size) in every finished run of every version of a network.
+
+    With ``network`` None every network of the store is searched. A node found
+    nowhere raises NotFoundError with case-insensitive and prefix suggestions.
+    """
+    from workspace.services.suggest import MAX_SUGGESTIONS, close_node_ids, hint
+
+    vref = None
+    if network is not None:
+        vref = VersionRef.parse(network)
+        if vref.version is not None:
+            raise UsageError("--network takes project/network (every version is searched)")
+    rows: list[dict[str, Any]] = []
+    found_in: dict[str, list[int]] = {}
+    near: list[str] = []
+    with store.read() as s:
+        if vref is not None:
+            net = repo.find_network(s, vref.project, vref.network)
+            if net is None:
+                from workspace.services.networks import network_not_found
+
+                raise network_not_found(s, vref.project, vref.network)
+            nets = [(vref.project, net)]
+        else:
+            nets = list(s.execute(select(Project.name, Network).select_from(Network).join(Network.project)
+                                  .order_by(Project.name, Network.name)).all())
+        for project_name, net in nets:
+            name = f"{project_name}/{net.name}"
+            for v in repo.list_versions(s, net.id):
+                ids = repo.load_node_ids(s, v)
+                pos = int(np.searchsorted(ids, node))
+                found = pos < ids.shape[0] and ids[pos] == node
                 if found:
-                    labels = repo.get_array(s, run.membership_blob)
-                    c = int(labels[pos])
-                    entry["community"] = c if c >= 0 else None
-                    if c >= 0:
-                        entry["community_size"] = int((labels == c).sum())
-                    if run.stability_blob:
-                        entry["stability"] = float(repo.get_array(s, run.stability_blob)[pos]) / run.repeats
-                rows.append(entry)
-    if not present_in:
-        raise NotFoundError(f"node {node!r} is in no version of {vref.project}/{vref.network}")
-    return {"node": node, "network": f"{vref.project}/{vref.network}", "versions_with_node": present_in,
-            "runs": rows}
+                    found_in.setdefault(name, []).append(v.number)
+                elif not found_in and len(near) < MAX_SUGGESTIONS:
+                    near.extend(x for x in close_node_ids(node, ids) if x not in near)
+                runs = s.scalars(select(Run).where(Run.version_id == v.id, Run.membership_blob.is_not(None))
+                                 .order_by(Run.id)).all()
+                for run in runs:
+                    entry = {"run": run.id, "network": name, "version": v.number, "method": run.method,
+                             "kind": run.kind, "label": run.label, "k": run.k, "present": found,
+                             "community": None, "community_size": None, "stability": None}
+                    if found:
+                        labels = repo.get_array(s, run.membership_blob)
+                        c = int(labels[pos])
+                        entry["community"] = c if c >= 0 else None
+                        if c >= 0:
+                            entry["community_size"] = int((labels == c).sum())
+                        if run.stability_blob:
+                            entry["stability"] = float(repo.get_array(s, run.stability_blob)[pos]) / run.repeats
+                    rows.append(entry)
+    if not found_in:
+        if vref is not None:
+            elsewhere = _networks_holding(store, node, exclude=f"{vref.project}/{vref.network}")
+            if elsewhere:
+                raise NotFoundError(f"node {node!r} is in no version of {vref.project}/{vref.network} but is in "
+                                    f"{', '.join(elsewhere)} (leave out --network to search every network)")
+        where = f"no version of {vref.project}/{vref.network}" if vref is not None else "no network of this store"
+        raise NotFoundError(f"node {node!r} is in {where}{hint(near[:MAX_SUGGESTIONS])}")
+    if vref is None:  # searching everywhere: only the networks that hold the node
+        rows = [r for r in rows if r["network"] in found_in]
+    out = {"node": node, "network": f"{vref.project}/{vref.network}" if vref is not None else None,
+           "networks_with_node": [{"network": k, "versions": v} for k, v in found_in.items()], "runs": rows}
+    if vref is not None:
+        out["versions_with_node"] = found_in.get(out["network"], [])
+    return out

@@ -210,3 +210,33 @@ class RunMeasure(Base):
     run_id: Mapped[int] = mapped_column(ForeignKey("runs.id", ondelete="CASCADE"), primary_key=True)
     name: Mapped[str] = mapped_column(String(64), primary_key=True)
     value: Mapped[float | None] = mapped_column(Float, nullable=True)
+
+
+ANNOTATION_ACTIONS = ("note", "tag", "untag")
+
+
+class Annotation(Base):
+    """One annotation event on a run, a network version or a parameter-set version.
+
+    Insert-only: a note is added, a tag is added (``tag``) or taken off
+    (``untag``) by a new row; the current tags are the replay of a target's
+    rows in id order. The annotated record itself never changes. Exactly one of
+    the three target columns is set; rows go with their target when it is deleted.
+    """
+
+    __tablename__ = "annotations"
+    __table_args__ = (
+        CheckConstraint("action IN ('note', 'tag', 'untag')", name="action_known"),
+        CheckConstraint("(CASE WHEN run_id IS NULL THEN 0 ELSE 1 END) + (CASE WHEN version_id IS NULL THEN 0 ELSE 1 END)"
+                        " + (CASE WHEN param_set_version_id IS NULL THEN 0 ELSE 1 END) = 1", name="one_target"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    run_id: Mapped[int | None] = mapped_column(ForeignKey("runs.id", ondelete="CASCADE"), nullable=True, index=True)
+    version_id: Mapped[int | None] = mapped_column(
+        ForeignKey("network_versions.id", ondelete="CASCADE"), nullable=True, index=True)
+    param_set_version_id: Mapped[int | None] = mapped_column(
+        ForeignKey("param_set_versions.id", ondelete="CASCADE"), nullable=True, index=True)
+    action: Mapped[str] = mapped_column(String(16))
+    text: Mapped[str] = mapped_column(Text)
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
