@@ -28,9 +28,12 @@ def demo_hint(args) -> str | None:
 
 
 @contextmanager
-def session(args, *, writes: bool = False):
+def session(args, *, writes: bool = False, create: bool | None = None):
     """Open the store named by --store/env/default; yield (store, out).
 
+    ``create`` defaults to ``writes``; commands that change records which must already
+    exist (delete, delete-run, note, tag, untag) pass ``writes=True, create=False``: they
+    are refused at once on a read-only store and never make a new one.
     Commands that write (``writes=True``) may create a new store (and, for the
     default location only, its folders) and are refused at once on a store that
     cannot be written. Commands that only read never create anything: a path
@@ -42,8 +45,9 @@ def session(args, *, writes: bool = False):
 
     out = Out(bool(getattr(args, "json", False)))
     explicit = _explicit_store(args)
+    create = writes if create is None else create
     try:
-        store = open_workspace(explicit, notify=out.note, create=writes, create_dirs=explicit is None,
+        store = open_workspace(explicit, notify=out.note, create=create, create_dirs=explicit is None,
                                require_write=writes)
     except StoreMissing as exc:
         hint = demo_hint(args)

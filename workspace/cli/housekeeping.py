@@ -12,7 +12,7 @@ def cmd_delete_run(args) -> int:
     from workspace.errors import UsageError
     from workspace.services.delete import delete_runs, describe_runs
 
-    with session(args) as (store, out):
+    with session(args, writes=True, create=False) as (store, out):
         what = describe_runs(store, args.runs)
         ids = " ".join(str(r["run"]) for r in what["runs"])
         if not args.yes:

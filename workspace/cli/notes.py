@@ -28,7 +28,7 @@ def _state(out, res: dict, verb: str | None = None) -> None:
 def cmd_note(args) -> int:
     from workspace.services import annotations as svc
 
-    with session(args) as (store, out):
+    with session(args, writes=True, create=False) as (store, out):
         res = svc.add_note(store, args.target, args.text, params=args.params)
         emit_json(res) if args.json else _state(out, res, "noted on")
     return 0
@@ -37,7 +37,7 @@ def cmd_note(args) -> int:
 def cmd_tag(args) -> int:
     from workspace.services import annotations as svc
 
-    with session(args) as (store, out):
+    with session(args, writes=True, create=False) as (store, out):
         res = svc.tag(store, args.target, args.tags, params=args.params)
         emit_json(res) if args.json else _state(out, res, "tagged")
     return 0
@@ -46,7 +46,7 @@ def cmd_tag(args) -> int:
 def cmd_untag(args) -> int:
     from workspace.services import annotations as svc
 
-    with session(args) as (store, out):
+    with session(args, writes=True, create=False) as (store, out):
         res = svc.untag(store, args.target, args.tags, params=args.params)
         emit_json(res) if args.json else _state(out, res, "untagged")
     return 0

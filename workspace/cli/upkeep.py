@@ -26,7 +26,7 @@ def cmd_delete(args) -> int:
     from workspace.errors import UsageError
     from workspace.services.delete import delete_target, describe_target
 
-    with session(args, writes=True) as (store, out):
+    with session(args, writes=True, create=False) as (store, out):
         what = describe_target(store, args.target)
         if not args.yes:
             if not sys.stdin.isatty():
