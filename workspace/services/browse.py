@@ -210,3 +210,16 @@ def ledger_runs(store: Store, scope: str | None = None, *, status: str | None = 
                               if isinstance(quality.get(m), (int, float)) and not isinstance(quality.get(m), bool)}
             out.append(row)
     return out
+
+
+def adjacent_run(store: Store, run_id: int, step: int) -> int | None:
+    """The id of the nearest stored run after (``step`` > 0) or before (``step`` < 0) ``run_id``; None at the end.
+
+    Run ids can have gaps (a run deleted, a write rolled back), so stepping is by
+    the stored ids, not by arithmetic.
+    """
+    q = select(Run.id)
+    q = q.where(Run.id > run_id).order_by(Run.id.asc()) if step > 0 else q.where(Run.id < run_id).order_by(
+        Run.id.desc())
+    with store.read() as s:
+        return s.scalar(q.limit(1))
