@@ -47,12 +47,14 @@ def _event_line(ev: Any) -> str:
             what = f"{a} → {b}"
             if size_a is not None and size_b is not None:
                 what += f"  {fmt_value(size_a)} → {fmt_value(size_b)} nodes"
+            elif size_a is not None or size_b is not None:  # a split (size of A) or a merge (size of B)
+                what += f"  {fmt_value(size_a if size_a is not None else size_b)} nodes"
         elif a:  # gone in B
-            what = a + (f"  ({fmt_value(size_a)} nodes)" if size_a is not None else "")
+            what = a + (f"  {fmt_value(size_a)} nodes" if size_a is not None else "")
         else:  # new in B
-            what = b + (f"  ({fmt_value(size_b)} nodes)" if size_b is not None else "")
+            what = b + (f"  {fmt_value(size_b)} nodes" if size_b is not None else "")
         jac = f"  J {ev['jaccard']:.2f}" if isinstance(ev.get("jaccard"), float) else ""
-        return f"{kind:<7} {what}{jac}"
+        return f"{kind} {what}{jac}"
     if isinstance(ev, dict):
         kind = ev.get("type") or ev.get("kind") or ev.get("event") or "event"
         rest = {k: v for k, v in ev.items() if k not in ("type", "kind", "event") and v is not None}
@@ -198,7 +200,7 @@ class DiffScreen(Screen):
         if not events:
             ev_text.append("no splits, merges, births or deaths", style=MUTED)
         else:
-            ev_text.append("J = Jaccard overlap of the two communities\n", style=MUTED)
+            ev_text.append("J: Jaccard overlap\n", style=MUTED)
         for ev in events:
             ev_text.append("• " + _event_line(ev) + "\n")
         self.query_one("#diff-events", Static).update(ev_text)

@@ -258,11 +258,12 @@ class PagedTable(ScrollView, can_focus=True):
         cols = [self.columns[i] for i in shown]
         fixed = sum(c.width for c in cols if c.width) + len(cols) - 1
         flex = [c for c in cols if not c.width]
-        rest = max(total - fixed, 0)
-        share = rest // max(len(flex), 1)
+        # each flexible column gets its minimum, then an equal share of what is left
+        spare = max(total - fixed - sum(c.min_width for c in flex), 0)
+        extra = spare // max(len(flex), 1)
         out = []
         for i, c in enumerate(self.columns):
-            out.append(0 if i not in shown else (c.width if c.width else max(share, c.min_width)))
+            out.append(0 if i not in shown else (c.width if c.width else c.min_width + extra))
         return out
 
     def shown_columns(self) -> list[str]:
