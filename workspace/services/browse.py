@@ -89,7 +89,7 @@ LEDGER_MEASURES = ("modularity", "conductance", "normalized_cut", "ratio_cut", "
 #: sort keys besides the measures: key -> (column, newest/largest first by default)
 LEDGER_SORTS = ("run", "started", "status", "method", "version", "k", "param_set") + LEDGER_MEASURES
 #: sort keys whose natural order is descending (higher is the interesting end)
-_DESC_BY_DEFAULT = {"run", "started", "k", "modularity", "coverage"}
+DESCENDING_BY_DEFAULT = {"run", "started", "k", "modularity", "coverage"}
 
 
 def _ledger_query(columns, scope: str | None, status: str | None, text: str | None):
@@ -182,7 +182,7 @@ def ledger_runs(store: Store, scope: str | None = None, *, status: str | None = 
     if sort not in LEDGER_SORTS:
         raise UsageError(f"cannot sort runs by {sort!r}; choose one of: {', '.join(LEDGER_SORTS)}")
     if descending is None:
-        descending = sort in _DESC_BY_DEFAULT
+        descending = sort in DESCENDING_BY_DEFAULT
     q = _ledger_query([Run, Project.name, Network.name, NetworkVersion.number, ParamSet.name,
                        ParamSetVersion.number], scope, status, text)
     key = {"run": Run.id, "started": Run.started_at, "status": Run.status, "method": Run.method,

@@ -208,7 +208,8 @@ class DiffScreen(Screen):
         self._filter_moved(self.query_one("#diff-search", Input).value)
         self.show_contingency(d)
         if isinstance(self.focused, Input) and self.focused.id in ("diff-a", "diff-b"):
-            self.query_one("#diff-moved", PagedTable).focus()
+            self.query_one("#diff-moved", PagedTable).focus(scroll_visible=False)
+        self.call_after_refresh(self.query_one("#diff-body").scroll_home, animate=False)  # scores first
 
     # --- contingency panel (kept in one function: the diff-at-scale work feeds it from a sparse table) ---
 

@@ -157,7 +157,7 @@ class LedgerScreen(Screen):
         self._retitle()
 
     def _retitle(self) -> None:
-        from workspace.services.browse import _DESC_BY_DEFAULT
+        from workspace.services.browse import DESCENDING_BY_DEFAULT
 
         table = self.query_one("#runs", PagedTable)
         bits = [f"Runs in {self.scope or 'all projects'}"]
@@ -165,7 +165,7 @@ class LedgerScreen(Screen):
             bits.append(f"{self.status_filter} only")
         if self.text_filter:
             bits.append(f"“{self.text_filter}”")
-        descending = self.descending if self.descending is not None else self.sort in _DESC_BY_DEFAULT
+        descending = self.descending if self.descending is not None else self.sort in DESCENDING_BY_DEFAULT
         if self.sort != "run" or self.descending is not None:
             bits.append(f"by {self.sort.replace('_', ' ')} {'↓' if descending else '↑'}")
         bits.append(str(table.row_count))
@@ -341,9 +341,9 @@ class LedgerScreen(Screen):
         self._reload_runs()
 
     def action_reverse(self) -> None:
-        from workspace.services.browse import _DESC_BY_DEFAULT
+        from workspace.services.browse import DESCENDING_BY_DEFAULT
 
-        current = self.descending if self.descending is not None else self.sort in _DESC_BY_DEFAULT
+        current = self.descending if self.descending is not None else self.sort in DESCENDING_BY_DEFAULT
         self.descending = not current
         self._reload_runs()
 

@@ -160,7 +160,7 @@ class SpectrumPlot(Widget):
             text.append(marker, style=Style(color=palette.GAP_MARK, bold=True))
             text.append(f" largest gap λ{k}→λ{k + 1} = {_fmt(size, scale)}  ⇒  k = {k}", style=palette.GAP_MARK)
         if self.suggested is not None:
-            text.append(f"    the run found k = {self.suggested}", style=palette.TEXT)
+            text.append(f"\nthe run found k = {self.suggested}", style=palette.TEXT)
         if shown < m:
             text.append(f"\n({shown} of {m} eigenvalues shown; widen the terminal for more)", style=INK_MUTED)
         if self.note:
