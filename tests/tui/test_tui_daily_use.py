@@ -291,6 +291,12 @@ def test_tui_maximise_a_pane(demo_path):
             await pilot.press("m")
             await pilot.pause()
             assert app.screen.maximized is None
+            await pilot.press("m")
+            await pilot.pause()
+            assert app.screen.maximized is runs_pane
+            await pilot.press("escape")  # esc restores too
+            await pilot.pause()
+            assert app.screen.maximized is None
 
     asyncio.run(go())
 

@@ -180,7 +180,7 @@ class CutbookApp(App):
 
     def action_keys_help(self) -> None:
         """``?`` / F1: the keys of the current screen and the global ones, in a closable window."""
-        from workspace.tui.widgets.chrome import KeysHelp, describe_bindings, keys_text
+        from workspace.tui.widgets.chrome import KeysHelp, describe_bindings
 
         screen = self.screen
         if isinstance(screen, KeysHelp):
@@ -188,11 +188,9 @@ class CutbookApp(App):
             return
         title = SCREEN_NAMES.get(screen.id or "", getattr(screen, "TITLE", "") or "This screen")
         own = list(getattr(screen, "BINDINGS", []))
-        focused = self.focused
-        if focused is not None and focused.id == "runs":
-            own += [b for b in getattr(focused, "BINDINGS", []) if isinstance(b, Binding) and b.key == "enter"]
-        self.push_screen(KeysHelp(keys_text(f"{title} screen", describe_bindings(own),
-                                            describe_bindings(self.BINDINGS))))
+        if screen.id == "ledger":
+            own.append(Binding("enter", "noop", "Open", tooltip="the run's spectrum and community sizes"))
+        self.push_screen(KeysHelp(f"{title} screen", describe_bindings(own), describe_bindings(self.BINDINGS)))
 
     def action_maximise(self) -> None:
         """Toggle: the pane holding the focus fills the screen (the top bar and footer stay)."""

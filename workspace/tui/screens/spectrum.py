@@ -11,7 +11,7 @@ from textual.widgets import Footer, Input, Label, Static
 
 from workspace.tui.widgets.charts import SizeHistogram, SpectrumPlot
 from workspace.tui.widgets.chrome import ScreenBar, ScrollPane
-from workspace.tui.widgets.detail import fmt_value
+from workspace.tui.widgets.detail import fmt_value, label
 
 # diagnostics keys under which a method may report the k it derived from the spectrum itself
 SUGGESTED_KEYS = ("eigengap_suggestion", "suggested_k", "k_suggested", "eigengap_k", "auto_k", "k_auto")
@@ -99,8 +99,8 @@ class SpectrumScreen(Screen):
             f"{run['ref']} · {what} · {run['status']} · k = {fmt_value(run.get('k'))}")
         diag = run.get("diagnostics") or {}
         suggested = next((diag[k] for k in SUGGESTED_KEYS if isinstance(diag.get(k), int)), None)
-        note_bits = [f"{k}: {fmt_value(diag[k])}" for k in ("operator", "solver", "matvecs", "eigensolves",
-                                                            "residual_norm_max", "r") if k in diag]
+        note_bits = [f"{label(k)}: {fmt_value(diag[k], snap=k != 'residual_norm_max')}"
+                     for k in ("operator", "solver", "matvecs", "eigensolves", "residual_norm_max", "r") if k in diag]
         if suggested is not None:
             note_bits.insert(0, f"solver's eigengap suggestion: k = {suggested}")
         self.query_one(SpectrumPlot).show(run.get("eigenvalues") or [], suggested=run.get("k"),

@@ -206,8 +206,11 @@ class SizeHistogram(Widget):
         for lbl, n in self.sizes:
             eighths = int(round(n / top * bar_room * 8))
             bar = "█" * (eighths // 8) + (HORIZONTAL[eighths % 8] if eighths % 8 else "")
-            text.append(lbl.rjust(label_w) + " ", style=INK_MUTED)
-            text.append(bar.ljust(bar_room), style=palette.BARS)
+            # one colour per community (its label, cycling through the palette's seven); bins share one
+            colour = palette.community_colour(int(lbl[1:])) if not self.binned and lbl[1:].isdigit() \
+                else palette.BARS
+            text.append(lbl.rjust(label_w) + " ", style=colour if not self.binned else INK_MUTED)
+            text.append(bar.ljust(bar_room), style=colour)
             text.append(str(n).rjust(count_w) + "\n")
         return text
 

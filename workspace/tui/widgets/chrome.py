@@ -86,24 +86,38 @@ class ScreenBar(Static):
 
 
 def keys_text(screen_title: str, screen_bindings, app_bindings) -> Text:
-    """The keys help: this screen's keys, then the keys that work everywhere."""
+    """The keys help as plain lines: this screen's keys, then the keys that work everywhere."""
     t = Text()
-    t.append(f"{screen_title}\n", style=f"bold {palette.PRIMARY}")
-    for key, desc, tip in screen_bindings:
-        t.append(f"  {key:<12}", style=f"bold {palette.ACCENT}")
-        t.append(desc, style=palette.TEXT)
-        if tip:
-            t.append(f" — {tip}", style=palette.DIM)
+    for title, rows in ((screen_title, screen_bindings), ("Everywhere", app_bindings)):
+        t.append(f"{title}\n", style=f"bold {palette.PRIMARY}")
+        for key, desc, tip in rows:
+            t.append(f"  {key:<12}", style=f"bold {palette.ACCENT}")
+            t.append(desc, style=palette.TEXT)
+            if tip:
+                t.append(f" — {tip}", style=palette.DIM)
+            t.append("\n")
         t.append("\n")
-    t.append("\nEverywhere\n", style=f"bold {palette.PRIMARY}")
-    for key, desc, tip in app_bindings:
-        t.append(f"  {key:<12}", style=f"bold {palette.ACCENT}")
-        t.append(desc, style=palette.TEXT)
-        if tip:
-            t.append(f" — {tip}", style=palette.DIM)
-        t.append("\n")
-    t.append("\nesc or ? closes this help", style=palette.FAINT)
+    t.append("esc or ? closes this help", style=palette.FAINT)
     return t
+
+
+def keys_table(screen_title: str, screen_bindings, app_bindings):
+    """The same as :func:`keys_text` laid out as a table whose descriptions wrap under themselves."""
+    from rich.table import Table
+
+    table = Table.grid(padding=(0, 2))
+    table.add_column(no_wrap=True)
+    table.add_column(ratio=1)
+    for title, rows in ((screen_title, screen_bindings), ("Everywhere", app_bindings)):
+        table.add_row(Text(title, style=f"bold {palette.PRIMARY}"), "")
+        for key, desc, tip in rows:
+            cell = Text(desc, style=palette.TEXT)
+            if tip:
+                cell.append(f" — {tip}", style=palette.DIM)
+            table.add_row(Text("  " + key, style=f"bold {palette.ACCENT}"), cell)
+        table.add_row("", "")
+    table.add_row(Text("esc or ?", style=palette.FAINT), Text("closes this help", style=palette.FAINT))
+    return table
 
 
 def _key_name(key: str) -> str:
@@ -133,11 +147,12 @@ class KeysHelp(ModalScreen):
                                  border: round $primary; background: $panel; padding: 0 1; }
     """
 
-    def __init__(self, text: Text) -> None:
+    def __init__(self, screen_title: str, screen_bindings, app_bindings) -> None:
         super().__init__(id="keys-help")
-        self.text = text
+        self.text = keys_text(screen_title, screen_bindings, app_bindings)  # plain lines (tests read them)
+        self.table = keys_table(screen_title, screen_bindings, app_bindings)
 
     def compose(self) -> ComposeResult:
         with VerticalScroll() as box:
             box.border_title = "Keys"
-            yield Static(self.text, id="keys-help-text")
+            yield Static(self.table, id="keys-help-text")
