@@ -138,7 +138,7 @@ def test_tui_ledger_fits(demo_path, size):
             assert "stations@4 " in line and " 10 " in line, line
             assert re.search(r"\d\d-\d\d \d\d:\d\d", line), line  # started
             keys = footer_keys(app)
-            for key in ("s", "a", "b", "l", "f", "o", "?", "m"):
+            for key in ("a", "b", "l", "f", "o", "?", "m"):
                 assert key in keys, (key, keys)
             bar = screen.query_one("#screen-bar")
             on_screen(app, bar, min_width=size[0])
@@ -472,6 +472,23 @@ def test_tui_header_marks_store_and_screen(demo_path):
                 marked = [text.plain[s.start:s.end] for s in text.spans if palette.ACCENT in str(s.style)]
                 assert marked == [f" {key} {name} "]
                 assert str(demo_path.name) in text.plain
+
+    asyncio.run(go())
+
+
+def test_tui_footer_marks_the_screen(demo_path):
+    """The footer starts with the current screen's name, inside the screen at 80 columns."""
+    from textual.widgets._footer import FooterLabel
+
+    async def go():
+        async with workspace(demo_path, (80, 24)) as (app, pilot):
+            for key, name in (("1", "Ledger"), ("2", "Launch"), ("3", "Spectrum"), ("4", "Diff"),
+                              ("5", "Node lookup")):
+                await pilot.press("escape", key)
+                await settle(app, pilot)
+                label = app.screen.query_one("FooterLabel.footer-screen", FooterLabel)
+                assert str(label.content).strip() == name
+                assert label.region.x == 0 and label.region.width >= len(name)
 
     asyncio.run(go())
 

@@ -8,12 +8,12 @@ from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.containers import Horizontal, VerticalScroll
 from textual.screen import Screen
-from textual.widgets import Footer, Input, Label, Select, Static
+from textual.widgets import Input, Label, Select, Static
 
 from workspace.tui.widgets.charts import HeatTable
-from workspace.tui.widgets.chrome import Pane, ScreenBar, ScrollPane
+from workspace.tui.widgets.chrome import Pane, ScreenBar, ScreenFooter, ScrollPane
 from workspace.tui.widgets.detail import BAD, HEAD, KEY, MUTED, fmt_value
 from workspace.tui.widgets.paged_table import Column, ListSource, PagedTable
 
@@ -104,7 +104,7 @@ class DiffScreen(Screen):
                     yield PagedTable(MOVED_COLUMNS, id="diff-moved", empty_text="no moved nodes")
                 with ScrollPane(title="Contingency (rows: A, columns: B)", id="diff-heat-pane"):
                     yield HeatTable(id="diff-heat")
-        yield Footer(compact=True, show_command_palette=False)
+        yield ScreenFooter("diff")
 
     def apply_picks(self) -> None:
         """Put the runs picked as sides A / B (Ledger a / b, the palette) in the boxes; compare when both changed."""

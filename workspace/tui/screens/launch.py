@@ -12,13 +12,13 @@ from typing import Any
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.containers import Horizontal, VerticalScroll
 from textual.screen import Screen
-from textual.widgets import Button, Footer, Input, Label, ProgressBar, Select, Static
+from textual.widgets import Button, Input, Label, ProgressBar, Select, Static
 
 from workspace.errors import CutbookError
 from workspace.tui.messages import RunEnded, RunProgress, RunStarted, run_end_line
-from workspace.tui.widgets.chrome import ScreenBar, ScrollPane
+from workspace.tui.widgets.chrome import ScreenBar, ScreenFooter, ScrollPane
 from workspace.tui.widgets.detail import STATUS_STYLE, fmt_value, label
 from workspace.tui.widgets.param_form import ParamForm
 
@@ -78,7 +78,7 @@ class LaunchScreen(Screen):
                 yield ProgressBar(total=None, show_eta=False, show_percentage=False, id="run-bar")
                 yield Static("", id="run-stage")
                 yield Static("", id="run-outcome")
-        yield Footer(compact=True, show_command_palette=False)
+        yield ScreenFooter("launch")
 
     def on_unmount(self) -> None:
         self.started_at = None

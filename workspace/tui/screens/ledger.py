@@ -16,11 +16,11 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Container
 from textual.screen import Screen
-from textual.widgets import Footer, Input, Tree
+from textual.widgets import Input, Tree
 
 from workspace.tui import palette
 from workspace.tui.messages import StoreChanged
-from workspace.tui.widgets.chrome import Pane, ScreenBar
+from workspace.tui.widgets.chrome import Pane, ScreenBar, ScreenFooter
 from workspace.tui.widgets.detail import (STATUS_STYLE, DetailPane, fmt_value, network_text, project_text, run_text,
                                           store_text, version_text)
 from workspace.tui.widgets.paged_table import CallbackSource, Column, PagedTable
@@ -58,7 +58,7 @@ class LedgerScreen(Screen):
 
     TITLE = "Ledger"
     BINDINGS = [
-        Binding("s", "spectrum", "Spectrum", tooltip="eigenvalues and community sizes of the run (enter too)"),
+        Binding("s", "spectrum", "Spectrum", show=False, tooltip="eigenvalues and community sizes of the run (enter too)"),
         Binding("a", "pick('a')", "Side A", tooltip="use the run as side A of a diff"),
         Binding("b", "pick('b')", "Side B", tooltip="use the run as side B of a diff"),
         Binding("l", "launch_here", "Launch", tooltip="launch a run on this version (a network: its newest)"),
@@ -93,7 +93,7 @@ class LedgerScreen(Screen):
                 yield Tree("store", id="outline")
             with Pane(title="Detail", id="detail-pane"):
                 yield DetailPane(id="detail")
-        yield Footer(compact=True, show_command_palette=False)
+        yield ScreenFooter("ledger")
 
     # --- data ---------------------------------------------------------------------------------------
 

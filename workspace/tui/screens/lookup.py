@@ -8,11 +8,11 @@ from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Horizontal, Vertical
+from textual.containers import Horizontal
 from textual.screen import Screen
-from textual.widgets import Footer, Input, Label, Select, Static
+from textual.widgets import Input, Label, Select, Static
 
-from workspace.tui.widgets.chrome import Pane, ScreenBar
+from workspace.tui.widgets.chrome import Pane, ScreenBar, ScreenFooter
 from workspace.tui.widgets.detail import BAD, MUTED
 from workspace.tui.widgets.paged_table import Column, ListSource, PagedTable
 
@@ -55,7 +55,7 @@ class LookupScreen(Screen):
             yield Static(Text("choose a network, type a node id and press enter", style=MUTED),
                          id="lookup-summary")
             yield PagedTable(WHERE_COLUMNS, id="lookup-runs", empty_text="no runs to show")
-        yield Footer(compact=True, show_command_palette=False)
+        yield ScreenFooter("lookup")
 
     def on_mount(self) -> None:
         self._load_networks()

@@ -5,12 +5,12 @@ from __future__ import annotations
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.containers import Horizontal, VerticalScroll
 from textual.screen import Screen
-from textual.widgets import Footer, Input, Label, Static
+from textual.widgets import Input, Label, Static
 
 from workspace.tui.widgets.charts import SizeHistogram, SpectrumPlot
-from workspace.tui.widgets.chrome import ScreenBar, ScrollPane
+from workspace.tui.widgets.chrome import ScreenBar, ScreenFooter, ScrollPane
 from workspace.tui.widgets.detail import fmt_value, label
 
 # diagnostics keys under which a method may report the k it derived from the spectrum itself
@@ -42,7 +42,7 @@ class SpectrumScreen(Screen):
                 yield SpectrumPlot(id="spectrum-plot")
             with ScrollPane(title="Community sizes", id="spectrum-sizes-pane"):
                 yield SizeHistogram(id="size-histogram")
-        yield Footer(compact=True, show_command_palette=False)
+        yield ScreenFooter("spectrum")
 
     def on_screen_resume(self) -> None:
         run = getattr(self.app, "current_run", None)

@@ -7,7 +7,8 @@ from textual.app import ComposeResult
 from textual.binding import Binding
 from textual.containers import Vertical, VerticalScroll
 from textual.screen import ModalScreen
-from textual.widgets import Static
+from textual.widgets import Footer, Static
+from textual.widgets._footer import FooterLabel
 
 from workspace.tui import palette
 
@@ -83,6 +84,28 @@ class ScreenBar(Static):
 
         return screen_bar_text(self.current, SCREEN_NAMES, getattr(self.app, "store_label", ""),
                                self.size.width or 80).plain
+
+
+class ScreenFooter(Footer):
+    """The footer: the current screen's name first (marked), then the keys that work here."""
+
+    DEFAULT_CSS = """
+    ScreenFooter FooterLabel.footer-screen { margin: 0 1 0 0; text-style: bold; }
+    """
+
+    def __init__(self, current: str) -> None:
+        super().__init__(compact=True, show_command_palette=False)
+        self.current = current
+
+    def compose(self) -> ComposeResult:
+        from workspace.tui.app import SCREEN_NAMES
+
+        if self._bindings_ready:
+            label = FooterLabel(f" {SCREEN_NAMES.get(self.current, self.current)} ", classes="footer-screen")
+            label.styles.background = palette.ACCENT
+            label.styles.color = palette.GROUND
+            yield label
+        yield from super().compose()
 
 
 def keys_text(screen_title: str, screen_bindings, app_bindings) -> Text:
