@@ -548,6 +548,20 @@ def test_tui_text_filter(demo_path):
             await pilot.press("o")
             await settle(app, pilot)
             assert app.screen.sort == "modularity" and "by modularity ↓" in app.screen.runs_title
+            await pilot.press("O")
+            await settle(app, pilot)
+            assert "by modularity ↑" in app.screen.runs_title
+            q = [r["quality"]["modularity"] for r in table._source.fetch(0, 100)]
+            assert q == sorted(q)
+            # F shows one status at a time; every demo run is done
+            await pilot.press("F")
+            await settle(app, pilot)
+            assert "done only" in app.screen.runs_title and table.row_count == len(expected)
+            # esc in the filter box goes back to the list; emptying the box lifts the filter
+            await pilot.press("f", *["backspace"] * 20, "escape")
+            await settle(app, pilot)
+            assert app.focused is table and "“" not in app.screen.runs_title
+            assert table.row_count == len(list_runs(app.store))
 
     asyncio.run(go())
 

@@ -176,7 +176,11 @@ class CutbookApp(App):
         from textual.widgets import Input
 
         if isinstance(self.focused, Input):
+            left = self.focused
             self.screen.set_focus(None)
+            hook = getattr(self.screen, "after_leave_field", None)
+            if hook is not None:
+                hook(left)
 
     def action_keys_help(self) -> None:
         """``?`` / F1: the keys of the current screen and the global ones, in a closable window."""

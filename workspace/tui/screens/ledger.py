@@ -329,6 +329,12 @@ class LedgerScreen(Screen):
         self._apply_filter()
         self.query_one("#runs", PagedTable).focus()
 
+    def after_leave_field(self, field) -> None:
+        """Esc in the filter box: back to the runs list (the filter stays until the box is emptied)."""
+        if field.id == "runs-filter":
+            self._apply_filter()
+            self.query_one("#runs", PagedTable).focus()
+
     def on_descendant_blur(self, event) -> None:
         box = self.query_one("#runs-filter", Input)
         if event.widget is box and not box.value.strip():
