@@ -275,6 +275,20 @@ def test_tui_lookup_fits(demo_path, size):
     asyncio.run(go())
 
 
+def test_tui_ledger_side_by_side_when_wide(demo_path):
+    """From 160 columns (here 200×50) outline, runs and detail sit side by side, all full height."""
+
+    async def go():
+        async with workspace(demo_path, (200, 50)) as (app, pilot):
+            outline, runs, detail = (app.screen.query_one(f"#{w}-pane") for w in ("outline", "runs", "detail"))
+            assert outline.region.right <= runs.region.x and runs.region.right <= detail.region.x
+            for pane in (outline, runs, detail):
+                assert pane.region.height >= 50 - 2 - 1
+            assert runs.region.width >= 90 and detail.region.width >= 60
+
+    asyncio.run(go())
+
+
 def test_tui_maximise_a_pane(demo_path):
     """`m` makes the pane holding the focus fill the screen (top bar and footer stay); `m` again restores."""
 
@@ -657,6 +671,8 @@ def test_tui_rounding_noise_reads_zero():
     assert _fmt(-2.71e-14, 1.9) == "0" and _fmt(0.5, 1.9) == "0.5"
     plot = SpectrumPlot()
     plot.values = [-2.71e-14, 0.4, 1.9]
+    # at any width the gap sentence stays whole (on its own line when the marker sits far right)
+    assert "largest gap λ2→λ3 = 1.5  ⇒  k = 2" in plot.render().plain
     # the Laplacian of a connected graph has eigenvalue 0 once (Chung 1997, Spectral Graph Theory, lemma 1.7):
     # its rounding must not make a negative axis
     assert "e-14" not in plot.render().plain

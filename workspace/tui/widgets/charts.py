@@ -158,7 +158,10 @@ class SpectrumPlot(Widget):
             k, size = gap
             marker = " " * (axis_w + k * (bar_w + 1) - 1) + "▲"
             text.append(marker, style=Style(color=palette.GAP_MARK, bold=True))
-            text.append(f" largest gap λ{k}→λ{k + 1} = {_fmt(size, scale)}  ⇒  k = {k}", style=palette.GAP_MARK)
+            words = f" largest gap λ{k}→λ{k + 1} = {_fmt(size, scale)}  ⇒  k = {k}"
+            if len(marker) + len(words) > width:  # no room right of the marker: say it on the next line
+                words = "\n" + " " * axis_w + words.lstrip()
+            text.append(words, style=palette.GAP_MARK)
         if self.suggested is not None:
             text.append(f"\nthe run found k = {self.suggested}", style=palette.TEXT)
         if shown < m:

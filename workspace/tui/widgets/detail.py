@@ -234,10 +234,9 @@ def _versions(t: Text, versions: list[dict[str, Any]]) -> None:
         t.append("  no versions\n", style=MUTED)
     for v in versions:
         t.append(f"  @{v['version']:<4}", style=f"bold {palette.ACCENT}")
-        t.append(f"{v['nodes']} nodes · {v['edges']} edges · {_plural(v['runs'], 'run')}")
+        t.append(f"{v['nodes']} nodes · {v['edges']} edges · {_plural(v['runs'], 'run')}\n")
         if v.get("message"):
-            t.append(f"  {v['message']}", style=KEY)
-        t.append("\n")
+            t.append(f"        {v['message']}\n", style=KEY)
 
 
 class DetailPane(VerticalScroll):
