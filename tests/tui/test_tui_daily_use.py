@@ -580,6 +580,32 @@ def test_tui_text_filter(demo_path):
     asyncio.run(go())
 
 
+def test_tui_spectrum_of_a_missing_run_clears_the_charts(demo_path):
+    """Item 3's sibling on the Spectrum screen: a run that cannot be opened leaves no old bars behind."""
+    from textual.widgets import Input
+
+    from workspace.tui.widgets.charts import SizeHistogram, SpectrumPlot
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            app.current_run = None  # no run looked at yet
+            await pilot.press("3")
+            await pilot.pause()
+            assert app.focused is app.screen.query_one("#spectrum-run", Input)  # so the focus is in the run box
+            await pilot.press(*str(demo_run(app.store, "njw", "velmora-bikes/stations@4")), "enter")
+            await settle(app, pilot)
+            assert "█" in app.screen.query_one(SpectrumPlot).render().plain
+            box = app.screen.query_one("#spectrum-run", Input)
+            box.value = "999"
+            await pilot.press("ctrl+f", "enter")
+            await settle(app, pilot)
+            assert "no run 999" in static_text(app.screen.query_one("#spectrum-summary"))
+            assert "█" not in app.screen.query_one(SpectrumPlot).render().plain
+            assert "█" not in app.screen.query_one(SizeHistogram).render().plain
+
+    asyncio.run(go())
+
+
 def test_tui_step_past_the_newest_run(demo_path):
     from workspace.services.runs import list_runs
 
@@ -702,6 +728,26 @@ def test_tui_detail_in_words(demo_path):
         assert raw not in text, raw
     assert "wall time (s)" in text and "largest residual" in text
     assert not re.search(r"\d{4}-\d\d-\d\dT\d\d", text)
+
+
+def test_tui_version_detail_lists_changes_in_words(demo_path):
+    """A version's changes from its parent: edges as `u — v`, weight changes as `old → new`, true counts."""
+    from workspace.services.networks import show_version
+    from workspace.tui.widgets.detail import version_text
+
+    store = open_workspace(demo_path)
+    try:
+        v = show_version(store, "velmora-bikes/stations@4")
+    finally:
+        store.dispose()
+    text = version_text(v).plain
+    ch = v["changes_from_parent"]
+    assert "listings" not in text and "[" not in text
+    u, w = ch["listings"]["edges_added"][0][:2]
+    assert f"{u} — {w}" in text
+    a, b, old, new = ch["listings"]["weights_changed"][0]
+    assert re.search(rf"{a} — {b}  \S+ → \S+", text)
+    assert f"… {ch['edges_added'] - 6} more" in text
 
 
 # --- item 8: our own palette, colour-vision-deficiency friendly ------------------------------------------------

@@ -451,7 +451,7 @@ def test_tui_node_lookup_across_versions(demo_path):
             await settle(app, pilot)
             summary = static_text(screen.query_one("#lookup-summary"))
             # the scenario opens the Lantern Wharf district (LW-*) in the third monthly version
-            assert "present in version(s) @3, @4" in summary
+            assert "present in versions @3, @4" in summary
             rows = screen.query_one("#lookup-runs", PagedTable)
             all_rows = rows._source.fetch(0, rows.row_count)
             assert {r["version"] for r in all_rows if not r["present"]} == {1, 2}

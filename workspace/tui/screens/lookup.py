@@ -138,8 +138,10 @@ class LookupScreen(Screen):
         runs = r.get("runs") or []
         t = Text()
         t.append(f"{r['node']}", style="bold")
-        t.append(f" in {r['network']}: present in version(s) "
-                 f"{', '.join('@' + str(v) for v in r['versions_with_node'])}; {len(runs)} finished run(s)")
+        present = r["versions_with_node"]
+        t.append(f" in {r['network']}: present in version{'s' if len(present) != 1 else ''} "
+                 f"{', '.join('@' + str(v) for v in present)}; "
+                 f"{len(runs)} finished run{'s' if len(runs) != 1 else ''}")
         # community labels belong to one run each, so they are never pooled across runs (the table has them)
         per_version: dict[int, int] = {}
         for row in runs:

@@ -48,7 +48,22 @@ class SpectrumScreen(Screen):
         run = getattr(self.app, "current_run", None)
         if run is not None and run != self.run_id:
             self.show_run(run)
-        self.query_one("#spectrum-plot-pane").focus()
+        # the focus goes where the next thing to do is: the run box until a run is shown
+        if self.run_id is None:
+            self.query_one("#spectrum-run", Input).focus()
+        else:
+            self.query_one("#spectrum-plot-pane").focus()
+
+    def clear(self, message: str) -> None:
+        """A run that cannot be shown: say why, and leave nothing of the previous run on screen."""
+        from rich.text import Text
+
+        from workspace.tui.widgets.detail import BAD
+
+        self.run_id = None
+        self.query_one("#spectrum-summary", Static).update(Text(message, style=BAD))
+        self.query_one(SpectrumPlot).show([], empty="—")
+        self.query_one(SizeHistogram).show([], empty="—")
 
     def on_mount(self) -> None:
         self.on_screen_resume()
@@ -90,6 +105,7 @@ class SpectrumScreen(Screen):
             run = show_run(self.app.store, run_id)
         except Exception as exc:  # noqa: BLE001
             self.app.report(exc)
+            self.clear(f"could not open run {run_id}: {exc}")
             return
         self.run_id = run_id
         self.app.current_run = run_id

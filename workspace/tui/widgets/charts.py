@@ -104,10 +104,15 @@ class SpectrumPlot(Widget):
         self.suggested: int | None = None
         self.note = ""
 
-    def show(self, values: Sequence[float], *, suggested: int | None = None, note: str = "") -> None:
+    EMPTY = "no eigenvalues recorded for this run (attached groupings and some baselines have none)"
+
+    def show(self, values: Sequence[float], *, suggested: int | None = None, note: str = "",
+             empty: str | None = None) -> None:
+        """Plot ``values``; with none, say ``empty`` (default: the run recorded none)."""
         self.values = [float(v) for v in values]
         self.suggested = suggested
         self.note = note
+        self.empty = empty or self.EMPTY
         self.refresh(layout=True)
 
     def get_content_height(self, container, viewport, width: int) -> int:
@@ -120,8 +125,7 @@ class SpectrumPlot(Widget):
     def render(self) -> RenderableType:
         values = self.values
         if not values:
-            return Text("no eigenvalues recorded for this run (attached groupings and some baselines have none)",
-                        style=INK_MUTED)
+            return Text(getattr(self, "empty", self.EMPTY), style=INK_MUTED)
         width = max(self.size.width, 30)
         rows = max(self.size.height - 5, 4)
         gap = largest_gap(values)
@@ -181,7 +185,8 @@ class SizeHistogram(Widget):
         self.sizes: list[tuple[str, int]] = []
         self.binned = False
 
-    def show(self, communities: Sequence[dict[str, Any]], *, max_bars: int = 24) -> None:
+    def show(self, communities: Sequence[dict[str, Any]], *, max_bars: int = 24, empty: str | None = None) -> None:
+        self.empty = empty or "no communities recorded"
         rows = [(f"c{c['community']}", int(c["size"])) for c in communities]
         if len(rows) > max_bars:
             self.sizes = size_bins([s for _, s in rows])
@@ -196,7 +201,7 @@ class SizeHistogram(Widget):
 
     def render(self) -> RenderableType:
         if not self.sizes:
-            return Text("no communities recorded", style=INK_MUTED)
+            return Text(getattr(self, "empty", "no communities recorded"), style=INK_MUTED)
         width = max(self.size.width, 30)
         label_w = max(len(lbl) for lbl, _ in self.sizes) + 1
         top = max(n for _, n in self.sizes) or 1

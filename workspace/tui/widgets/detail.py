@@ -172,11 +172,34 @@ def version_text(v: dict[str, Any]) -> Text:
         t.append("  first version (no parent)\n", style=MUTED)
     else:
         _pairs(t, {k: val for k, val in ch.items() if not isinstance(val, (list, dict))})
+        listings = ch.get("listings") if isinstance(ch.get("listings"), dict) else {}
         for k, val in ch.items():
-            if isinstance(val, (list, dict)) and val:
+            if k != "listings" and isinstance(val, (list, dict)) and val:
                 t.append("  " + label(k).ljust(20), style=KEY)
                 t.append(fmt_value(val) + "\n")
+        for k, items in listings.items():
+            if not items:
+                continue
+            _section(t, label(k).capitalize())
+            for item in items[:6]:
+                t.append("  " + _change_item(item) + "\n")
+            total = ch.get(k) if isinstance(ch.get(k), int) else len(items)  # listings are cut; counts are not
+            if total > min(len(items), 6):
+                t.append(f"  … {total - min(len(items), 6)} more (`cutbook changes` lists them)\n", style=MUTED)
     return t
+
+
+def _change_item(item: Any) -> str:
+    """One listed change: a node id, an edge ``u — v``, or a weight change ``u — v  13 → 4``."""
+    if isinstance(item, (list, tuple)):
+        if len(item) == 2:
+            return f"{item[0]} — {item[1]}"
+        if len(item) == 4:
+            return f"{item[0]} — {item[1]}  {fmt_value(item[2])} → {fmt_value(item[3])}"
+        return ", ".join(fmt_value(x) for x in item)
+    if isinstance(item, dict):
+        return fmt_value(item)
+    return str(item)
 
 
 def _plural(n: int, word: str, plural: str | None = None) -> str:
