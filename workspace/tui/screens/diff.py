@@ -185,12 +185,17 @@ class DiffScreen(Screen):
         rows = [("ARI", d.get("ari")), (f"NMI ({norm})" if norm else "NMI", d.get("nmi")), ("AMI", d.get("ami")),
                 ("VI (nats)", d.get("vi_nats")), ("VI (bits)", d.get("vi_bits")), ("moved nodes", d.get("moved")),
                 ("only in A", d.get("only_in_a")), ("only in B", d.get("only_in_b")),
-                ("coverage", d.get("coverage")), ("nodes compared", d.get("nodes"))]
+                ("coverage", d.get("coverage")),
+                ("nodes scored", None if d.get("n_scored") is None else
+                 f"{d['n_scored']} ({'common to both' if d.get('nodes') == 'common' else 'all; absent = own group'})")]
         for name, value in rows:
             if value is None:
                 continue
             t.append(f"{name:<18}", style=KEY)
             t.append(fmt_value(value) + "\n")
+        if d.get("moved_nodes_truncated"):
+            t.append(f"\nmoved nodes listed: the first {len(d.get('moved_nodes') or [])} of {d.get('moved')}\n",
+                     style=MUTED)
         for note in d.get("notes") or []:
             t.append(f"\n{note}\n", style=MUTED)
         self.query_one("#diff-scores", Static).update(t)
