@@ -289,6 +289,24 @@ def test_tui_ledger_side_by_side_when_wide(demo_path):
     asyncio.run(go())
 
 
+def test_tui_layout_follows_a_resize(demo_path):
+    """Shrinking the terminal while on another screen: the Ledger comes back stacked for the new size."""
+
+    async def go():
+        async with workspace(demo_path, (120, 36)) as (app, pilot):
+            assert app.screen.has_class("-wide")
+            await pilot.press("4")
+            await pilot.pause()
+            await pilot.resize_terminal(80, 24)
+            await pilot.pause()
+            await pilot.press("escape", "1")
+            await settle(app, pilot)
+            assert app.screen.has_class("-narrow") and app.screen.has_class("-short")
+            on_screen(app, app.screen.query_one("#runs"), min_width=74, min_height=6)
+
+    asyncio.run(go())
+
+
 def test_tui_maximise_a_pane(demo_path):
     """`m` makes the pane holding the focus fill the screen (top bar and footer stay); `m` again restores."""
 
