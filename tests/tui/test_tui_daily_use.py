@@ -307,6 +307,21 @@ def test_tui_layout_follows_a_resize(demo_path):
     asyncio.run(go())
 
 
+def test_tui_new_screen_has_its_size_classes_from_the_first_frame(demo_path):
+    """A screen opened for the first time is laid out for the terminal at once (not one frame late)."""
+
+    async def go():
+        async with workspace(demo_path, (80, 24)) as (app, pilot):
+            for name in ("launch", "spectrum", "diff", "lookup"):
+                app.action_goto(name)
+                screen = app.workspace_screens[name]
+                assert screen.has_class("-narrow") and screen.has_class("-short"), (name, screen.classes)
+                assert not screen.has_class("-wide") and not screen.has_class("-tall")
+                await pilot.pause()
+
+    asyncio.run(go())
+
+
 def test_tui_maximise_a_pane(demo_path):
     """`m` makes the pane holding the focus fill the screen (top bar and footer stay); `m` again restores."""
 

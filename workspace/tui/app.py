@@ -142,7 +142,9 @@ class CutbookApp(App):
 
     def on_mount(self) -> None:
         self.sub_title = self.store_label
-        self.push_screen(self.workspace_screen("ledger"))
+        ledger = self.workspace_screen("ledger")
+        self.size_classes(ledger)
+        self.push_screen(ledger)
         self.set_interval(self.poll_interval, self._poll_job, name="run-job-poll")
 
     # --- navigation ----------------------------------------------------------------------------------
@@ -163,12 +165,24 @@ class CutbookApp(App):
             self.install_screen(screen, name)
         return screen
 
+    def size_classes(self, screen) -> None:
+        """Give ``screen`` its size classes now (Textual adds them on its first resize, one frame late)."""
+        width, height = self.size
+        for points, value in ((self.HORIZONTAL_BREAKPOINTS, width), (self.VERTICAL_BREAKPOINTS, height)):
+            chosen = None
+            for limit, cls in points:
+                if value >= limit:
+                    chosen = cls
+            for _, cls in points:
+                screen.set_class(cls == chosen, cls)
+
     def action_goto(self, name: str) -> None:
         if name not in SCREEN_NAMES:
             return
         screen = self.workspace_screen(name)
         if self.screen is screen:
             return
+        self.size_classes(screen)
         self.switch_screen(name)
 
     def action_leave_field(self) -> None:
