@@ -90,18 +90,21 @@ def _section(text: Text, title: str) -> None:
     text.append(f"\n{title}\n", style=HEAD)
 
 
-def _pairs(text: Text, items: dict[str, Any] | None, *, skip: tuple[str, ...] = ()) -> None:
+def _pairs(text: Text, items: dict[str, Any] | None, *, skip: tuple[str, ...] = (), raw: bool = False) -> None:
+    """``key  value`` lines; ``raw`` keeps the keys as recorded (parameter names are what `--set` takes)."""
     if not items:
         text.append("  (none)\n", style=MUTED)
         return
     shown = {k: v for k, v in items.items() if k not in skip}
-    width = min(max((len(label(k)) for k in shown), default=0) + 2, 24)
+    name_of = (lambda k: k) if raw else label
+    width = min(max((len(name_of(k)) for k in shown), default=0) + 2, 24)
     for key, value in shown.items():
-        name = label(key)
+        name = name_of(key)
         text.append("  " + name.ljust(width), style=KEY)
         if len(name) >= width:
             text.append("\n" + " " * (width + 2))
-        text.append(fmt_value(value, snap=not any(t in key for t in _KEEP_TINY)) + "\n")
+        # parameters are settings, never rounding noise: they keep their value however small
+        text.append(fmt_value(value, snap=not raw and not any(t in key for t in _KEEP_TINY)) + "\n")
 
 
 def run_text(run: dict[str, Any]) -> Text:
@@ -128,7 +131,7 @@ def run_text(run: dict[str, Any]) -> Text:
     _pairs(t, {k: v for k, v in (run.get("quality") or {}).items()
                if k not in ("k", "sizes") and not k.endswith("_per_community")})
     _section(t, "Parameters")
-    _pairs(t, run.get("params"))
+    _pairs(t, run.get("params"), raw=True)  # the method's own parameter names, as the Launch form shows them
     _section(t, "Warnings")
     if run.get("warnings"):
         for w in run["warnings"]:
