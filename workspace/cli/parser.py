@@ -130,6 +130,15 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("ref", nargs="?", metavar="PROJECT[/NETWORK[@V]]")
     p.add_argument("--status", choices=["running", "done", "failed", "cancelled", "interrupted"])
     p.add_argument("--limit", type=int, default=None)
+    p.add_argument("--sort", default="run", metavar="KEY",
+                   help="run, started, status, method, version, k, param_set, or a quality measure: modularity, "
+                        "conductance, normalized_cut, ratio_cut, coverage, cut (default run, newest first)")
+    order = p.add_mutually_exclusive_group()
+    order.add_argument("--asc", dest="descending", action="store_false", default=None,
+                       help="ascending order (default: largest first for run/started/k/modularity/coverage)")
+    order.add_argument("--desc", dest="descending", action="store_true", help="descending order")
+    p.add_argument("--filter", metavar="TEXT",
+                   help="only runs whose method, label, version, status or parameter set contains every word")
 
     p = add("export", "write a run's membership to a file", "runs", "cmd_export")
     p.add_argument("run", type=int)

@@ -99,19 +99,31 @@ def cmd_attach(args) -> int:
 
 
 def cmd_runs(args) -> int:
-    from workspace.services import runs as svc
+    from workspace.services import browse
 
     with session(args) as (store, out):
-        rows = svc.list_runs(store, args.ref, limit=args.limit, status=args.status)
+        rows = browse.ledger_runs(store, args.ref, status=args.status, text=args.filter, sort=args.sort,
+                                  descending=args.descending, limit=args.limit)
         if args.json:
             emit_json(rows)
         elif not rows:
-            out.line("no runs")
+            out.line("no runs" + (f" matching {args.filter!r}" if args.filter else ""))
         else:
-            out.table(["run", "status", "method", "version", "k", "created"],
+            measure = args.sort if args.sort in browse.LEDGER_MEASURES else "modularity"
+            extra = ["conductance"] if measure == "modularity" else []
+            out.table(["run", "status", "method", "version", "k", "parameter set", measure.replace("_", " "),
+                       *extra, "started"],
                       [(r["run"], r["status"], r["method"] if r["kind"] == "computed" else f"attached:{r['label']}",
-                        r["ref"], r["k"], r["created"]) for r in rows], right=["run", "k"])
+                        r["ref"], r["k"], _set_name(r["param_set"]), r["quality"].get(measure),
+                        *[r["quality"].get(m) for m in extra], (r["created"] or "").replace("T", " ")[:16])
+                       for r in rows],
+                      right=["run", "k", measure.replace("_", " "), *extra])
     return 0
+
+
+def _set_name(ref: str | None) -> str | None:
+    """``P/NAME@V`` shown as ``NAME@V`` (the project is in the version column)."""
+    return ref.split("/", 1)[-1] if ref else None
 
 
 def show_run(args) -> int:

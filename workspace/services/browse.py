@@ -9,6 +9,7 @@ counts in a handful of grouped queries.
 
 from __future__ import annotations
 
+import json
 from typing import Any
 
 from sqlalchemy import func, select
@@ -79,3 +80,157 @@ def outline(store: Store) -> list[dict[str, Any]]:
                     "networks": [{"network": n.name, "ref": f"{p.name}/{n.name}", "versions": by_net.get(n.id, [])}
                                  for n in nets if n.project_id == p.id]})
     return out
+
+
+# --- the ledger: runs with quality and parameter set, sorted and filtered --------------------------------
+
+#: scalar quality measures a ledger row carries (and can be sorted by), in display order
+LEDGER_MEASURES = ("modularity", "conductance", "normalized_cut", "ratio_cut", "coverage", "cut")
+#: sort keys besides the measures: key -> (column, newest/largest first by default)
+LEDGER_SORTS = ("run", "started", "status", "method", "version", "k", "param_set") + LEDGER_MEASURES
+#: sort keys whose natural order is descending (higher is the interesting end)
+DESCENDING_BY_DEFAULT = {"run", "started", "k", "modularity", "coverage"}
+
+
+def _ledger_query(columns, scope: str | None, status: str | None, text: str | None, *, sets: bool = True):
+    """Runs joined to version/network/project and (outer, when ``sets``) to their parameter set, narrowed."""
+    from sqlalchemy import and_, func, or_
+
+    q = (select(*columns).select_from(Run)
+         .join(NetworkVersion, NetworkVersion.id == Run.version_id)
+         .join(Network, Network.id == NetworkVersion.network_id)
+         .join(Project, Project.id == Network.project_id))
+    if sets or text:
+        q = (q.outerjoin(ParamSetVersion, ParamSetVersion.id == Run.param_set_version_id)
+             .outerjoin(ParamSet, ParamSet.id == ParamSetVersion.param_set_id))
+    q = _scope(q, scope)
+    if status:
+        q = q.where(Run.status == status)
+    words = (text or "").lower().split()
+    if words:
+        ref = func.lower(Project.name + "/" + Network.name + "@" + func.cast(NetworkVersion.number, _text_type()))
+        fields = [func.lower(Run.method), func.lower(func.coalesce(Run.label, "")), ref, func.lower(Run.status),
+                  func.lower(func.coalesce(ParamSet.name, "")), func.lower(Run.kind)]
+        conds = []
+        for w in words:
+            if w.isdigit():  # a number also finds that run id or k
+                conds.append(or_(*(f.contains(w, autoescape=True) for f in fields), Run.id == int(w),
+                                 Run.k == int(w)))
+            else:
+                conds.append(or_(*(f.contains(w, autoescape=True) for f in fields)))
+        q = q.where(and_(*conds))
+    return q
+
+
+def _text_type():
+    from sqlalchemy import String
+
+    return String()
+
+
+def _measure(name: str):
+    """A scalar quality measure read from the run's JSON (``json_extract`` / ``->>`` per dialect)."""
+    from sqlalchemy import JSON, type_coerce
+
+    return type_coerce(Run.quality_json, JSON)[name].as_float()
+
+
+def count_ledger_runs(store: Store, scope: str | None = None, *, status: str | None = None,
+                      text: str | None = None) -> int:
+    """How many rows :func:`ledger_runs` pages through for the same ``scope``, ``status`` and ``text``."""
+    if not scope and not text:  # the whole store: no joins needed to count
+        q = select(func.count(Run.id))
+        if status:
+            q = q.where(Run.status == status)
+    else:
+        q = _ledger_query([func.count(Run.id)], scope, status, text, sets=False)
+    with store.read() as s:
+        return int(s.scalar(q) or 0)
+
+
+def ledger_runs(store: Store, scope: str | None = None, *, status: str | None = None, text: str | None = None,
+                sort: str = "run", descending: bool | None = None, limit: int | None = None,
+                offset: int = 0) -> list[dict[str, Any]]:
+    """Runs for a ledger: the run record plus its parameter set and scalar quality measures.
+
+    Parameters
+    ----------
+    store : Store
+    scope : str or None
+        ``None`` (whole store), ``P``, ``P/N`` or ``P/N@V``.
+    status : str or None
+        Only runs of this status.
+    text : str or None
+        Case-insensitive words, each of which must occur in the method, the
+        attached label, ``project/network@version``, the status, the parameter
+        set name or the kind; a whole number also matches that run id or k.
+    sort : str
+        One of :data:`LEDGER_SORTS` (a measure sorts by its recorded value;
+        runs without it come last in either direction).
+    descending : bool or None
+        None picks the natural direction: newest / largest first for run,
+        started, k, modularity and coverage, ascending otherwise (smaller cut,
+        conductance and normalized cut are better). Ties fall back to the run id,
+        newest first.
+    limit, offset : int
+        One page of rows (SQL ``LIMIT/OFFSET``).
+
+    Returns
+    -------
+    list of dict
+        The keys of :func:`workspace.services.runs.list_runs` plus ``param_set``
+        (``P/NAME@V`` or None) and ``quality`` (``{measure: float}`` for the
+        measures of :data:`LEDGER_MEASURES` the run recorded).
+    """
+    from workspace.errors import UsageError
+    from workspace.services.runs import _run_row_dict
+
+    if sort not in LEDGER_SORTS:
+        raise UsageError(f"cannot sort runs by {sort!r}; choose one of: {', '.join(LEDGER_SORTS)}")
+    if descending is None:
+        descending = sort in DESCENDING_BY_DEFAULT
+    q = _ledger_query([Run, Project.name, Network.name, NetworkVersion.number, ParamSet.name,
+                       ParamSetVersion.number], scope, status, text)
+    key = {"run": Run.id, "started": Run.started_at, "status": Run.status, "method": Run.method,
+           "version": Project.name + "/" + Network.name, "k": Run.k, "param_set": ParamSet.name}.get(sort)
+    if key is None:
+        key = _measure(sort)
+    # runs without the value last, whichever the direction (run ids and start times are never missing,
+    # and leaving the test out lets SQLite walk the primary key instead of sorting every run)
+    order = [] if sort in ("run", "started", "status", "method", "version") else [key.is_(None)]
+    if sort == "run":
+        order.append(Run.id.desc() if descending else Run.id.asc())
+    else:
+        order.append(key.desc() if descending else key.asc())
+    if sort == "version":
+        order.append(NetworkVersion.number.desc() if descending else NetworkVersion.number.asc())
+    order.append(Run.id.desc())
+    q = q.order_by(*order).offset(offset)
+    if limit is not None:
+        q = q.limit(limit)
+    out = []
+    with store.read() as s:
+        for run, project, network, number, ps_name, ps_number in s.execute(q).all():
+            row = _run_row_dict(run, project, network, number)
+            row["param_set"] = f"{project}/{ps_name}@{ps_number}" if ps_name else None
+            try:
+                quality = json.loads(run.quality_json or "{}")
+            except ValueError:
+                quality = {}
+            row["quality"] = {m: float(quality[m]) for m in LEDGER_MEASURES
+                              if isinstance(quality.get(m), (int, float)) and not isinstance(quality.get(m), bool)}
+            out.append(row)
+    return out
+
+
+def adjacent_run(store: Store, run_id: int, step: int) -> int | None:
+    """The id of the nearest stored run after (``step`` > 0) or before (``step`` < 0) ``run_id``; None at the end.
+
+    Run ids can have gaps (a run deleted, a write rolled back), so stepping is by
+    the stored ids, not by arithmetic.
+    """
+    q = select(Run.id)
+    q = q.where(Run.id > run_id).order_by(Run.id.asc()) if step > 0 else q.where(Run.id < run_id).order_by(
+        Run.id.desc())
+    with store.read() as s:
+        return s.scalar(q.limit(1))

@@ -15,26 +15,11 @@ from typing import Any
 from textual.app import App
 from textual.binding import Binding
 from textual.command import DiscoveryHit, Hit, Hits, Provider
-from textual.theme import Theme
 
 from workspace.errors import CutbookError
-from workspace.tui.messages import RunEnded, RunProgress, RunStarted, StoreChanged
+from workspace.tui import palette
+from workspace.tui.messages import RunEnded, RunProgress, RunStarted, StoreChanged, run_end_line
 from workspace.tui.screens.ledger import LedgerScreen  # the first screen; the others load on first use
-
-INK_THEME = Theme(
-    name="cutbook-ink",
-    primary="#e0a34a",      # amber
-    secondary="#6fa8a0",    # teal
-    accent="#c9b27c",       # brass
-    warning="#d9a441",
-    error="#d0705a",        # brick
-    success="#8fb58a",      # sage
-    foreground="#d9d3c7",   # paper
-    background="#1b2129",   # ink
-    surface="#212933",
-    panel="#2a3340",
-    dark=True,
-)
 
 SCREEN_NAMES = {"ledger": "Ledger", "launch": "Launch", "spectrum": "Spectrum", "diff": "Diff",
                 "lookup": "Node lookup"}
@@ -106,13 +91,21 @@ class CutbookApp(App):
     TITLE = "cutbook"
     CSS_PATH = "app.tcss"
     COMMANDS = App.COMMANDS | {WorkspaceCommands}
+    # screens get these classes from the terminal size; app.tcss lays panes out per class
+    HORIZONTAL_BREAKPOINTS = [(0, "-narrow"), (110, "-wide"), (160, "-xwide")]
+    VERTICAL_BREAKPOINTS = [(0, "-short"), (30, "-tall")]
+    ALLOW_IN_MAXIMIZED_VIEW = "Footer, ScreenBar"
+    # the screen keys live in the top bar (current screen marked), so the footer keeps room for each screen's own
     BINDINGS = [
-        Binding("1", "goto('ledger')", "Ledger"),
-        Binding("2", "goto('launch')", "Launch"),
-        Binding("3", "goto('spectrum')", "Spectrum"),
-        Binding("4", "goto('diff')", "Diff"),
-        Binding("5", "goto('lookup')", "Lookup"),
-        Binding("ctrl+q", "quit", "Quit", priority=True),
+        Binding("1", "goto('ledger')", "Ledger", show=False, tooltip="browse the store"),
+        Binding("2", "goto('launch')", "Launch", show=False, tooltip="start a run"),
+        Binding("3", "goto('spectrum')", "Spectrum", show=False, tooltip="eigenvalues and sizes of a run"),
+        Binding("4", "goto('diff')", "Diff", show=False, tooltip="compare two runs"),
+        Binding("5", "goto('lookup')", "Lookup", show=False, tooltip="where a node sits across runs"),
+        Binding("question_mark,f1", "keys_help", "Keys", tooltip="this list of keys"),
+        Binding("m", "maximise", "Max", tooltip="the pane holding the focus fills the screen; m again restores"),
+        Binding("ctrl+p", "command_palette", "Palette", show=False, tooltip="every command by name; 'run N' opens a run"),
+        Binding("ctrl+q", "quit", "Quit", show=False, priority=True, tooltip="stop a computing run and leave"),
         Binding("escape", "leave_field", "Leave field", show=False),
     ]
 
@@ -126,15 +119,34 @@ class CutbookApp(App):
         self.launch_version: str | None = None
         self.lookup_network: str | None = None
         self.workspace_screens: dict[str, Any] = {}
+        self.register_theme(palette.theme())
+        self.theme = "cutbook-fjord"
         _start_process_helpers()
 
+    @property
+    def store_label(self) -> str:
+        """The open store as the top bar shows it: the SQLite path, or the URL without a password."""
+        url = self.store.url
+        if url.startswith("sqlite:///"):
+            return url.removeprefix("sqlite:///")
+        try:
+            from sqlalchemy.engine import make_url
+
+            return make_url(url).render_as_string(hide_password=True)
+        except Exception:  # noqa: BLE001 - a label only
+            return url.split("@")[-1]
+
+    def get_theme_variable_defaults(self) -> dict[str, str]:
+        """Our own CSS variables ($dim, $faint, $rule, $bar-ground), from the palette."""
+        return {**super().get_theme_variable_defaults(), **palette.theme().variables}
+
     def on_mount(self) -> None:
-        self.register_theme(INK_THEME)
-        self.theme = "cutbook-ink"
-        self.sub_title = self.store.url.removeprefix("sqlite:///")
+        self.sub_title = self.store_label
         if getattr(self.store, "readonly", None):  # browsing works; launching and saving are refused
             self.sub_title += f"  (read-only: {self.store.readonly})"
-        self.push_screen(self.workspace_screen("ledger"))
+        ledger = self.workspace_screen("ledger")
+        self.size_classes(ledger)
+        self.push_screen(ledger)
         self.set_interval(self.poll_interval, self._poll_job, name="run-job-poll")
 
     # --- navigation ----------------------------------------------------------------------------------
@@ -155,12 +167,24 @@ class CutbookApp(App):
             self.install_screen(screen, name)
         return screen
 
+    def size_classes(self, screen) -> None:
+        """Give ``screen`` its size classes now (Textual adds them on its first resize, one frame late)."""
+        width, height = self.size
+        for points, value in ((self.HORIZONTAL_BREAKPOINTS, width), (self.VERTICAL_BREAKPOINTS, height)):
+            chosen = None
+            for limit, cls in points:
+                if value >= limit:
+                    chosen = cls
+            for _, cls in points:
+                screen.set_class(cls == chosen, cls)
+
     def action_goto(self, name: str) -> None:
         if name not in SCREEN_NAMES:
             return
         screen = self.workspace_screen(name)
         if self.screen is screen:
             return
+        self.size_classes(screen)
         self.switch_screen(name)
 
     def action_leave_field(self) -> None:
@@ -168,7 +192,42 @@ class CutbookApp(App):
         from textual.widgets import Input
 
         if isinstance(self.focused, Input):
+            left = self.focused
             self.screen.set_focus(None)
+            hook = getattr(self.screen, "after_leave_field", None)
+            if hook is not None:
+                hook(left)
+
+    def action_keys_help(self) -> None:
+        """``?`` / F1: the keys of the current screen and the global ones, in a closable window."""
+        from workspace.tui.widgets.chrome import KeysHelp, describe_bindings
+
+        screen = self.screen
+        if isinstance(screen, KeysHelp):
+            screen.dismiss()
+            return
+        title = SCREEN_NAMES.get(screen.id or "", getattr(screen, "TITLE", "") or "This screen")
+        own = list(getattr(screen, "BINDINGS", []))
+        if screen.id == "ledger":
+            own.append(Binding("enter", "noop", "Open", tooltip="the run's spectrum and community sizes"))
+        self.push_screen(KeysHelp(f"{title} screen", describe_bindings(own), describe_bindings(self.BINDINGS)))
+
+    def action_maximise(self) -> None:
+        """Toggle: the pane holding the focus fills the screen (the top bar and footer stay)."""
+        screen = self.screen
+        if screen.maximized is not None:
+            screen.minimize()
+            return
+        node = self.focused
+        while node is not None and not node.has_class("pane"):
+            node = node.parent
+        if node is None:
+            panes = list(screen.query(".pane"))
+            node = panes[0] if panes else None
+        if node is None:
+            self.notify("no pane to maximise here", severity="warning")
+            return
+        screen.maximized = node
 
     def open_run(self, run_id: int, where: str = "spectrum") -> None:
         self.current_run = run_id
@@ -178,8 +237,12 @@ class CutbookApp(App):
             screen.show_run(run_id)
 
     def pick(self, side: str, run_id: int) -> None:
+        """Make ``run_id`` diff side A or B; on the Diff screen the box changes and the comparison runs."""
         self.diff_pick[side] = run_id
         self.notify(f"run {run_id} is diff side {side.upper()}")
+        diff = self.workspace_screens.get("diff")
+        if diff is not None and self.screen is diff:
+            diff.apply_picks()
 
     def action_refresh_all(self) -> None:
         ledger = self.workspace_screens.get("ledger")
@@ -249,9 +312,8 @@ class CutbookApp(App):
             elif ev["type"] == "finished":
                 msg = RunEnded(ev.get("run"), ev["status"], ev.get("message"))
                 severity = {"done": "information", "cancelled": "warning"}.get(ev["status"], "error")
-                self.notify(f"run {ev.get('run')} {ev['status']}" + (f": {ev['message']}" if ev.get("message")
-                                                                    and ev["status"] != "done" else ""),
-                            severity=severity, markup=False)
+                self.notify(run_end_line(ev.get("run"), ev["status"], ev.get("message")), severity=severity,
+                            markup=False)
                 if ev.get("run") is not None and ev["status"] == "done":
                     self.current_run = ev["run"]
                 self.action_refresh_all()

@@ -36,3 +36,17 @@ class RunEnded(Message):
 
 class StoreChanged(Message):
     """Something new was written (a run, a parameter set): lists should count again."""
+
+
+def run_end_line(run_id: int | None, status: str, message: str | None) -> str:
+    """``run 13 failed: <why>`` — the message only when it says more than the status does.
+
+    A cancelled run's message is often just ``run 13 cancelled``; repeating it
+    read as ``run 13 cancelled — run 13 cancelled``.
+    """
+    head = f"run {run_id if run_id is not None else '?'} {status}"
+    msg = (message or "").strip()
+    if not msg or status == "done" or msg.lower() in (status, head.lower(), f"{head.lower()}.") \
+            or msg.lower().rstrip(".") == head.lower():
+        return head
+    return f"{head}: {msg}"

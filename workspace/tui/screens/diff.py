@@ -8,19 +8,20 @@ from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.containers import Horizontal, VerticalScroll
 from textual.screen import Screen
-from textual.widgets import Footer, Input, Label, Select, Static
+from textual.widgets import Input, Label, Select, Static
 
 from workspace.tui.widgets.charts import HeatTable
-from workspace.tui.widgets.detail import HEAD, KEY, MUTED, fmt_value
+from workspace.tui.widgets.chrome import Pane, ScreenBar, ScreenFooter, ScrollPane
+from workspace.tui.widgets.detail import BAD, HEAD, KEY, MUTED, fmt_value
 from workspace.tui.widgets.paged_table import Column, ListSource, PagedTable
 
 MATCH_COLUMNS = [
-    Column("a", "A", 5, "right"), Column("b", "B", 5, "right"),
-    Column("overlap", "overlap", 8, "right"),
-    Column("jaccard", "Jaccard", 8, "right", format=lambda v, r: "—" if v is None else f"{v:.3f}"),
-    Column("size_a", "size A", 7, "right"), Column("size_b", "size B", 7, "right"),
+    Column("a", "A", 4, "right"), Column("b", "B", 4, "right"),
+    Column("overlap", "overlap", 7, "right"),
+    Column("jaccard", "Jaccard", 7, "right", format=lambda v, r: "—" if v is None else f"{v:.3f}"),
+    Column("size_a", "size A", 6, "right", drop=2), Column("size_b", "size B", 6, "right", drop=1),
 ]
 MOVED_COLUMNS = [
     Column("node", "node", 0),
@@ -29,20 +30,35 @@ MOVED_COLUMNS = [
 ]
 
 
+def _sides(value: Any, prefix: str) -> str:
+    items = value if isinstance(value, list) else ([] if value is None else [value])
+    return ", ".join(f"{prefix}{x}" for x in items)
+
+
 def _event_line(ev: Any) -> str:
+    """One split / merge / birth / death in words; a missing side is left out, never printed as "—"."""
     if isinstance(ev, str):
         return ev
     if isinstance(ev, dict) and "a" in ev and "b" in ev:
         kind = ev.get("kind") or ev.get("type") or "event"
-        a = ", ".join(f"A{x}" for x in (ev["a"] if isinstance(ev["a"], list) else [ev["a"]])) or "—"
-        b = ", ".join(f"B{x}" for x in (ev["b"] if isinstance(ev["b"], list) else [ev["b"]])) or "—"
-        sizes = f"  {fmt_value(ev.get('size_a'))} → {fmt_value(ev.get('size_b'))} nodes"
-        jac = f", Jaccard {ev['jaccard']:.2f}" if isinstance(ev.get("jaccard"), float) else ""
-        return f"{kind:<7} {a} → {b}{sizes}{jac}"
+        a, b = _sides(ev["a"], "A"), _sides(ev["b"], "B")
+        size_a, size_b = ev.get("size_a"), ev.get("size_b")
+        if a and b:
+            what = f"{a} → {b}"
+            if size_a is not None and size_b is not None:
+                what += f"  {fmt_value(size_a)} → {fmt_value(size_b)} nodes"
+            elif size_a is not None or size_b is not None:  # a split (size of A) or a merge (size of B)
+                what += f"  {fmt_value(size_a if size_a is not None else size_b)} nodes"
+        elif a:  # gone in B
+            what = a + (f"  {fmt_value(size_a)} nodes" if size_a is not None else "")
+        else:  # new in B
+            what = b + (f"  {fmt_value(size_b)} nodes" if size_b is not None else "")
+        jac = f"  J {ev['jaccard']:.2f}" if isinstance(ev.get("jaccard"), float) else ""
+        return f"{kind} {what}{jac}"
     if isinstance(ev, dict):
         kind = ev.get("type") or ev.get("kind") or ev.get("event") or "event"
-        rest = {k: v for k, v in ev.items() if k not in ("type", "kind", "event")}
-        return f"{kind}: " + ", ".join(f"{k} {fmt_value(v)}" for k, v in rest.items())
+        rest = {k: v for k, v in ev.items() if k not in ("type", "kind", "event") and v is not None}
+        return f"{kind}: " + ", ".join(f"{k.replace('_', ' ')} {fmt_value(v)}" for k, v in rest.items())
     return str(ev)
 
 
@@ -85,14 +101,17 @@ def _heat_view(c: dict[str, Any] | None, max_rows: int = 18, max_cols: int = 12
             "col_sizes": [size_b.get(y, 0) for y in keep_c]}, title
 
 
+NO_DIFF = "enter two run ids (or pick them in the Ledger with a / b) and press ctrl+r"
+
+
 class DiffScreen(Screen):
     """Compare two runs."""
 
     TITLE = "Diff"
     BINDINGS = [
-        Binding("ctrl+r", "compare", "Compare", priority=True),
-        Binding("ctrl+f", "find", "Find moved node", priority=True),
-        Binding("ctrl+o", "swap", "Swap A and B", priority=True),
+        Binding("ctrl+r", "compare", "Compare", priority=True, tooltip="compare the runs in the A and B boxes"),
+        Binding("ctrl+f", "find", "Find node", priority=True, tooltip="search the moved nodes"),
+        Binding("ctrl+o", "swap", "Swap", priority=True, tooltip="swap sides A and B"),
     ]
 
     def __init__(self) -> None:
@@ -101,36 +120,33 @@ class DiffScreen(Screen):
         self.moved: list[dict[str, Any]] = []
 
     def compose(self) -> ComposeResult:
+        yield ScreenBar("diff")
         with Horizontal(id="diff-top", classes="field-row"):
             yield Label("run A", classes="name short")
-            yield Input("", id="diff-a", type="integer", placeholder="run id")
+            yield Input("", id="diff-a", type="integer", placeholder="run id", compact=True)
             yield Label("run B", classes="name short")
-            yield Input("", id="diff-b", type="integer", placeholder="run id")
+            yield Input("", id="diff-b", type="integer", placeholder="run id", compact=True)
             yield Label("nodes", classes="name short")
-            yield Select([("common to both", "common"), ("all (absent = its own group)", "all")],
-                         value="common", allow_blank=False, id="diff-nodes")
-        with Horizontal(id="diff-upper"):
-            with VerticalScroll(id="diff-scores-pane", classes="pane"):
-                yield Static("Scores", classes="pane-title")
-                yield Static(Text("enter two run ids (or pick them in the Ledger with a / b) and press ctrl+r",
-                                  style=MUTED), id="diff-scores")
-            with Vertical(id="diff-matches-pane", classes="pane"):
-                yield Static("Matched communities", classes="pane-title")
-                yield PagedTable(MATCH_COLUMNS, id="diff-matches", empty_text="no diff yet")
-            with VerticalScroll(id="diff-events-pane", classes="pane"):
-                yield Static("Events", classes="pane-title")
-                yield Static("", id="diff-events")
-        with Horizontal(id="diff-lower"):
-            with Vertical(id="diff-moved-pane", classes="pane"):
-                yield Static("Moved nodes", classes="pane-title", id="diff-moved-title")
-                yield Input("", id="diff-search", placeholder="search a node id (ctrl+f)")
-                yield PagedTable(MOVED_COLUMNS, id="diff-moved", empty_text="no moved nodes")
-            with VerticalScroll(id="diff-heat-pane", classes="pane"):
-                yield Static("Contingency (rows: A, columns: B)", classes="pane-title")
-                yield HeatTable(id="diff-heat")
-        yield Footer()
+            yield Select([("common to both", "common"), ("all (absent = own group)", "all")],
+                         value="common", allow_blank=False, id="diff-nodes", compact=True)
+        with VerticalScroll(id="diff-body"):
+            with Horizontal(id="diff-upper"):
+                with ScrollPane(title="Scores", id="diff-scores-pane"):
+                    yield Static(Text(NO_DIFF, style=MUTED), id="diff-scores")
+                with Pane(title="Matched communities", id="diff-matches-pane"):
+                    yield PagedTable(MATCH_COLUMNS, id="diff-matches", empty_text="no diff yet")
+                with ScrollPane(title="Events", id="diff-events-pane"):
+                    yield Static("", id="diff-events")
+            with Horizontal(id="diff-lower"):
+                with Pane(title="Moved nodes", id="diff-moved-pane"):
+                    yield Input("", id="diff-search", placeholder="search a node id (ctrl+f)", compact=True)
+                    yield PagedTable(MOVED_COLUMNS, id="diff-moved", empty_text="no moved nodes")
+                with ScrollPane(title="Contingency (rows: A, columns: B)", id="diff-heat-pane"):
+                    yield HeatTable(id="diff-heat")
+        yield ScreenFooter("diff")
 
-    def on_screen_resume(self) -> None:
+    def apply_picks(self) -> None:
+        """Put the runs picked as sides A / B (Ledger a / b, the palette) in the boxes; compare when both changed."""
         pick = getattr(self.app, "diff_pick", {})
         changed = False
         for side in ("a", "b"):
@@ -142,8 +158,11 @@ class DiffScreen(Screen):
         if changed and all(pick.get(s) is not None for s in ("a", "b")):
             self.action_compare()
 
+    def on_screen_resume(self) -> None:
+        self.apply_picks()
+
     def on_mount(self) -> None:
-        self.on_screen_resume()
+        self.apply_picks()
 
     @on(Input.Submitted, "#diff-a, #diff-b")
     def _submitted(self) -> None:
@@ -177,10 +196,19 @@ class DiffScreen(Screen):
             result = diff_runs(self.app.store, a, b, nodes=nodes)
         except Exception as exc:  # noqa: BLE001
             self.app.call_from_thread(self.app.report, exc)
-            self.app.call_from_thread(self.query_one("#diff-scores", Static).update,
-                                      Text(f"could not compare: {exc}", style="#d0705a"))
+            self.app.call_from_thread(self.clear_result, f"could not compare run {a} with run {b}: {exc}")
             return
         self.app.call_from_thread(self.show_result, result)
+
+    def clear_result(self, message: str) -> None:
+        """A failed comparison: say why, and leave nothing of the previous one on screen."""
+        self.result = None
+        self.moved = []
+        self.query_one("#diff-scores", Static).update(Text(message, style=BAD))
+        self.query_one("#diff-matches", PagedTable).set_source(ListSource([]))
+        self.query_one("#diff-events", Static).update("")
+        self._filter_moved(self.query_one("#diff-search", Input).value)
+        self.show_contingency(None)
 
     def show_result(self, d: dict[str, Any]) -> None:
         self.result = d
@@ -189,18 +217,24 @@ class DiffScreen(Screen):
             s = d.get(side) or {}
             what = s.get("method") if s.get("kind") != "attached" else f"attached: {s.get('label')}"
             t.append(f"{side.upper()}  ", style=HEAD)
-            t.append(f"run {s.get('run')} · {s.get('ref')} · {what} · k={s.get('k')}\n")
+            t.append(f"run {s.get('run')}  {what}  k = {s.get('k')}\n")
+            t.append(f"   {s.get('ref')}\n", style=KEY)
         t.append("\n")
         norm = d.get("nmi_normalization")
         rows = [("ARI", d.get("ari")), (f"NMI ({norm})" if norm else "NMI", d.get("nmi")), ("AMI", d.get("ami")),
                 ("VI (nats)", d.get("vi_nats")), ("VI (bits)", d.get("vi_bits")), ("moved nodes", d.get("moved")),
                 ("only in A", d.get("only_in_a")), ("only in B", d.get("only_in_b")),
-                ("coverage", d.get("coverage")), ("nodes compared", d.get("nodes"))]
+                ("coverage", d.get("coverage")),
+                ("nodes scored", None if d.get("n_scored") is None else
+                 f"{d['n_scored']} ({'common to both' if d.get('nodes') == 'common' else 'all; absent = own group'})")]
         for name, value in rows:
             if value is None:
                 continue
             t.append(f"{name:<18}", style=KEY)
             t.append(fmt_value(value) + "\n")
+        if d.get("moved_nodes_truncated"):
+            t.append(f"\nmoved nodes listed: the first {len(d.get('moved_nodes') or [])} of {d.get('moved')}\n",
+                     style=MUTED)
         for note in d.get("notes") or []:
             t.append(f"\n{note}\n", style=MUTED)
         self.query_one("#diff-scores", Static).update(t)
@@ -209,16 +243,26 @@ class DiffScreen(Screen):
         ev_text = Text()
         if not events:
             ev_text.append("no splits, merges, births or deaths", style=MUTED)
+        else:
+            ev_text.append("J: Jaccard overlap\n", style=MUTED)
         for ev in events:
             ev_text.append("• " + _event_line(ev) + "\n")
         self.query_one("#diff-events", Static).update(ev_text)
         self.moved = list(d.get("moved_nodes") or [])
         self._filter_moved(self.query_one("#diff-search", Input).value)
-        heat, caption = _heat_view(d.get("contingency"))
+        self.show_contingency(d)
+        if isinstance(self.focused, Input) and self.focused.id in ("diff-a", "diff-b"):
+            self.query_one("#diff-moved", PagedTable).focus(scroll_visible=False)
+        self.call_after_refresh(self.query_one("#diff-body").scroll_home, animate=False)  # scores first
+
+    # --- contingency panel (kept in one function: the diff-at-scale work feeds it from a sparse table) ---
+
+    def show_contingency(self, d: dict[str, Any] | None) -> None:
+        """Fill the contingency panel from a diff result (None clears it): the largest cells of
+        the sparse table, with a title that counts the rest."""
+        heat, caption = _heat_view((d or {}).get("contingency"))
         self.query_one("#diff-heat-pane .pane-title", Static).update(caption)
         self.query_one("#diff-heat", HeatTable).show(heat)
-        if isinstance(self.focused, Input) and self.focused.id in ("diff-a", "diff-b"):
-            self.query_one("#diff-moved", PagedTable).focus()
 
     @on(Input.Changed, "#diff-search")
     def _search(self, event: Input.Changed) -> None:
@@ -232,6 +276,9 @@ class DiffScreen(Screen):
         q = query.strip().lower()
         rows = self.moved if not q else [r for r in self.moved if q in str(r.get("node", "")).lower()]
         self.query_one("#diff-moved", PagedTable).set_source(ListSource(rows))
-        total = (self.result or {}).get("moved", len(self.moved))
+        if self.result is None:
+            self.query_one("#diff-moved-pane", Pane).border_title = "Moved nodes"
+            return
+        total = self.result.get("moved", len(self.moved))
         shown = f"{len(rows)} of {total}" if q else f"{total}"
-        self.query_one("#diff-moved-title", Static).update(f"Moved nodes · {shown}")
+        self.query_one("#diff-moved-pane", Pane).border_title = f"Moved nodes · {shown}"

@@ -12,13 +12,14 @@ from typing import Any
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.containers import Horizontal, VerticalScroll
 from textual.screen import Screen
-from textual.widgets import Button, Footer, Input, Label, ProgressBar, Select, Static
+from textual.widgets import Button, Input, Label, ProgressBar, Select, Static
 
 from workspace.errors import CutbookError
-from workspace.tui.messages import RunEnded, RunProgress, RunStarted
-from workspace.tui.widgets.detail import STATUS_STYLE, fmt_value
+from workspace.tui.messages import RunEnded, RunProgress, RunStarted, run_end_line
+from workspace.tui.widgets.chrome import ScreenBar, ScreenFooter, ScrollPane
+from workspace.tui.widgets.detail import STATUS_STYLE, fmt_value, label
 from workspace.tui.widgets.param_form import ParamForm
 
 NO_SET = "__form__"
@@ -40,42 +41,47 @@ class LaunchScreen(Screen):
         self.sets: dict[str, dict[str, Any]] = {}
         self.versions: list[str] = []
         self.last_run: int | None = None
+        self.started_at: float | None = None  # monotonic time the current run was started
+        self.last_progress: str = ""
 
     def compose(self) -> ComposeResult:
+        yield ScreenBar("launch")
         with Horizontal(id="launch-body"):
-            with VerticalScroll(id="launch-form-pane", classes="pane"):
-                yield Static("What to run", classes="pane-title")
+            with VerticalScroll(id="launch-form-pane", classes="pane") as form_pane:
+                form_pane.border_title = "What to run"
                 with Horizontal(classes="field-row"):
                     yield Label("version", classes="name")
-                    yield Select([], prompt="network version", id="launch-version")
+                    yield Select([], prompt="network version", id="launch-version", compact=True)
                 with Horizontal(classes="field-row"):
-                    yield Label("parameter set", classes="name")
+                    yield Label("saved set", classes="name")
                     yield Select([("none — fill the method's form", NO_SET)], value=NO_SET, id="launch-set",
-                                 allow_blank=False)
+                                 allow_blank=False, compact=True)
                 with Horizontal(classes="field-row"):
                     yield Label("method", classes="name")
-                    yield Select([], prompt="method", id="launch-method")
+                    yield Select([], prompt="method", id="launch-method", compact=True)
                 yield Static("", id="method-summary", classes="help")
                 yield ParamForm(id="launch-form")
                 with Horizontal(classes="field-row"):
                     yield Label("seed", classes="name")
-                    yield Input("0", id="launch-seed", type="integer")
+                    yield Input("0", id="launch-seed", type="integer", compact=True)
                     yield Label("repeats", classes="name short")
-                    yield Input("1", id="launch-repeats", type="integer")
+                    yield Input("1", id="launch-repeats", type="integer", compact=True)
                 with Horizontal(classes="field-row"):
                     yield Label("save as", classes="name")
-                    yield Input("", id="launch-save-name", placeholder="name for a new parameter set")
-                    yield Button("Save set ^s", id="launch-save", variant="default")
+                    yield Input("", id="launch-save-name", placeholder="name for a new parameter set", compact=True)
+                    yield Button("Save ^s", id="launch-save", variant="default", compact=True)
                 with Horizontal(id="launch-buttons"):
-                    yield Button("Start ^r", id="launch-start", variant="primary")
-                    yield Button("Stop ^t", id="launch-stop", variant="error", disabled=True)
-            with Vertical(id="launch-progress-pane", classes="pane"):
-                yield Static("Progress", classes="pane-title")
+                    yield Button("Start ^r", id="launch-start", variant="primary", compact=True)
+                    yield Button("Stop ^t", id="launch-stop", variant="error", disabled=True, compact=True)
+            with ScrollPane(title="Progress", id="launch-progress-pane"):
                 yield Static("idle — nothing is computing", id="run-state")
-                yield ProgressBar(total=None, show_eta=False, id="run-bar")
+                yield ProgressBar(total=None, show_eta=False, show_percentage=False, id="run-bar")
                 yield Static("", id="run-stage")
                 yield Static("", id="run-outcome")
-        yield Footer()
+        yield ScreenFooter("launch")
+
+    def on_unmount(self) -> None:
+        self.started_at = None
 
     # --- filling --------------------------------------------------------------------------------------
 
@@ -237,8 +243,18 @@ class LaunchScreen(Screen):
             self.app.report(exc)
             return
         self.app.start_job(spec)
+        if self.app.job is None:
+            return
+        import time
+
+        self.started_at = time.monotonic()
+        self.last_progress = "starting"
         self.query_one("#run-outcome", Static).update("")
         self.query_one("#run-state", Static).update(f"starting a process for {spec.method} on {spec.version_ref} …")
+        bar = self.query_one("#run-bar", ProgressBar)
+        bar.update(total=None, progress=0)
+        bar.add_class("-busy")
+        self._tick()
         self._sync_job_state()
 
     def action_stop(self) -> None:
@@ -290,31 +306,57 @@ class LaunchScreen(Screen):
         self.query_one("#launch-start", Button).disabled = busy
         self.query_one("#launch-stop", Button).disabled = not busy
 
+    def _tick(self) -> None:
+        """Refresh the stage line's elapsed time every half second while a run computes."""
+        import time
+
+        if self.started_at is None:
+            return
+        elapsed = time.monotonic() - self.started_at
+        self.query_one("#run-stage", Static).update(f"{self.last_progress}  ·  {elapsed:.1f} s elapsed")
+        self.set_timer(0.5, self._tick)
+
     def on_run_started(self, message: RunStarted) -> None:
         self.query_one("#run-state", Static).update(f"run {message.run_id} computing (its own process)")
 
     def on_run_progress(self, message: RunProgress) -> None:
         bar = self.query_one("#run-bar", ProgressBar)
+        bar.add_class("-busy")
         if message.total:
             bar.update(total=message.total, progress=message.done)
+            share = f"  ·  {100 * message.done / message.total:.0f}%"
         else:
-            bar.update(total=None)
+            bar.update(total=None)  # unknown length: the bar pulses while the elapsed time counts
+            share = ""
         total = f" of {message.total}" if message.total else ""
-        self.query_one("#run-stage", Static).update(f"stage: {message.stage}  ·  {message.done}{total} matvecs")
+        self.last_progress = f"stage: {message.stage}  ·  {message.done}{total} matvecs{share}"
+        self._tick_once()
+
+    def _tick_once(self) -> None:
+        import time
+
+        elapsed = f"  ·  {time.monotonic() - self.started_at:.1f} s elapsed" if self.started_at is not None else ""
+        self.query_one("#run-stage", Static).update(self.last_progress + elapsed)
 
     def on_run_ended(self, message: RunEnded) -> None:
-        bar = self.query_one("#run-bar", ProgressBar)
-        bar.update(total=1, progress=1 if message.status == "done" else 0)
-        self._sync_job_state()
-        self.last_run = message.run_id
-        state = self.query_one("#run-state", Static)
+        import time
+
         from rich.text import Text
 
-        line = Text(f"run {message.run_id if message.run_id is not None else '?'} ")
-        line.append(message.status, style=STATUS_STYLE.get(message.status, ""))
-        if message.message:
-            line.append(f" — {message.message}")
-        state.update(line)
+        bar = self.query_one("#run-bar", ProgressBar)
+        bar.update(total=1, progress=1 if message.status == "done" else 0)
+        bar.remove_class("-busy")  # an idle bar would pulse forever
+        elapsed = time.monotonic() - self.started_at if self.started_at is not None else None
+        self.started_at = None
+        self._sync_job_state()
+        self.last_run = message.run_id
+        line = run_end_line(message.run_id, message.status, message.message)
+        state = Text(line)
+        head = len(f"run {message.run_id if message.run_id is not None else '?'} ")
+        state.stylize(STATUS_STYLE.get(message.status, ""), head, head + len(message.status))
+        self.query_one("#run-state", Static).update(state)
+        self.query_one("#run-stage", Static).update(
+            f"{self.last_progress}  ·  {elapsed:.1f} s in all" if elapsed is not None and self.last_progress else "")
         outcome = self.query_one("#run-outcome", Static)
         if message.status == "done" and message.run_id is not None:
             from workspace.services.runs import show_run
@@ -325,11 +367,11 @@ class LaunchScreen(Screen):
                 self.app.report(exc)
                 return
             lines = [f"k = {run['k']}   wall time {fmt_value(run.get('wall_time_s'))} s"]
-            lines += [f"  {name:<22}{fmt_value(v)}" for name, v in (run.get("quality") or {}).items()
-                      if not isinstance(v, (list, dict))]
+            lines += [f"  {label(name):<22}{fmt_value(v)}" for name, v in (run.get("quality") or {}).items()
+                      if not isinstance(v, (list, dict)) and name != "k"]
             for w in run.get("warnings") or []:
                 lines.append(f"  ! {w}")
-            lines.append("\n3 spectrum of this run · 1 ledger")
+            lines.append("\nenter on the run in the Ledger (1) or 3 opens its spectrum")
             outcome.update("\n".join(lines))
         else:
             outcome.update("")

@@ -8,11 +8,12 @@ from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Horizontal, Vertical
+from textual.containers import Horizontal
 from textual.screen import Screen
-from textual.widgets import Footer, Input, Label, Select, Static
+from textual.widgets import Input, Label, Select, Static
 
-from workspace.tui.widgets.detail import MUTED, fmt_value
+from workspace.tui.widgets.chrome import Pane, ScreenBar, ScreenFooter
+from workspace.tui.widgets.detail import BAD, MUTED
 from workspace.tui.widgets.paged_table import Column, ListSource, PagedTable
 
 
@@ -36,24 +37,25 @@ class LookupScreen(Screen):
     """Follow a node across runs and versions."""
 
     TITLE = "Node lookup"
-    BINDINGS = [Binding("ctrl+f", "find", "Node box", priority=True)]
+    BINDINGS = [Binding("ctrl+f", "find", "Node box", priority=True, tooltip="type a node id"),
+                Binding("ctrl+n", "network", "Network", priority=True, tooltip="choose the network")]
 
     def __init__(self) -> None:
         super().__init__(id="lookup")
         self.result: dict[str, Any] | None = None
 
     def compose(self) -> ComposeResult:
+        yield ScreenBar("lookup")
         with Horizontal(id="lookup-top", classes="field-row"):
             yield Label("network", classes="name short")
-            yield Select([], prompt="network", id="lookup-network")
+            yield Select([], prompt="network", id="lookup-network", compact=True)
             yield Label("node", classes="name short")
-            yield Input("", id="lookup-node", placeholder="node id, then enter")
-        with Vertical(classes="pane", id="lookup-pane"):
-            yield Static("Where the node sits", classes="pane-title")
+            yield Input("", id="lookup-node", placeholder="node id, then enter", compact=True)
+        with Pane(title="Where the node sits", id="lookup-pane"):
             yield Static(Text("choose a network, type a node id and press enter", style=MUTED),
                          id="lookup-summary")
             yield PagedTable(WHERE_COLUMNS, id="lookup-runs", empty_text="no runs to show")
-        yield Footer()
+        yield ScreenFooter("lookup")
 
     def on_mount(self) -> None:
         self._load_networks()
@@ -77,21 +79,40 @@ class LookupScreen(Screen):
 
     def on_screen_resume(self) -> None:
         net = getattr(self.app, "lookup_network", None)
+        sel = self.query_one("#lookup-network", Select)
         if net:
             self.app.lookup_network = None
             self._load_networks()
-            self.query_one("#lookup-network", Select).value = net
-        self.query_one("#lookup-node", Input).focus()
+            if sel.value != net:
+                sel.value = net
+        # the focus goes where the next thing to do is: the network first, then the node
+        if isinstance(sel.value, str):
+            self.query_one("#lookup-node", Input).focus()
+        else:
+            sel.focus()
 
     def action_find(self) -> None:
         self.query_one("#lookup-node", Input).focus()
+
+    def action_network(self) -> None:
+        self.query_one("#lookup-network", Select).focus()
+
+    @on(Select.Changed, "#lookup-network")
+    def _network_chosen(self, event: Select.Changed) -> None:
+        """A network chosen: look up the node already typed, else move on to the node box."""
+        node = self.query_one("#lookup-node", Input).value.strip()
+        if isinstance(event.value, str) and node:
+            self.lookup(node, event.value)
+        elif isinstance(event.value, str):
+            self.query_one("#lookup-node", Input).focus()
 
     @on(Input.Submitted, "#lookup-node")
     def _submitted(self, event: Input.Submitted) -> None:
         net = self.query_one("#lookup-network", Select).value
         node = event.value.strip()
         if not isinstance(net, str):
-            self.notify("choose a network first", severity="error")
+            self.notify("choose a network first (ctrl+n)", severity="error")
+            self.query_one("#lookup-network", Select).focus()
             return
         if not node:
             self.notify("type a node id", severity="error")
@@ -107,7 +128,7 @@ class LookupScreen(Screen):
         except Exception as exc:  # noqa: BLE001
             self.app.call_from_thread(self.app.report, exc)
             self.app.call_from_thread(self.query_one("#lookup-summary", Static).update,
-                                      Text(str(exc), style="#d0705a"))
+                                      Text(str(exc), style=BAD))
             self.app.call_from_thread(self.query_one("#lookup-runs", PagedTable).set_source, ListSource([]))
             return
         self.app.call_from_thread(self.show_result, result)
@@ -117,14 +138,18 @@ class LookupScreen(Screen):
         runs = r.get("runs") or []
         t = Text()
         t.append(f"{r['node']}", style="bold")
-        t.append(f" in {r['network']}: present in version(s) "
-                 f"{', '.join('@' + str(v) for v in r['versions_with_node'])}; {len(runs)} finished run(s)")
-        comms = {}
+        present = r["versions_with_node"]
+        t.append(f" in {r['network']}: present in version{'s' if len(present) != 1 else ''} "
+                 f"{', '.join('@' + str(v) for v in present)}; "
+                 f"{len(runs)} finished run{'s' if len(runs) != 1 else ''}")
+        # community labels belong to one run each, so they are never pooled across runs (the table has them)
+        per_version: dict[int, int] = {}
         for row in runs:
-            if row.get("community") is not None:
-                comms.setdefault(row["version"], set()).add(row["community"])
-        if comms:
-            t.append("\n" + "  ".join(f"@{v}: communities {fmt_value(sorted(c))}" for v, c in sorted(comms.items())),
-                     style=MUTED)
+            if row.get("present") and row.get("community") is not None:
+                per_version[row["version"]] = per_version.get(row["version"], 0) + 1
+        if per_version:
+            t.append("\nplaced in a community by " + "; ".join(
+                f"{n} run{'s' if n != 1 else ''} of @{v}" for v, n in sorted(per_version.items()))
+                + " — each run numbers its communities its own way", style=MUTED)
         self.query_one("#lookup-summary", Static).update(t)
         self.query_one("#lookup-runs", PagedTable).set_source(ListSource(runs))

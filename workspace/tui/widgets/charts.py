@@ -21,12 +21,10 @@ from textual.widget import Widget
 VERTICAL = " ▁▂▃▄▅▆▇█"
 HORIZONTAL = " ▏▎▍▌▋▊▉█"
 
-# palette shared with app.tcss (kept here only for the chart glyphs drawn by hand)
-INK_MUTED = "#7d8794"
-AMBER = "#e0a34a"
-SAGE = "#8fb58a"
-BRICK = "#d0705a"
-HEAT = ("#26303b", "#3b3a33", "#5a4a30", "#7f5d2f", "#a9772f", "#d39a3f", "#f0c070")
+from workspace.tui import palette
+
+INK_MUTED = palette.FAINT
+HEAT = palette.HEAT
 
 
 def largest_gap(values: Sequence[float]) -> tuple[int, float] | None:
@@ -66,7 +64,12 @@ def largest_gap(values: Sequence[float]) -> tuple[int, float] | None:
 
 
 def size_bins(sizes: Sequence[int]) -> list[tuple[str, int]]:
-    """Communities counted by size in power-of-two bins ``[2^j, 2^(j+1))``: ``[(label, count)]``."""
+    """Communities counted by size in power-of-two bins ``[2^j, 2^(j+1))``: ``[(label, count)]``.
+
+    Only bins holding at least one community are returned (a run of one giant
+    and many singleton communities would otherwise draw a dozen empty rows);
+    the labels say which size ranges the rows cover.
+    """
     if not sizes:
         return []
     top = max(int(s) for s in sizes)
@@ -75,13 +78,15 @@ def size_bins(sizes: Sequence[int]) -> list[tuple[str, int]]:
     while (1 << j) <= top:
         lo, hi = 1 << j, (1 << (j + 1)) - 1
         n = sum(1 for s in sizes if lo <= s <= hi)
-        out.append((f"{lo}" if lo == hi else f"{lo}–{hi}", n))
+        if n:
+            out.append((f"{lo}" if lo == hi else f"{lo}–{hi}", n))
         j += 1
     return out
 
 
-def _fmt(x: float) -> str:
-    if x == 0:
+def _fmt(x: float, scale: float = 1.0) -> str:
+    """An axis or gap figure; values below 1e-9 of the plot's ``scale`` are rounding noise and read 0."""
+    if x == 0 or abs(x) < 1e-9 * max(abs(scale), 1e-300):
         return "0"
     if abs(x) >= 1e4 or abs(x) < 1e-3:
         return f"{x:.2e}"
@@ -91,7 +96,7 @@ def _fmt(x: float) -> str:
 class SpectrumPlot(Widget):
     """Eigenvalues as bars; the run's eigengap suggestion, when it has one, is marked."""
 
-    DEFAULT_CSS = "SpectrumPlot { height: 18; }"
+    DEFAULT_CSS = "SpectrumPlot { height: auto; }"
 
     def __init__(self, *, id: str | None = None, classes: str | None = None) -> None:
         super().__init__(id=id, classes=classes)
@@ -100,21 +105,32 @@ class SpectrumPlot(Widget):
         self.gap_k: int | None = None
         self.note = ""
 
+    EMPTY = "no eigenvalues recorded for this run (attached groupings and some baselines have none)"
+
     def show(self, values: Sequence[float], *, suggested: int | None = None, note: str = "",
-             gap_k: int | None = None) -> None:
-        """``gap_k``: the k the run's own eigengap rule suggested; only that gap is marked
+             empty: str | None = None, gap_k: int | None = None) -> None:
+        """Plot ``values``; with none, say ``empty`` (default: the run recorded none).
+
+        ``gap_k``: the k the run's own eigengap rule suggested; only that gap is marked
         (None: no gap is marked - the run's spectrum carries no meaningful suggestion)."""
         self.values = [float(v) for v in values]
         self.suggested = suggested
         self.note = note
+        self.empty = empty or self.EMPTY
         self.gap_k = gap_k if gap_k is not None and 1 <= gap_k < len(self.values) else None
-        self.refresh()
+        self.refresh(layout=True)
+
+    def get_content_height(self, container, viewport, width: int) -> int:
+        """Two lines for "no eigenvalues"; else a plot that fits short terminals (12 rows) or 18."""
+        if not self.values:
+            return 2
+        short = self.screen.has_class("-short") if self.is_attached else False
+        return 12 if short else 18
 
     def render(self) -> RenderableType:
         values = self.values
         if not values:
-            return Text("no eigenvalues recorded for this run (attached groupings and some baselines have none)",
-                        style=INK_MUTED)
+            return Text(getattr(self, "empty", self.EMPTY), style=INK_MUTED)
         width = max(self.size.width, 30)
         rows = max(self.size.height - 5, 4)
         gap = None if self.gap_k is None else (self.gap_k, abs(values[self.gap_k] - values[self.gap_k - 1]))
@@ -122,20 +138,23 @@ class SpectrumPlot(Widget):
         axis_w = 10
         bar_w = max(1, min(5, (width - axis_w - 1) // max(m, 1) - 1))
         shown = min(m, max(1, (width - axis_w - 1) // (bar_w + 1)))
+        scale = max(abs(v) for v in values[:shown]) or 1.0
         lo = min(0.0, min(values[:shown]))
         hi = max(values[:shown])
+        if abs(lo) < 1e-9 * scale:  # -2.7e-14 is a zero eigenvalue's rounding, not a negative axis
+            lo = 0.0
         if hi - lo < 1e-12:
             hi = lo + 1.0
         heights = [(v - lo) / (hi - lo) * rows * 8 for v in values[:shown]]
         text = Text()
         for r in range(rows):
             level = (rows - 1 - r) * 8
-            label = _fmt(hi) if r == 0 else (_fmt(lo) if r == rows - 1 else "")
+            label = _fmt(hi, scale) if r == 0 else (_fmt(lo, scale) if r == rows - 1 else "")
             text.append(label.rjust(axis_w - 1) + "│", style=INK_MUTED)
             for i, h in enumerate(heights):
                 fill = int(max(0.0, min(8.0, h - level)))
                 before = gap is not None and i < gap[0]
-                text.append(VERTICAL[fill] * bar_w, style=AMBER if before else SAGE)
+                text.append(VERTICAL[fill] * bar_w, style=palette.BEFORE_GAP if before else palette.AFTER_GAP)
                 text.append(" ")
             text.append("\n")
         text.append(" " * (axis_w - 1) + "└" + "─" * (shown * (bar_w + 1)) + "\n", style=INK_MUTED)
@@ -147,10 +166,13 @@ class SpectrumPlot(Widget):
         if gap is not None and gap[0] <= shown:
             k, size = gap
             marker = " " * (axis_w + k * (bar_w + 1) - 1) + "▲"
-            text.append(marker, style=Style(color=BRICK, bold=True))
-            text.append(f" eigengap λ{k}→λ{k + 1} = {_fmt(size)}  ⇒  k = {k}", style=BRICK)
+            text.append(marker, style=Style(color=palette.GAP_MARK, bold=True))
+            words = f" eigengap λ{k}→λ{k + 1} = {_fmt(size, scale)}  ⇒  k = {k}"
+            if len(marker) + len(words) > width:  # no room right of the marker: say it on the next line
+                words = "\n" + " " * axis_w + words.lstrip()
+            text.append(words, style=palette.GAP_MARK)
         if self.suggested is not None:
-            text.append(f"    the run found k = {self.suggested}", style=AMBER)
+            text.append(f"\nthe run found k = {self.suggested}", style=palette.TEXT)
         if shown < m:
             text.append(f"\n({shown} of {m} eigenvalues shown; widen the terminal for more)", style=INK_MUTED)
         if self.note:
@@ -168,7 +190,8 @@ class SizeHistogram(Widget):
         self.sizes: list[tuple[str, int]] = []
         self.binned = False
 
-    def show(self, communities: Sequence[dict[str, Any]], *, max_bars: int = 24) -> None:
+    def show(self, communities: Sequence[dict[str, Any]], *, max_bars: int = 24, empty: str | None = None) -> None:
+        self.empty = empty or "no communities recorded"
         rows = [(f"c{c['community']}", int(c["size"])) for c in communities]
         if len(rows) > max_bars:
             self.sizes = size_bins([s for _, s in rows])
@@ -183,21 +206,24 @@ class SizeHistogram(Widget):
 
     def render(self) -> RenderableType:
         if not self.sizes:
-            return Text("no communities recorded", style=INK_MUTED)
+            return Text(getattr(self, "empty", "no communities recorded"), style=INK_MUTED)
         width = max(self.size.width, 30)
         label_w = max(len(lbl) for lbl, _ in self.sizes) + 1
         top = max(n for _, n in self.sizes) or 1
         count_w = len(str(top)) + 1
         bar_room = max(min(width - label_w - count_w - 2, 72), 4)
         text = Text()
-        head = "communities by size (nodes per bin → number of communities)" if self.binned \
+        head = "number of communities per size range (nodes); empty ranges left out" if self.binned \
             else "nodes per community"
         text.append(head + "\n", style=INK_MUTED)
         for lbl, n in self.sizes:
             eighths = int(round(n / top * bar_room * 8))
             bar = "█" * (eighths // 8) + (HORIZONTAL[eighths % 8] if eighths % 8 else "")
-            text.append(lbl.rjust(label_w) + " ", style=INK_MUTED)
-            text.append(bar.ljust(bar_room), style=AMBER)
+            # one colour per community (its label, cycling through the palette's seven); bins share one
+            colour = palette.community_colour(int(lbl[1:])) if not self.binned and lbl[1:].isdigit() \
+                else palette.BARS
+            text.append(lbl.rjust(label_w) + " ", style=colour if not self.binned else INK_MUTED)
+            text.append(bar.ljust(bar_room), style=colour)
             text.append(str(n).rjust(count_w) + "\n")
         return text
 
@@ -273,15 +299,15 @@ class HeatTable(Widget):
         text = Text()
         text.append("A \\ B".ljust(8), style=INK_MUTED)
         for j in c_order:
-            text.append(_label(cols[j]).center(cell_w), style=Style(color=AMBER, bold=True))
+            text.append(_label(cols[j]).center(cell_w), style=Style(color=palette.PRIMARY, bold=True))
         text.append("   size\n", style=INK_MUTED)
         for i in r_order:
-            text.append(_label(rows[i]).rjust(6) + "  ", style=Style(color=AMBER, bold=True))
+            text.append(_label(rows[i]).rjust(6) + "  ", style=Style(color=palette.PRIMARY, bold=True))
             for j in c_order:
                 n = counts[i][j]
                 share = n / row_sizes[i] if row_sizes[i] else 0.0
                 shade = HEAT[min(len(HEAT) - 1, int(math.ceil(share * (len(HEAT) - 1))))] if n else HEAT[0]
-                fg = "#1b2129" if share > 0.6 else "#d9d3c7"
+                fg = palette.HEAT_TEXT_DARK if share > 0.6 else palette.HEAT_TEXT_LIGHT
                 text.append((str(n) if n else "·").center(cell_w), style=Style(bgcolor=shade, color=fg))
             text.append(f"  {row_sizes[i]}\n", style=INK_MUTED)
         hidden_r, hidden_c = len(rows) - len(r_order), len(cols) - len(c_order)

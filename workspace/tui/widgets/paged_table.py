@@ -59,7 +59,13 @@ class CallbackSource:
 
 @dataclass(frozen=True)
 class Column:
-    """One column: ``key`` into the row dict, header ``title``, cell ``width`` (0 = take the rest)."""
+    """One column: ``key`` into the row dict, header ``title``, cell ``width`` (0 = take the rest).
+
+    A flexible column (``width`` 0) never gets fewer than ``min_width`` cells.
+    When the table is too narrow for every column, columns are left out by
+    ``drop`` (highest first; 0 = always shown) instead of being cut to a few
+    unreadable cells.
+    """
 
     key: str
     title: str
@@ -67,6 +73,8 @@ class Column:
     align: str = "left"
     format: Callable[[Any, dict[str, Any]], str] | None = None
     style: Callable[[dict[str, Any]], str | None] | None = None
+    min_width: int = 10
+    drop: int = 0
 
     def text(self, row: dict[str, Any]) -> str:
         value = row.get(self.key)
@@ -237,11 +245,31 @@ class PagedTable(ScrollView, can_focus=True):
     # --- painting -----------------------------------------------------------------------------------
 
     def _widths(self, total: int) -> list[int]:
-        fixed = sum(c.width for c in self.columns if c.width) + len(self.columns) - 1
-        flex = [c for c in self.columns if not c.width]
-        rest = max(total - fixed, 8)
-        share = rest // max(len(flex), 1)
-        return [c.width if c.width else share for c in self.columns]
+        """Cell width per column for a line of ``total`` cells; 0 for a column left out."""
+        shown = list(range(len(self.columns)))
+
+        def need(idx: list[int]) -> int:
+            cols = [self.columns[i] for i in idx]
+            return sum(c.width or c.min_width for c in cols) + len(cols) - 1
+
+        droppable = sorted((i for i, c in enumerate(self.columns) if c.drop), key=lambda i: -self.columns[i].drop)
+        while need(shown) > total and droppable:
+            shown.remove(droppable.pop(0))
+        cols = [self.columns[i] for i in shown]
+        fixed = sum(c.width for c in cols if c.width) + len(cols) - 1
+        flex = [c for c in cols if not c.width]
+        # each flexible column gets its minimum, then an equal share of what is left
+        spare = max(total - fixed - sum(c.min_width for c in flex), 0)
+        extra = spare // max(len(flex), 1)
+        out = []
+        for i, c in enumerate(self.columns):
+            out.append(0 if i not in shown else (c.width if c.width else c.min_width + extra))
+        return out
+
+    def shown_columns(self) -> list[str]:
+        """Titles of the columns that fit the present width (tests read it)."""
+        width = self.scrollable_content_region.width or self.size.width
+        return [c.title for c, w in zip(self.columns, self._widths(width)) if w]
 
     def _content_width(self) -> int:
         return sum(c.width or 16 for c in self.columns) + len(self.columns) - 1
@@ -249,6 +277,8 @@ class PagedTable(ScrollView, can_focus=True):
     def _cells(self, texts: list[str], widths: list[int]) -> list[str]:
         out = []
         for col, text, width in zip(self.columns, texts, widths):
+            if not width:
+                continue
             text = text.replace("\n", " ")
             if cell_len(text) > width:
                 text = set_cell_size(text, max(width - 1, 0)) + "…" if width > 1 else set_cell_size(text, width)
@@ -280,9 +310,10 @@ class PagedTable(ScrollView, can_focus=True):
         if index == self.cursor:
             line_style = base + self.get_component_rich_style(
                 "paged-table--cursor" if self.has_focus else "paged-table--cursor-blurred")
-        cells = self._cells([c.text(row) for c in self.columns], widths)
+        cells = self._cells([c.text(row) if w else "" for c, w in zip(self.columns, widths)], widths)
+        shown = [c for c, w in zip(self.columns, widths) if w]
         segments: list[Segment] = []
-        for i, (col, cell) in enumerate(zip(self.columns, cells)):
+        for i, (col, cell) in enumerate(zip(shown, cells)):
             style = line_style
             if col.style is not None:
                 extra = col.style(row)

@@ -25,7 +25,8 @@ class ParamForm(Vertical):
     DEFAULT_CSS = """
     ParamForm { height: auto; }
     ParamForm .field { height: auto; margin-bottom: 0; }
-    ParamForm .field Label.name { width: 18; padding: 1 1 0 0; }
+    ParamForm .field .field-row { margin-bottom: 0; }
+    ParamForm .field Label.name { width: 18; padding: 0 1 0 0; }
     ParamForm .field Input, ParamForm .field Select { width: 1fr; }
     ParamForm .help { padding: 0 0 0 18; height: auto; }
     """
@@ -60,19 +61,20 @@ class ParamForm(Vertical):
         default_k = method.get("default_k")
         k_value = k if k is not None else default_k
         rows = [self._field("k", Input(value="" if k_value is None else str(k_value), id="pf-k",
-                                       placeholder="integer ≥ 2" + (" or auto" if method["supports_auto_k"] else "")),
+                                       placeholder="integer ≥ 2" + (" or auto" if method["supports_auto_k"] else ""),
+                                       compact=True),
                             "number of communities" + (" (or 'auto')" if method["supports_auto_k"] else ""))]
         for p in method["params"]:
             value = values.get(p["name"], p["default"])
             wid = f"pf-{p['name']}"
             if p.get("choices"):
                 control = Select([(str(c), c) for c in p["choices"]], value=value if value in p["choices"]
-                                 else p["choices"][0], allow_blank=False, id=wid)
+                                 else p["choices"][0], allow_blank=False, id=wid, compact=True)
             elif p["type"] == "bool":
                 control = Switch(value=bool(value), id=wid)
             else:
                 control = Input(value="" if value is None else str(value), id=wid,
-                                placeholder=f"{p['type']} {p.get('allowed', '')}")
+                                placeholder=f"{p['type']} {p.get('allowed', '')}", compact=True)
             help_text = p.get("help") or ""
             if p.get("allowed") and not p.get("choices"):
                 help_text += f"  [{p['type']} in {p['allowed']}]"

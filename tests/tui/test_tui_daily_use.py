@@ -1,0 +1,843 @@
+"""The workspace at standard terminal sizes, and the daily-use defects of the terminal UI.
+
+Every screen is opened at 80×24 (the default of most terminals) and at
+120×36, and the widgets a user needs are checked for being on screen with
+usable widths (their ``region``, not only that the app started). Each fixed
+defect has its own test below the layout tests.
+
+The demo store (workspace.demo) is built once per module; tests that write
+work on a copy.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import contextlib
+import itertools
+import re
+import shutil
+from pathlib import Path
+
+import networkx as nx
+import numpy as np
+import pytest
+
+from workspace.services.store import open_workspace
+
+SIZES = [(80, 24), (120, 36)]
+
+
+@pytest.fixture(autouse=True)
+def _no_animations(monkeypatch):
+    monkeypatch.setenv("TEXTUAL_ANIMATIONS", "none")
+
+
+@pytest.fixture(scope="module")
+def demo_path(tmp_path_factory) -> Path:
+    from workspace.demo.build import build_demo
+
+    path = tmp_path_factory.mktemp("tui-daily") / "demo.sqlite"
+    store = open_workspace(path)
+    try:
+        build_demo(store)
+    finally:
+        store.dispose()
+    return path
+
+
+@pytest.fixture
+def demo_copy(demo_path, tmp_path) -> Path:
+    target = tmp_path / "demo.sqlite"
+    for suffix in ("", "-wal", "-shm"):
+        src = Path(str(demo_path) + suffix)
+        if src.exists():
+            shutil.copy(src, str(target) + suffix)
+    return target
+
+
+@contextlib.asynccontextmanager
+async def workspace(path: Path, size=(120, 36)):
+    from workspace.tui.app import CutbookApp
+
+    store = open_workspace(path)
+    app = CutbookApp(store, poll_interval=0.05)
+    try:
+        async with app.run_test(size=size) as pilot:
+            await pilot.pause()
+            yield app, pilot
+    finally:
+        store.dispose()
+
+
+async def settle(app, pilot) -> None:
+    await pilot.pause()
+    await app.workers.wait_for_complete()
+    await pilot.pause()
+    await pilot.pause()
+
+
+def static_text(widget) -> str:
+    content = widget.content if hasattr(widget, "content") else widget.renderable
+    return getattr(content, "plain", str(content))
+
+
+def on_screen(app, widget, *, min_width: int = 1, min_height: int = 1) -> None:
+    """The widget is laid out inside the terminal with at least this many cells."""
+    w, h = app.size
+    r = widget.region
+    assert r.width >= min_width, f"{widget!r} is {r.width} cells wide (need {min_width}) at {w}x{h}"
+    assert r.height >= min_height, f"{widget!r} is {r.height} rows high (need {min_height}) at {w}x{h}"
+    assert r.x >= 0 and r.y >= 0 and r.right <= w and r.bottom <= h, f"{widget!r} at {r} leaves the {w}x{h} screen"
+
+
+def footer_keys(app) -> list[str]:
+    """Keys the footer shows whole (inside the screen width)."""
+    from textual.widgets._footer import FooterKey
+
+    w, _ = app.size
+    return [k.key_display for k in app.screen.query(FooterKey)
+            if k.region.width > 0 and k.region.right <= w]
+
+
+def table_lines(table) -> list[str]:
+    """The table's rendered lines (header first) as plain text."""
+    return [table.render_line(y).text for y in range(min(table.row_count + 1, table.size.height))]
+
+
+def demo_run(store, method: str, ref: str) -> int:
+    """The id of the demo run of ``method`` on ``ref`` (found with the plain runs listing)."""
+    from workspace.services.runs import list_runs
+
+    return next(r["run"] for r in list_runs(store, ref) if r["method"] == method)
+
+
+# --- every screen at 80x24 and 120x36 ------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
+def test_tui_ledger_fits(demo_path, size):
+    """Ledger: run table across the width with readable version, k and started; outline and detail beside."""
+    from workspace.tui.widgets.paged_table import PagedTable
+
+    async def go():
+        async with workspace(demo_path, size) as (app, pilot):
+            screen = app.screen
+            table = screen.query_one("#runs", PagedTable)
+            on_screen(app, table, min_width=size[0] - 6, min_height=6)
+            on_screen(app, screen.query_one("#outline"), min_width=24, min_height=6)
+            on_screen(app, screen.query_one("#detail"), min_width=40, min_height=6)
+            shown = table.shown_columns()
+            for title in ("run", "status", "version", "method / grouping", "k", "modularity", "started"):
+                assert title in shown, (title, shown)
+            if size[0] >= 120:
+                assert "parameter set" in shown and "conductance" in shown
+            lines = table_lines(table)
+            # the demo's leading-eigenvector run found 10 communities: k must read 10, not 1
+            lev = demo_run(app.store, "leading-eigenvector", "velmora-bikes/stations@4")
+            line = next(ln for ln in lines[1:] if ln.split()[0] == str(lev))
+            assert "stations@4 " in line and " 10 " in line, line
+            assert re.search(r"\d\d-\d\d \d\d:\d\d", line), line  # started
+            keys = footer_keys(app)
+            for key in ("a", "b", "l", "f", "o", "?", "m"):
+                assert key in keys, (key, keys)
+            bar = screen.query_one("#screen-bar")
+            on_screen(app, bar, min_width=size[0])
+            assert "1 Ledger" in bar.plain and "demo.sqlite" in bar.plain
+
+    asyncio.run(go())
+
+
+@pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
+def test_tui_launch_fits(demo_path, size):
+    """Launch: every field shows its input (not just the label); start button and progress on screen."""
+    from textual.widgets import Button, Input, Select
+
+    from workspace.tui.widgets.param_form import ParamForm
+
+    async def go():
+        async with workspace(demo_path, size) as (app, pilot):
+            await pilot.press("2")
+            await pilot.pause()
+            screen = app.screen
+            screen.query_one("#launch-version", Select).value = "velmora-bikes/stations@4"
+            await pilot.pause()
+            screen.query_one("#launch-method", Select).value = "njw"
+            await settle(app, pilot)
+            for wid in ("#launch-version", "#launch-set", "#launch-method"):
+                on_screen(app, screen.query_one(wid), min_width=30)
+            form = screen.query_one(ParamForm)
+            k_box = form.query_one("#pf-k", Input)
+            k_box.scroll_visible(animate=False)
+            await pilot.pause()
+            on_screen(app, k_box, min_width=20)
+            start = screen.query_one("#launch-start", Button)
+            start.scroll_visible(animate=False)
+            await pilot.pause()
+            on_screen(app, start, min_width=8)
+            on_screen(app, screen.query_one("#run-state"), min_width=30)
+            on_screen(app, screen.query_one("#launch-progress-pane"), min_height=5)
+            assert "^r" in footer_keys(app) and "?" in footer_keys(app) or "f1" in footer_keys(app)
+
+    asyncio.run(go())
+
+
+@pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
+def test_tui_spectrum_fits(demo_path, size):
+    """Spectrum: the plot across the width, the sizes chart reachable, keys in the footer."""
+    from workspace.tui.widgets.charts import SizeHistogram, SpectrumPlot
+
+    async def go():
+        async with workspace(demo_path, size) as (app, pilot):
+            app.current_run = demo_run(app.store, "njw", "velmora-bikes/stations@4")
+            await pilot.press("3")
+            await settle(app, pilot)
+            screen = app.screen
+            plot = screen.query_one(SpectrumPlot)
+            on_screen(app, plot, min_width=size[0] - 6, min_height=10)
+            assert "largest gap" in plot.render().plain
+            hist = screen.query_one(SizeHistogram)
+            hist.scroll_visible(animate=False)
+            await pilot.pause()
+            on_screen(app, hist, min_width=size[0] // 2 - 6, min_height=3)
+            on_screen(app, screen.query_one("#spectrum-summary"), min_width=40)
+            for key in ("[", "]", "?"):
+                assert key in footer_keys(app)
+
+    asyncio.run(go())
+
+
+@pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
+def test_tui_diff_fits(demo_path, size):
+    """Diff: matches with all columns, events, moved nodes and contingency each usable (stacked at 80)."""
+    from textual.widgets import Input
+
+    from workspace.tui.widgets.charts import HeatTable
+    from workspace.tui.widgets.paged_table import PagedTable
+
+    async def go():
+        async with workspace(demo_path, size) as (app, pilot):
+            a = demo_run(app.store, "njw", "velmora-bikes/stations@3")
+            b = demo_run(app.store, "njw", "velmora-bikes/stations@4")
+            app.diff_pick.update(a=a, b=b)
+            await pilot.press("4")
+            await settle(app, pilot)
+            screen = app.screen
+            assert screen.result is not None
+            for wid in ("#diff-a", "#diff-b", "#diff-nodes"):
+                on_screen(app, screen.query_one(wid, ), min_width=8)
+            matches = screen.query_one("#diff-matches", PagedTable)
+            events = screen.query_one("#diff-events")
+            moved = screen.query_one("#diff-moved", PagedTable)
+            heat = screen.query_one(HeatTable)
+            for widget, width in ((screen.query_one("#diff-scores"), 28), (matches, 34), (events, 30),
+                                  (moved, 30), (heat, 30)):
+                widget.scroll_visible(animate=False, top=True)
+                await pilot.pause()
+                on_screen(app, widget, min_width=width)
+            assert matches.shown_columns() == ["A", "B", "overlap", "Jaccard", "size A", "size B"]
+            assert moved.row_count > 0 and moved.size.height >= 3
+            search = screen.query_one("#diff-search", Input)
+            search.scroll_visible(animate=False, top=True)
+            await pilot.pause()
+            on_screen(app, search, min_width=20)
+            # event lines are not cut at the right edge: each fits the pane
+            width = events.region.width
+            assert all(len(ln) <= width for ln in static_text(events).splitlines())
+            keys = footer_keys(app)
+            assert "^r" in keys and "^f" in keys
+
+    asyncio.run(go())
+
+
+@pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
+def test_tui_lookup_fits(demo_path, size):
+    """Node lookup: network and node boxes and the runs table usable."""
+    from textual.widgets import Select
+
+    from workspace.tui.widgets.paged_table import PagedTable
+
+    async def go():
+        async with workspace(demo_path, size) as (app, pilot):
+            await pilot.press("5")
+            await pilot.pause()
+            screen = app.screen
+            screen.query_one("#lookup-network", Select).value = "velmora-bikes/stations"
+            await pilot.pause()
+            await pilot.press(*"LW-01", "enter")
+            await settle(app, pilot)
+            on_screen(app, screen.query_one("#lookup-network"), min_width=22)
+            on_screen(app, screen.query_one("#lookup-node"), min_width=20)
+            table = screen.query_one("#lookup-runs", PagedTable)
+            on_screen(app, table, min_width=size[0] - 6, min_height=5)
+            assert table.shown_columns()[:5] == ["run", "version", "method / grouping", "k", "community"]
+            assert "^f" in footer_keys(app)
+
+    asyncio.run(go())
+
+
+def test_tui_ledger_side_by_side_when_wide(demo_path):
+    """From 160 columns (here 200×50) outline, runs and detail sit side by side, all full height."""
+
+    async def go():
+        async with workspace(demo_path, (200, 50)) as (app, pilot):
+            outline, runs, detail = (app.screen.query_one(f"#{w}-pane") for w in ("outline", "runs", "detail"))
+            assert outline.region.right <= runs.region.x and runs.region.right <= detail.region.x
+            for pane in (outline, runs, detail):
+                assert pane.region.height >= 50 - 2 - 1
+            assert runs.region.width >= 90 and detail.region.width >= 60
+
+    asyncio.run(go())
+
+
+def test_tui_layout_follows_a_resize(demo_path):
+    """Shrinking the terminal while on another screen: the Ledger comes back stacked for the new size."""
+
+    async def go():
+        async with workspace(demo_path, (120, 36)) as (app, pilot):
+            assert app.screen.has_class("-wide")
+            await pilot.press("4")
+            await pilot.pause()
+            await pilot.resize_terminal(80, 24)
+            await pilot.pause()
+            await pilot.press("escape", "1")
+            await settle(app, pilot)
+            assert app.screen.has_class("-narrow") and app.screen.has_class("-short")
+            on_screen(app, app.screen.query_one("#runs"), min_width=74, min_height=6)
+
+    asyncio.run(go())
+
+
+def test_tui_new_screen_has_its_size_classes_from_the_first_frame(demo_path):
+    """A screen opened for the first time is laid out for the terminal at once (not one frame late)."""
+
+    async def go():
+        async with workspace(demo_path, (80, 24)) as (app, pilot):
+            for name in ("launch", "spectrum", "diff", "lookup"):
+                app.action_goto(name)
+                screen = app.workspace_screens[name]
+                assert screen.has_class("-narrow") and screen.has_class("-short"), (name, screen.classes)
+                assert not screen.has_class("-wide") and not screen.has_class("-tall")
+                await pilot.pause()
+
+    asyncio.run(go())
+
+
+def test_tui_maximise_a_pane(demo_path):
+    """`m` makes the pane holding the focus fill the screen (top bar and footer stay); `m` again restores."""
+
+    async def go():
+        async with workspace(demo_path, (80, 24)) as (app, pilot):
+            runs_pane = app.screen.query_one("#runs-pane")
+            before = runs_pane.region.height
+            await pilot.press("m")
+            await pilot.pause()
+            assert app.screen.maximized is runs_pane
+            assert runs_pane.region.height >= 24 - 2 - 1 > before
+            assert app.screen.query_one("#screen-bar").region.height == 1
+            assert footer_keys(app)
+            await pilot.press("m")
+            await pilot.pause()
+            assert app.screen.maximized is None
+            await pilot.press("m")
+            await pilot.pause()
+            assert app.screen.maximized is runs_pane
+            await pilot.press("escape")  # esc restores too
+            await pilot.pause()
+            assert app.screen.maximized is None
+
+    asyncio.run(go())
+
+
+# --- item 2: launch here and the detail pane follow the outline row ------------------------------------------
+
+
+def _add_karate(path: Path) -> None:
+    """Zachary's karate club (shipped with networkx) as a network with no runs: velmora-bikes/karate@1."""
+    from workspace.services.networks import import_network
+
+    f = path.parent / "karate.csv"
+    with open(f, "w", encoding="utf-8") as fh:
+        fh.write("source,target\n")
+        for u, v in nx.karate_club_graph().edges():
+            fh.write(f"m{u:02d},m{v:02d}\n")
+    store = open_workspace(path)
+    try:
+        import_network(store, f, project="velmora-bikes", network="karate")
+    finally:
+        store.dispose()
+
+
+def _walk(node):
+    yield node
+    for child in node.children:
+        yield from _walk(child)
+
+
+def test_tui_launch_here_on_a_network_without_runs(demo_copy):
+    """`l` on a network row with no runs opens Launch on that network's newest version, not another one."""
+    from textual.widgets import Select, Tree
+
+    _add_karate(demo_copy)
+
+    async def go():
+        async with workspace(demo_copy) as (app, pilot):
+            tree = app.screen.query_one("#outline", Tree)
+            tree.focus()
+            node = next(n for n in _walk(tree.root) if (n.data or {}).get("network") == "velmora-bikes/karate"
+                        and n.data.get("kind") == "network")
+            tree.move_cursor(node)
+            await settle(app, pilot)
+            assert app.screen.runs_title.endswith("· 0")
+            await pilot.press("l")
+            await pilot.pause()
+            assert app.screen.id == "launch"
+            assert app.screen.query_one("#launch-version", Select).value == "velmora-bikes/karate@1"
+
+    asyncio.run(go())
+
+
+def test_tui_detail_follows_the_row_kind(demo_path):
+    """Project and network rows show their own detail, not the run looked at before."""
+    from textual.widgets import Tree
+
+    from workspace.tui.widgets.detail import DetailPane
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            await settle(app, pilot)
+            assert app.screen.query_one("#detail-pane").border_title.startswith("Run")
+            tree = app.screen.query_one("#outline", Tree)
+            tree.focus()
+            for kind, title, expect in (("project", "Project", "orrin-hollow-lab"),
+                                        ("network", "Network", "orrin-hollow-lab/co-working"),
+                                        ("store", "Store", "velmora-bikes")):
+                node = next(n for n in _walk(tree.root) if (n.data or {}).get("kind", "store") == kind
+                            and (kind == "store" or n.data.get("project") == "orrin-hollow-lab"))
+                tree.move_cursor(node)
+                await settle(app, pilot)
+                assert app.screen.query_one("#detail-pane").border_title == title
+                text = app.screen.query_one("#detail", DetailPane).plain
+                assert expect in text and not text.startswith("Run ")
+
+    asyncio.run(go())
+
+
+# --- item 3: a failed diff clears the previous one ---------------------------------------------------------
+
+
+def test_tui_failed_diff_clears_the_panels(demo_path):
+    from textual.widgets import Input
+
+    from workspace.tui.widgets.charts import HeatTable
+    from workspace.tui.widgets.paged_table import PagedTable
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            app.diff_pick.update(a=demo_run(app.store, "njw", "velmora-bikes/stations@3"),
+                                 b=demo_run(app.store, "njw", "velmora-bikes/stations@4"))
+            await pilot.press("4")
+            await settle(app, pilot)
+            screen = app.screen
+            assert screen.query_one("#diff-matches", PagedTable).row_count > 0
+            assert screen.query_one("#diff-moved", PagedTable).row_count > 0
+            screen.query_one("#diff-b", Input).value = "999"
+            await pilot.press("ctrl+r")
+            await settle(app, pilot)
+            assert "no run 999" in static_text(screen.query_one("#diff-scores"))
+            assert screen.query_one("#diff-matches", PagedTable).row_count == 0
+            assert screen.query_one("#diff-moved", PagedTable).row_count == 0
+            assert static_text(screen.query_one("#diff-events")) == ""
+            assert screen.query_one(HeatTable).table is None
+            assert screen.query_one("#diff-moved-pane").border_title == "Moved nodes"
+
+    asyncio.run(go())
+
+
+# --- item 4: palette pick while on the diff screen ----------------------------------------------------------
+
+
+def test_tui_palette_pick_applies_on_the_diff_screen(demo_path):
+    from textual.widgets import Input
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            await pilot.press("4")
+            await pilot.pause()
+            a = demo_run(app.store, "fiedler", "velmora-bikes/stations@1")
+            b = demo_run(app.store, "fiedler", "velmora-bikes/stations@4")
+            app.pick("a", a)  # what the palette's "Diff side A = run N" calls
+            await pilot.pause()
+            assert app.screen.query_one("#diff-a", Input).value == str(a)
+            app.pick("b", b)
+            await settle(app, pilot)
+            assert app.screen.query_one("#diff-b", Input).value == str(b)
+            assert app.screen.result is not None and app.screen.result["a"]["run"] == a
+
+    asyncio.run(go())
+
+
+# --- item 5: lookup focus, network choice runs the typed id, no pooled labels -----------------------------
+
+
+def test_tui_lookup_focus_and_network_choice(demo_path):
+    from textual.widgets import Input, Select
+
+    from workspace.tui.widgets.paged_table import PagedTable
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            await pilot.press("5")
+            await pilot.pause()
+            screen = app.screen
+            # two networks in the demo: none is chosen, so the focus starts on the network choice
+            assert screen.query_one("#lookup-network", Select).value is Select.NULL
+            assert app.focused is screen.query_one("#lookup-network", Select)
+            screen.query_one("#lookup-node", Input).value = "LW-01"
+            screen.query_one("#lookup-network", Select).value = "velmora-bikes/stations"
+            await settle(app, pilot)
+            assert screen.result is not None and screen.result["node"] == "LW-01"
+            summary = static_text(screen.query_one("#lookup-summary"))
+            assert "communities [" not in summary and "own way" in summary
+            assert screen.query_one("#lookup-runs", PagedTable).row_count == len(screen.result["runs"])
+
+    asyncio.run(go())
+
+
+# --- item 6: header, current screen, enter, keys help, text filter, newest run ------------------------------
+
+
+def test_tui_header_marks_store_and_screen(demo_path):
+    from workspace.tui import palette
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            for key, name in (("1", "Ledger"), ("4", "Diff"), ("5", "Lookup")):
+                await pilot.press("escape", key)  # escape: out of any text box, so digits switch screens
+                await pilot.pause()
+                bar = app.screen.query_one("#screen-bar")
+                text = bar.content
+                marked = [text.plain[s.start:s.end] for s in text.spans if palette.ACCENT in str(s.style)]
+                assert marked == [f" {key} {name} "]
+                assert str(demo_path.name) in text.plain
+
+    asyncio.run(go())
+
+
+def test_tui_footer_marks_the_screen(demo_path):
+    """The footer starts with the current screen's name, inside the screen at 80 columns."""
+    from textual.widgets._footer import FooterLabel
+
+    async def go():
+        async with workspace(demo_path, (80, 24)) as (app, pilot):
+            for key, name in (("1", "Ledger"), ("2", "Launch"), ("3", "Spectrum"), ("4", "Diff"),
+                              ("5", "Node lookup")):
+                await pilot.press("escape", key)
+                await settle(app, pilot)
+                label = app.screen.query_one("FooterLabel.footer-screen", FooterLabel)
+                assert str(label.content).strip() == name
+                assert label.region.x == 0 and label.region.width >= len(name)
+
+    asyncio.run(go())
+
+
+def test_tui_enter_opens_the_run(demo_path):
+    from workspace.tui.widgets.paged_table import PagedTable
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            table = app.screen.query_one("#runs", PagedTable)
+            await pilot.press("down", "down")
+            await pilot.pause()
+            run = table.current_row["run"]
+            await pilot.press("enter")
+            await settle(app, pilot)
+            assert app.screen.id == "spectrum" and app.screen.run_id == run
+
+    asyncio.run(go())
+
+
+@pytest.mark.parametrize("key", ["question_mark", "f1"])
+def test_tui_keys_help(demo_path, key):
+    from workspace.tui.widgets.chrome import KeysHelp
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            await pilot.press(key)
+            await pilot.pause()
+            assert isinstance(app.screen, KeysHelp)
+            text = app.screen.text.plain
+            for line in ("Spectrum", "Side A", "Filter", "Sort", "Ledger", "Quit", "Max"):
+                assert line in text
+            await pilot.press("escape")
+            await pilot.pause()
+            assert app.screen.id == "ledger"
+
+    asyncio.run(go())
+
+
+def test_tui_text_filter(demo_path):
+    """`f` then words: only matching runs stay (checked against the plain runs listing filtered here)."""
+    from workspace.services.runs import list_runs
+    from workspace.tui.widgets.paged_table import PagedTable
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            await pilot.press("f")
+            await pilot.press(*"njw stations@4")
+            await pilot.press("enter")
+            await settle(app, pilot)
+            table = app.screen.query_one("#runs", PagedTable)
+            expected = [r["run"] for r in list_runs(app.store)
+                        if r["method"] == "njw" and r["ref"] == "velmora-bikes/stations@4"]
+            assert [r["run"] for r in table._source.fetch(0, 100)] == expected
+            assert app.focused is table and "“njw stations@4”" in app.screen.runs_title
+            # o sorts by the next column (modularity, largest first)
+            await pilot.press("o")
+            await settle(app, pilot)
+            assert app.screen.sort == "modularity" and "by modularity ↓" in app.screen.runs_title
+            await pilot.press("O")
+            await settle(app, pilot)
+            assert "by modularity ↑" in app.screen.runs_title
+            q = [r["quality"]["modularity"] for r in table._source.fetch(0, 100)]
+            assert q == sorted(q)
+            # F shows one status at a time; every demo run is done
+            await pilot.press("F")
+            await settle(app, pilot)
+            assert "done only" in app.screen.runs_title and table.row_count == len(expected)
+            # esc in the filter box goes back to the list; emptying the box lifts the filter
+            await pilot.press("f", *["backspace"] * 20, "escape")
+            await settle(app, pilot)
+            assert app.focused is table and "“" not in app.screen.runs_title
+            assert table.row_count == len(list_runs(app.store))
+
+    asyncio.run(go())
+
+
+def test_tui_spectrum_of_a_missing_run_clears_the_charts(demo_path):
+    """Item 3's sibling on the Spectrum screen: a run that cannot be opened leaves no old bars behind."""
+    from textual.widgets import Input
+
+    from workspace.tui.widgets.charts import SizeHistogram, SpectrumPlot
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            app.current_run = None  # no run looked at yet
+            await pilot.press("3")
+            await pilot.pause()
+            assert app.focused is app.screen.query_one("#spectrum-run", Input)  # so the focus is in the run box
+            await pilot.press(*str(demo_run(app.store, "njw", "velmora-bikes/stations@4")), "enter")
+            await settle(app, pilot)
+            assert "█" in app.screen.query_one(SpectrumPlot).render().plain
+            box = app.screen.query_one("#spectrum-run", Input)
+            box.value = "999"
+            await pilot.press("ctrl+f", "enter")
+            await settle(app, pilot)
+            assert "no run 999" in static_text(app.screen.query_one("#spectrum-summary"))
+            assert "█" not in app.screen.query_one(SpectrumPlot).render().plain
+            assert "█" not in app.screen.query_one(SizeHistogram).render().plain
+
+    asyncio.run(go())
+
+
+def test_tui_step_past_the_newest_run(demo_path):
+    from workspace.services.runs import list_runs
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            newest = list_runs(app.store, limit=1)[0]["run"]
+            app.current_run = newest
+            await pilot.press("3")
+            await settle(app, pilot)
+            await pilot.press("right_square_bracket")
+            await pilot.pause()
+            assert app.screen.run_id == newest
+            assert f"run {newest} is the newest run in the store" in app.shown[-1][1]
+            assert not any(f"no run {newest + 1}" in m for _, m in app.shown)
+            await pilot.press("left_square_bracket")
+            await settle(app, pilot)
+            assert app.screen.run_id == newest - 1
+
+    asyncio.run(go())
+
+
+# --- item 7: cosmetics ------------------------------------------------------------------------------------------
+
+
+def test_tui_run_end_line_says_it_once():
+    from workspace.tui.messages import run_end_line
+
+    assert run_end_line(13, "cancelled", "run 13 cancelled") == "run 13 cancelled"
+    assert run_end_line(13, "failed", "k must be at least 2") == "run 13 failed: k must be at least 2"
+    assert run_end_line(13, "done", "anything") == "run 13 done"
+
+
+def test_tui_idle_progress_bar_is_hidden(demo_path):
+    from textual.widgets import ProgressBar
+
+    async def go():
+        async with workspace(demo_path, (80, 24)) as (app, pilot):
+            await pilot.press("2")
+            await pilot.pause()
+            bar = app.screen.query_one("#run-bar", ProgressBar)
+            assert not bar.has_class("-busy") and bar.region.width == 0  # nothing pulses while idle
+            # a run in progress with unknown length shows its elapsed time, never "--%"
+            from workspace.tui.messages import RunProgress
+
+            app.screen.started_at = __import__("time").monotonic() - 2.0
+            app.screen.post_message(RunProgress("eigensolve", 40, None))
+            await pilot.pause()
+            stage = static_text(app.screen.query_one("#run-stage"))
+            assert "40 matvecs" in stage and "s elapsed" in stage and "--%" not in stage
+            assert bar.has_class("-busy")
+            app.screen.started_at = None
+
+    asyncio.run(go())
+
+
+def test_tui_plural_and_event_wording():
+    from workspace.tui.screens.diff import _event_line
+
+    # a split has the size of its A community only; a death only an A side
+    split = {"kind": "split", "a": [1], "b": [1, 7], "size_a": 20, "parts": []}
+    assert _event_line(split) == "split A1 → B1, B7  20 nodes"
+    death = {"kind": "dissolved", "a": [4], "b": [], "size_a": 6}
+    assert _event_line(death) == "dissolved A4  6 nodes"
+    assert "—" not in _event_line(split) + _event_line(death)
+
+
+def test_tui_outline_plural(demo_path):
+    from textual.widgets import Tree
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            tree = app.screen.query_one("#outline", Tree)
+            labels = [str(n.label) for n in _walk(tree.root)]
+            assert not any(re.search(r"\b1 (sets|runs)\b", lb) for lb in labels), labels
+            assert any(re.search(r"\b1 set\b", lb) for lb in labels)
+
+    asyncio.run(go())
+
+
+def test_tui_rounding_noise_reads_zero():
+    """Values at machine-epsilon scale are the rounding of an exact 0 (common practice: |x| < 1e-12)."""
+    from workspace.tui.widgets.charts import SpectrumPlot, _fmt
+    from workspace.tui.widgets.detail import fmt_value
+
+    assert fmt_value(4.441e-16) == "0" and fmt_value(-2.71e-14) == "0"
+    assert fmt_value(0.1234567) == "0.1235" and fmt_value(12.0) == "12"
+    # solver residuals are real small measurements and keep their value
+    assert fmt_value(5.8e-14, snap=False) == "5.80e-14"
+    assert _fmt(-2.71e-14, 1.9) == "0" and _fmt(0.5, 1.9) == "0.5"
+    plot = SpectrumPlot()
+    plot.values = [-2.71e-14, 0.4, 1.9]
+    # at any width the gap sentence stays whole (on its own line when the marker sits far right)
+    assert "largest gap λ2→λ3 = 1.5  ⇒  k = 2" in plot.render().plain
+    # the Laplacian of a connected graph has eigenvalue 0 once (Chung 1997, Spectral Graph Theory, lemma 1.7):
+    # its rounding must not make a negative axis
+    assert "e-14" not in plot.render().plain
+
+
+def test_tui_size_bins_leave_out_empty_ranges():
+    from workspace.tui.widgets.charts import size_bins
+
+    sizes = [1] * 30 + [9000]  # one giant community and thirty singletons
+    bins = size_bins(sizes)
+    assert bins == [("1", 30), ("8192–16383", 1)]
+    assert sum(n for _, n in bins) == len(sizes)
+
+
+def test_tui_detail_in_words(demo_path):
+    """The run detail reads in words: no raw keys, no Python list text, no ISO 'T'."""
+    from workspace.services.runs import show_run
+    from workspace.tui.widgets.detail import run_text
+
+    store = open_workspace(demo_path)
+    try:
+        run = show_run(store, demo_run(store, "njw", "velmora-bikes/stations@4"))
+    finally:
+        store.dispose()
+    text = run_text(run).plain
+    for raw in ("wall_time_s", "k_requested", "residual_norm_max", "conductance_per_community", "[0.", "', '"):
+        assert raw not in text, raw
+    assert "wall time (s)" in text and "largest residual" in text
+    assert not re.search(r"\d{4}-\d\d-\d\dT\d\d", text)
+
+
+def test_tui_version_detail_lists_changes_in_words(demo_path):
+    """A version's changes from its parent: edges as `u — v`, weight changes as `old → new`, true counts."""
+    from workspace.services.networks import show_version
+    from workspace.tui.widgets.detail import version_text
+
+    store = open_workspace(demo_path)
+    try:
+        v = show_version(store, "velmora-bikes/stations@4")
+    finally:
+        store.dispose()
+    text = version_text(v).plain
+    ch = v["changes_from_parent"]
+    assert "listings" not in text and "[" not in text
+    u, w = ch["listings"]["edges_added"][0][:2]
+    assert f"{u} — {w}" in text
+    a, b, old, new = ch["listings"]["weights_changed"][0]
+    assert re.search(rf"{a} — {b}  \S+ → \S+", text)
+    assert f"… {ch['edges_added'] - 6} more" in text
+
+
+# --- item 8: our own palette, colour-vision-deficiency friendly ------------------------------------------------
+
+# Machado, Oliveira & Fernandes (2009), "A physiologically-based model for simulation of color vision
+# deficiency", IEEE TVCG 15(6): full-severity matrices on linear RGB (values recalled from memory).
+CVD = {
+    "deuteranopia": [[0.367322, 0.860646, -0.227968], [0.280085, 0.672501, 0.047413], [-0.011820, 0.042940, 0.968881]],
+    "protanopia": [[0.152286, 1.052583, -0.204868], [0.114503, 0.786281, 0.099216], [-0.003882, -0.048116, 1.051998]],
+    "tritanopia": [[1.255528, -0.076749, -0.178779], [-0.078411, 0.930809, 0.147602], [0.004733, 0.691367, 0.303900]],
+}
+
+
+def _lab(hex_colour: str, matrix=None) -> np.ndarray:
+    """sRGB -> (simulated) -> CIELAB (D65), per the sRGB standard IEC 61966-2-1 and CIE 1976."""
+    c = np.array([int(hex_colour[i:i + 2], 16) / 255 for i in (1, 3, 5)])
+    lin = np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+    if matrix is not None:
+        lin = np.clip(np.array(matrix) @ lin, 0, 1)
+    xyz = np.array([[0.4124, 0.3576, 0.1805], [0.2126, 0.7152, 0.0722], [0.0193, 0.1192, 0.9505]]) @ lin
+    t = xyz / np.array([0.95047, 1.0, 1.08883])
+    f = np.where(t > 0.008856, np.cbrt(t), 7.787 * t + 16 / 116)
+    return np.array([116 * f[1] - 16, 500 * (f[0] - f[1]), 200 * (f[1] - f[2])])
+
+
+def _contrast(fg: str, bg: str) -> float:
+    """WCAG 2.1 contrast ratio (relative luminance from linear sRGB)."""
+    def lum(h):
+        c = np.array([int(h[i:i + 2], 16) / 255 for i in (1, 3, 5)])
+        lin = np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+        return float(lin @ [0.2126, 0.7152, 0.0722])
+    a, b = sorted((lum(fg), lum(bg)), reverse=True)
+    return (a + 0.05) / (b + 0.05)
+
+
+@pytest.mark.parametrize("vision", [None, *CVD], ids=["typical", *CVD])
+def test_tui_palette_colours_stay_apart(vision):
+    """Community and status colours stay at least ΔE*ab 10 apart under each simulated deficiency
+    (ΔE ≈ 2.3 is a just-noticeable difference — Sharma 2003, Digital Color Imaging Handbook)."""
+    from workspace.tui import palette
+
+    matrix = CVD.get(vision) if vision else None
+    for group in (palette.COMMUNITY, tuple(palette.STATUS.values())):
+        distinct = tuple(dict.fromkeys(group))
+        for a, b in itertools.combinations(distinct, 2):
+            d = float(np.linalg.norm(_lab(a, matrix) - _lab(b, matrix)))
+            assert d >= 10.0, (vision, a, b, d)
+
+
+def test_tui_palette_is_readable_and_in_one_place():
+    """Text colours reach WCAG 2.1 contrast 4.5:1 on the ground; no colour literal lives outside the palette."""
+    from workspace.tui import palette
+
+    for colour in (palette.TEXT, palette.DIM, palette.PRIMARY, palette.ACCENT, *palette.STATUS.values(),
+                   *palette.COMMUNITY):
+        assert _contrast(colour, palette.GROUND) >= 4.5, colour
+    root = Path(__file__).resolve().parents[2] / "workspace" / "tui"
+    offenders = [str(p.relative_to(root)) for p in root.rglob("*") if p.suffix in (".py", ".tcss")
+                 and p.name != "palette.py" and re.search(r"#[0-9a-fA-F]{6}\b", p.read_text(encoding="utf-8"))]
+    assert offenders == []
