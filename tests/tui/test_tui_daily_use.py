@@ -115,12 +115,20 @@ def demo_run(store, method: str, ref: str) -> int:
 
 
 @pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
-def test_tui_ledger_fits(demo_path, size):
+def test_tui_ledger_fits(demo_copy, size):
     """Ledger: run table across the width with readable version, k and started; outline and detail beside."""
+    from workspace.services import runs as run_service
     from workspace.tui.widgets.paged_table import PagedTable
 
+    store = open_workspace(demo_copy)
+    try:  # a run with a two-digit k (the demo's own runs find at most 8 communities)
+        wide_k = run_service.launch(store, run_service.prepare_run(
+            store, "velmora-bikes/stations@4", method="njw", k=12))["run"]
+    finally:
+        store.dispose()
+
     async def go():
-        async with workspace(demo_path, size) as (app, pilot):
+        async with workspace(demo_copy, size) as (app, pilot):
             screen = app.screen
             table = screen.query_one("#runs", PagedTable)
             on_screen(app, table, min_width=size[0] - 6, min_height=6)
@@ -132,10 +140,9 @@ def test_tui_ledger_fits(demo_path, size):
             if size[0] >= 120:
                 assert "parameter set" in shown and "conductance" in shown
             lines = table_lines(table)
-            # the demo's leading-eigenvector run found 10 communities: k must read 10, not 1
-            lev = demo_run(app.store, "leading-eigenvector", "velmora-bikes/stations@4")
-            line = next(ln for ln in lines[1:] if ln.split()[0] == str(lev))
-            assert "stations@4 " in line and " 10 " in line, line
+            # a run with k = 12: k must read 12, not 1
+            line = next(ln for ln in lines[1:] if ln.split()[0] == str(wide_k))
+            assert "stations@4 " in line and " 12 " in line, line
             assert re.search(r"\d\d-\d\d \d\d:\d\d", line), line  # started
             keys = footer_keys(app)
             for key in ("a", "b", "l", "f", "o", "?", "m"):
@@ -194,7 +201,7 @@ def test_tui_spectrum_fits(demo_path, size):
             screen = app.screen
             plot = screen.query_one(SpectrumPlot)
             on_screen(app, plot, min_width=size[0] - 6, min_height=10)
-            assert "largest gap" in plot.render().plain
+            assert "the run found k = 8" in plot.render().plain
             hist = screen.query_one(SizeHistogram)
             hist.scroll_visible(animate=False)
             await pilot.pause()
@@ -730,8 +737,9 @@ def test_tui_rounding_noise_reads_zero():
     assert _fmt(-2.71e-14, 1.9) == "0" and _fmt(0.5, 1.9) == "0.5"
     plot = SpectrumPlot()
     plot.values = [-2.71e-14, 0.4, 1.9]
+    plot.gap_k = 2  # the run's own eigengap suggestion
     # at any width the gap sentence stays whole (on its own line when the marker sits far right)
-    assert "largest gap λ2→λ3 = 1.5  ⇒  k = 2" in plot.render().plain
+    assert "eigengap λ2→λ3 = 1.5  ⇒  k = 2" in plot.render().plain
     # the Laplacian of a connected graph has eigenvalue 0 once (Chung 1997, Spectral Graph Theory, lemma 1.7):
     # its rounding must not make a negative axis
     assert "e-14" not in plot.render().plain

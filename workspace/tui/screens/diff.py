@@ -261,7 +261,7 @@ class DiffScreen(Screen):
         """Fill the contingency panel from a diff result (None clears it): the largest cells of
         the sparse table, with a title that counts the rest."""
         heat, caption = _heat_view((d or {}).get("contingency"))
-        self.query_one("#diff-heat-pane .pane-title", Static).update(caption)
+        self.query_one("#diff-heat-pane").border_title = caption
         self.query_one("#diff-heat", HeatTable).show(heat)
 
     @on(Input.Changed, "#diff-search")
