@@ -183,7 +183,7 @@ def ledger_runs(store: Store, scope: str | None = None, *, status: str | None = 
         measures of :data:`LEDGER_MEASURES` the run recorded).
     """
     from workspace.errors import UsageError
-    from workspace.services.runs import _run_row_dict
+    from workspace.services.runs import _run_row_dict, _with_tags
 
     if sort not in LEDGER_SORTS:
         raise UsageError(f"cannot sort runs by {sort!r}; choose one of: {', '.join(LEDGER_SORTS)}")
@@ -220,6 +220,7 @@ def ledger_runs(store: Store, scope: str | None = None, *, status: str | None = 
             row["quality"] = {m: float(quality[m]) for m in LEDGER_MEASURES
                               if isinstance(quality.get(m), (int, float)) and not isinstance(quality.get(m), bool)}
             out.append(row)
+        _with_tags(s, "run", out, "run")
     return out
 
 
