@@ -52,7 +52,8 @@ def cmd_import(args) -> int:
         if res.new_version:
             out.line(f"imported {res.ref}: {res.nodes} nodes, {res.edges} edges  [{res.content_hash[:12]}]")
         else:
-            out.line(f"unchanged: content equals {res.ref}; no new version made  [{res.content_hash[:12]}]")
+            out.line(f"unchanged: {res.report['source']} has the same content as {res.ref} (matched "
+                     f"version {res.version}); no new version made  [{res.content_hash[:12]}]")
         print_report(out, res.report)
     return 0
 

@@ -55,8 +55,11 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
 
     Reading and hashing happen outside any transaction; the write is one short
     transaction. ``source_label`` replaces the path in the stored report (the
-    path as given is kept otherwise). Content equal to the latest version creates nothing. A failed
-    read leaves the store untouched (no project, network or version is created).
+    path as given is kept otherwise). Content equal to the latest version creates nothing:
+    the outcome then names that version (``new_version=False``) but its ``report`` and
+    ``policy`` are those of the file just read, never the stored version's (which may come
+    from another file). A failed read leaves the store untouched (no project, network or
+    version is created).
     """
     from workspace.io import read_network
 
@@ -77,9 +80,9 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
         net = repo.get_or_create_network(s, proj, network)
         latest = repo.latest_version(s, net.id)
         if latest is not None and latest.content_hash == content_hash:
-            return ImportOutcome(f"{project}/{network}@{latest.number}", latest.number, latest.n_nodes,
-                                 latest.n_edges, content_hash, False, json.loads(latest.report_json),
-                                 json.loads(latest.policy_json))
+            # report what was just read (its name, columns, notes); the stored version keeps its own
+            return ImportOutcome(f"{project}/{network}@{latest.number}", latest.number, graph.n_nodes,
+                                 graph.n_edges, content_hash, False, report_dict, policy_dict)
         v = repo.add_version(s, net, graph, parent=latest, content_hash=content_hash, message=message,
                              source_name=source_label or os.path.basename(os.fspath(path)), source_format=report.format,
                              policy_json=json.dumps(policy_dict, sort_keys=True),
