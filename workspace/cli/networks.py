@@ -36,7 +36,10 @@ def print_report(out, report: dict) -> None:
          f"max {ws.get('max'):.4g}  total {ws.get('total'):.6g}"),
     ])
     for n in report.get("notes") or []:
-        out.line(f"  note: {n}")
+        if n.startswith("warning: "):
+            out.line(f"  WARNING: {n[len('warning: '):]}")
+        else:
+            out.line(f"  note: {n}")
 
 
 def cmd_import(args) -> int:
@@ -48,6 +51,9 @@ def cmd_import(args) -> int:
         bar.close()
         if args.json:
             emit_json(res.to_dict())
+            for n in res.report.get("notes") or []:
+                if n.startswith("warning: "):
+                    out.note(f"cutbook: {n}")
             return 0
         if res.new_version:
             out.line(f"imported {res.ref}: {res.nodes} nodes, {res.edges} edges  [{res.content_hash[:12]}]")

@@ -213,13 +213,22 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
     1. ``weight`` names a column (a non-digit string): a header is required
        and must contain that name;
     2. none of the line's fields is a number, and either its first two
-       fields are a known endpoint-name pair (source/target, from/to,
-       src/dst, node1/node2, node_1/node_2, tail/head, id1/id2; any case),
-       or some column is numeric in every one of the following lines of the
-       first 256 KiB while the line's field there is not;
+       fields name the endpoint columns - a known pair compared without case,
+       blanks, ``_`` or ``-`` (source/target, from/to, src/dst, node1/node2,
+       tail/head, id1/id2, origin/destination, sender/receiver, u/v, a/b,
+       i/j, x/y, s/t, ... see ``delimited.ENDPOINT_HEADER_NAMES``), names
+       that differ only by a from/to role word (``from_station,to_station``)
+       or one name numbered 1 and 2 (``user1,user2``); one-letter pairs only
+       when more lines follow - or some column is numeric in every one of
+       the following lines of the first 256 KiB while the line's field
+       there is not;
     3. and (for rule 2) neither of its first two fields occurs as a node id
        anywhere below - a name that is also a node id marks a data line.
 
+    A first line read as data whose two ids occur on no other line (a
+    2-node component of its own, what a header read as data looks like)
+    gets a note starting ``warning:`` that names ``--header yes``, unless
+    every line of the sample is such a pair.
     Otherwise the line is data. ``"yes"`` and ``"no"`` force the choice.
 
     References
