@@ -106,11 +106,9 @@ class _Csv:
                                  double_quote=quoting, escape_char=False,
                                  newlines_in_values=False, ignore_empty_lines=True)
         self._lines: LineMap | None = None
-        # Arrow cannot parse a row longer than its block: size blocks to the longest line
-        newlines = np.flatnonzero(np.frombuffer(data, dtype=np.uint8) == 10) if data else np.zeros(0, int)
-        bounds = np.concatenate([[-1], newlines, [len(data)]])
-        longest = int(np.diff(bounds).max()) if bounds.size > 1 else len(data)
-        self.block_size = max(1 << 22, 1 << int(longest + 1024).bit_length())
+        # Arrow cannot parse a row longer than its block ("straddling object"): 4 MiB blocks hold
+        # any ordinary line; only when one does not are blocks sized to the longest line
+        self.block_size = 1 << 22
 
     @property
     def lines(self) -> LineMap:
@@ -135,7 +133,22 @@ class _Csv:
                                    parse_options=pa_csv.ParseOptions(**self.parse_kwargs),
                                    convert_options=pa_csv.ConvertOptions(**convert))
         except pa.ArrowInvalid as err:
+            # a line longer than the block shows as "straddling object" or as an empty file
+            if len(data) > self.block_size and self._fit_block_to_longest_line():
+                return self.read(data, n_columns, include, threads)
             raise self._explain(data, n_columns, include, err) from None
+
+    def _fit_block_to_longest_line(self) -> bool:
+        """Grow the block size to hold the longest line; False when it already does."""
+        data = self.data
+        newlines = np.flatnonzero(np.frombuffer(data, dtype=np.uint8) == 10) if data else np.zeros(0, int)
+        bounds = np.concatenate([[-1], newlines, [len(data)]])
+        longest = int(np.diff(bounds).max()) if bounds.size > 1 else len(data)
+        size = max(1 << 22, 1 << int(longest + 1024).bit_length())
+        if size <= self.block_size:
+            return False
+        self.block_size = size
+        return True
 
     def _explain(self, data: bytes, n_columns, include, err: Exception) -> InputError:
         text = str(err)
@@ -221,8 +234,10 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
     """
     delimiter = resolve_delimiter(fmt, policy.delimiter)
     data = normalise_newlines(strip_bom(data))
-    check_utf8(data, path)
-    stray_bom = data.find(b"\xef\xbb\xbf")
+    ascii_only = data.isascii()
+    if not ascii_only:
+        check_utf8(data, path)
+    stray_bom = -1 if ascii_only else data.find(b"\xef\xbb\xbf")
     if stray_bom >= 0:
         raise InputError("a byte-order mark (U+FEFF) inside the file, not at its start: were two files "
                          "joined together? Remove it and import again", path=path,
