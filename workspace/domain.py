@@ -110,8 +110,10 @@ class GraphData:
         A.sort_indices()
         return A
 
-    def content_hash(self) -> str:
+    def content_hash(self, encoded_ids: tuple[np.ndarray, np.ndarray] | None = None) -> str:
         """sha256 (hex) over the canonical raw bytes.
+
+        ``encoded_ids``: ``encode_node_ids(self.node_ids)`` when the caller has it already.
 
         Layout hashed, in order: the tag ``b"cutbook-graph-1\\0"``; n and m as
         little-endian int64; node-id offsets (int64 LE) and UTF-8 bytes;
@@ -119,7 +121,7 @@ class GraphData:
         therefore hash equal whatever file, line order or endpoint order they
         came from.
         """
-        offsets, data = encode_node_ids(self.node_ids)
+        offsets, data = encoded_ids if encoded_ids is not None else encode_node_ids(self.node_ids)
         h = hashlib.sha256(b"cutbook-graph-1\0")
         h.update(np.array([self.n_nodes, self.n_edges], dtype="<i8").tobytes())
         h.update(offsets.astype("<i8", copy=False).tobytes())

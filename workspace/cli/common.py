@@ -20,6 +20,33 @@ def session(args):
         store.dispose()
 
 
+def warm_imports(*modules: str):
+    """Import ``modules`` on a background thread while the caller starts on other work.
+
+    For commands whose first step spends most of its time outside the interpreter lock
+    (Arrow's CSV reader and hash kernels, numpy sorts): the store layer and scipy then load on
+    the other core instead of before or after that work. The caller imports nothing of
+    ``modules`` at module level, and its own imports touch none of their packages until it
+    needs them (then it simply waits for the module lock), so no import-lock cycle can form.
+    A failure here is ignored: the caller's own import raises it where it matters.
+    Returns the thread (already started, daemon).
+    """
+    import threading
+
+    def run() -> None:
+        import importlib
+
+        for name in modules:
+            try:
+                importlib.import_module(name)
+            except BaseException:  # noqa: BLE001 - the caller's own import reports it
+                return
+
+    thread = threading.Thread(target=run, name="cutbook-warm-imports", daemon=True)
+    thread.start()
+    return thread
+
+
 @contextmanager
 def progress_bar(enabled: bool = True):
     bar = ProgressBar(enabled)
@@ -29,4 +56,4 @@ def progress_bar(enabled: bool = True):
         bar.close()
 
 
-__all__ = ["session", "progress_bar", "emit_json", "Out"]
+__all__ = ["session", "progress_bar", "warm_imports", "emit_json", "Out"]

@@ -43,24 +43,36 @@ def print_report(out, report: dict) -> None:
 
 
 def cmd_import(args) -> int:
-    from workspace.services.networks import import_network
+    from workspace.cli.common import warm_imports
+    from workspace.services.networks import check_names, import_network, prepare_import
 
-    with session(args) as (store, out), progress_bar() as bar:
-        res = import_network(store, args.file, project=args.project, network=args.network, format=args.format,
-                             policy=_policy(args), message=args.message, progress=bar)
-        bar.close()
-        if args.json:
-            emit_json(res.to_dict())
-            for n in res.report.get("notes") or []:
-                if n.startswith("warning: "):
-                    out.note(f"cutbook: {n}")
-            return 0
-        if res.new_version:
-            out.line(f"imported {res.ref}: {res.nodes} nodes, {res.edges} edges  [{res.content_hash[:12]}]")
-        else:
-            out.line(f"unchanged: {res.report['source']} has the same content as {res.ref} (matched "
-                     f"version {res.version}); no new version made  [{res.content_hash[:12]}]")
-        print_report(out, res.report)
+    check_names(args.project, args.network)
+    # the store layer and scipy load on the other core while the file is parsed and encoded
+    warm_imports("workspace.services.store", "workspace.services.runs", "workspace.store.repo",
+                 "scipy.sparse.csgraph", "zstandard")
+    with progress_bar() as bar:
+        # the file is read before the store opens: a bad file leaves no trace in any store
+        prepared = prepare_import(args.file, format=args.format, policy=_policy(args), progress=bar)
+        with session(args) as (store, out):
+            res = import_network(store, args.file, project=args.project, network=args.network,
+                                 message=args.message, progress=bar, prepared=prepared)
+            bar.close()
+            return _print_import(args, out, res)
+
+
+def _print_import(args, out, res) -> int:
+    if args.json:
+        emit_json(res.to_dict())
+        for n in res.report.get("notes") or []:
+            if n.startswith("warning: "):
+                out.note(f"cutbook: {n}")
+        return 0
+    if res.new_version:
+        out.line(f"imported {res.ref}: {res.nodes} nodes, {res.edges} edges  [{res.content_hash[:12]}]")
+    else:
+        out.line(f"unchanged: {res.report['source']} has the same content as {res.ref} (matched "
+                 f"version {res.version}); no new version made  [{res.content_hash[:12]}]")
+    print_report(out, res.report)
     return 0
 
 

@@ -90,18 +90,6 @@ def _chunks(values: pa.Array | pa.ChunkedArray) -> list[pa.Array]:
     return list(values.chunks) if isinstance(values, pa.ChunkedArray) else [values]
 
 
-def _combined(parts: list[pa.Array]) -> pa.Array:
-    """One contiguous string array of ``parts`` (large_string when 32-bit offsets overflow)."""
-    size = sum(int(p.nbytes) for p in parts)
-    kind = pa.string() if size < (1 << 31) - 1 else pa.large_string()
-    parts = [p if p.type == kind else p.cast(kind) for p in parts]
-    if len(parts) == 1:
-        return parts[0]
-    if not parts:
-        return pa.array([], kind)
-    return pa.concat_arrays(parts)
-
-
 def _string_array_to_numpy(values: pa.Array) -> np.ndarray:
     """A pyarrow string array as a numpy ``str`` array (same values, width of the longest).
 
@@ -130,13 +118,12 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
                extra: pa.Array | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Sorted unique ids and int64 indices of ``source`` and ``target`` into them.
 
-    The source, target and declared-node columns are joined into one string
-    array and factorised by one pass of Arrow's hash kernel
-    (``dictionary_encode``: a code per record, the distinct ids in order of
-    first appearance). The distinct ids are sorted by Arrow's
-    ``sort_indices``, which compares strings as UTF-8 bytes - for valid
-    UTF-8 the same as code point order, the order of numpy ``str`` arrays -
-    and the codes are mapped through the inverse permutation
+    One pass of Arrow's hash kernel (``dictionary_encode``) over the source,
+    target and declared-node columns gives each distinct id a code (the
+    distinct ids in order of first appearance). The distinct ids are sorted
+    by Arrow's ``sort_indices``, which compares strings as UTF-8 bytes - for
+    valid UTF-8 the same as code point order, the order of numpy ``str``
+    arrays - and the codes are mapped through the inverse permutation
     ``rank[order[i]] = i``. So ``node_ids`` is sorted by code point and
     ``node_ids[u[k]]`` is the source id of record ``k``.
 
@@ -147,15 +134,23 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     ``dictionary_encode``, ``sort_indices`` (Arrow 15, 2024).
     """
     parts = _chunks(source) + _chunks(target) + ([extra] if extra is not None else [])
-    joined = _combined(parts)
-    encoded = pc.dictionary_encode(joined)
-    dictionary = encoded.dictionary
+    parts = [p.cast(pa.string()) if p.type != pa.string() else p for p in parts]
+    encoded = pc.dictionary_encode(pa.chunked_array(parts, type=pa.string()))
+    chunks = encoded.chunks
+    dictionary = chunks[-1].dictionary if chunks else pa.array([], pa.string())
+    # The kernel shares one hash table across chunks, so every chunk's dictionary is a
+    # prefix of the last one; if that ever changes, unify explicitly.
+    if any(c.dictionary is not dictionary and not c.dictionary.equals(
+            dictionary.slice(0, len(c.dictionary))) for c in chunks):
+        chunks = pa.table({"id": encoded}).unify_dictionaries().column("id").chunks
+        dictionary = chunks[0].dictionary
     if len(dictionary) and pc.any(pc.match_substring(dictionary, "\x00")).as_py():
         raise InputError("a node id contains a NUL character, which is not supported")
     order = pc.sort_indices(dictionary).to_numpy()
     rank = np.empty(order.size, dtype=np.int64)
     rank[order] = np.arange(order.size, dtype=np.int64)
-    all_codes = rank[encoded.indices.to_numpy(zero_copy_only=False)]
+    codes = [rank[chunk.indices.to_numpy(zero_copy_only=False)] for chunk in chunks]
+    all_codes = np.concatenate(codes) if codes else np.zeros(0, dtype=np.int64)
     m_source, m_target = len(source), len(target)
     node_ids = _string_array_to_numpy(dictionary.take(pa.array(order)))
     return node_ids, all_codes[:m_source], all_codes[m_source:m_source + m_target]

@@ -1,17 +1,24 @@
-"""Networks and their versions: import, listing, showing, structural changes."""
+"""Networks and their versions: import, listing, showing, structural changes.
+
+Importing this module loads neither numpy nor SQLAlchemy: reading a file
+(:func:`prepare_import`) needs only the readers, and the store modules load
+with the first function that touches the store.
+"""
 
 from __future__ import annotations
 
 import json
 import os
 from dataclasses import dataclass, field
-from typing import Any, Callable
+from typing import TYPE_CHECKING, Any, Callable
 
-from workspace.domain import GraphData, ImportPolicy, VersionRef
+from workspace.domain import ImportPolicy, VersionRef
 from workspace.errors import NotFoundError, UsageError
-from workspace.store import repo
-from workspace.store.db import Store
-from workspace.store.schema import Network, NetworkVersion
+
+if TYPE_CHECKING:
+    from workspace.domain import GraphData
+    from workspace.store.db import Store
+    from workspace.store.schema import Network, NetworkVersion
 
 Progress = Callable[[str, int, int | None], None]
 
@@ -39,6 +46,12 @@ def _check_name(kind: str, name: str) -> str:
     return name
 
 
+def check_names(project: str, network: str) -> None:
+    """UsageError unless both names are valid (see :func:`import_network`)."""
+    _check_name("project", project)
+    _check_name("network", network)
+
+
 def version_summary(v: NetworkVersion, project: str, network: str) -> dict[str, Any]:
     return {
         "ref": f"{project}/{network}@{v.number}", "project": project, "network": network,
@@ -48,12 +61,54 @@ def version_summary(v: NetworkVersion, project: str, network: str) -> dict[str, 
     }
 
 
+@dataclass(frozen=True)
+class PreparedImport:
+    """A file read, canonicalised, hashed and encoded: everything an import does before the store."""
+
+    path: str
+    graph: GraphData
+    report: dict[str, Any]
+    policy: dict[str, Any]
+    format: str
+    content_hash: str
+    arrays: dict
+
+
+def prepare_import(path: str | os.PathLike, *, format: str | None = None,
+                   policy: ImportPolicy | None = None, progress: Progress | None = None,
+                   source_label: str | None = None) -> PreparedImport:
+    """Read ``path`` into canonical form, hash it and compress its arrays; touches no store.
+
+    Raises what :func:`workspace.io.read_network` raises. ``source_label`` replaces the path
+    in the report.
+    """
+    from workspace.domain import encode_node_ids
+    from workspace.io import read_network
+
+    policy = policy or ImportPolicy()
+    graph, report = read_network(path, format=format, policy=policy, progress=progress)
+    from workspace.store.blobs import encode_graph_arrays  # numpy and zstandard only
+
+    report_dict = report.as_dict()
+    if source_label is not None:
+        report_dict["source"] = source_label
+    if progress:
+        progress("store", 0, None)
+    encoded_ids = encode_node_ids(graph.node_ids)  # once, for the hash and for the blobs
+    content_hash = graph.content_hash(encoded_ids=encoded_ids)
+    arrays = encode_graph_arrays(graph, encoded_ids)  # compress before taking the write lock
+    return PreparedImport(os.fspath(path), graph, report_dict, policy.as_dict(), report.format,
+                          content_hash, arrays)
+
+
 def import_network(store: Store, path: str | os.PathLike, *, project: str, network: str,
                    format: str | None = None, policy: ImportPolicy | None = None, message: str = "",
-                   progress: Progress | None = None, source_label: str | None = None) -> ImportOutcome:
+                   progress: Progress | None = None, source_label: str | None = None,
+                   prepared: PreparedImport | None = None) -> ImportOutcome:
     """Read ``path``, canonicalise it, and record it as the next version of ``project/network``.
 
-    Reading and hashing happen outside any transaction; the write is one short
+    Reading and hashing happen outside any transaction (``prepared``, from
+    :func:`prepare_import` on the same arguments, skips them); the write is one short
     transaction. ``source_label`` replaces the path in the stored report (the
     path as given is kept otherwise). Content equal to the latest version creates nothing:
     the outcome then names that version (``new_version=False``) but its ``report`` and
@@ -61,20 +116,15 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
     from another file). A failed read leaves the store untouched (no project, network or
     version is created).
     """
-    from workspace.io import read_network
+    from workspace.store import repo
 
     _check_name("project", project)
     _check_name("network", network)
-    policy = policy or ImportPolicy()
-    graph, report = read_network(path, format=format, policy=policy, progress=progress)
-    content_hash = graph.content_hash()
-    report_dict = report.as_dict()
-    if source_label is not None:
-        report_dict["source"] = source_label
-    policy_dict = policy.as_dict()
-    if progress:
-        progress("store", 0, None)
-    arrays = repo.encode_graph(graph)  # compress before taking the write lock
+    if prepared is None:
+        prepared = prepare_import(path, format=format, policy=policy, progress=progress,
+                                  source_label=source_label)
+    graph, content_hash = prepared.graph, prepared.content_hash
+    report_dict, policy_dict = prepared.report, prepared.policy
     with store.write() as s:
         proj = repo.get_or_create_project(s, project)
         net = repo.get_or_create_network(s, proj, network)
@@ -84,9 +134,11 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
             return ImportOutcome(f"{project}/{network}@{latest.number}", latest.number, graph.n_nodes,
                                  graph.n_edges, content_hash, False, report_dict, policy_dict)
         v = repo.add_version(s, net, graph, parent=latest, content_hash=content_hash, message=message,
-                             source_name=source_label or os.path.basename(os.fspath(path)), source_format=report.format,
+                             source_name=source_label or os.path.basename(os.fspath(path)),
+                             source_format=prepared.format,
                              policy_json=json.dumps(policy_dict, sort_keys=True),
-                             report_json=json.dumps(report_dict, sort_keys=True), arrays=arrays)
+                             report_json=json.dumps(report_dict, sort_keys=True),
+                             arrays=prepared.arrays)
         number = v.number
     if progress:
         progress("store", 1, 1)
@@ -95,12 +147,16 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
 
 
 def list_projects(store: Store) -> list[dict[str, Any]]:
+    from workspace.store import repo
+
     with store.read() as s:
         return [{"project": r.name, "networks": r.networks, "created": r.created_at.isoformat(timespec="seconds")}
                 for r in repo.list_projects(s)]
 
 
 def list_networks(store: Store, project: str | None = None) -> list[dict[str, Any]]:
+    from workspace.store import repo
+
     with store.read() as s:
         if project is not None and repo.find_project(s, project) is None:
             raise NotFoundError(f"no project named {project!r}")
@@ -109,6 +165,8 @@ def list_networks(store: Store, project: str | None = None) -> list[dict[str, An
 
 
 def _network(s, ref: VersionRef) -> Network:
+    from workspace.store import repo
+
     net = repo.find_network(s, ref.project, ref.network)
     if net is None:
         raise NotFoundError(f"no network {ref.project}/{ref.network}")
@@ -117,6 +175,8 @@ def _network(s, ref: VersionRef) -> Network:
 
 def resolve_version(s, ref: VersionRef) -> NetworkVersion:
     """The version row ``ref`` names (latest when it names none). For services only."""
+    from workspace.store import repo
+
     net = _network(s, ref)
     v = repo.find_version(s, net.id, ref.version)
     if v is None:
@@ -126,6 +186,8 @@ def resolve_version(s, ref: VersionRef) -> NetworkVersion:
 
 
 def list_versions(store: Store, ref: str | VersionRef) -> list[dict[str, Any]]:
+    from workspace.store import repo
+
     ref = VersionRef.parse(ref) if isinstance(ref, str) else ref
     with store.read() as s:
         net = _network(s, ref)
@@ -135,6 +197,8 @@ def list_versions(store: Store, ref: str | VersionRef) -> list[dict[str, Any]]:
 def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20) -> dict[str, Any]:
     """Everything recorded on a version, plus its structural change from its parent."""
     from workspace.io import structural_changes
+    from workspace.store import repo
+    from workspace.store.schema import NetworkVersion
 
     ref = VersionRef.parse(ref) if isinstance(ref, str) else ref
     with store.read() as s:
@@ -153,6 +217,8 @@ def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20)
 
 
 def load_graph(store: Store, ref: str | VersionRef) -> tuple[dict[str, Any], GraphData]:
+    from workspace.store import repo
+
     ref = VersionRef.parse(ref) if isinstance(ref, str) else ref
     with store.read() as s:
         v = resolve_version(s, ref)
@@ -163,6 +229,7 @@ def version_changes(store: Store, ref_a: str | VersionRef, ref_b: str | VersionR
                     limit: int | None = None) -> dict[str, Any]:
     """Nodes and edges added/removed and weights changed from version A to version B."""
     from workspace.io import structural_changes
+    from workspace.store import repo
 
     ra = VersionRef.parse(ref_a) if isinstance(ref_a, str) else ref_a
     rb = VersionRef.parse(ref_b) if isinstance(ref_b, str) else ref_b

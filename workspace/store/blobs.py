@@ -63,3 +63,18 @@ def decode_array(codec: str, data: bytes, raw_size: int | None = None) -> np.nda
         raise ValueError(f"unknown blob codec {codec!r}")
     raw = zstandard.ZstdDecompressor().decompress(data, max_output_size=raw_size or 0)
     return np.load(io.BytesIO(raw), allow_pickle=False)
+
+
+#: The five arrays of a network version, in the order of their blob columns.
+GRAPH_ARRAYS = ("node_offsets_blob", "node_bytes_blob", "edge_u_blob", "edge_v_blob", "weight_blob")
+
+
+def encode_graph_arrays(graph, encoded_ids=None) -> dict[str, EncodedArray]:
+    """The five encoded arrays of a graph; ``encoded_ids`` is ``encode_node_ids(graph.node_ids)``
+    when the caller has it. Imports no SQL layer, so an import can compress before the store opens.
+    """
+    from workspace.domain import encode_node_ids
+
+    offsets, data = encoded_ids if encoded_ids is not None else encode_node_ids(graph.node_ids)
+    return dict(zip(GRAPH_ARRAYS, map(encode_array, (offsets, data, graph.edge_u, graph.edge_v,
+                                                     graph.weight))))

@@ -10,7 +10,7 @@ from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
 from workspace.domain import GraphData, decode_node_ids, encode_node_ids
-from workspace.store.blobs import EncodedArray, decode_array, encode_array
+from workspace.store.blobs import GRAPH_ARRAYS, EncodedArray, decode_array, encode_array, encode_graph_arrays
 from workspace.store.schema import Blob, Network, NetworkVersion, Project
 
 
@@ -109,13 +109,9 @@ def list_versions(session: Session, network_id: int) -> list[NetworkVersion]:
                                 .order_by(NetworkVersion.number)))
 
 
-GRAPH_ARRAYS = ("node_offsets_blob", "node_bytes_blob", "edge_u_blob", "edge_v_blob", "weight_blob")
-
-
 def encode_graph(graph: GraphData) -> dict[str, EncodedArray]:
     """The five encoded arrays of a version (do this before opening the write transaction)."""
-    offsets, data = encode_node_ids(graph.node_ids)
-    return dict(zip(GRAPH_ARRAYS, map(encode_array, (offsets, data, graph.edge_u, graph.edge_v, graph.weight))))
+    return encode_graph_arrays(graph)
 
 
 def add_version(session: Session, network: Network, graph: GraphData, *, parent: NetworkVersion | None,
