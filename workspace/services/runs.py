@@ -8,6 +8,11 @@ transaction is held while computing. A process that vanishes leaves a
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING as _TYPE_CHECKING
+
+if _TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
+    import numpy as np
+
 import json
 import os
 import platform
@@ -16,7 +21,6 @@ import time
 from dataclasses import asdict, dataclass, field
 from typing import Any, Callable
 
-import numpy as np
 from sqlalchemy import select, update
 
 from workspace.domain import GraphData, VersionRef, canonical_labels, compact_label_dtype, membership_hash
@@ -107,6 +111,8 @@ def mark_interrupted(store: Store) -> list[int]:
 
 
 def provenance() -> dict[str, Any]:
+    import numpy as np
+
     import networkx
     import scipy
 
@@ -167,6 +173,8 @@ def _perturbed(A, spread: float, seed: int):
     ``spread`` = 1 the factors are Exp(1): the Bayesian bootstrap of edge weights
     (Rubin 1981). Seeded: the same seed gives the same perturbed graph.
     """
+    import numpy as np
+
     import scipy.sparse as sp
 
     upper = sp.triu(A, k=0, format="coo")
@@ -189,6 +197,8 @@ def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None
     community after matching every repeat to the first by overlap), and the
     per-node stability is the share of repeats that keep the node in it.
     """
+    import numpy as np
+
     from workspace.spectral import partition
     from workspace.spectral.quality import quality_measures
 
@@ -256,6 +266,8 @@ def _insert_running(store: Store, spec: RunSpec, *, kind: str = "computed", labe
 
 
 def _json_floats(obj):
+    import numpy as np
+
     if isinstance(obj, dict):
         return {k: _json_floats(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
@@ -271,6 +283,8 @@ def _json_floats(obj):
 
 def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None = None,
             error: str | None = None) -> None:
+    import numpy as np
+
     from workspace.store.blobs import encode_array
 
     encoded = {}
@@ -310,6 +324,8 @@ def _finish(store: Store, run_id: int, status: str, *, computed: Computed | None
 
 
 def _num(x):
+    import numpy as np
+
     if x is None:
         return None
     x = float(x)
@@ -319,6 +335,8 @@ def _num(x):
 def execute(store: Store, run_id: int, spec: RunSpec, graph: GraphData, *, progress: Progress | None = None,
             cancel: Callable[[], bool] | None = None) -> None:
     """Compute a recorded ``running`` run and record its outcome (done / failed / cancelled)."""
+    import numpy as np
+
     try:
         computed = compute(graph, spec, progress=progress, cancel=cancel)
     except (Cancelled, KeyboardInterrupt):
@@ -388,6 +406,8 @@ def rerun(store: Store, run_id: int, *, progress: Progress | None = None,
 
 def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, label: str) -> dict[str, Any]:
     """Store a partition read from a ``node,community`` CSV as a run of kind ``attached``."""
+    import numpy as np
+
     from workspace.io import read_membership
     from workspace.spectral.quality import quality_measures
 
@@ -481,6 +501,8 @@ def _get_run(s, run_id: int):
 
 def load_membership(store: Store, run_id: int) -> tuple[np.ndarray, np.ndarray, dict[str, Any]]:
     """(node_ids, labels int64, run summary) of a finished run."""
+    import numpy as np
+
     with store.read() as s:
         run, p, n, v = _get_run(s, run_id)
         if run.membership_blob is None:
@@ -493,6 +515,8 @@ def load_membership(store: Store, run_id: int) -> tuple[np.ndarray, np.ndarray, 
 
 def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict[str, Any]:
     """Everything recorded on a run."""
+    import numpy as np
+
     with store.read() as s:
         run, p, n, v = _get_run(s, run_id)
         out = _run_row_dict(run, p, n, v)
@@ -541,6 +565,8 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
 
 def where_node(store: Store, node: str, network: str) -> dict[str, Any]:
     """That node's community (and its size) in every finished run of every version of a network."""
+    import numpy as np
+
     vref = VersionRef.parse(network)
     if vref.version is not None:
         raise UsageError("--network takes project/network (every version is searched)")

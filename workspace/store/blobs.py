@@ -8,11 +8,15 @@ not depend on the codec or compression level.
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING as _TYPE_CHECKING
+
+if _TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
+    import numpy as np
+
 import hashlib
 import io
 from dataclasses import dataclass
 
-import numpy as np
 
 CODEC = "npy+zstd"
 _LEVEL = 3
@@ -29,6 +33,8 @@ class EncodedArray:
 
 
 def _canonical(arr: np.ndarray) -> np.ndarray:
+    import numpy as np
+
     arr = np.asarray(arr)
     if arr.ndim != 1:
         raise ValueError("blobs hold 1-D arrays")
@@ -45,6 +51,8 @@ def array_hash(arr: np.ndarray) -> str:
 
 
 def encode_array(arr: np.ndarray) -> EncodedArray:
+    import numpy as np
+
     import zstandard
 
     a = _canonical(arr)
@@ -57,6 +65,8 @@ def encode_array(arr: np.ndarray) -> EncodedArray:
 
 
 def decode_array(codec: str, data: bytes, raw_size: int | None = None) -> np.ndarray:
+    import numpy as np
+
     import zstandard
 
     if codec != CODEC:

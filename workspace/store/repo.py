@@ -3,9 +3,13 @@ the services own the transaction."""
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING as _TYPE_CHECKING
+
+if _TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
+    import numpy as np
+
 from datetime import datetime, timezone
 
-import numpy as np
 from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
