@@ -144,13 +144,17 @@ class GraphData:
         import numpy as np
 
         offsets, data = encoded_ids if encoded_ids is not None else encode_node_ids(self.node_ids)
+
+        def raw(values, dtype: str) -> memoryview:  # the bytes, without a copy when already so
+            return memoryview(np.ascontiguousarray(values, dtype=dtype)).cast("B")
+
         h = hashlib.sha256(b"cutbook-graph-1\0")
         h.update(np.array([self.n_nodes, self.n_edges], dtype="<i8").tobytes())
-        h.update(offsets.astype("<i8", copy=False).tobytes())
-        h.update(data.tobytes())
-        h.update(np.ascontiguousarray(self.edge_u, dtype="<i8").tobytes())
-        h.update(np.ascontiguousarray(self.edge_v, dtype="<i8").tobytes())
-        h.update(np.ascontiguousarray(self.weight, dtype="<f8").tobytes())
+        h.update(raw(offsets, "<i8"))
+        h.update(raw(data, "u1"))
+        h.update(raw(self.edge_u, "<i8"))
+        h.update(raw(self.edge_v, "<i8"))
+        h.update(raw(self.weight, "<f8"))
         return h.hexdigest()
 
 

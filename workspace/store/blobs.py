@@ -56,12 +56,23 @@ def encode_array(arr: np.ndarray) -> EncodedArray:
     import zstandard
 
     a = _canonical(arr)
-    buf = io.BytesIO()
-    np.save(buf, a, allow_pickle=False)
-    raw = buf.getvalue()
-    big = len(raw) > 1 << 22  # large arrays: the fastest level, on all cores (ratio differs by a few %)
-    data = zstandard.ZstdCompressor(level=1 if big else _LEVEL, threads=-1 if big else 0).compress(raw)
-    return EncodedArray(array_hash(a), CODEC, a.dtype.str, int(a.shape[0]), len(raw), data)
+    if a.nbytes <= 1 << 22:
+        buf = io.BytesIO()
+        np.save(buf, a, allow_pickle=False)
+        raw = buf.getvalue()
+        data = zstandard.ZstdCompressor(level=_LEVEL).compress(raw)
+        return EncodedArray(array_hash(a), CODEC, a.dtype.str, int(a.shape[0]), len(raw), data)
+    # large arrays: the fastest level, on all cores (ratio differs by a few %), and the same
+    # .npy stream (header, then the array's own memory) fed to the compressor without first
+    # copying it into one bytes object
+    header = io.BytesIO()
+    np.lib.format.write_array_header_1_0(header, np.lib.format.header_data_from_array_1_0(a))
+    head = header.getvalue()
+    size = len(head) + a.nbytes
+    compressor = zstandard.ZstdCompressor(level=1, threads=-1).compressobj(size=size)
+    data = (compressor.compress(head) + compressor.compress(memoryview(a).cast("B"))
+            + compressor.flush())
+    return EncodedArray(array_hash(a), CODEC, a.dtype.str, int(a.shape[0]), size, data)
 
 
 def decode_array(codec: str, data: bytes, raw_size: int | None = None) -> np.ndarray:
