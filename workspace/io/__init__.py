@@ -21,7 +21,7 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Callable
 
 from workspace.domain import ImportPolicy
 from workspace.errors import InputError, ParameterError
@@ -126,7 +126,9 @@ def validate_policy(policy: ImportPolicy) -> None:
 
 def read_network(path: str | os.PathLike, *, format: str | None = None,
                  policy: ImportPolicy = ImportPolicy(),
-                 progress: Progress = None) -> tuple[GraphData, ImportReport]:
+                 progress: Progress = None,
+                 on_graph: Callable[[GraphData], None] | None = None
+                 ) -> tuple[GraphData, ImportReport]:
     """Read a network file into canonical form and validate it.
 
     The canonical graph has node ids sorted by code point, edges as index
@@ -166,6 +168,10 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
     progress : callable(stage: str, done: int, total: int | None) or None
         Called with stages ``"read"`` (bytes), ``"parse"``,
         ``"canonicalise"`` (steps of 4) and ``"report"``.
+    on_graph : callable(GraphData) or None
+        Called once with the canonical graph as soon as it exists, before
+        the report is built (on the caller's thread: a caller can start
+        hashing or compressing it elsewhere meanwhile).
 
     Returns
     -------
@@ -261,6 +267,6 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
         from workspace.io.node_link import read_node_link
         records = read_node_link(path, data, policy, progress)
     del data
-    graph, report = canonicalise(records, policy, progress)
+    graph, report = canonicalise(records, policy, progress, on_graph=on_graph)
     report_progress(progress, "report", 1, 1)
     return graph, report

@@ -283,7 +283,7 @@ def _symmetrise(key: np.ndarray, weight: np.ndarray, record: np.ndarray, n: int,
 
 
 def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
-                 progress: Progress = None) -> tuple[GraphData, ImportReport]:
+                 progress: Progress = None, *, on_graph=None) -> tuple[GraphData, ImportReport]:
     """Apply the import policy to edge records and build the canonical graph.
 
     With ids sorted by code point (index ``i`` = position in that order) an
@@ -309,6 +309,8 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         Validated policy.
     progress : callable or None, default None
         Receives ``("canonicalise", step, 4)``.
+    on_graph : callable or None, default None
+        Called with the graph before the report is built.
 
     Returns
     -------
@@ -436,6 +438,8 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
     graph = GraphData(node_ids=node_ids, edge_u=edge_u.astype(np.int64, copy=False),
                       edge_v=edge_v.astype(np.int64, copy=False),
                       weight=np.ascontiguousarray(weight, dtype=np.float64))
+    if on_graph is not None:
+        on_graph(graph)
     report = build_report(graph, rec, m_read, loops_found, loops_kept, merged, asymmetric,
                           zero_dropped, notes)
     report_progress(progress, "canonicalise", 4, 4)

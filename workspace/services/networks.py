@@ -82,21 +82,44 @@ def prepare_import(path: str | os.PathLike, *, format: str | None = None,
     Raises what :func:`workspace.io.read_network` raises. ``source_label`` replaces the path
     in the report.
     """
+    import threading
+
     from workspace.domain import encode_node_ids
     from workspace.io import read_network
 
     policy = policy or ImportPolicy()
-    graph, report = read_network(path, format=format, policy=policy, progress=progress)
-    from workspace.store.blobs import encode_graph_arrays  # numpy and zstandard only
+    done: dict[str, Any] = {}
 
+    def hash_and_compress(graph: GraphData) -> None:
+        # runs beside the report (components, degrees, weight summary) on the other core
+        try:
+            from workspace.store.blobs import encode_graph_arrays  # numpy and zstandard only
+
+            encoded_ids = encode_node_ids(graph.node_ids)  # once, for the hash and the blobs
+            done["hash"] = graph.content_hash(encoded_ids=encoded_ids)
+            done["arrays"] = encode_graph_arrays(graph, encoded_ids)
+        except BaseException as exc:  # noqa: BLE001 - re-raised on the caller's thread
+            done["error"] = exc
+
+    def on_graph(graph: GraphData) -> None:
+        done["thread"] = threading.Thread(target=hash_and_compress, args=(graph,),
+                                          name="cutbook-hash", daemon=True)
+        done["thread"].start()
+
+    graph, report = read_network(path, format=format, policy=policy, progress=progress,
+                                 on_graph=on_graph)
     report_dict = report.as_dict()
     if source_label is not None:
         report_dict["source"] = source_label
     if progress:
         progress("store", 0, None)
-    encoded_ids = encode_node_ids(graph.node_ids)  # once, for the hash and for the blobs
-    content_hash = graph.content_hash(encoded_ids=encoded_ids)
-    arrays = encode_graph_arrays(graph, encoded_ids)  # compress before taking the write lock
+    if "thread" not in done:  # a reader that never called back: do it here
+        hash_and_compress(graph)
+    else:
+        done["thread"].join()
+    if "error" in done:
+        raise done["error"]
+    content_hash, arrays = done["hash"], done["arrays"]
     return PreparedImport(os.fspath(path), graph, report_dict, policy.as_dict(), report.format,
                           content_hash, arrays)
 
