@@ -59,7 +59,12 @@ class Out:
         return self._console
 
     def line(self, text: str = "") -> None:
-        self.console.print(text, markup=False)
+        """One line of plain text, as is (rich loads only for tables and styled output)."""
+        if self._console is not None:
+            self._console.print(text, markup=False)
+            return
+        stream = sys.stderr if self.json_mode else sys.stdout
+        stream.write(text + "\n")
 
     def rich(self, renderable) -> None:
         self.console.print(renderable)
