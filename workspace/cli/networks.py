@@ -47,7 +47,10 @@ def cmd_import(args) -> int:
     from workspace.services.networks import check_names, import_network, prepare_import
 
     check_names(args.project, args.network)
-    # the store layer and scipy load on the other core while the file is parsed and encoded
+    import workspace.io.canonical  # noqa: F401  the readers first (numpy, pyarrow): they are
+    import workspace.io.delimited  # noqa: F401  needed at once, and imports contend for the GIL
+    # the store layer and scipy then load on the other core while the file is parsed and encoded
+    # (Arrow's reader and hash kernels and numpy's sorts run without the interpreter lock)
     warm_imports("workspace.services.store", "workspace.services.runs", "workspace.store.repo",
                  "scipy.sparse.csgraph", "zstandard")
     with progress_bar() as bar:
