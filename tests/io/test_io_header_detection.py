@@ -61,6 +61,9 @@ def test_endpoint_names_are_read_as_a_header(tmp_path, header):
     ["u,v", "v,w", "w,u", "u,x"],
     ["x,y"],                               # one line: an edge, never names over nothing
     ["alice,bob", "carol,dave"],           # a matching: line 1 is like every other line
+    ["user1,user2", "user3,user4", "user5,user6"],          # name-like ids, every line a pair
+    ["start-1,end-1", "start-2,end-2", "start-3,end-3"],
+    ["u,v", "w,x", "y,z"],
     ["1,2", "2,3"],                        # numbers are data
 ])
 def test_lines_that_are_data_stay_data_and_keep_their_hash(tmp_path, lines):

@@ -224,10 +224,11 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
        tail/head, id1/id2, origin/destination, sender/receiver, u/v, a/b,
        i/j, x/y, s/t, ... see ``delimited.ENDPOINT_HEADER_NAMES``), names
        that differ only by a from/to role word (``from_station,to_station``)
-       or one name numbered 1 and 2 (``user1,user2``); one-letter pairs only
-       when more lines follow - or some column is numeric in every one of
-       the following lines of the first 256 KiB while the line's field
-       there is not;
+       or one name numbered 1 and 2 (``user1,user2``) - the last three kinds
+       and one-letter pairs (which can also be ids) only when some id repeats
+       in the following lines of the first 256 KiB - or some column is
+       numeric in every one of those lines while the line's field there is
+       not;
     3. and (for rule 2) neither of its first two fields occurs as a node id
        anywhere below - a name that is also a node id marks a data line.
 

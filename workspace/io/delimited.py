@@ -353,24 +353,35 @@ def _name_key(value: str) -> str:
     return re.sub(r"[\s_\-]+", "", value.strip().lower())
 
 
-def _names_endpoints(first: str, second: str) -> bool:
-    """True when two fields read as the names of the two endpoint columns.
+def _names_endpoints(first: str, second: str) -> str | None:
+    """``"listed"``, ``"pattern"`` or None: do two fields read as the endpoint column names?
 
-    Either the pair is in :data:`ENDPOINT_HEADER_NAMES`, or the fields split into the same
-    words except one first-endpoint word against one second-endpoint word
-    (``from_station``/``to_station``), or they are one name numbered 1 and 2 (``user1``/``user2``).
+    ``"listed"``: the pair is in :data:`ENDPOINT_HEADER_NAMES` with names longer than one
+    letter. ``"pattern"`` (weaker evidence: such fields can also be ids): a listed one-letter
+    pair (``u,v``), fields made of the same words except one first-endpoint word against one
+    second-endpoint word (``from_station``/``to_station``), or one name numbered 1 and 2
+    (``user1``/``user2``).
     """
     a, b = _name_key(first), _name_key(second)
     if (a, b) in ENDPOINT_HEADER_NAMES:
-        return True
+        return "pattern" if len(a) == 1 and len(b) == 1 else "listed"
     words_a = [w for w in re.split(r"[\s_\-]+", first.strip().lower()) if w]
     words_b = [w for w in re.split(r"[\s_\-]+", second.strip().lower()) if w]
     if len(words_a) == len(words_b) and len(words_a) > 1:
         differ = [(x, y) for x, y in zip(words_a, words_b) if x != y]
         if len(differ) == 1 and differ[0][0] in _FIRST_ROLE and differ[0][1] in _SECOND_ROLE:
-            return True
-    return (len(a) > 1 and a[:-1] == b[:-1] and a[-1] == "1" and b[-1] == "2"
-            and a[:-1].isalpha())
+            return "pattern"
+    if len(a) > 1 and a[:-1] == b[:-1] and a[-1] == "1" and b[-1] == "2" and a[:-1].isalpha():
+        return "pattern"
+    return None
+
+
+def _rows_are_separate_pairs(rows: pa.Table) -> bool:
+    """True when no id repeats in the first two columns of ``rows`` (every line its own pair)."""
+    if rows.num_rows == 0:
+        return True
+    ids = pa.chunked_array(list(rows.column(0).chunks) + list(rows.column(1).chunks))
+    return pc.count_distinct(ids).as_py() == 2 * rows.num_rows
 
 
 def _header_decision(policy: ImportPolicy, sample: pa.Table,
@@ -386,8 +397,7 @@ def _header_decision(policy: ImportPolicy, sample: pa.Table,
         return False, None
     below = sample.slice(1)
     names = _names_endpoints(first_row[0], first_row[1])
-    one_letter = len(first_row[0].strip()) == 1 and len(first_row[1].strip()) == 1
-    if names and not one_letter:
+    if names == "listed":
         return True, "it names the endpoint columns"
     if below.num_rows == 0:
         return False, None  # a lone "a,b" line is an edge, not names over nothing
@@ -395,7 +405,9 @@ def _header_decision(policy: ImportPolicy, sample: pa.Table,
         if _is_numeric(below.column(i)):
             return True, (f"field {value!r} is not a number while the column below it is "
                           "numeric")
-    if names:
+    # names that could also be ids (u,v; user1,user2) count only where line 1 stands out: in a
+    # file whose every line is a separate pair, line 1 is like the others
+    if names == "pattern" and not _rows_are_separate_pairs(below):
         return True, "it names the endpoint columns"
     return False, None
 
@@ -416,10 +428,7 @@ def _isolated_first_pair(source: pa.ChunkedArray, target: pa.ChunkedArray,
         if pc.any(pc.is_in(column.slice(1), value_set=names)).as_py():
             return False
     rest = sample.slice(1)
-    if rest.num_rows < 2:
-        return False
-    ids = pa.chunked_array(list(rest.column(0).chunks) + list(rest.column(1).chunks))
-    return pc.count_distinct(ids).as_py() < 2 * rest.num_rows
+    return rest.num_rows >= 2 and not _rows_are_separate_pairs(rest)
 
 
 def _weight_column(policy: ImportPolicy, path: str, header: bool, first_row: list[str],
