@@ -44,15 +44,14 @@ def print_report(out, report: dict) -> None:
 
 def cmd_import(args) -> int:
     from workspace.cli.common import warm_imports
-    from workspace.services.networks import check_names, import_network, prepare_import
+    from workspace.services.networks import (IMPORT_LATER_MODULES, check_names, import_network,
+                                             load_readers, prepare_import)
 
     check_names(args.project, args.network)
-    import workspace.io.canonical  # noqa: F401  the readers first (numpy, pyarrow): they are
-    import workspace.io.delimited  # noqa: F401  needed at once, and imports contend for the GIL
+    load_readers()  # the readers first (numpy, pyarrow): needed at once; imports contend for the GIL
     # the store layer and scipy then load on the other core while the file is parsed and encoded
     # (Arrow's reader and hash kernels and numpy's sorts run without the interpreter lock)
-    warm_imports("workspace.services.store", "workspace.services.runs", "workspace.store.repo",
-                 "scipy.sparse.csgraph", "zstandard")
+    warm_imports(*IMPORT_LATER_MODULES)
     with progress_bar() as bar:
         # the file is read before the store opens: a bad file leaves no trace in any store
         prepared = prepare_import(args.file, format=args.format, policy=_policy(args), progress=bar)

@@ -61,6 +61,18 @@ def version_summary(v: NetworkVersion, project: str, network: str) -> dict[str, 
     }
 
 
+#: What an import needs after reading the file: the store layer, scipy (components in the
+#: report) and zstandard (blobs). A front end may load them on a background thread meanwhile.
+IMPORT_LATER_MODULES = ("workspace.services.store", "workspace.services.runs",
+                        "workspace.store.repo", "scipy.sparse.csgraph", "zstandard")
+
+
+def load_readers() -> None:
+    """Import the file readers (numpy, pyarrow) now, before other modules load beside them."""
+    import workspace.io.canonical  # noqa: F401
+    import workspace.io.delimited  # noqa: F401
+
+
 @dataclass(frozen=True)
 class PreparedImport:
     """A file read, canonicalised, hashed and encoded: everything an import does before the store."""
