@@ -8,18 +8,13 @@ transaction is held while computing. A process that vanishes leaves a
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING as _TYPE_CHECKING
-
-if _TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
-    import numpy as np
-
 import json
 import os
 import platform
 import socket
 import time
 from dataclasses import asdict, dataclass, field
-from typing import Any, Callable
+from typing import TYPE_CHECKING, Any, Callable
 
 from sqlalchemy import select, update
 
@@ -30,6 +25,9 @@ from workspace.services.networks import resolve_version
 from workspace.store import repo
 from workspace.store.db import Store
 from workspace.store.schema import Network, NetworkVersion, Project, Run, RunCommunity, RunMeasure
+
+if TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
+    import numpy as np
 
 Progress = Callable[[str, int, int | None], None]
 MAX_REPEATS = 500

@@ -8,14 +8,13 @@ not depend on the codec or compression level.
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING as _TYPE_CHECKING
-
-if _TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
-    import numpy as np
-
 import hashlib
 import io
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
+    import numpy as np
 
 
 CODEC = "npy+zstd"

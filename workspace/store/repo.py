@@ -3,19 +3,18 @@ the services own the transaction."""
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING as _TYPE_CHECKING
-
-if _TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
-    import numpy as np
-
 from datetime import datetime, timezone
+from typing import TYPE_CHECKING
 
 from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
-from workspace.domain import GraphData, decode_node_ids, encode_node_ids
+from workspace.domain import GraphData, decode_node_ids
 from workspace.store.blobs import GRAPH_ARRAYS, EncodedArray, decode_array, encode_array, encode_graph_arrays
 from workspace.store.schema import Blob, Network, NetworkVersion, Project
+
+if TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
+    import numpy as np
 
 
 def utcnow() -> datetime:
