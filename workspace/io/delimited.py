@@ -9,7 +9,6 @@ with a single-space delimiter and quoting off.
 
 from __future__ import annotations
 
-import io
 import re
 
 import numpy as np
@@ -129,7 +128,7 @@ class _Csv:
             if include is not None:
                 convert["include_columns"] = [names[i] for i in include]
         try:
-            return pa_csv.read_csv(io.BytesIO(data), read_options=read_options,
+            return pa_csv.read_csv(pa.BufferReader(data), read_options=read_options,
                                    parse_options=pa_csv.ParseOptions(**self.parse_kwargs),
                                    convert_options=pa_csv.ConvertOptions(**convert))
         except pa.ArrowInvalid as err:
@@ -164,7 +163,7 @@ class _Csv:
 
             options = dict(self.parse_kwargs, invalid_row_handler=handler)
             try:
-                pa_csv.read_csv(io.BytesIO(data),
+                pa_csv.read_csv(pa.BufferReader(data),
                                 read_options=pa_csv.ReadOptions(use_threads=False,
                                                                 autogenerate_column_names=True,
                                                                 block_size=self.block_size),
