@@ -44,8 +44,7 @@ ENDPOINT_HEADER_NAMES = frozenset({
     ("tail", "head"), ("head", "tail"), ("id1", "id2"), ("sourceid", "targetid"),
     ("fromid", "toid"), ("fromnode", "tonode"), ("sourcenode", "targetnode"), ("start", "end"),
     ("origin", "destination"), ("orig", "dest"), ("sender", "receiver"), ("ego", "alter"),
-    ("node", "neighbor"), ("node", "neighbour"), ("vertex1", "vertex2"), ("v1", "v2"),
-    ("n1", "n2"),
+    ("node", "neighbor"), ("node", "neighbour"), ("vertex1", "vertex2"),
     # one-letter endpoint names of textbooks and papers; read as names only when data follows
     ("a", "b"), ("u", "v"), ("i", "j"), ("x", "y"), ("s", "t"), ("p", "q"), ("m", "n"),
 })
