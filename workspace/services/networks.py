@@ -108,8 +108,19 @@ def prepare_import(path: str | os.PathLike, *, format: str | None = None,
             from workspace.store.blobs import encode_graph_arrays  # numpy and zstandard only
 
             encoded_ids = encode_node_ids(graph.node_ids)  # once, for the hash and the blobs
-            done["hash"] = graph.content_hash(encoded_ids=encoded_ids)
+
+            def content_hash() -> None:
+                try:
+                    done["hash"] = graph.content_hash(encoded_ids=encoded_ids)
+                except BaseException as exc:  # noqa: BLE001 - re-raised on the caller's thread
+                    done["error"] = exc
+
+            # sha256 and zstd both release the interpreter lock: hash while compressing
+            hasher = threading.Thread(target=content_hash, name="cutbook-content-hash",
+                                      daemon=True)
+            hasher.start()
             done["arrays"] = encode_graph_arrays(graph, encoded_ids)
+            hasher.join()
         except BaseException as exc:  # noqa: BLE001 - re-raised on the caller's thread
             done["error"] = exc
 
