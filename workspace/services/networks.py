@@ -61,10 +61,12 @@ def version_summary(v: NetworkVersion, project: str, network: str) -> dict[str, 
     }
 
 
-#: What an import needs after reading the file: the store layer, scipy (components in the
-#: report) and zstandard (blobs). A front end may load them on a background thread meanwhile.
-IMPORT_LATER_MODULES = ("workspace.services.store", "workspace.services.runs",
-                        "workspace.store.repo", "scipy.sparse.csgraph", "zstandard")
+#: What an import needs after reading the file, in the order it needs them: scipy (components
+#: in the report), zstandard (blobs), then the store layer for the write. A front end may load
+#: them on a background thread meanwhile.
+IMPORT_LATER_MODULES = ("scipy.sparse.csgraph", "zstandard", "workspace.store.blobs",
+                        "workspace.services.store", "workspace.services.runs",
+                        "workspace.store.repo")
 
 
 def load_readers() -> None:
