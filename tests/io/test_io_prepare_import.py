@@ -75,3 +75,17 @@ def test_a_bad_name_is_refused_before_the_file_is_read(cli, tmp_path, store_path
     missing = tmp_path / "nowhere.csv"
     r = cli("import", missing, "--project", "p q", "--network", "n")
     assert r.code == 2 and "project name" in r.err and "no such file" not in r.err
+
+
+def test_decode_values_reads_blobs_without_numpy_as_numpy_does():
+    # the .npy stream read with struct equals numpy's own reading (numpy.load(...).tolist())
+    from workspace.store.blobs import decode_array, decode_values, encode_array
+
+    rng = np.random.default_rng(5)
+    arrays = [rng.random(9), np.arange(-3, 4, dtype=np.int64), np.zeros(0), np.array([1, -2], np.int8),
+              rng.random(4).astype(np.float32), np.array([True, False]), np.arange(600_000)]
+    for array in arrays:
+        blob = encode_array(array)
+        values = decode_values(blob.codec, blob.data, blob.raw_size)
+        assert values == decode_array(blob.codec, blob.data, blob.raw_size).tolist()
+        assert values == array.tolist()

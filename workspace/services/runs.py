@@ -513,8 +513,6 @@ def load_membership(store: Store, run_id: int) -> tuple[np.ndarray, np.ndarray, 
 
 def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict[str, Any]:
     """Everything recorded on a run."""
-    import numpy as np
-
     with store.read() as s:
         run, p, n, v = _get_run(s, run_id)
         out = _run_row_dict(run, p, n, v)
@@ -525,14 +523,15 @@ def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict
             psv = s.get(ParamSetVersion, run.param_set_version_id)
             ps = s.get(ParamSet, psv.param_set_id)
             psv_ref = f"{p}/{ps.name}@{psv.number}"
-        eig = repo.get_array(s, run.eigenvalues_blob) if run.eigenvalues_blob else np.empty(0)
+        # a few numbers: read without numpy, which `cutbook show RUN` then never loads
+        eig = repo.get_values(s, run.eigenvalues_blob) if run.eigenvalues_blob else []
         comms = s.scalars(select(RunCommunity).where(RunCommunity.run_id == run_id)
                           .order_by(RunCommunity.community)).all()
         out.update({
             "params": json.loads(run.params_json), "param_set": psv_ref, "rerun_of": run.rerun_of,
             "error": run.error, "quality": json.loads(run.quality_json),
             "diagnostics": json.loads(run.diagnostics_json), "warnings": json.loads(run.warnings_json),
-            "provenance": json.loads(run.provenance_json), "eigenvalues": eig.tolist(),
+            "provenance": json.loads(run.provenance_json), "eigenvalues": eig,
             "communities": [{"community": c.community, "size": c.size, "volume": c.volume, "cut": c.cut,
                              "conductance": c.conductance, "stability": c.stability} for c in comms],
             "host": run.host, "pid": run.pid,
@@ -540,6 +539,8 @@ def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict
         if run.started_at and run.finished_at:
             out["wall_time_s"] = (run.finished_at - run.started_at).total_seconds()
         if include_labels and run.membership_blob:
+            import numpy as np
+
             version = s.get(NetworkVersion, run.version_id)
             ids = repo.load_node_ids(s, version)
             labels = repo.get_array(s, run.membership_blob).astype(np.int64)

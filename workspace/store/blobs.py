@@ -74,6 +74,41 @@ def encode_array(arr: np.ndarray) -> EncodedArray:
     return EncodedArray(array_hash(a), CODEC, a.dtype.str, int(a.shape[0]), size, data)
 
 
+_NPY_MAGIC = b"\x93NUMPY"
+_STRUCT_CODES = {"<f8": "d", "<f4": "f", "<i8": "q", "<i4": "i", "<i2": "h", "|i1": "b",
+                 "<u8": "Q", "<u4": "I", "<u2": "H", "|u1": "B", "|b1": "?"}
+
+
+def decode_values(codec: str, data: bytes, raw_size: int | None = None) -> list:
+    """A stored 1-D array as a Python list, read without numpy (for small arrays on quick paths).
+
+    Reads the ``.npy`` stream of :func:`encode_array` - magic, version, header length, the
+    header dict, then the little-endian values - with ``struct``; the values equal
+    ``decode_array(...).tolist()``. Reference: the NPY format description, numpy
+    ``numpy.lib.format`` (NEP 1, 2007).
+    """
+    import ast
+    import struct
+
+    import zstandard
+
+    if codec != CODEC:
+        raise ValueError(f"unknown blob codec {codec!r}")
+    raw = zstandard.ZstdDecompressor().decompress(data, max_output_size=raw_size or 0)
+    if raw[:6] != _NPY_MAGIC:
+        raise ValueError("not an .npy stream")
+    if raw[6] == 1:
+        (length,), start = struct.unpack_from("<H", raw, 8), 10
+    else:
+        (length,), start = struct.unpack_from("<I", raw, 8), 12
+    header = ast.literal_eval(raw[start:start + length].decode("latin-1"))
+    code = _STRUCT_CODES.get(header["descr"])
+    shape = header["shape"]
+    if code is None or header["fortran_order"] or len(shape) != 1:
+        return decode_array(codec, data, raw_size).tolist()
+    return list(struct.unpack_from(f"<{shape[0]}{code}", raw, start + length))
+
+
 def decode_array(codec: str, data: bytes, raw_size: int | None = None) -> np.ndarray:
     import numpy as np
 

@@ -10,7 +10,8 @@ from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
 from workspace.domain import GraphData, decode_node_ids
-from workspace.store.blobs import GRAPH_ARRAYS, EncodedArray, decode_array, encode_array, encode_graph_arrays
+from workspace.store.blobs import (GRAPH_ARRAYS, EncodedArray, decode_array, decode_values, encode_array,
+                                   encode_graph_arrays)
 from workspace.store.schema import Blob, Network, NetworkVersion, Project
 
 if TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
@@ -44,6 +45,12 @@ def put_encoded(session: Session, enc: EncodedArray) -> str:
 def get_array(session: Session, blob_hash: str) -> np.ndarray:
     row = session.execute(select(Blob.codec, Blob.data, Blob.raw_size).where(Blob.hash == blob_hash)).one()
     return decode_array(row.codec, row.data, row.raw_size)
+
+
+def get_values(session: Session, blob_hash: str) -> list:
+    """A stored 1-D array as a Python list, without loading numpy (small arrays)."""
+    row = session.execute(select(Blob.codec, Blob.data, Blob.raw_size).where(Blob.hash == blob_hash)).one()
+    return decode_values(row.codec, row.data, row.raw_size)
 
 
 # --- projects and networks -----------------------------------------------------
