@@ -24,12 +24,11 @@ def warm_imports(*modules: str):
     """Import ``modules`` on a background thread while the caller starts on other work.
 
     For commands whose first step spends most of its time outside the interpreter lock
-    (Arrow's CSV reader and hash kernels, numpy sorts): the store layer and scipy then load on
-    the other core instead of before or after that work. The caller imports nothing of
-    ``modules`` at module level, and its own imports touch none of their packages until it
-    needs them (then it simply waits for the module lock), so no import-lock cycle can form.
-    A failure here is ignored: the caller's own import raises it where it matters.
-    Returns the thread (already started, daemon).
+    (Arrow's CSV reader and hash kernels, numpy sorts): the store layer then loads on the
+    other core instead of before or after that work. The caller must ``join()`` the returned
+    (started, daemon) thread before it imports any package of ``modules`` itself: one package
+    must never be imported by two threads at once (lazy submodule loading, as in SciPy, is not
+    safe for that). A failure here is ignored: the caller's own import raises it.
     """
     import threading
 

@@ -49,12 +49,16 @@ def cmd_import(args) -> int:
 
     check_names(args.project, args.network)
     load_readers()  # the readers first (numpy, pyarrow): needed at once; imports contend for the GIL
-    # the store layer and scipy then load on the other core while the file is parsed and encoded
-    # (Arrow's reader and hash kernels and numpy's sorts run without the interpreter lock)
-    warm_imports(*IMPORT_LATER_MODULES)
+    # the store layer then loads on the other core while the file is parsed and encoded (Arrow's
+    # reader and hash kernels and numpy's sorts run without the interpreter lock)
+    warming = warm_imports(*IMPORT_LATER_MODULES)
     with progress_bar() as bar:
         # the file is read before the store opens: a bad file leaves no trace in any store
-        prepared = prepare_import(args.file, format=args.format, policy=_policy(args), progress=bar)
+        try:
+            prepared = prepare_import(args.file, format=args.format, policy=_policy(args),
+                                      progress=bar)
+        finally:
+            warming.join()  # never import the store layer on two threads at once
         with session(args) as (store, out):
             res = import_network(store, args.file, project=args.project, network=args.network,
                                  message=args.message, progress=bar, prepared=prepared)
