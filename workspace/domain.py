@@ -11,11 +11,25 @@ import re
 from dataclasses import dataclass, field
 from typing import Any
 
-import numpy as np
+from typing import TYPE_CHECKING
 
-NODE_ID_DTYPE = np.str_
-INDEX_DTYPE = np.int64
-WEIGHT_DTYPE = np.float64
+if TYPE_CHECKING:
+    import numpy as np
+
+# numpy loads with the first function that needs it, so that the CLI's listings and ``--help``
+# (which import this module for its dataclasses) start without it.
+_NUMPY_CONSTANTS = {"NODE_ID_DTYPE": "str_", "INDEX_DTYPE": "int64", "WEIGHT_DTYPE": "float64"}
+
+
+def __getattr__(name: str):
+    """``NODE_ID_DTYPE`` (numpy ``str_``), ``INDEX_DTYPE`` (int64), ``WEIGHT_DTYPE`` (float64)."""
+    if name in _NUMPY_CONSTANTS:
+        import numpy as np
+
+        value = getattr(np, _NUMPY_CONSTANTS[name])
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
 _VECTOR_LIMIT = 1 << 28  # bytes of the padded code-point matrix the vectorised path may build
@@ -29,6 +43,8 @@ def encode_node_ids(node_ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     vectorised path (their code points are their UTF-8 bytes); others a loop.
     Both give the same bytes.
     """
+    import numpy as np
+
     node_ids = np.asarray(node_ids)
     n = node_ids.shape[0]
     offsets = np.zeros(n + 1, dtype=np.int64)
@@ -50,6 +66,8 @@ def encode_node_ids(node_ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def decode_node_ids(offsets: np.ndarray, data: np.ndarray) -> np.ndarray:
     """Inverse of :func:`encode_node_ids`; returns a numpy ``str`` array."""
+    import numpy as np
+
     n = offsets.shape[0] - 1
     if n <= 0:
         return np.array([], dtype="<U1")
@@ -61,7 +79,7 @@ def decode_node_ids(offsets: np.ndarray, data: np.ndarray) -> np.ndarray:
         return points.view(f"<U{width}").reshape(n)
     raw = data.tobytes()
     off = offsets.tolist()
-    return np.array([raw[off[i]:off[i + 1]].decode("utf-8") for i in range(n)], dtype=NODE_ID_DTYPE)
+    return np.array([raw[off[i]:off[i + 1]].decode("utf-8") for i in range(n)], dtype=np.str_)
 
 
 @dataclass(frozen=True, eq=False)
@@ -104,6 +122,8 @@ class GraphData:
         A kept self-loop (u, u, w) puts w on the diagonal once. For a
         directed graph A[u, v] = w for the arc u -> v only (row = tail).
         """
+        import numpy as np
+
         import scipy.sparse as sp
 
         n = self.n_nodes
@@ -122,8 +142,10 @@ class GraphData:
         A.sort_indices()
         return A
 
-    def content_hash(self) -> str:
+    def content_hash(self, encoded_ids: tuple[np.ndarray, np.ndarray] | None = None) -> str:
         """sha256 (hex) over the canonical raw bytes.
+
+        ``encoded_ids``: ``encode_node_ids(self.node_ids)`` when the caller has it already.
 
         Layout hashed, in order: the tag ``b"cutbook-graph-1\\0"``; n and m as
         little-endian int64; node-id offsets (int64 LE) and UTF-8 bytes;
@@ -133,14 +155,20 @@ class GraphData:
         instead (so it never hashes equal to the undirected graph of the same
         arrays; undirected hashes are unchanged).
         """
-        offsets, data = encode_node_ids(self.node_ids)
+        import numpy as np
+
+        offsets, data = encoded_ids if encoded_ids is not None else encode_node_ids(self.node_ids)
+
+        def raw(values, dtype: str) -> memoryview:  # the bytes, without a copy when already so
+            return memoryview(np.ascontiguousarray(values, dtype=dtype)).cast("B")
+
         h = hashlib.sha256(b"cutbook-digraph-1\0" if self.directed else b"cutbook-graph-1\0")
         h.update(np.array([self.n_nodes, self.n_edges], dtype="<i8").tobytes())
-        h.update(offsets.astype("<i8", copy=False).tobytes())
-        h.update(data.tobytes())
-        h.update(np.ascontiguousarray(self.edge_u, dtype="<i8").tobytes())
-        h.update(np.ascontiguousarray(self.edge_v, dtype="<i8").tobytes())
-        h.update(np.ascontiguousarray(self.weight, dtype="<f8").tobytes())
+        h.update(raw(offsets, "<i8"))
+        h.update(raw(data, "u1"))
+        h.update(raw(self.edge_u, "<i8"))
+        h.update(raw(self.edge_v, "<i8"))
+        h.update(raw(self.weight, "<f8"))
         return h.hexdigest()
 
 
@@ -250,6 +278,8 @@ def canonical_labels(labels: np.ndarray) -> np.ndarray:
     stays -1. Returns int64. Two labelings that define the same partition give
     the same canonical array.
     """
+    import numpy as np
+
     labels = np.asarray(labels)
     out = np.full(labels.shape[0], -1, dtype=np.int64)
     assigned = labels >= 0
@@ -266,6 +296,8 @@ def canonical_labels(labels: np.ndarray) -> np.ndarray:
 
 def membership_hash(labels: np.ndarray) -> str:
     """sha256 (hex) of ``b"cutbook-membership-1\\0"`` + n (int64 LE) + canonical labels (int64 LE)."""
+    import numpy as np
+
     canon = canonical_labels(labels)
     h = hashlib.sha256(b"cutbook-membership-1\0")
     h.update(np.array([canon.shape[0]], dtype="<i8").tobytes())
@@ -275,6 +307,8 @@ def membership_hash(labels: np.ndarray) -> str:
 
 def compact_label_dtype(labels: np.ndarray) -> np.dtype:
     """Smallest signed integer dtype that holds ``labels`` (so -1 still fits)."""
+    import numpy as np
+
     top = int(labels.max()) if labels.size else 0
     for dt in (np.int8, np.int16, np.int32):
         if top <= np.iinfo(dt).max:

@@ -36,24 +36,49 @@ def print_report(out, report: dict) -> None:
          f"max {ws.get('max'):.4g}  total {ws.get('total'):.6g}"),
     ])
     for n in report.get("notes") or []:
-        out.line(f"  note: {n}")
+        if n.startswith("warning: "):
+            out.line(f"  WARNING: {n[len('warning: '):]}")
+        else:
+            out.line(f"  note: {n}")
 
 
 def cmd_import(args) -> int:
-    from workspace.services.networks import import_network
+    from workspace.cli.common import warm_imports
+    from workspace.services.networks import (IMPORT_LATER_MODULES, check_names, import_network,
+                                             load_readers, prepare_import)
 
-    with session(args, writes=True) as (store, out), progress_bar() as bar:
-        res = import_network(store, args.file, project=args.project, network=args.network, format=args.format,
-                             policy=_policy(args), message=args.message, progress=bar)
-        bar.close()
-        if args.json:
-            emit_json(res.to_dict())
-            return 0
-        if res.new_version:
-            out.line(f"imported {res.ref}: {res.nodes} nodes, {res.edges} edges  [{res.content_hash[:12]}]")
-        else:
-            out.line(f"unchanged: content equals {res.ref}; no new version made  [{res.content_hash[:12]}]")
-        print_report(out, res.report)
+    check_names(args.project, args.network)
+    load_readers()  # the readers first (numpy, pyarrow): needed at once; imports contend for the GIL
+    # the store layer then loads on the other core while the file is parsed and encoded (Arrow's
+    # reader and hash kernels and numpy's sorts run without the interpreter lock)
+    warming = warm_imports(*IMPORT_LATER_MODULES)
+    with progress_bar() as bar:
+        # the file is read before the store opens: a bad file leaves no trace in any store
+        try:
+            prepared = prepare_import(args.file, format=args.format, policy=_policy(args),
+                                      progress=bar)
+        finally:
+            warming.join()  # never import the store layer on two threads at once
+        with session(args, writes=True) as (store, out):
+            res = import_network(store, args.file, project=args.project, network=args.network,
+                                 message=args.message, progress=bar, prepared=prepared)
+            bar.close()
+            return _print_import(args, out, res)
+
+
+def _print_import(args, out, res) -> int:
+    if args.json:
+        emit_json(res.to_dict())
+        for n in res.report.get("notes") or []:
+            if n.startswith("warning: "):
+                out.note(f"cutbook: {n}")
+        return 0
+    if res.new_version:
+        out.line(f"imported {res.ref}: {res.nodes} nodes, {res.edges} edges  [{res.content_hash[:12]}]")
+    else:
+        out.line(f"unchanged: {res.report['source']} has the same content as {res.ref} (matched "
+                 f"version {res.version}); no new version made  [{res.content_hash[:12]}]")
+    print_report(out, res.report)
     return 0
 
 

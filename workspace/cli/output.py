@@ -59,7 +59,12 @@ class Out:
         return self._console
 
     def line(self, text: str = "") -> None:
-        self.console.print(text, markup=False)
+        """One line of plain text, as is (rich loads only for tables and styled output)."""
+        if self._console is not None:
+            self._console.print(text, markup=False)
+            return
+        stream = sys.stderr if self.json_mode else sys.stdout
+        stream.write(text + "\n")
 
     def rich(self, renderable) -> None:
         self.console.print(renderable)
@@ -70,17 +75,63 @@ class Out:
 
     def table(self, columns: Sequence[str], rows: Iterable[Sequence[Any]], *, title: str | None = None,
               right: Sequence[str] = ()) -> None:
-        from rich import box
-        from rich.table import Table
+        """A table in rich's ``SIMPLE_HEAD`` layout (header, a rule, rows).
 
+        Tables of plain ASCII text that fit the width are laid out here, character for
+        character as rich lays them out, so listings start without loading rich; anything
+        else (wide or non-ASCII text, a table wider than the terminal) goes to rich.
+        """
         if title:
             self.line(title)
-        t = Table(box=box.SIMPLE_HEAD, pad_edge=False, header_style="bold")
-        for c in columns:
-            t.add_column(c, justify="right" if c in right else "left", overflow="fold")
-        for r in rows:
-            t.add_row(*[fmt(x) for x in r])
-        self.console.print(t)
+        cells = [[fmt(x) for x in r] for r in rows]
+        if not self._plain_table(list(columns), cells, right):
+            from rich import box
+            from rich.table import Table
+
+            t = Table(box=box.SIMPLE_HEAD, pad_edge=False, header_style="bold")
+            for c in columns:
+                t.add_column(c, justify="right" if c in right else "left", overflow="fold")
+            for r in cells:
+                t.add_row(*r)
+            self.console.print(t)
+
+    def _plain_table(self, columns: list[str], rows: list[list[str]], right: Sequence[str]) -> bool:
+        """Write the table without rich when it is printable ASCII and fits; False otherwise."""
+        if any(len(r) != len(columns) for r in rows):
+            return False
+        texts = columns + [c for r in rows for c in r]
+        if not all(t.isascii() and t.isprintable() for t in texts):
+            return False
+        stream = sys.stderr if self.json_mode else sys.stdout
+        tty = stream.isatty()
+        if tty:
+            import os
+            import shutil
+
+            width = shutil.get_terminal_size().columns
+            bold = not os.environ.get("NO_COLOR") and os.environ.get("TERM") != "dumb"
+        else:
+            width, bold = 200, False  # as the rich console of this class
+        widths = [max([len(c)] + [len(r[i]) for r in rows]) for i, c in enumerate(columns)]
+        last = len(columns) - 1
+
+        def line(values: list[str], header: bool = False) -> str:
+            parts = []
+            for i, (text, w) in enumerate(zip(values, widths)):
+                pad = " " * (w - len(text))
+                text = f"\x1b[1m{text}\x1b[0m" if header and bold else text
+                text = pad + text if columns[i] in right else text + pad
+                parts.append(("" if i == 0 else " ") + text + ("" if i == last else " "))
+            return " " + " ".join(parts) + " "
+
+        total = sum(widths) + 3 * last + 2
+        if total > width:
+            return False
+        out = [" " * total, line(columns, header=True), " " + "─" * (total - 2) + " "]
+        out += [line(r) for r in rows]
+        out.append(" " * total)
+        stream.write("\n".join(out) + "\n")
+        return True
 
     def fields(self, pairs: Iterable[tuple[str, Any]], *, title: str | None = None) -> None:
         pairs = list(pairs)

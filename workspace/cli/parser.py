@@ -65,7 +65,9 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--comment", metavar="CHAR", help="comment character (default: none)")
     g.add_argument("--delimiter", metavar="SEP", help="field separator: ',', 'tab', 'whitespace', ...")
     g.add_argument("--header", choices=["auto", "yes", "no"], default="auto",
-                   help="first line names the columns (default: auto)")
+                   help="first line names the columns (default: auto - yes when it reads like "
+                        "source,target / from,to / u,v ... or cannot be data; the choice is "
+                        "printed, with a WARNING when it looks like a header read as an edge)")
 
     add("projects", "list projects", "networks", "cmd_projects")
     p = add("networks", "list networks", "networks", "cmd_networks")

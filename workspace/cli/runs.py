@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import sys
 
 from workspace.cli.common import emit_json, progress_bar, session
 from workspace.cli.output import fmt

@@ -21,7 +21,7 @@ from __future__ import annotations
 import os
 from pathlib import Path
 
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Callable
 
 from workspace.domain import ImportPolicy
 from workspace.errors import InputError, ParameterError
@@ -126,7 +126,9 @@ def validate_policy(policy: ImportPolicy) -> None:
 
 def read_network(path: str | os.PathLike, *, format: str | None = None,
                  policy: ImportPolicy = ImportPolicy(),
-                 progress: Progress = None) -> tuple[GraphData, ImportReport]:
+                 progress: Progress = None,
+                 on_graph: Callable[[GraphData], None] | None = None
+                 ) -> tuple[GraphData, ImportReport]:
     """Read a network file into canonical form and validate it.
 
     The canonical graph has node ids sorted by code point, edges as index
@@ -169,6 +171,10 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
     progress : callable(stage: str, done: int, total: int | None) or None
         Called with stages ``"read"`` (bytes), ``"parse"``,
         ``"canonicalise"`` (steps of 4) and ``"report"``.
+    on_graph : callable(GraphData) or None
+        Called once with the canonical graph as soon as it exists, before
+        the report is built (on the caller's thread: a caller can start
+        hashing or compressing it elsewhere meanwhile).
 
     Returns
     -------
@@ -216,13 +222,23 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
     1. ``weight`` names a column (a non-digit string): a header is required
        and must contain that name;
     2. none of the line's fields is a number, and either its first two
-       fields are a known endpoint-name pair (source/target, from/to,
-       src/dst, node1/node2, node_1/node_2, tail/head, id1/id2; any case),
-       or some column is numeric in every one of the following lines of the
-       first 256 KiB while the line's field there is not;
+       fields name the endpoint columns - a known pair compared without case,
+       blanks, ``_`` or ``-`` (source/target, from/to, src/dst, node1/node2,
+       tail/head, id1/id2, origin/destination, sender/receiver, u/v, a/b,
+       i/j, x/y, s/t, ... see ``delimited.ENDPOINT_HEADER_NAMES``), names
+       that differ only by a from/to role word (``from_station,to_station``)
+       or one name numbered 1 and 2 (``user1,user2``) - the last three kinds
+       and one-letter pairs (which can also be ids) only when some id repeats
+       in the following lines of the first 256 KiB - or some column is
+       numeric in every one of those lines while the line's field there is
+       not;
     3. and (for rule 2) neither of its first two fields occurs as a node id
        anywhere below - a name that is also a node id marks a data line.
 
+    A first line read as data whose two ids occur on no other line (a
+    2-node component of its own, what a header read as data looks like)
+    gets a note starting ``warning:`` that names ``--header yes``, unless
+    every line of the sample is such a pair.
     Otherwise the line is data. ``"yes"`` and ``"no"`` force the choice.
 
     References
@@ -255,6 +271,6 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
         from workspace.io.node_link import read_node_link
         records = read_node_link(path, data, policy, progress)
     del data
-    graph, report = canonicalise(records, policy, progress)
+    graph, report = canonicalise(records, policy, progress, on_graph=on_graph)
     report_progress(progress, "report", 1, 1)
     return graph, report

@@ -1,6 +1,6 @@
 """Edge records -> canonical :class:`~workspace.domain.GraphData` + :class:`ImportReport`.
 
-All steps are vectorised: pyarrow.compute dictionary encoding for ids, numpy
+All steps are vectorised: pyarrow.compute dictionary encoding and sorting for ids, numpy
 sorting of int64 pair keys ``lo * n + hi`` for duplicates and symmetrisation,
 ``scipy.sparse.csgraph.connected_components`` for the report.
 """
@@ -90,15 +90,48 @@ def _chunks(values: pa.Array | pa.ChunkedArray) -> list[pa.Array]:
     return list(values.chunks) if isinstance(values, pa.ChunkedArray) else [values]
 
 
+def _string_array_to_numpy(values: pa.Array) -> np.ndarray:
+    """A pyarrow string array as a numpy ``str`` array (same values, width of the longest).
+
+    ASCII data is widened byte -> UCS4 code unit straight from Arrow's offset and data buffers;
+    anything else goes through Python ``str`` objects.
+    """
+    n = len(values)
+    if n == 0:
+        return np.array([], dtype="<U1")
+    offset_type = np.int64 if values.type == pa.large_string() else np.int32
+    buffers = values.buffers()
+    offsets = np.frombuffer(buffers[1], dtype=offset_type, count=n + 1,
+                            offset=values.offset * np.dtype(offset_type).itemsize).astype(np.int64)
+    data = (np.frombuffer(buffers[2], dtype=np.uint8)[offsets[0]:offsets[-1]]
+            if buffers[2] is not None else np.zeros(0, dtype=np.uint8))
+    lengths = np.diff(offsets)
+    width = max(int(lengths.max()), 1)
+    if (data.size and int(data.max()) >= 0x80) or width * n > (1 << 28):
+        return np.asarray(values.to_numpy(zero_copy_only=False), dtype=NODE_ID_DTYPE)
+    units = np.zeros((n, width), dtype=np.uint32)
+    units[np.arange(width)[None, :] < lengths[:, None]] = data
+    return units.view(f"<U{width}").reshape(n)
+
+
 def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.ChunkedArray,
                extra: pa.Array | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Sorted unique ids and int64 indices of ``source`` and ``target`` into them.
 
     One pass of Arrow's hash kernel (``dictionary_encode``) over the source,
-    target and declared-node columns gives each distinct id a code; the
-    dictionary (the distinct ids) is sorted by code point with numpy and the
-    codes are mapped through the inverse permutation ``rank[order[i]] = i``.
-    Numpy orders ``str`` arrays by code point, so ``node_ids`` is canonical.
+    target and declared-node columns gives each distinct id a code (the
+    distinct ids in order of first appearance). The distinct ids are sorted
+    by Arrow's ``sort_indices``, which compares strings as UTF-8 bytes - for
+    valid UTF-8 the same as code point order, the order of numpy ``str``
+    arrays - and the codes are mapped through the inverse permutation
+    ``rank[order[i]] = i``. So ``node_ids`` is sorted by code point and
+    ``node_ids[u[k]]`` is the source id of record ``k``.
+
+    References
+    ----------
+    F. Yergeau, RFC 3629, "UTF-8" (2003), section 1: byte-wise sorting of
+    UTF-8 strings gives code point order; Apache Arrow compute functions
+    ``dictionary_encode``, ``sort_indices`` (Arrow 15, 2024).
     """
     parts = _chunks(source) + _chunks(target) + ([extra] if extra is not None else [])
     parts = [p.cast(pa.string()) if p.type != pa.string() else p for p in parts]
@@ -113,19 +146,14 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
         dictionary = chunks[0].dictionary
     if len(dictionary) and pc.any(pc.match_substring(dictionary, "\x00")).as_py():
         raise InputError("a node id contains a NUL character, which is not supported")
-    distinct = np.asarray(dictionary.to_numpy(zero_copy_only=False), dtype=NODE_ID_DTYPE)
-    if distinct.size == 0:
-        distinct = np.array([], dtype="<U1")
-    order = np.argsort(distinct)
+    order = pc.sort_indices(dictionary).to_numpy()
     rank = np.empty(order.size, dtype=np.int64)
     rank[order] = np.arange(order.size, dtype=np.int64)
-    codes = []
-    for chunk in chunks:
-        codes.append(rank[chunk.indices.to_numpy(zero_copy_only=False)])
+    codes = [rank[chunk.indices.to_numpy(zero_copy_only=False)] for chunk in chunks]
     all_codes = np.concatenate(codes) if codes else np.zeros(0, dtype=np.int64)
     m_source, m_target = len(source), len(target)
-    return (distinct[order], all_codes[:m_source],
-            all_codes[m_source:m_source + m_target])
+    node_ids = _string_array_to_numpy(dictionary.take(pa.array(order)))
+    return node_ids, all_codes[:m_source], all_codes[m_source:m_source + m_target]
 
 
 def _group_starts(sorted_keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -280,7 +308,7 @@ def _symmetrise(key: np.ndarray, weight: np.ndarray, record: np.ndarray, n: int,
 
 
 def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
-                 progress: Progress = None) -> tuple[GraphData, ImportReport]:
+                 progress: Progress = None, *, on_graph=None) -> tuple[GraphData, ImportReport]:
     """Apply the import policy to edge records and build the canonical graph.
 
     With ids sorted by code point (index ``i`` = position in that order) an
@@ -309,6 +337,8 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         Validated policy.
     progress : callable or None, default None
         Receives ``("canonicalise", step, 4)``.
+    on_graph : callable or None, default None
+        Called with the graph before the report is built.
 
     Returns
     -------
@@ -455,6 +485,8 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
     graph = GraphData(node_ids=node_ids, edge_u=edge_u.astype(np.int64, copy=False),
                       edge_v=edge_v.astype(np.int64, copy=False),
                       weight=np.ascontiguousarray(weight, dtype=np.float64), directed=keep_direction)
+    if on_graph is not None:
+        on_graph(graph)
     report = build_report(graph, rec, m_read, loops_found, loops_kept, merged, asymmetric,
                           zero_dropped, notes)
     report_progress(progress, "canonicalise", 4, 4)

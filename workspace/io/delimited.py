@@ -9,7 +9,6 @@ with a single-space delimiter and quoting off.
 
 from __future__ import annotations
 
-import io
 import re
 
 import numpy as np
@@ -38,11 +37,22 @@ DELIMITER_ALIASES = {
     "comma": ",", "tab": "\t", "\\t": "\t", "semicolon": ";", "pipe": "|",
     "whitespace": WHITESPACE, "space": WHITESPACE, " ": WHITESPACE,
 }
-#: First-line field pairs read as column names by ``header="auto"`` (case-insensitive).
+#: First-line field pairs read as column names by ``header="auto"``: compared after
+#: :func:`_name_key` (case, blanks, ``_`` and ``-`` ignored), so ``Source_ID`` matches ``sourceid``.
 ENDPOINT_HEADER_NAMES = frozenset({
-    ("source", "target"), ("from", "to"), ("src", "dst"), ("node1", "node2"),
-    ("node_1", "node_2"), ("tail", "head"), ("head", "tail"), ("id1", "id2"),
+    ("source", "target"), ("from", "to"), ("src", "dst"), ("src", "dest"), ("node1", "node2"),
+    ("tail", "head"), ("head", "tail"), ("id1", "id2"), ("sourceid", "targetid"),
+    ("fromid", "toid"), ("fromnode", "tonode"), ("sourcenode", "targetnode"), ("start", "end"),
+    ("origin", "destination"), ("orig", "dest"), ("sender", "receiver"), ("ego", "alter"),
+    ("node", "neighbor"), ("node", "neighbour"), ("vertex1", "vertex2"),
+    # one-letter endpoint names of textbooks and papers; read as names only when data follows
+    ("a", "b"), ("u", "v"), ("i", "j"), ("x", "y"), ("s", "t"), ("p", "q"), ("m", "n"),
 })
+#: Words that name the first / second endpoint of an edge inside a longer column name
+#: (``from_station``/``to_station``, ``station_src``/``station_dst``).
+_FIRST_ROLE = frozenset({"source", "src", "from", "start", "origin", "orig", "tail", "sender"})
+_SECOND_ROLE = frozenset({"target", "tgt", "dst", "dest", "to", "end", "destination", "head",
+                          "receiver"})
 _SAMPLE_BYTES = 1 << 18
 _THREADS_FROM_BYTES = 8 << 20  # below this a single thread is as fast
 _WHITESPACE_TABLE = bytes.maketrans(b"\t\v\f", b"   ")
@@ -124,11 +134,9 @@ class _Csv:
                                  double_quote=quoting, escape_char=False,
                                  newlines_in_values=False, ignore_empty_lines=True)
         self._lines: LineMap | None = None
-        # Arrow cannot parse a row longer than its block: size blocks to the longest line
-        newlines = np.flatnonzero(np.frombuffer(data, dtype=np.uint8) == 10) if data else np.zeros(0, int)
-        bounds = np.concatenate([[-1], newlines, [len(data)]])
-        longest = int(np.diff(bounds).max()) if bounds.size > 1 else len(data)
-        self.block_size = max(1 << 22, 1 << int(longest + 1024).bit_length())
+        # Arrow cannot parse a row longer than its block ("straddling object"): 4 MiB blocks hold
+        # any ordinary line; only when one does not are blocks sized to the longest line
+        self.block_size = 1 << 22
 
     @property
     def lines(self) -> LineMap:
@@ -149,11 +157,26 @@ class _Csv:
             if include is not None:
                 convert["include_columns"] = [names[i] for i in include]
         try:
-            return pa_csv.read_csv(io.BytesIO(data), read_options=read_options,
+            return pa_csv.read_csv(pa.BufferReader(data), read_options=read_options,
                                    parse_options=pa_csv.ParseOptions(**self.parse_kwargs),
                                    convert_options=pa_csv.ConvertOptions(**convert))
         except pa.ArrowInvalid as err:
+            # a line longer than the block shows as "straddling object" or as an empty file
+            if len(data) > self.block_size and self._fit_block_to_longest_line():
+                return self.read(data, n_columns, include, threads)
             raise self._explain(data, n_columns, include, err) from None
+
+    def _fit_block_to_longest_line(self) -> bool:
+        """Grow the block size to hold the longest line; False when it already does."""
+        data = self.data
+        newlines = np.flatnonzero(np.frombuffer(data, dtype=np.uint8) == 10) if data else np.zeros(0, int)
+        bounds = np.concatenate([[-1], newlines, [len(data)]])
+        longest = int(np.diff(bounds).max()) if bounds.size > 1 else len(data)
+        size = max(1 << 22, 1 << int(longest + 1024).bit_length())
+        if size <= self.block_size:
+            return False
+        self.block_size = size
+        return True
 
     def _explain(self, data: bytes, n_columns, include, err: Exception) -> InputError:
         text = str(err)
@@ -169,7 +192,7 @@ class _Csv:
 
             options = dict(self.parse_kwargs, invalid_row_handler=handler)
             try:
-                pa_csv.read_csv(io.BytesIO(data),
+                pa_csv.read_csv(pa.BufferReader(data),
                                 read_options=pa_csv.ReadOptions(use_threads=False,
                                                                 autogenerate_column_names=True,
                                                                 block_size=self.block_size),
@@ -239,8 +262,10 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
     """
     delimiter = resolve_delimiter(fmt, policy.delimiter)
     data = normalise_newlines(strip_bom(data))
-    check_utf8(data, path)
-    stray_bom = data.find(b"\xef\xbb\xbf")
+    ascii_only = data.isascii()
+    if not ascii_only:
+        check_utf8(data, path)
+    stray_bom = -1 if ascii_only else data.find(b"\xef\xbb\xbf")
     if stray_bom >= 0:
         raise InputError("a byte-order mark (U+FEFF) inside the file, not at its start: were two files "
                          "joined together? Remove it and import again", path=path,
@@ -305,9 +330,19 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
                          f"{names[0]!r}/{names[1]!r} also occur as node ids below")
         else:
             notes.append(f"header=auto: line {header_line} read as column names "
-                         f"({candidate_reason}): {', '.join(map(str, first_row))}")
+                         f"({candidate_reason}): {', '.join(map(str, first_row))} "
+                         "(--header no reads it as data)")
     elif policy.header == "auto" and not header:
-        notes.append(f"header=auto: line {header_line} read as data")
+        if not any(_is_numeric(pa.array([v], pa.string())) for v in first_row) \
+                and _isolated_first_pair(source, target, sample):
+            notes.append(
+                f"warning: header=auto read line {header_line} ({first_row[0]!r}, "
+                f"{first_row[1]!r}) as an edge, but neither id occurs on any other line: they "
+                "form a 2-node component of their own. If that line names the columns, import "
+                "again with --header yes (or --header no to keep it as data and silence this)")
+        else:
+            notes.append(f"header=auto: line {header_line} read as data "
+                         "(--header yes reads it as column names)")
     elif header:
         reason = "header=yes" if policy.header == "yes" else "a weight column is named"
         notes.append(f"line {header_line} read as column names ({reason}): "
@@ -344,6 +379,42 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
                        notes=notes)
 
 
+def _name_key(value: str) -> str:
+    """Lower case without blanks, ``_`` and ``-``: the form in which column names are compared."""
+    return re.sub(r"[\s_\-]+", "", value.strip().lower())
+
+
+def _names_endpoints(first: str, second: str) -> str | None:
+    """``"listed"``, ``"pattern"`` or None: do two fields read as the endpoint column names?
+
+    ``"listed"``: the pair is in :data:`ENDPOINT_HEADER_NAMES` with names longer than one
+    letter. ``"pattern"`` (weaker evidence: such fields can also be ids): a listed one-letter
+    pair (``u,v``), fields made of the same words except one first-endpoint word against one
+    second-endpoint word (``from_station``/``to_station``), or one name numbered 1 and 2
+    (``user1``/``user2``).
+    """
+    a, b = _name_key(first), _name_key(second)
+    if (a, b) in ENDPOINT_HEADER_NAMES:
+        return "pattern" if len(a) == 1 and len(b) == 1 else "listed"
+    words_a = [w for w in re.split(r"[\s_\-]+", first.strip().lower()) if w]
+    words_b = [w for w in re.split(r"[\s_\-]+", second.strip().lower()) if w]
+    if len(words_a) == len(words_b) and len(words_a) > 1:
+        differ = [(x, y) for x, y in zip(words_a, words_b) if x != y]
+        if len(differ) == 1 and differ[0][0] in _FIRST_ROLE and differ[0][1] in _SECOND_ROLE:
+            return "pattern"
+    if len(a) > 1 and a[:-1] == b[:-1] and a[-1] == "1" and b[-1] == "2" and a[:-1].isalpha():
+        return "pattern"
+    return None
+
+
+def _rows_are_separate_pairs(rows: pa.Table) -> bool:
+    """True when no id repeats in the first two columns of ``rows`` (every line its own pair)."""
+    if rows.num_rows == 0:
+        return True
+    ids = pa.chunked_array(list(rows.column(0).chunks) + list(rows.column(1).chunks))
+    return pc.count_distinct(ids).as_py() == 2 * rows.num_rows
+
+
 def _header_decision(policy: ImportPolicy, sample: pa.Table,
                      first_row: list[str]) -> tuple[bool, str | None]:
     """(header?, reason when auto found a candidate that still needs the id guard)."""
@@ -355,17 +426,40 @@ def _header_decision(policy: ImportPolicy, sample: pa.Table,
         return True, None  # a weight column named by the user means there is a header
     if any(_is_numeric(pa.array([value], pa.string())) for value in first_row):
         return False, None
-    names = (first_row[0].strip().lower(), first_row[1].strip().lower())
-    if names in ENDPOINT_HEADER_NAMES:
-        return True, "it names the endpoint columns"
     below = sample.slice(1)
+    names = _names_endpoints(first_row[0], first_row[1])
+    if names == "listed":
+        return True, "it names the endpoint columns"
     if below.num_rows == 0:
-        return False, None
+        return False, None  # a lone "a,b" line is an edge, not names over nothing
     for i, value in enumerate(first_row):
         if _is_numeric(below.column(i)):
             return True, (f"field {value!r} is not a number while the column below it is "
                           "numeric")
+    # names that could also be ids (u,v; user1,user2) count only where line 1 stands out: in a
+    # file whose every line is a separate pair, line 1 is like the others
+    if names == "pattern" and not _rows_are_separate_pairs(below):
+        return True, "it names the endpoint columns"
     return False, None
+
+
+def _isolated_first_pair(source: pa.ChunkedArray, target: pa.ChunkedArray,
+                         sample: pa.Table) -> bool:
+    """Line 1 read as data but its two ids occur on no other line, while other lines share ids.
+
+    Such a line adds a component of exactly two nodes that nothing else touches - what a header
+    line read as data looks like. Files in which every line is such a pair (a matching) are
+    not flagged: there line 1 is like all the others (judged on the 256 KiB sample).
+    """
+    first = (source[0].as_py(), target[0].as_py())
+    if first[0] == first[1]:
+        return False
+    names = pa.array(list(first), pa.string())
+    for column in (source, target):
+        if pc.any(pc.is_in(column.slice(1), value_set=names)).as_py():
+            return False
+    rest = sample.slice(1)
+    return rest.num_rows >= 2 and not _rows_are_separate_pairs(rest)
 
 
 def _weight_column(policy: ImportPolicy, path: str, header: bool, first_row: list[str],

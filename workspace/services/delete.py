@@ -16,7 +16,7 @@ from sqlalchemy.exc import IntegrityError
 from workspace.errors import ConflictError, NotFoundError, UsageError
 from workspace.store import repo
 from workspace.store.db import Store
-from workspace.store.schema import Blob, Network, NetworkVersion, ParamSet, Project, Run
+from workspace.store.schema import Network, NetworkVersion, ParamSet, Project, Run
 
 _BLOB_COLUMNS = (
     ("network_versions", ("node_offsets_blob", "node_bytes_blob", "edge_u_blob", "edge_v_blob", "weight_blob")),

@@ -1,17 +1,25 @@
-"""Networks and their versions: import, listing, showing, structural changes."""
+"""Networks and their versions: import, listing, showing, structural changes.
+
+Importing this module loads neither numpy nor SQLAlchemy: reading a file
+(:func:`prepare_import`) needs only the readers, and the store modules load
+with the first function that touches the store.
+"""
 
 from __future__ import annotations
 
 import json
 import os
+import sys
 from dataclasses import dataclass, field
-from typing import Any, Callable
+from typing import TYPE_CHECKING, Any, Callable
 
-from workspace.domain import GraphData, ImportPolicy, VersionRef
+from workspace.domain import ImportPolicy, VersionRef
 from workspace.errors import NotFoundError, UsageError
-from workspace.store import repo
-from workspace.store.db import Store
-from workspace.store.schema import Network, NetworkVersion
+
+if TYPE_CHECKING:
+    from workspace.domain import GraphData
+    from workspace.store.db import Store
+    from workspace.store.schema import Network, NetworkVersion
 
 Progress = Callable[[str, int, int | None], None]
 
@@ -39,6 +47,12 @@ def _check_name(kind: str, name: str) -> str:
     return name
 
 
+def check_names(project: str, network: str) -> None:
+    """UsageError unless both names are valid (see :func:`import_network`)."""
+    _check_name("project", project)
+    _check_name("network", network)
+
+
 def version_summary(v: NetworkVersion, project: str, network: str) -> dict[str, Any]:
     return {
         "ref": f"{project}/{network}@{v.number}", "project": project, "network": network,
@@ -48,42 +62,164 @@ def version_summary(v: NetworkVersion, project: str, network: str) -> dict[str, 
     }
 
 
-def import_network(store: Store, path: str | os.PathLike, *, project: str, network: str,
-                   format: str | None = None, policy: ImportPolicy | None = None, message: str = "",
-                   progress: Progress | None = None, source_label: str | None = None) -> ImportOutcome:
-    """Read ``path``, canonicalise it, and record it as the next version of ``project/network``.
+#: The store layer, which an import needs only for its final write. A front end may load it on
+#: a background thread while :func:`prepare_import` runs, and must wait for that thread before
+#: it opens the store (so that no two threads import the same package at once).
+IMPORT_LATER_MODULES = ("workspace.services.store", "workspace.services.runs",
+                        "workspace.store.repo")
+_DELIMITED = ("csv", "tsv", "edgelist")
 
-    Reading and hashing happen outside any transaction; the write is one short
-    transaction. ``source_label`` replaces the path in the stored report (the
-    path as given is kept otherwise). Content equal to the latest version creates nothing. A failed
-    read leaves the store untouched (no project, network or version is created).
+
+def load_readers() -> None:
+    """Import the file readers (numpy, pyarrow) now, before other modules load beside them."""
+    import workspace.io.canonical  # noqa: F401
+    import workspace.io.delimited  # noqa: F401
+
+
+@dataclass(frozen=True)
+class PreparedImport:
+    """A file read, canonicalised, hashed and encoded: everything an import does before the store."""
+
+    path: str
+    graph: GraphData
+    report: dict[str, Any]
+    policy: dict[str, Any]
+    format: str
+    content_hash: str
+    arrays: dict
+
+
+def prepare_import(path: str | os.PathLike, *, format: str | None = None,
+                   policy: ImportPolicy | None = None, progress: Progress | None = None,
+                   source_label: str | None = None) -> PreparedImport:
+    """Read ``path`` into canonical form, hash it and compress its arrays; touches no store.
+
+    Raises what :func:`workspace.io.read_network` raises. ``source_label`` replaces the path
+    in the report.
     """
-    from workspace.io import read_network
+    import threading
 
-    _check_name("project", project)
-    _check_name("network", network)
+    from workspace.domain import encode_node_ids
+    from workspace.io import format_from_path, read_network
+
     policy = policy or ImportPolicy()
-    graph, report = read_network(path, format=format, policy=policy, progress=progress)
-    content_hash = graph.content_hash()
+    done: dict[str, Any] = {}
+    threads: list[threading.Thread] = []
+
+    def start(target, *args, name: str) -> threading.Thread:
+        thread = threading.Thread(target=target, args=args, name=name, daemon=True)
+        thread.start()
+        threads.append(thread)
+        return thread
+
+    def load_scipy() -> None:
+        try:
+            import scipy.sparse.csgraph  # noqa: F401  the report's components
+        except BaseException:  # noqa: BLE001 - the report's own import raises it
+            pass
+
+    # scipy loads beside Arrow's parsing of a delimited file (the other readers may import scipy
+    # themselves, and one package must never be imported by two threads at once: SciPy's lazy
+    # submodules are not safe for that); the thread is joined before the report imports scipy
+    scipy_thread = None
+    try:
+        delimited = (format or format_from_path(path)) in _DELIMITED
+    except Exception:  # noqa: BLE001 - read_network reports a bad path or extension itself
+        delimited = False
+    if delimited and "scipy.sparse.csgraph" not in sys.modules:
+        load_readers()  # numpy and pyarrow on this thread first: scipy imports numpy too
+        scipy_thread = start(load_scipy, name="cutbook-load-scipy")
+
+    def hash_and_compress(graph: GraphData) -> None:
+        # runs beside the report (components, degrees, weight summary) on the other core
+        try:
+            from workspace.store.blobs import encode_graph_arrays  # numpy and zstandard only
+
+            encoded_ids = encode_node_ids(graph.node_ids)  # once, for the hash and the blobs
+
+            def content_hash() -> None:
+                try:
+                    done["hash"] = graph.content_hash(encoded_ids=encoded_ids)
+                except BaseException as exc:  # noqa: BLE001 - re-raised on the caller's thread
+                    done["error"] = exc
+
+            # sha256 and zstd both release the interpreter lock: hash while compressing
+            hasher = threading.Thread(target=content_hash, name="cutbook-content-hash",
+                                      daemon=True)
+            hasher.start()
+            done["arrays"] = encode_graph_arrays(graph, encoded_ids)
+            hasher.join()
+        except BaseException as exc:  # noqa: BLE001 - re-raised on the caller's thread
+            done["error"] = exc
+
+    def on_graph(graph: GraphData) -> None:
+        if scipy_thread is not None:
+            scipy_thread.join()  # the report imports scipy next, on this thread
+        done["thread"] = start(hash_and_compress, graph, name="cutbook-hash")
+
+    try:
+        graph, report = read_network(path, format=format, policy=policy, progress=progress,
+                                     on_graph=on_graph)
+    except BaseException:
+        for thread in threads:  # a failed read leaves no thread behind importing or hashing
+            thread.join()
+        raise
+    if scipy_thread is not None:
+        scipy_thread.join()
     report_dict = report.as_dict()
     if source_label is not None:
         report_dict["source"] = source_label
-    policy_dict = policy.as_dict()
     if progress:
         progress("store", 0, None)
-    arrays = repo.encode_graph(graph)  # compress before taking the write lock
-    with store.write(needed=sum(len(a.data) for a in arrays.values())) as s:
+    if "thread" not in done:  # a reader that never called back: do it here
+        hash_and_compress(graph)
+    else:
+        done["thread"].join()
+    if "error" in done:
+        raise done["error"]
+    content_hash, arrays = done["hash"], done["arrays"]
+    return PreparedImport(os.fspath(path), graph, report_dict, policy.as_dict(), report.format,
+                          content_hash, arrays)
+
+
+def import_network(store: Store, path: str | os.PathLike, *, project: str, network: str,
+                   format: str | None = None, policy: ImportPolicy | None = None, message: str = "",
+                   progress: Progress | None = None, source_label: str | None = None,
+                   prepared: PreparedImport | None = None) -> ImportOutcome:
+    """Read ``path``, canonicalise it, and record it as the next version of ``project/network``.
+
+    Reading and hashing happen outside any transaction (``prepared``, from
+    :func:`prepare_import` on the same arguments, skips them); the write is one short
+    transaction. ``source_label`` replaces the path in the stored report (the
+    path as given is kept otherwise). Content equal to the latest version creates nothing:
+    the outcome then names that version (``new_version=False``) but its ``report`` and
+    ``policy`` are those of the file just read, never the stored version's (which may come
+    from another file). A failed read leaves the store untouched (no project, network or
+    version is created).
+    """
+    from workspace.store import repo
+
+    _check_name("project", project)
+    _check_name("network", network)
+    if prepared is None:
+        prepared = prepare_import(path, format=format, policy=policy, progress=progress,
+                                  source_label=source_label)
+    graph, content_hash = prepared.graph, prepared.content_hash
+    report_dict, policy_dict = prepared.report, prepared.policy
+    with store.write(needed=sum(len(a.data) for a in prepared.arrays.values())) as s:
         proj = repo.get_or_create_project(s, project)
         net = repo.get_or_create_network(s, proj, network)
         latest = repo.latest_version(s, net.id)
         if latest is not None and latest.content_hash == content_hash:
-            return ImportOutcome(f"{project}/{network}@{latest.number}", latest.number, latest.n_nodes,
-                                 latest.n_edges, content_hash, False, json.loads(latest.report_json),
-                                 json.loads(latest.policy_json))
+            # report what was just read (its name, columns, notes); the stored version keeps its own
+            return ImportOutcome(f"{project}/{network}@{latest.number}", latest.number, graph.n_nodes,
+                                 graph.n_edges, content_hash, False, report_dict, policy_dict)
         v = repo.add_version(s, net, graph, parent=latest, content_hash=content_hash, message=message,
-                             source_name=source_label or os.path.basename(os.fspath(path)), source_format=report.format,
+                             source_name=source_label or os.path.basename(os.fspath(path)),
+                             source_format=prepared.format,
                              policy_json=json.dumps(policy_dict, sort_keys=True),
-                             report_json=json.dumps(report_dict, sort_keys=True), arrays=arrays)
+                             report_json=json.dumps(report_dict, sort_keys=True),
+                             arrays=prepared.arrays)
         number = v.number
     if progress:
         progress("store", 1, 1)
@@ -92,12 +228,16 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
 
 
 def list_projects(store: Store) -> list[dict[str, Any]]:
+    from workspace.store import repo
+
     with store.read() as s:
         return [{"project": r.name, "networks": r.networks, "created": r.created_at.isoformat(timespec="seconds")}
                 for r in repo.list_projects(s)]
 
 
 def list_networks(store: Store, project: str | None = None) -> list[dict[str, Any]]:
+    from workspace.store import repo
+
     with store.read() as s:
         if project is not None and repo.find_project(s, project) is None:
             raise project_not_found(s, project)
@@ -106,6 +246,8 @@ def list_networks(store: Store, project: str | None = None) -> list[dict[str, An
 
 
 def _network(s, ref: VersionRef) -> Network:
+    from workspace.store import repo
+
     net = repo.find_network(s, ref.project, ref.network)
     if net is None:
         raise network_not_found(s, ref.project, ref.network)
@@ -115,6 +257,7 @@ def _network(s, ref: VersionRef) -> Network:
 def network_not_found(s, project: str, network: str) -> NotFoundError:
     """``no network P/N`` with a 'did you mean' among the store's project/network names."""
     from workspace.services.suggest import close_names, hint
+    from workspace.store import repo
 
     names = [f"{r.project}/{r.network}" for r in repo.list_networks(s)]
     return NotFoundError(f"no network {project}/{network}{hint(close_names(f'{project}/{network}', names))}")
@@ -123,6 +266,7 @@ def network_not_found(s, project: str, network: str) -> NotFoundError:
 def project_not_found(s, project: str) -> NotFoundError:
     """``no project named 'P'`` with a 'did you mean' among the store's project names."""
     from workspace.services.suggest import close_names, hint
+    from workspace.store import repo
 
     names = [r.name for r in repo.list_projects(s)]
     return NotFoundError(f"no project named {project!r}{hint(close_names(project, names))}")
@@ -130,6 +274,8 @@ def project_not_found(s, project: str) -> NotFoundError:
 
 def resolve_version(s, ref: VersionRef) -> NetworkVersion:
     """The version row ``ref`` names (latest when it names none). For services only."""
+    from workspace.store import repo
+
     net = _network(s, ref)
     v = repo.find_version(s, net.id, ref.version)
     if v is None:
@@ -141,6 +287,8 @@ def resolve_version(s, ref: VersionRef) -> NetworkVersion:
 
 
 def list_versions(store: Store, ref: str | VersionRef) -> list[dict[str, Any]]:
+    from workspace.store import repo
+
     ref = VersionRef.parse(ref) if isinstance(ref, str) else ref
     with store.read() as s:
         net = _network(s, ref)
@@ -155,6 +303,8 @@ def list_versions(store: Store, ref: str | VersionRef) -> list[dict[str, Any]]:
 def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20) -> dict[str, Any]:
     """Everything recorded on a version, plus its structural change from its parent."""
     from workspace.io import structural_changes
+    from workspace.store import repo
+    from workspace.store.schema import NetworkVersion
 
     ref = VersionRef.parse(ref) if isinstance(ref, str) else ref
     with store.read() as s:
@@ -176,6 +326,8 @@ def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20)
 
 
 def load_graph(store: Store, ref: str | VersionRef) -> tuple[dict[str, Any], GraphData]:
+    from workspace.store import repo
+
     ref = VersionRef.parse(ref) if isinstance(ref, str) else ref
     with store.read() as s:
         v = resolve_version(s, ref)
@@ -186,6 +338,7 @@ def version_changes(store: Store, ref_a: str | VersionRef, ref_b: str | VersionR
                     limit: int | None = None) -> dict[str, Any]:
     """Nodes and edges added/removed and weights changed from version A to version B."""
     from workspace.io import structural_changes
+    from workspace.store import repo
 
     ra = VersionRef.parse(ref_a) if isinstance(ref_a, str) else ref_a
     rb = VersionRef.parse(ref_b) if isinstance(ref_b, str) else ref_b

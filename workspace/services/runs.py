@@ -12,11 +12,9 @@ import json
 import os
 import platform
 import socket
-import time
 from dataclasses import asdict, dataclass, field
-from typing import Any, Callable
+from typing import TYPE_CHECKING, Any, Callable
 
-import numpy as np
 from sqlalchemy import delete, select, update
 
 from workspace.domain import GraphData, VersionRef, canonical_labels, compact_label_dtype, membership_hash
@@ -26,6 +24,9 @@ from workspace.services.networks import resolve_version
 from workspace.store import repo
 from workspace.store.db import Store
 from workspace.store.schema import Network, NetworkVersion, Project, Run, RunCommunity, RunMeasure
+
+if TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
+    import numpy as np
 
 Progress = Callable[[str, int, int | None], None]
 MAX_REPEATS = 500
@@ -107,6 +108,8 @@ def mark_interrupted(store: Store) -> list[int]:
 
 
 def provenance() -> dict[str, Any]:
+    import numpy as np
+
     import networkx
     import scipy
 
@@ -168,6 +171,8 @@ def _perturbed(A, spread: float, seed: int, directed: bool = False):
     (Rubin 1981). Seeded: the same seed gives the same perturbed graph. A directed
     graph gets one factor per arc.
     """
+    import numpy as np
+
     import scipy.sparse as sp
 
     if directed:
@@ -197,6 +202,8 @@ def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None
     community after matching every repeat to the first by overlap), and the
     per-node stability is the share of repeats that keep the node in it.
     """
+    import numpy as np
+
     from workspace.spectral import partition
     from workspace.spectral.quality import quality_measures
 
@@ -271,6 +278,8 @@ def _new_run(spec: RunSpec, *, kind: str = "computed", label: str = "") -> Run:
 
 
 def _json_floats(obj):
+    import numpy as np
+
     if isinstance(obj, dict):
         return {k: _json_floats(v) for k, v in obj.items()}
     if isinstance(obj, (list, tuple)):
@@ -288,6 +297,8 @@ def _finish(store: Store, run_id: int | None, status: str, *, computed: Computed
             error: str | None = None, new_run: Run | None = None) -> int:
     """Record a run's outcome; with ``new_run`` (attached partitions) the run is inserted in the
     same transaction, so nothing is left half-recorded. Returns the run id."""
+    import numpy as np
+
     from workspace.store.blobs import encode_array
 
     encoded = {}
@@ -352,6 +363,8 @@ def _record_outcome(store: Store, run_id: int, status: str, **outcome) -> None:
 
 
 def _num(x):
+    import numpy as np
+
     if x is None:
         return None
     x = float(x)
@@ -361,6 +374,8 @@ def _num(x):
 def execute(store: Store, run_id: int, spec: RunSpec, graph: GraphData, *, progress: Progress | None = None,
             cancel: Callable[[], bool] | None = None) -> None:
     """Compute a recorded ``running`` run and record its outcome (done / failed / cancelled)."""
+    import numpy as np
+
     try:
         computed = compute(graph, spec, progress=progress, cancel=cancel)
     except (Cancelled, KeyboardInterrupt):
@@ -432,6 +447,8 @@ def attach(store: Store, path: str | os.PathLike, ref: str | VersionRef, *, labe
            format: str | None = None, delimiter: str | None = None) -> dict[str, Any]:
     """Store a partition read from a membership file (see :func:`workspace.io.read_membership`) as a run
     of kind ``attached``; ``format`` and ``delimiter`` are passed on to the reader."""
+    import numpy as np
+
     from workspace.io import read_membership
     from workspace.spectral.quality import quality_measures
 
@@ -537,6 +554,8 @@ def _get_run(s, run_id: int):
 
 def load_membership(store: Store, run_id: int) -> tuple[np.ndarray, np.ndarray, dict[str, Any]]:
     """(node_ids, labels int64, run summary) of a finished run."""
+    import numpy as np
+
     with store.read() as s:
         run, p, n, v = _get_run(s, run_id)
         if run.membership_blob is None:
@@ -559,14 +578,15 @@ def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict
             psv = s.get(ParamSetVersion, run.param_set_version_id)
             ps = s.get(ParamSet, psv.param_set_id)
             psv_ref = f"{p}/{ps.name}@{psv.number}"
-        eig = repo.get_array(s, run.eigenvalues_blob) if run.eigenvalues_blob else np.empty(0)
+        # a few numbers: read without numpy, which `cutbook show RUN` then never loads
+        eig = repo.get_values(s, run.eigenvalues_blob) if run.eigenvalues_blob else []
         comms = s.scalars(select(RunCommunity).where(RunCommunity.run_id == run_id)
                           .order_by(RunCommunity.community)).all()
         out.update({
             "params": json.loads(run.params_json), "param_set": psv_ref, "rerun_of": run.rerun_of,
             "error": run.error, "quality": json.loads(run.quality_json),
             "diagnostics": json.loads(run.diagnostics_json), "warnings": json.loads(run.warnings_json),
-            "provenance": json.loads(run.provenance_json), "eigenvalues": eig.tolist(),
+            "provenance": json.loads(run.provenance_json), "eigenvalues": eig,
             "communities": [{"community": c.community, "size": c.size, "volume": c.volume, "cut": c.cut,
                              "conductance": c.conductance, "stability": c.stability} for c in comms],
             "host": run.host, "pid": run.pid,
@@ -577,6 +597,8 @@ def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict
         if run.started_at and run.finished_at:
             out["wall_time_s"] = (run.finished_at - run.started_at).total_seconds()
         if include_labels and run.membership_blob:
+            import numpy as np
+
             version = s.get(NetworkVersion, run.version_id)
             ids = repo.load_node_ids(s, version)
             labels = repo.get_array(s, run.membership_blob).astype(np.int64)
@@ -615,6 +637,8 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
 
 def _networks_holding(store: Store, node: str, *, exclude: str) -> list[str]:
     """Names of the networks (other than ``exclude``) with a version that has the node."""
+    import numpy as np
+
     held = []
     with store.read() as s:
         for project_name, net in s.execute(select(Project.name, Network).select_from(Network)
@@ -637,6 +661,8 @@ def where_node(store: Store, node: str, network: str | None = None) -> dict[str,
     With ``network`` None every network of the store is searched. A node found
     nowhere raises NotFoundError with case-insensitive and prefix suggestions.
     """
+    import numpy as np
+
     from workspace.services.suggest import MAX_SUGGESTIONS, close_node_ids, hint
 
     vref = None

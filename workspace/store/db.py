@@ -10,7 +10,6 @@ code.
 from __future__ import annotations
 
 import os
-import shutil
 import sqlite3
 from contextlib import contextmanager
 from datetime import datetime, timezone

@@ -4,14 +4,18 @@ the services own the transaction."""
 from __future__ import annotations
 
 from datetime import datetime, timezone
+from typing import TYPE_CHECKING
 
-import numpy as np
 from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
-from workspace.domain import GraphData, decode_node_ids, encode_node_ids
-from workspace.store.blobs import EncodedArray, decode_array, encode_array
+from workspace.domain import GraphData, decode_node_ids
+from workspace.store.blobs import (GRAPH_ARRAYS, EncodedArray, decode_array, decode_values, encode_array,
+                                   encode_graph_arrays)
 from workspace.store.schema import Blob, Network, NetworkVersion, Project
+
+if TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
+    import numpy as np
 
 
 def utcnow() -> datetime:
@@ -41,6 +45,12 @@ def put_encoded(session: Session, enc: EncodedArray) -> str:
 def get_array(session: Session, blob_hash: str) -> np.ndarray:
     row = session.execute(select(Blob.codec, Blob.data, Blob.raw_size).where(Blob.hash == blob_hash)).one()
     return decode_array(row.codec, row.data, row.raw_size)
+
+
+def get_values(session: Session, blob_hash: str) -> list:
+    """A stored 1-D array as a Python list, without loading numpy (small arrays)."""
+    row = session.execute(select(Blob.codec, Blob.data, Blob.raw_size).where(Blob.hash == blob_hash)).one()
+    return decode_values(row.codec, row.data, row.raw_size)
 
 
 # --- projects and networks -----------------------------------------------------
@@ -109,13 +119,9 @@ def list_versions(session: Session, network_id: int) -> list[NetworkVersion]:
                                 .order_by(NetworkVersion.number)))
 
 
-GRAPH_ARRAYS = ("node_offsets_blob", "node_bytes_blob", "edge_u_blob", "edge_v_blob", "weight_blob")
-
-
 def encode_graph(graph: GraphData) -> dict[str, EncodedArray]:
     """The five encoded arrays of a version (do this before opening the write transaction)."""
-    offsets, data = encode_node_ids(graph.node_ids)
-    return dict(zip(GRAPH_ARRAYS, map(encode_array, (offsets, data, graph.edge_u, graph.edge_v, graph.weight))))
+    return encode_graph_arrays(graph)
 
 
 def add_version(session: Session, network: Network, graph: GraphData, *, parent: NetworkVersion | None,

@@ -1,0 +1,121 @@
+"""Id factorisation: node order, indices and content hash on ids that are easy to get wrong.
+
+References, all outside the code under test:
+- node order is Python's ``sorted`` on ``str`` (code point order, Python language reference,
+  "Value comparisons"); UTF-8 byte order equals code point order (RFC 3629, 2003, section 1),
+  which the Arrow-side sort relies on - ids from the astral plane (4-byte UTF-8, surrogate pairs
+  in UTF-16) are where a UTF-16 order would differ;
+- the edges are those ``networkx.parse_edgelist`` reads from the same lines;
+- the content hash is recomputed here with ``hashlib.sha256`` from the layout documented in
+  ``GraphData.content_hash`` (tag, n and m, offsets, UTF-8 bytes, u, v, weights).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import struct
+
+import networkx as nx
+import numpy as np
+import pytest
+
+from workspace.domain import ImportPolicy
+from workspace.io import read_network
+from workspace.io.canonical import encode_ids
+
+TRICKY = [
+    "007", "7", "10", "9", "-1", "1e3", "+5", "0x1F", "1.0",         # look numeric, are strings
+    "B", "a", "a b", "ab", "a-b", "Z", "_",                          # case, blanks, punctuation
+    "é", "e\u0301", "Ærø", "ß", "ss", "中文", "日本", "Ω",            # non-ASCII, combining mark
+    "\U0001F600", "\uFF5E", "\uE000", "𝔘",                           # astral plane vs BMP
+    "L" * 4000, "L" * 3999 + "M", "k" + "é" * 1000,                  # long ids
+]
+
+
+def _edges(ids: list[str]) -> list[tuple[str, str, float]]:
+    rng = np.random.default_rng(7)
+    out = []
+    for i, a in enumerate(ids):  # a ring plus random chords: every id is used
+        out.append((a, ids[(i + 1) % len(ids)], float(i % 5 + 1)))
+    for a, b in rng.integers(0, len(ids), size=(40, 2)).tolist():
+        if a != b:
+            out.append((ids[a], ids[b], 2.5))
+    return out
+
+
+def _expected_hash(nodes: list[str], edges: dict[tuple[int, int], float]) -> str:
+    """sha256 over the documented canonical layout, built without the code under test."""
+    h = hashlib.sha256(b"cutbook-graph-1\0")
+    h.update(struct.pack("<qq", len(nodes), len(edges)))
+    encoded = [n.encode("utf-8") for n in nodes]
+    offsets = [0]
+    for e in encoded:
+        offsets.append(offsets[-1] + len(e))
+    h.update(struct.pack(f"<{len(offsets)}q", *offsets))
+    h.update(b"".join(encoded))
+    keys = sorted(edges)
+    h.update(struct.pack(f"<{len(keys)}q", *[u for u, _ in keys]))
+    h.update(struct.pack(f"<{len(keys)}q", *[v for _, v in keys]))
+    h.update(struct.pack(f"<{len(keys)}d", *[edges[k] for k in keys]))
+    return h.hexdigest()
+
+
+@pytest.mark.parametrize("delimiter, ext", [(",", "csv"), ("\t", "tsv")])
+def test_tricky_ids_order_indices_and_hash(tmp_path, delimiter, ext):
+    rows = _edges(TRICKY)
+    lines = [f'"{a}"{delimiter}"{b}"{delimiter}{w}' if delimiter == "," else f"{a}\t{b}\t{w}"
+             for a, b, w in rows]
+    path = tmp_path / f"tricky.{ext}"
+    path.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    graph, _ = read_network(path, policy=ImportPolicy(weight=2, duplicates="max", header="no"))
+
+    reference = nx.Graph()  # networkx.parse_edgelist on the same records, max rule by hand
+    for a, b, w in rows:
+        if reference.has_edge(a, b):
+            w = max(w, reference[a][b]["weight"])
+        reference.add_edge(a, b, weight=w)
+    nodes = sorted(reference.nodes)  # code point order
+    assert [str(x) for x in graph.node_ids] == nodes
+    index = {n: i for i, n in enumerate(nodes)}
+    got = {(int(u), int(v)): float(w) for u, v, w in zip(graph.edge_u, graph.edge_v, graph.weight)}
+    want = {tuple(sorted((index[a], index[b]))): d["weight"] for a, b, d in reference.edges(data=True)}
+    assert got == want
+    assert graph.content_hash() == _expected_hash(nodes, want)
+
+
+def test_encode_ids_maps_every_record_to_its_own_id():
+    import pyarrow as pa
+
+    rng = np.random.default_rng(11)
+    pool = TRICKY + [f"n{i}" for i in range(200)]
+    src = [pool[i] for i in rng.integers(0, len(pool), 500)]
+    dst = [pool[i] for i in rng.integers(0, len(pool), 500)]
+    extra = pa.array(["zz-only-declared", "007"], pa.string())
+    # several chunks, as the CSV reader produces them
+    source = pa.chunked_array([pa.array(src[:200]), pa.array(src[200:])])
+    target = pa.chunked_array([pa.array(dst[:1]), pa.array(dst[1:350]), pa.array(dst[350:])])
+    node_ids, u, v = encode_ids(source, target, extra)
+    expected = sorted(set(src) | set(dst) | {"zz-only-declared", "007"})
+    assert [str(x) for x in node_ids] == expected
+    assert [str(node_ids[i]) for i in u] == src and [str(node_ids[i]) for i in v] == dst
+    assert u.dtype == np.int64 and v.dtype == np.int64
+
+
+def test_ascii_and_non_ascii_paths_give_the_same_array_type():
+    import pyarrow as pa
+
+    ascii_ids, _, _ = encode_ids(pa.array(["b", "abc"]), pa.array(["a", "b"]), None)
+    wide_ids, _, _ = encode_ids(pa.array(["b", "abé"]), pa.array(["a", "b"]), None)
+    assert ascii_ids.dtype == np.dtype("<U3") and wide_ids.dtype == np.dtype("<U3")
+    assert ascii_ids.tolist() == ["a", "abc", "b"] and wide_ids.tolist() == ["a", "abé", "b"]
+    sliced = pa.array(["x", "yy", "b", "a"]).slice(2)  # an array with a non-zero offset
+    ids, u, v = encode_ids(sliced, pa.array(["c", "a"]), None)
+    assert ids.tolist() == ["a", "b", "c"] and u.tolist() == [1, 0] and v.tolist() == [2, 0]
+
+
+def test_a_line_longer_than_the_parser_block_is_read(tmp_path):
+    # a 5 MiB third column: longer than the 4 MiB blocks the CSV reader starts with
+    path = tmp_path / "long.csv"
+    path.write_text("a,b," + "x" * (5 << 20) + "\nb,c,y\n", encoding="utf-8")
+    graph, _ = read_network(path, policy=ImportPolicy(header="no"))
+    assert graph.node_ids.tolist() == ["a", "b", "c"] and graph.n_edges == 2
