@@ -64,11 +64,16 @@ def test_large_arrays_are_stored_as_the_same_npy_stream(tmp_path):
         assert np.array_equal(decode_array(blob.codec, blob.data, blob.raw_size), array)
 
 
-def test_a_bad_file_leaves_no_store_behind(cli, tmp_path, store_path):
+def test_a_bad_file_leaves_no_store_behind(tmp_path, capsys):
+    from workspace.cli import main
+
+    fresh = tmp_path / "fresh" / "store.sqlite"
+    fresh.parent.mkdir()
     bad = _write(tmp_path, "a,b,1\nb,c,not-a-number\n")
-    r = cli("import", bad, "--project", "p", "--network", "n", "--weight", "2")
-    assert r.code != 0 and f"{bad}:2:" in r.err and "not a number" in r.err
-    assert not store_path.exists()  # the file is read before the store is opened or created
+    code = main(["--store", str(fresh), "import", str(bad), "--project", "p", "--network", "n", "--weight", "2"])
+    err = capsys.readouterr().err
+    assert code != 0 and f"{bad}:2:" in err and "not a number" in err
+    assert not fresh.exists()  # the file is read before the store is opened or created
 
 
 def test_a_bad_name_is_refused_before_the_file_is_read(cli, tmp_path, store_path):
