@@ -111,10 +111,22 @@ def inspect_sqlite_file(path: Path) -> str:
     page_size = int.from_bytes(head[16:18], "big")
     page_size = 65536 if page_size == 1 else page_size
     pages = int.from_bytes(head[28:32], "big")
-    if pages and head[24:28] == head[92:96] and size < pages * page_size:
+    if (pages and head[24:28] == head[92:96] and size < pages * page_size
+            and not _writer_may_be_active(path)):
         raise faults.damaged(os.fspath(path), f"the file is cut short: {size} of its {pages * page_size} bytes",
                              verify=False)
     return "present"
+
+
+def _writer_may_be_active(path: Path) -> bool:
+    """A ``-wal`` or ``-journal`` file beside the store: another process may be writing.
+
+    The header's page count and the file size are read without SQLite's locks, so while a
+    writer extends the file or a checkpoint copies pages back, the two can disagree for a
+    moment. Then the size test proves nothing and SQLite (under its locks) has the last word:
+    a store that really is cut short still fails there, as "damaged", through the fault mapping.
+    """
+    return any(Path(f"{path}{suffix}").exists() for suffix in ("-wal", "-journal"))
 
 
 def migrations_dir() -> Path:
