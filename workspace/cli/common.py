@@ -100,6 +100,23 @@ def warm_imports(*modules: str):
     return thread
 
 
+def confirmed(what: str, question: str, answer: str) -> bool:
+    """Ask on the terminal before a deletion; True only when ``answer`` is typed back.
+
+    Without a terminal (scripts, pipes) this raises a usage error that names ``--yes``,
+    so nothing is ever deleted unasked. ``question`` may hold several lines.
+    """
+    import sys
+
+    from workspace.errors import UsageError
+
+    if not sys.stdin.isatty():
+        raise UsageError(f"deleting {what} needs confirmation: run it in a terminal or add --yes")
+    sys.stderr.write(f"{question}\ntype {answer} and press Enter to delete (anything else keeps it): ")
+    sys.stderr.flush()
+    return " ".join(sys.stdin.readline().split()) == answer
+
+
 @contextmanager
 def progress_bar(enabled: bool = True):
     bar = ProgressBar(enabled)
@@ -109,4 +126,4 @@ def progress_bar(enabled: bool = True):
         bar.close()
 
 
-__all__ = ["session", "progress_bar", "warm_imports", "emit_json", "Out", "demo_hint"]
+__all__ = ["confirmed", "session", "progress_bar", "warm_imports", "emit_json", "Out", "demo_hint"]

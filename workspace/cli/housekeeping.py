@@ -2,28 +2,21 @@
 
 from __future__ import annotations
 
-import sys
 
-from workspace.cli.common import emit_json, session
+from workspace.cli.common import confirmed, emit_json, session
 from workspace.cli.output import fmt
 
 
 def cmd_delete_run(args) -> int:
-    from workspace.errors import UsageError
     from workspace.services.delete import delete_runs, describe_runs
 
     with session(args, writes=True, create=False) as (store, out):
         what = describe_runs(store, args.runs)
         ids = " ".join(str(r["run"]) for r in what["runs"])
         if not args.yes:
-            if not sys.stdin.isatty():
-                raise UsageError(f"deleting run {ids} needs confirmation: run it in a terminal or add --yes")
-            for r in what["runs"]:
-                sys.stderr.write(f"  run {r['run']}  {r['status']}  {r['method']} on {r['ref']}\n")
-            sys.stderr.write(f"delete {len(what['runs'])} run(s) with their measures and annotations?\n"
-                             f"type {ids} and press Enter to delete (anything else keeps them): ")
-            sys.stderr.flush()
-            if " ".join(sys.stdin.readline().split()) != ids:
+            listing = "".join(f"  run {r['run']}  {r['status']}  {r['method']} on {r['ref']}\n" for r in what["runs"])
+            if not confirmed(f"run {ids}", f"{listing}delete {len(what['runs'])} run(s) with their measures and "
+                             "annotations?", ids):
                 out.note("cutbook: nothing deleted")
                 return 1
         res = delete_runs(store, args.runs)

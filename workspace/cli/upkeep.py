@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from workspace.cli.common import emit_json, session
+from workspace.cli.common import confirmed, emit_json, session
 
 
 def cmd_verify(args) -> int:
@@ -21,22 +21,16 @@ def cmd_verify(args) -> int:
 
 
 def cmd_delete(args) -> int:
-    import sys
 
-    from workspace.errors import UsageError
     from workspace.services.delete import delete_target, describe_target
 
     with session(args, writes=True, create=False) as (store, out):
         what = describe_target(store, args.target)
         if not args.yes:
-            if not sys.stdin.isatty():
-                raise UsageError(f"deleting {args.target} needs confirmation: run it in a terminal or add --yes")
-            sys.stderr.write(f"delete {what['kind']} {args.target}: {what['networks']} network(s), "
-                             f"{what['versions']} version(s), {what['runs']} run(s), "
-                             f"{what['parameter_sets']} parameter set(s)?\n"
-                             f"type {args.target} and press Enter to delete (anything else keeps it): ")
-            sys.stderr.flush()
-            if sys.stdin.readline().strip() != args.target:
+            question = (f"delete {what['kind']} {args.target}: {what['networks']} network(s), "
+                        f"{what['versions']} version(s), {what['runs']} run(s), "
+                        f"{what['parameter_sets']} parameter set(s)?")
+            if not confirmed(args.target, question, args.target):
                 out.note("cutbook: nothing deleted")
                 return 1
         res = delete_target(store, args.target)
