@@ -15,10 +15,11 @@ import socket
 from dataclasses import asdict, dataclass, field
 from typing import TYPE_CHECKING, Any, Callable
 
-from sqlalchemy import delete, select, update
+from sqlalchemy import delete, select
 
 from workspace.domain import GraphData, VersionRef, canonical_labels, compact_label_dtype, membership_hash
 from workspace.errors import Cancelled, ComputeError, CutbookError, NotFoundError, ParameterError, UsageError
+from workspace.services.liveness import _process_token, mark_interrupted  # noqa: F401 (mark_interrupted: public here too)
 from workspace.services import params as params_service
 from workspace.services.networks import resolve_version
 from workspace.store import repo
@@ -64,47 +65,6 @@ class Computed:
     diagnostics: dict[str, Any]
     stability_counts: np.ndarray | None = None
     extra: dict[str, Any] = field(default_factory=dict)
-
-
-# --- process identity (for detecting interrupted runs) ----------------------------------
-
-def _process_token(pid: int) -> str | None:
-    """pid plus the process start time from /proc, so a reused pid is not mistaken for ours."""
-    try:
-        with open(f"/proc/{pid}/stat", "rb") as fh:
-            stat = fh.read().decode(errors="replace")
-        return f"{pid}:{stat.rsplit(')', 1)[1].split()[19]}"
-    except (OSError, IndexError):
-        return None
-
-
-def _process_alive(pid: int, token: str | None) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:
-        return True
-    if token is not None:
-        current = _process_token(pid)
-        if current is not None and current != token:
-            return False
-    return True
-
-
-def mark_interrupted(store: Store) -> list[int]:
-    """Mark ``running`` runs of this host whose process is gone as ``interrupted``."""
-    host = socket.gethostname()
-    with store.read() as s:
-        rows = s.execute(select(Run.id, Run.pid, Run.process_token)
-                         .where(Run.status == "running", Run.host == host)).all()
-    gone = [r.id for r in rows if r.pid is not None and not _process_alive(r.pid, r.process_token)]
-    if gone:
-        with store.write() as s:
-            s.execute(update(Run).where(Run.id.in_(gone), Run.status == "running").values(
-                status="interrupted", finished_at=repo.utcnow(),
-                error="the process running it stopped before it finished"))
-    return gone
 
 
 def provenance() -> dict[str, Any]:

@@ -138,7 +138,7 @@ def _finish_open(url: str, probed, *, notify, create: bool, readonly: str | None
             notify(f"cutbook: store upgraded to the current schema; previous copy kept at {backup}")
     opened = Store(url, engine, readonly=readonly)
     if readonly is None:
-        from workspace.services.runs import mark_interrupted
+        from workspace.services.liveness import mark_interrupted
 
         try:
             gone = mark_interrupted(opened)
