@@ -160,24 +160,10 @@ def prepare_run(store: Store, ref: str | VersionRef, *, params_ref: str | None =
 # --- computing (no store access) ------------------------------------------------------------
 
 def _perturbed(A, spread: float, seed: int):
-    """Multiply each undirected edge's weight by independent Gamma noise with mean 1 and sd ``spread``.
+    """Seeded multiplicative edge-weight noise (see :func:`workspace.spectral.sweep.perturbed_adjacency`)."""
+    from workspace.spectral.sweep import perturbed_adjacency
 
-    Every edge keeps a positive weight, so the graph's components never change
-    (dropping edges instead would split sparse graphs into many pieces). With
-    ``spread`` = 1 the factors are Exp(1): the Bayesian bootstrap of edge weights
-    (Rubin 1981). Seeded: the same seed gives the same perturbed graph.
-    """
-    import scipy.sparse as sp
-
-    upper = sp.triu(A, k=0, format="coo")
-    shape = 1.0 / spread**2
-    factor = np.random.default_rng([seed, 0x5EED]).gamma(shape, 1.0 / shape, size=upper.nnz)
-    r, c, w = upper.row, upper.col, upper.data * factor
-    off = r != c
-    B = sp.csr_array((np.concatenate([w, w[off]]), (np.concatenate([r, c[off]]), np.concatenate([c, r[off]]))),
-                     shape=A.shape)
-    B.sum_duplicates()
-    return B
+    return perturbed_adjacency(A, spread, seed)
 
 
 def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None,
