@@ -29,8 +29,6 @@ IEEE TPAMI 22(8); Qin & Rohe (2013), NIPS 26; Saade, Krzakala & Zdeborová
 
 from __future__ import annotations
 
-import hashlib
-import json
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -42,7 +40,7 @@ from workspace.errors import ComputeError
 from .eigen import EigenSolution, SolverContext, SymmetricOperator, largest_eigenpairs, shifted_laplacian_operator
 from .laplacians import degrees
 
-__all__ = ["EMBEDDING_METHODS", "Embedding", "operator_for", "solve_embedding", "embedding_key"]
+__all__ = ["EMBEDDING_METHODS", "Embedding", "operator_for", "solve_embedding", "embedding_fields"]
 
 #: Methods whose runs can take their eigenvectors from a shared embedding.
 EMBEDDING_METHODS = ("njw", "shi-malik", "regularized", "bethe")
@@ -80,26 +78,18 @@ def operator_for(method: str, params: dict[str, Any]) -> tuple[str, dict[str, An
     return name, {key: params[key] for key in _OPERATOR_PARAMS[method]}
 
 
-def embedding_key(version_hash: str, method: str, params: dict[str, Any], n_vectors: int,
-                  seed: int) -> tuple[str, dict[str, Any]]:
-    """Content key of an embedding: sha256 over everything that determines its bits.
+def embedding_fields(method: str, params: dict[str, Any], n_vectors: int, seed: int) -> dict[str, Any]:
+    """Everything besides the graph that determines an embedding's bits (JSON types).
 
-    The fields are the graph (``version_hash``, the content hash of a network
-    version), the operator and its parameters, the number of vectors, the
-    start-vector seed and the solver settings (tolerance, dense threshold,
-    matvec budget, extra eigenvalues, component policy).
-
-    Returns
-    -------
-    (str, dict)
-        The hex key and the fields it was computed from (JSON types).
+    The operator and its parameters, the number of vectors, the start-vector
+    seed and the solver settings (tolerance, dense threshold, matvec budget,
+    extra eigenvalues, component policy); threads and time limits do not
+    change the result. A store keys its cached embeddings by these fields
+    plus the graph's content hash.
     """
     operator, op_params = operator_for(method, params)
-    fields = {"version": version_hash, "operator": operator, "operator_params": op_params,
-              "n_vectors": int(n_vectors), "seed": int(seed),
-              "solver": {key: params[key] for key in _SOLVER_PARAMS if key in params}}
-    text = json.dumps(fields, sort_keys=True, separators=(",", ":"))
-    return hashlib.sha256(text.encode()).hexdigest(), fields
+    return {"operator": operator, "operator_params": op_params, "n_vectors": int(n_vectors), "seed": int(seed),
+            "solver": {key: params[key] for key in _SOLVER_PARAMS if key in params}}
 
 
 @dataclass(frozen=True, eq=False)
