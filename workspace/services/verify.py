@@ -8,7 +8,7 @@ from sqlalchemy import select, text
 
 from workspace.store.blobs import array_hash, decode_array
 from workspace.store.db import Store
-from workspace.store.schema import Blob, Network, NetworkVersion, Project, Run
+from workspace.store.schema import Blob, Embedding, Network, NetworkVersion, Project, Run
 
 _VERSION_BLOBS = ("node_offsets_blob", "node_bytes_blob", "edge_u_blob", "edge_v_blob", "weight_blob")
 _RUN_BLOBS = ("membership_blob", "stability_blob", "eigenvalues_blob")
@@ -21,6 +21,9 @@ def _owners(s) -> dict[str, list[str]]:
     for v, net, proj in s.execute(q).all():
         for col in _VERSION_BLOBS:
             owners.setdefault(getattr(v, col), []).append(f"version {proj}/{net}@{v.number} ({col[:-5]})")
+    for emb in s.scalars(select(Embedding)).all():
+        for col in ("values_blob", "vectors_blob"):
+            owners.setdefault(getattr(emb, col), []).append(f"embedding {emb.key[:12]} ({col[:-5]})")
     for run in s.scalars(select(Run)).all():
         for col in _RUN_BLOBS:
             h = getattr(run, col)

@@ -27,7 +27,7 @@ from workspace.errors import ConflictError, StoreError
 BUSY_TIMEOUT_MS = 60_000
 # The newest migration's revision id. Checking a store against it needs no Alembic import, which
 # keeps every command's start-up short; tests/store checks it equals Alembic's own head.
-HEAD_REVISION = "0002"
+HEAD_REVISION = "0003"
 ENV_STORE = "CUTBOOK_STORE"
 
 
