@@ -197,6 +197,9 @@ def embedding_for(store: Store, version_id: int, graph, method: str, params: dic
         version_hash = s.get(NetworkVersion, version_id).content_hash
     key = embedding_key(version_hash, fields)
     emb = cached_embedding(store, key)
+    if emb is None:  # an embedding with more vectors and otherwise the same fields serves as well
+        key = _wider_cached(store, version_id, fields) or key
+        emb = cached_embedding(store, key)
     reused = emb is not None
     if emb is None:
         emb = compute_embedding(graph.adjacency(), method, n_vectors, seed=seed, progress=progress, cancel=cancel,
@@ -206,6 +209,22 @@ def embedding_for(store: Store, version_id: int, graph, method: str, params: dic
         _store_embedding(store, version_id, key, fields, emb)
     return emb, {"key": key, "cached": True, "reused_from_cache": reused, "n_vectors": emb.n_vectors,
                  "seed": int(seed), "operator": emb.operator}
+
+
+def _wider_cached(store: Store, version_id: int, fields: dict[str, Any]) -> str | None:
+    """Key of the narrowest cached embedding of this version with at least ``fields["n_vectors"]`` vectors
+    and every other field equal (its first columns are what a solve for fewer would approximate)."""
+    want = {k: v for k, v in fields.items() if k != "n_vectors"}
+    best = None
+    with store.read() as s:
+        rows = s.execute(select(EmbeddingRow.key, EmbeddingRow.n_vectors, EmbeddingRow.fields_json)
+                         .where(EmbeddingRow.version_id == version_id,
+                                EmbeddingRow.n_vectors >= fields["n_vectors"])).all()
+    for key, n_vectors, fields_json in rows:
+        other = {k: v for k, v in json.loads(fields_json).items() if k != "n_vectors"}
+        if other == want and (best is None or n_vectors < best[1]):
+            best = (key, n_vectors)
+    return None if best is None else best[0]
 
 
 def embedding_for_rerun(store: Store, info: dict[str, Any]):
@@ -324,7 +343,7 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
              if (k, _value_key(value), r) not in done]
     total = len(tasks)
     t0 = time.monotonic()
-    state = {"done": 0, "task": "", "stage": ""}
+    state: dict[str, Any] = {"done": 0, "task": "", "stage": "", "run": None}
     failures: list[str] = []
 
     def report(stage: str) -> None:
@@ -383,14 +402,21 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
                     store, run_spec, provenance_extra=extra,
                     after_insert=lambda s, rid, k=k, value=value, r=r: s.add(SweepRun(
                         sweep_id=sweep_id, run_id=rid, k=k, value_json=_value_key(value), repeat=r)))
+                state["run"] = run_id
                 try:
                     runs_service.execute(store, run_id, run_spec, graph, progress=run_progress, cancel=cancel,
                                          embedding=emb)
                 except ComputeError as exc:
                     failures.append(f"{state['task']}: {exc}")
+                state["run"] = None
                 state["done"] += 1
                 report("stored")
     except (Cancelled, KeyboardInterrupt):
+        if state.get("run") is not None:   # interrupted between recording the run and computing it
+            try:
+                runs_service._finish(store, state["run"], "cancelled", error="cancelled by the user")
+            except ComputeError:
+                pass                       # execute() already recorded its outcome
         _set_status(store, sweep_id, "cancelled", f"cancelled after {state['done']} of {total} tasks")
         raise Cancelled(f"sweep {sweep_id} cancelled after {state['done']} of {total} tasks; "
                         "finished runs are kept (extend the sweep to continue)") from None
