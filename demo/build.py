@@ -82,6 +82,9 @@ def build_demo(store: Store, *, say: Callable[[str], None] = lambda s: None) -> 
         sw = sweeps.sweep(store, sweeps.prepare_sweep(store, f"{CITY}/stations@4", method="njw", ks="2..10",
                                                       seeds=5))
         summary["sweeps"] = {"riding-areas@4": sw["sweep"]}
+        for point in sw["points"]:
+            for repeat, run_id in enumerate(point["runs"]):
+                ids[f"riding-areas k={point['k']} repeat {repeat}@4"] = run_id
         say(f"sweep {sw['sweep']}: njw k=2..10 x 5 seeds on {sw['ref']} ({sw['tasks']['done']} runs) -> "
             f"recommended k={sw['recommended_k']}")
     return summary

@@ -37,16 +37,17 @@ INK_THEME = Theme(
 )
 
 SCREEN_NAMES = {"ledger": "Ledger", "launch": "Launch", "spectrum": "Spectrum", "diff": "Diff",
-                "lookup": "Node lookup"}
+                "lookup": "Node lookup", "sweep": "Sweep"}
 SCREEN_CLASSES = {"ledger": ("ledger", "LedgerScreen"), "launch": ("launch", "LaunchScreen"),
                   "spectrum": ("spectrum", "SpectrumScreen"), "diff": ("diff", "DiffScreen"),
-                  "lookup": ("lookup", "LookupScreen")}
+                  "lookup": ("lookup", "LookupScreen"), "sweep": ("sweep", "SweepScreen")}
 SCREEN_HELP = {
     "ledger": "browse projects, networks, versions and runs",
     "launch": "start a run from a parameter set or the method's form",
     "spectrum": "eigenvalues with the largest gap, community sizes",
     "diff": "compare two runs: scores, matches, events, moved nodes",
     "lookup": "where a node sits across runs and versions",
+    "sweep": "quality and stability against k, recommended k, how communities split",
 }
 
 
@@ -112,6 +113,7 @@ class CutbookApp(App):
         Binding("3", "goto('spectrum')", "Spectrum"),
         Binding("4", "goto('diff')", "Diff"),
         Binding("5", "goto('lookup')", "Lookup"),
+        Binding("6", "goto('sweep')", "Sweep"),
         Binding("ctrl+q", "quit", "Quit", priority=True),
         Binding("escape", "leave_field", "Leave field", show=False),
     ]

@@ -32,6 +32,7 @@ class LaunchScreen(Screen):
         Binding("ctrl+r", "start", "Start run", priority=True),
         Binding("ctrl+t", "stop", "Stop run", priority=True),
         Binding("ctrl+s", "save_set", "Save parameter set", priority=True),
+        Binding("ctrl+w", "sweep", "Sweep k", priority=True),
     ]
 
     def __init__(self) -> None:
@@ -62,6 +63,9 @@ class LaunchScreen(Screen):
                     yield Input("0", id="launch-seed", type="integer")
                     yield Label("repeats", classes="name short")
                     yield Input("1", id="launch-repeats", type="integer")
+                with Horizontal(classes="field-row"):
+                    yield Label("sweep k", classes="name")
+                    yield Input("", id="launch-sweep-k", placeholder="e.g. 2..10 (ctrl+w; repeats = seeds)")
                 with Horizontal(classes="field-row"):
                     yield Label("save as", classes="name")
                     yield Input("", id="launch-save-name", placeholder="name for a new parameter set")
@@ -240,6 +244,12 @@ class LaunchScreen(Screen):
         self.query_one("#run-outcome", Static).update("")
         self.query_one("#run-state", Static).update(f"starting a process for {spec.method} on {spec.version_ref} …")
         self._sync_job_state()
+
+    def action_sweep(self) -> None:
+        """Start a sweep over the k typed in 'sweep k' (see workspace/tui/screens/sweep.py)."""
+        from workspace.tui.screens.sweep import launch_sweep_from
+
+        launch_sweep_from(self)
 
     def action_stop(self) -> None:
         if self.app.job is None or self.app.job.finished:
