@@ -97,6 +97,16 @@ class SweepScreen(Screen):
     """One sweep: plot, table of measures per k, recommendation with reasons, split view."""
 
     TITLE = "Sweep"
+    # local layout (kept beside the screen so the shared stylesheet needs no edit)
+    DEFAULT_CSS = """
+    #sweep-top { height: 3; }
+    #sweep-top Input { width: 16; }
+    #sweep-summary { padding: 1 0 0 1; color: #9aa3ad; }
+    #sweep-body .pane { height: auto; }
+    #sweep-plot { height: 12; }
+    #sweep-table { height: auto; max-height: 16; }
+    #sweep-bar { width: 1fr; }
+    """
     BINDINGS = [
         Binding("left_square_bracket", "step(-1)", "Older sweep"),
         Binding("right_square_bracket", "step(1)", "Newer sweep"),
@@ -140,6 +150,8 @@ class SweepScreen(Screen):
 
     def on_mount(self) -> None:
         self._ready = True
+        for pane in self.query("#sweep-body .pane"):   # the shared stylesheet makes panes fill; these stack
+            pane.styles.height = "auto"
         table = self.query_one("#sweep-table", DataTable)
         table.add_columns("k", "value", "run", "modularity", "ncut", "conductance", "coverage", "eigengap",
                           "ARI mean", "ARI sd", "VI mean", "VI sd", "")
