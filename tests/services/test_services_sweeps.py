@@ -179,3 +179,14 @@ def test_delete_keeps_runs_and_verify_catches_a_damaged_embedding(store, planted
     found = verify_store(store)
     assert not found["ok"]
     assert any(f.get("blob") == vec and any("embedding" in w for w in f["belongs_to"]) for f in found["findings"])
+
+
+def test_verify_checks_embedding_shapes(store, planted, store_path):
+    sweeps.sweep(store, sweeps.prepare_sweep(store, "lab/sbm", method="njw", ks="2..3"))
+    assert verify_store(store)["ok"]
+    con = sqlite3.connect(store_path)
+    con.execute("UPDATE embeddings SET n_vectors = n_vectors + 1")   # a record that no longer fits its arrays
+    con.commit()
+    con.close()
+    found = verify_store(store)
+    assert not found["ok"] and [f["kind"] for f in found["findings"]] == ["embedding"]

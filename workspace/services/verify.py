@@ -60,6 +60,14 @@ def verify_store(store: Store) -> dict[str, Any]:
             if not ok:
                 findings.append({"kind": "blob", "blob": b.hash, "detail": detail,
                                  "belongs_to": owners.get(b.hash, ["(no owner)"])})
+        for emb in s.scalars(select(Embedding)).all():  # cached embeddings: shapes agree with their arrays
+            lengths = dict(s.execute(select(Blob.hash, Blob.length)
+                                     .where(Blob.hash.in_([emb.values_blob, emb.vectors_blob]))).all())
+            if emb.vectors_blob in lengths and lengths[emb.vectors_blob] != emb.n_rows * emb.n_vectors or \
+                    emb.values_blob in lengths and lengths[emb.values_blob] < emb.n_vectors:
+                findings.append({"kind": "embedding", "blob": emb.vectors_blob,
+                                 "detail": f"arrays do not hold {emb.n_rows} x {emb.n_vectors} values",
+                                 "belongs_to": [f"embedding {emb.key[:12]}"]})
         for h, who in owners.items():
             if s.get(Blob, h) is None:
                 findings.append({"kind": "missing_blob", "blob": h, "belongs_to": who})
