@@ -190,3 +190,13 @@ def test_verify_checks_embedding_shapes(store, planted, store_path):
     con.close()
     found = verify_store(store)
     assert not found["ok"] and [f["kind"] for f in found["findings"]] == ["embedding"]
+
+
+def test_bethe_sweep_counts_negative_eigenvalues(store, planted):
+    # Saade, Krzakala & Zdeborová (2014): on a planted partition above the threshold (Decelle et al. 2011)
+    # H(r) at the default r has as many negative eigenvalues as there are groups
+    out = sweeps.sweep(store, sweeps.prepare_sweep(store, "lab/sbm", method="bethe", ks="2..5", seeds=3))
+    p3 = next(p for p in out["points"] if p["k"] == 3)
+    assert p3["negative_eigenvalues"] == 3 and out["recommended_k"] == 3
+    reasons = out["recommendations"][0]["candidates"][0]["reasons"]
+    assert "the Bethe Hessian has exactly 3 negative eigenvalues" in reasons
