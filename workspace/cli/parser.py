@@ -148,6 +148,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--perturb", type=float, default=None,
                    help="with --seeds N>1: sd of the random factor (mean 1) on each edge weight in repeats "
                         "after the first (default 0.5; 0 = vary the seed only)")
+    p.add_argument("--workers", type=int, default=None,
+                   help="k assigned at a time from one embedding (default: CPUs, at most 4); results do not depend on it")
     p = add("sweeps", "list, show, extend, diff and delete sweeps", "sweeps", "cmd_sweeps")
     ssub = p.add_subparsers(dest="sweeps_action", metavar="ACTION", required=True)
     q = ssub.add_parser("list", help="list sweeps, newest first", parents=[common])
@@ -160,6 +162,7 @@ def build_parser() -> argparse.ArgumentParser:
     q.add_argument("sweep", type=int)
     q.add_argument("--k", metavar="RANGE", help="further k values")
     q.add_argument("--seeds", type=int, help="new total number of seeds (not fewer than now)")
+    q.add_argument("--workers", type=int, default=None, help="k assigned at a time (default: CPUs, at most 4)")
     q = ssub.add_parser("diff", help="two sweeps side by side", parents=[common])
     q.add_argument("a", type=int)
     q.add_argument("b", type=int)

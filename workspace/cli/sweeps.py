@@ -64,7 +64,8 @@ def cmd_sweep(args) -> int:
         spec = svc.prepare_sweep(store, args.ref, params_ref=args.params, method=args.method,
                                  sets=psvc.parse_sets(args.set), ks=args.k, vary=args.vary, seeds=args.seeds,
                                  seed=args.seed, perturb=args.perturb)
-        return _run_and_render(args, store, out, lambda bar: svc.sweep(store, spec, progress=bar))
+        return _run_and_render(args, store, out, lambda bar: svc.sweep(store, spec, progress=bar,
+                                                                      workers=args.workers))
 
 
 def cmd_sweeps(args) -> int:
@@ -106,7 +107,7 @@ def cmd_sweeps(args) -> int:
             return 0
         if action == "extend":
             return _run_and_render(args, store, out, lambda bar: svc.extend_sweep(
-                store, args.sweep, ks=args.k, seeds=args.seeds, progress=bar))
+                store, args.sweep, ks=args.k, seeds=args.seeds, progress=bar, workers=args.workers))
         if action == "diff":
             res = svc.diff_sweeps(store, args.a, args.b)
             if args.json:

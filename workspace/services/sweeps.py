@@ -27,6 +27,7 @@ import json
 import os
 import socket
 import time
+from concurrent.futures import FIRST_COMPLETED, ThreadPoolExecutor, wait
 from dataclasses import asdict, dataclass
 from typing import Any, Callable
 
@@ -34,7 +35,7 @@ import numpy as np
 from sqlalchemy import delete, func, select, text, update
 
 from workspace.domain import VersionRef
-from workspace.errors import Cancelled, ComputeError, NotFoundError, ParameterError, UsageError
+from workspace.errors import Cancelled, ComputeError, CutbookError, NotFoundError, ParameterError, UsageError
 from workspace.services import params as params_service
 from workspace.services import runs as runs_service
 from workspace.services.networks import resolve_version
@@ -318,12 +319,16 @@ def _done_tasks(s, sweep_id: int) -> set[tuple]:
 
 
 def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = None,
-              cancel: Callable[[], bool] | None = None) -> dict[str, Any]:
+              cancel: Callable[[], bool] | None = None, workers: int | None = None) -> dict[str, Any]:
     """Compute every task of a recorded sweep that has no finished run yet; returns :func:`show_sweep`.
 
     ``progress`` receives ``{"done", "total", "elapsed_s", "task", "stage"}`` dicts. Cancellation
     (``cancel()`` True, or Ctrl-C) keeps the finished runs, marks the sweep ``cancelled`` and raises
     :class:`workspace.errors.Cancelled`.
+
+    ``workers`` (default: the CPUs available, at most 4) k of one embedding are assigned at a time in
+    threads (numpy releases the GIL); every run is the same as computed alone, and all store writes stay
+    in this thread.
     """
     from workspace.spectral.embedding import EMBEDDING_METHODS
     from workspace.spectral.sweep import compute_embedding, perturbed_adjacency
@@ -343,7 +348,7 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
              if (k, _value_key(value), r) not in done]
     total = len(tasks)
     t0 = time.monotonic()
-    state: dict[str, Any] = {"done": 0, "task": "", "stage": "", "run": None}
+    state: dict[str, Any] = {"done": 0, "task": "", "stage": ""}
     failures: list[str] = []
 
     def report(stage: str) -> None:
@@ -355,6 +360,16 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
     def run_progress(stage: str, matvecs: int, total_: int | None = None) -> None:
         report(stage)
 
+    halt = [False]
+
+    def stopped() -> bool:
+        return halt[0] or (cancel is not None and bool(cancel()))
+
+    if workers is None:
+        from workspace.spectral.eigen import available_cpus
+
+        workers = min(available_cpus(), 4)
+    workers = max(1, int(workers))
     use_embedding = spec.method in EMBEDDING_METHODS and all(k is not None for k in spec.ks)
     m = max(spec.ks) if use_embedding else None
     try:
@@ -385,42 +400,65 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
                     emb_seed = spec.seed
                     emb, entry = embedding_for(store, spec.version_id, graph, spec.method, params, m, emb_seed,
                                                progress=run_progress, cancel=cancel)
-            for _, _, k in items:
-                state["task"] = (f"k={k}" if k is not None else "k chosen by the method") \
-                    + (f" {spec.vary_name}={value}" if spec.vary_name else "") + (f" repeat {r}" if spec.seeds > 1 else "")
-                report("start")
-                run_spec = runs_service.RunSpec(
-                    version_ref=spec.version_ref, version_id=spec.version_id, method=spec.method,
-                    k=None if k is None else str(k), params=params, seed=seed_r, repeats=1, perturb=perturb,
-                    param_set_version_id=spec.param_set_version_id,
-                    embedding_vectors=emb.n_vectors if emb is not None else None,
-                    embedding_seed=emb_seed if emb is not None else None)
-                extra = {"sweep": sweep_id}
-                if entry is not None:
-                    extra["embedding"] = entry
-                run_id = runs_service._insert_running(
-                    store, run_spec, provenance_extra=extra,
-                    after_insert=lambda s, rid, k=k, value=value, r=r: s.add(SweepRun(
-                        sweep_id=sweep_id, run_id=rid, k=k, value_json=_value_key(value), repeat=r)))
-                state["run"] = run_id
+            queue = [k for _, _, k in items]
+            inflight: dict = {}
+            with ThreadPoolExecutor(max_workers=workers) as pool:
                 try:
-                    runs_service.execute(store, run_id, run_spec, graph, progress=run_progress, cancel=cancel,
-                                         embedding=emb)
-                except ComputeError as exc:
-                    failures.append(f"{state['task']}: {exc}")
-                state["run"] = None
-                state["done"] += 1
-                report("stored")
+                    while queue or inflight:
+                        while queue and len(inflight) < workers and not stopped():
+                            k = queue.pop(0)
+                            label = (f"k={k}" if k is not None else "k chosen by the method") \
+                                + (f" {spec.vary_name}={value}" if spec.vary_name else "") \
+                                + (f" repeat {r}" if spec.seeds > 1 else "")
+                            state["task"] = label
+                            report("start")
+                            run_spec = runs_service.RunSpec(
+                                version_ref=spec.version_ref, version_id=spec.version_id, method=spec.method,
+                                k=None if k is None else str(k), params=params, seed=seed_r, repeats=1,
+                                perturb=perturb, param_set_version_id=spec.param_set_version_id,
+                                embedding_vectors=emb.n_vectors if emb is not None else None,
+                                embedding_seed=emb_seed if emb is not None else None)
+                            extra = {"sweep": sweep_id}
+                            if entry is not None:
+                                extra["embedding"] = entry
+                            run_id = runs_service._insert_running(
+                                store, run_spec, provenance_extra=extra,
+                                after_insert=lambda s, rid, k=k, value=value, r=r: s.add(SweepRun(
+                                    sweep_id=sweep_id, run_id=rid, k=k, value_json=_value_key(value), repeat=r)))
+                            fut = pool.submit(runs_service.compute, graph, run_spec, progress=run_progress,
+                                              cancel=stopped, embedding=emb)
+                            inflight[fut] = (run_id, label)
+                        if not inflight:
+                            break
+                        finished, _ = wait(list(inflight), return_when=FIRST_COMPLETED)
+                        for fut in sorted(finished, key=lambda f: inflight[f][0]):
+                            run_id, label = inflight.pop(fut)
+                            _record_task(store, run_id, fut, label, failures)
+                            state["done"] += 1
+                            state["task"] = label
+                            report("stored")
+                    if queue:                 # stopped before every task was handed out
+                        raise Cancelled("sweep cancelled")
+                except BaseException:
+                    halt[0] = True            # workers stop at their next check; record what is in flight
+                    for fut, (run_id, label) in list(inflight.items()):
+                        try:
+                            fut.result()
+                        except BaseException:  # noqa: BLE001 - the run is recorded as cancelled below
+                            pass
+                        try:
+                            runs_service._finish(store, run_id, "cancelled", error="cancelled by the user")
+                        except ComputeError:
+                            pass
+                    inflight.clear()
+                    raise
     except (Cancelled, KeyboardInterrupt):
-        if state.get("run") is not None:   # interrupted between recording the run and computing it
-            try:
-                runs_service._finish(store, state["run"], "cancelled", error="cancelled by the user")
-            except ComputeError:
-                pass                       # execute() already recorded its outcome
+        _close_running_runs(store, sweep_id, "cancelled", "cancelled by the user")
         _set_status(store, sweep_id, "cancelled", f"cancelled after {state['done']} of {total} tasks")
         raise Cancelled(f"sweep {sweep_id} cancelled after {state['done']} of {total} tasks; "
                         "finished runs are kept (extend the sweep to continue)") from None
     except BaseException as exc:
+        _close_running_runs(store, sweep_id, "failed", f"the sweep stopped: {type(exc).__name__}: {exc}")
         _set_status(store, sweep_id, "failed", f"{type(exc).__name__}: {exc}")
         raise
     if failures:
@@ -430,6 +468,33 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
     return show_sweep(store, sweep_id)
 
 
+def _record_task(store: Store, run_id: int, fut, label: str, failures: list[str]) -> None:
+    """Record the outcome of one computed task (the error handling of :func:`runs.execute`)."""
+    try:
+        computed = fut.result()
+    except (Cancelled, KeyboardInterrupt):
+        runs_service._finish(store, run_id, "cancelled", error="cancelled by the user")
+        raise Cancelled(f"run {run_id} cancelled") from None
+    except CutbookError as exc:
+        runs_service._finish(store, run_id, "failed", error=str(exc))
+        failures.append(f"{label}: {exc}")
+        return
+    except (ArithmeticError, ValueError, RuntimeError, MemoryError, np.linalg.LinAlgError) as exc:
+        runs_service._finish(store, run_id, "failed", error=f"{type(exc).__name__}: {exc}")
+        failures.append(f"{label}: {type(exc).__name__}: {exc}")
+        return
+    runs_service._finish(store, run_id, "done", computed=computed)
+
+
+def _close_running_runs(store: Store, sweep_id: int, status: str, error: str) -> None:
+    """Runs of this sweep still ``running`` in this process (an interrupt while one was being recorded)
+    get their outcome, so no run is left looking alive."""
+    with store.write() as s:
+        ids = select(SweepRun.run_id).where(SweepRun.sweep_id == sweep_id)
+        s.execute(update(Run).where(Run.id.in_(ids), Run.status == "running", Run.pid == os.getpid())
+                  .values(status=status, error=error, finished_at=repo.utcnow()))
+
+
 def _set_status(store: Store, sweep_id: int, status: str, error: str | None) -> None:
     with store.write() as s:
         s.execute(update(Sweep).where(Sweep.id == sweep_id).values(status=status, error=error,
@@ -437,14 +502,15 @@ def _set_status(store: Store, sweep_id: int, status: str, error: str | None) -> 
 
 
 def sweep(store: Store, spec: SweepSpec, *, progress: SweepProgress | None = None,
-          cancel: Callable[[], bool] | None = None) -> dict[str, Any]:
+          cancel: Callable[[], bool] | None = None, workers: int | None = None) -> dict[str, Any]:
     """Record and compute a sweep; returns :func:`show_sweep`."""
     sweep_id = create_sweep(store, spec)
-    return run_sweep(store, sweep_id, progress=progress, cancel=cancel)
+    return run_sweep(store, sweep_id, progress=progress, cancel=cancel, workers=workers)
 
 
 def extend_sweep(store: Store, sweep_id: int, *, ks: Any = None, seeds: int | None = None,
-                 progress: SweepProgress | None = None, cancel: Callable[[], bool] | None = None) -> dict[str, Any]:
+                 progress: SweepProgress | None = None, cancel: Callable[[], bool] | None = None,
+                 workers: int | None = None) -> dict[str, Any]:
     """Add k values and/or seeds (never fewer) and compute only the tasks without a finished run.
 
     Also resumes a cancelled or failed sweep when called without ``ks``/``seeds``.
@@ -474,7 +540,7 @@ def extend_sweep(store: Store, sweep_id: int, *, ks: Any = None, seeds: int | No
         raise ParameterError(f"the sweep would make more than {MAX_TASKS} runs")
     with store.write() as s:
         s.execute(update(Sweep).where(Sweep.id == sweep_id).values(ks_json=json.dumps(new_ks), seeds=new_seeds))
-    return run_sweep(store, sweep_id, progress=progress, cancel=cancel)
+    return run_sweep(store, sweep_id, progress=progress, cancel=cancel, workers=workers)
 
 
 # --- reading ---------------------------------------------------------------------------------------
