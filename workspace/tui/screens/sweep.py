@@ -138,7 +138,7 @@ class SweepScreen(Screen):
                 yield Static("Quality and stability against k", classes="pane-title")
                 yield SweepPlot(id="sweep-plot")
             with Vertical(classes="pane"):
-                yield Static("Measures per k (enter: open the run)", classes="pane-title")
+                yield Static("Measures per k (▲ rec: recommended · enter: open the run)", classes="pane-title")
                 yield DataTable(id="sweep-table", cursor_type="row", zebra_stripes=True)
             with Vertical(classes="pane"):
                 yield Static("Recommendation", classes="pane-title")
@@ -152,6 +152,7 @@ class SweepScreen(Screen):
         self._ready = True
         for pane in self.query("#sweep-body .pane"):   # the shared stylesheet makes panes fill; these stack
             pane.styles.height = "auto"
+        self.query_one("#sweep-bar", ProgressBar).display = False   # shown while a sweep computes
         table = self.query_one("#sweep-table", DataTable)
         table.add_columns("k", "value", "run", "modularity", "ncut", "conductance", "coverage", "eigengap",
                           "ARI mean", "ARI sd", "VI mean", "VI sd", "")
@@ -213,7 +214,7 @@ class SweepScreen(Screen):
         table.clear()
         for i, p in enumerate(sw["points"]):
             r = recs.get(repr(p["value"]))
-            mark = "recommended" if r is not None and r["recommended"] == p["k"] else ("stable" if p["stable"] else "")
+            mark = "▲ rec" if r is not None and r["recommended"] == p["k"] else ("stable" if p["stable"] else "")
             table.add_row(*[_fmt(x) for x in (p["k"] if p["k"] is not None else p["k_found"], p["value"], p["run"],
                                               p["modularity"], p["normalized_cut"], p["conductance"], p["coverage"],
                                               p["eigengap"], p["ari_mean"], p["ari_sd"], p["vi_mean"], p["vi_sd"])],
@@ -271,7 +272,9 @@ class SweepScreen(Screen):
             self.app.report(exc)
             return
         self.query_one("#sweep-state", Static).update(f"starting a process for the sweep on {spec.version_ref} …")
-        self.query_one("#sweep-bar", ProgressBar).update(total=None, progress=0)
+        bar = self.query_one("#sweep-bar", ProgressBar)
+        bar.display = True
+        bar.update(total=None, progress=0)
         if self._timer is None:
             self._timer = self.app.set_interval(getattr(self.app, "poll_interval", 0.1), self._poll,
                                                 name="sweep-job-poll")
