@@ -15,6 +15,12 @@ Targets (issue 11): sweep <= 2x one kmax run; sweep >= 5x faster than the separa
 sweep's stored size per run <= 2 MB per 1M nodes (membership, eigenvalue arrays and the run rows;
 the cached embedding, n x (kmax+1) float64 shared by every run and prunable, is printed apart).
 Load average is printed with the figures: compare ratios, not seconds, on a busy machine.
+
+What the ratios depend on: the sweep costs one eigensolve plus one k-means per k, a single run one
+eigensolve plus one k-means. With the default graph (planted k=8 < kmax=16) the eigenvectors 9..16
+lie in the bulk and the solve dominates, so the sweep costs about one run. When the solve is cheap
+(``--planted 16``: every vector separated) the k-means over all k dominates and sweep / one run
+grows towards the sum of the k-means times over that of k=kmax; ``--workers`` spreads them over CPUs.
 """
 
 from __future__ import annotations
