@@ -211,3 +211,11 @@ def test_parallel_assignment_gives_the_same_runs(store, planted):
     two = sweeps.sweep(store, sweeps.prepare_sweep(store, "lab/sbm", method="njw", ks="2..6", seeds=2), workers=3)
     hashes = lambda out: [runs.show_run(store, r)["membership_hash"] for p in out["points"] for r in p["runs"]]  # noqa
     assert hashes(one) == hashes(two)     # each run is computed alone, whatever runs beside it
+
+
+def test_no_eigengap_where_it_means_nothing(store, planted):
+    # recursive bisection: its eigenvalues are those of the first split only (von Luxburg 2007, Sec. 8.3
+    # reads the gap off one operator's spectrum), so no eigengap is reported and the reasons say so
+    out = sweeps.sweep(store, sweeps.prepare_sweep(store, "lab/sbm", method="recursive", ks="2..4"))
+    assert all(p["eigengap"] is None for p in out["points"])
+    assert "eigengap not available" in " ".join(out["recommendations"][0]["candidates"][0]["reasons"])

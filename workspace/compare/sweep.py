@@ -219,7 +219,7 @@ def recommend_k(points: Sequence[dict[str, Any]], *, stable_ari: float = STABLE_
             reasons.append(f"eigengap lambda_{k + 1} - lambda_{k} = {g:.4g}, {where} in the range"
                            + (f" (next largest {max(nxt):.4g})" if gap_rank[k] == 1 and nxt else ""))
         else:
-            reasons.append("eigengap not available (eigenvalue beyond k not computed)")
+            reasons.append("eigengap not available (not computed, or meaningless for this method or graph)")
         if p.get("negative_eigenvalues") is not None and p["negative_eigenvalues"] == k:
             reasons.append(f"the Bethe Hessian has exactly {k} negative eigenvalues")
         if p.get("ari_mean") is not None:

@@ -606,6 +606,7 @@ def show_sweep(store: Store, sweep_id: int, *, splits: bool = True) -> dict[str,
     """A sweep with its points (quality, eigengap and stability per k and value), the recommendation
     with its reasons, and the split view between consecutive k."""
     from workspace.compare.sweep import STABLE_ARI, recommend_k, split_view, stability
+    from workspace.spectral.embedding import EMBEDDING_METHODS
 
     with store.read() as s:
         row = s.execute(_sweeps_query().where(Sweep.id == sweep_id)).first()
@@ -632,7 +633,11 @@ def show_sweep(store: Store, sweep_id: int, *, splits: bool = True) -> dict[str,
                 q = json.loads(first.quality_json) if first is not None else {}
                 ev = eig.get((vk, k, 0), np.empty(0))
                 kk = first.k if first is not None else None
-                gap = float(ev[k] - ev[k - 1]) if k is not None and ev.shape[0] > k else None
+                # the eigengap at k means something only for one operator's spectrum: the k-way methods on
+                # one component (not recursive splits, modularity bisections or unions over components)
+                diag = json.loads(first.diagnostics_json) if first is not None else {}
+                gap = float(ev[k] - ev[k - 1]) if k is not None and ev.shape[0] > k and \
+                    sw.method in EMBEDDING_METHODS and diag.get("components_partitioned", 1) == 1 else None
                 st = stability(reps)
                 point = {"k": k, "value": value, "run": first.id if first is not None else None,
                          "runs": [runs[(vk, k, r)].id for r in range(sw.seeds) if (vk, k, r) in runs],
