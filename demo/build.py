@@ -7,7 +7,7 @@ from pathlib import Path
 from typing import Callable
 
 from workspace.domain import ImportPolicy
-from workspace.services import networks, params, runs
+from workspace.services import networks, params, runs, sweeps
 from workspace.store.db import Store
 
 from . import scenario
@@ -77,4 +77,14 @@ def build_demo(store: Store, *, say: Callable[[str], None] = lambda s: None) -> 
         for v in (1, 2):
             ids[f"lab-groups@{v}"] = run(f"{LAB}/co-working@{v}", params_ref=f"{LAB}/groups")
         ids["lab-greedy@2"] = run(f"{LAB}/co-working@2", method="greedy-modularity")
+
+        # how many riding areas does June's network hold, and is that grouping real? k = 2..10, 5 seeds
+        sw = sweeps.sweep(store, sweeps.prepare_sweep(store, f"{CITY}/stations@4", method="njw", ks="2..10",
+                                                      seeds=5))
+        summary["sweeps"] = {"riding-areas@4": sw["sweep"]}
+        for point in sw["points"]:
+            for repeat, run_id in enumerate(point["runs"]):
+                ids[f"riding-areas k={point['k']} repeat {repeat}@4"] = run_id
+        say(f"sweep {sw['sweep']}: njw k=2..10 x 5 seeds on {sw['ref']} ({sw['tasks']['done']} runs) -> "
+            f"recommended k={sw['recommended_k']}")
     return summary

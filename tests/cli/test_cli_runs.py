@@ -15,7 +15,6 @@ import networkx as nx
 import pytest
 
 from graphs import adjacency_to_csv
-from tests_support import write_edges
 
 REPO = Path(__file__).resolve().parents[2]
 

@@ -9,7 +9,6 @@ policy existed: undirected hashes must not change).
 from __future__ import annotations
 
 import json
-from pathlib import Path
 
 import networkx as nx
 import numpy as np

@@ -3,7 +3,6 @@ attach/export, stability, node lookup."""
 
 from __future__ import annotations
 
-import json
 import sqlite3
 
 import networkx as nx

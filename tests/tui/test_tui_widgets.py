@@ -5,7 +5,6 @@ from __future__ import annotations
 import asyncio
 
 import networkx as nx
-import numpy as np
 import pytest
 from scipy.linalg import eigh
 

@@ -152,6 +152,45 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("node")
     p.add_argument("--network", metavar="PROJECT/NETWORK", help="search this network only (default: every network)")
 
+    # --- sweeps (workspace/cli/sweeps.py) ------------------------------------------------
+    p = add("sweep", "runs over a range of k, a parameter's values and seeds, with a recommendation",
+            "sweeps", "cmd_sweep")
+    p.add_argument("ref", metavar="PROJECT/NETWORK[@V]")
+    how = p.add_mutually_exclusive_group(required=True)
+    how.add_argument("--params", metavar="PROJECT/NAME[@V]", help="a saved parameter set")
+    how.add_argument("--method", help="method id (see `cutbook methods`)")
+    p.add_argument("--set", action="append", default=[], metavar="KEY=VALUE", help="a method parameter")
+    p.add_argument("--k", metavar="RANGE", help="k values: 2..16, 2,3,5,8 or a mix like 2..4,8")
+    p.add_argument("--vary", metavar="NAME=V1,V2,...", help="one method parameter over several values")
+    p.add_argument("--seeds", type=int, default=1, help="repeats per k with seeds seed..seed+N-1 (default 1)")
+    p.add_argument("--seed", type=int, default=0, help="first seed (default 0)")
+    p.add_argument("--perturb", type=float, default=None,
+                   help="with --seeds N>1: sd of the random factor (mean 1) on each edge weight in repeats "
+                        "after the first (default 0.5; 0 = vary the seed only)")
+    p.add_argument("--workers", type=int, default=None,
+                   help="k assigned at a time from one embedding (default: CPUs, at most 4); results do not depend on it")
+    p = add("sweeps", "list, show, extend, diff and delete sweeps", "sweeps", "cmd_sweeps")
+    ssub = p.add_subparsers(dest="sweeps_action", metavar="ACTION", required=True)
+    q = ssub.add_parser("list", help="list sweeps, newest first", parents=[common])
+    q.add_argument("ref", nargs="?", metavar="PROJECT[/NETWORK[@V]]")
+    q = ssub.add_parser("show", help="a sweep's measures per k, recommendation and split view", parents=[common])
+    q.add_argument("sweep", type=int)
+    q.add_argument("--split", metavar="K1:K2", help="split view between these two k (default: consecutive k)")
+    q = ssub.add_parser("extend", help="add k or seeds (or resume a cancelled sweep) without recomputing",
+                        parents=[common])
+    q.add_argument("sweep", type=int)
+    q.add_argument("--k", metavar="RANGE", help="further k values")
+    q.add_argument("--seeds", type=int, help="new total number of seeds (not fewer than now)")
+    q.add_argument("--workers", type=int, default=None, help="k assigned at a time (default: CPUs, at most 4)")
+    q = ssub.add_parser("diff", help="two sweeps side by side", parents=[common])
+    q.add_argument("a", type=int)
+    q.add_argument("b", type=int)
+    q = ssub.add_parser("delete", help="remove a sweep's record (its runs are kept)", parents=[common])
+    q.add_argument("sweep", type=int)
+    p = add("embeddings", "report the cached spectral embeddings, or prune them", "sweeps", "cmd_embeddings")
+    p.add_argument("ref", nargs="?", metavar="PROJECT/NETWORK[@V]", help="only this network or version")
+    p.add_argument("--prune", action="store_true", help="remove them (runs stay reproducible: rerun re-solves)")
+
     # --- comparing -------------------------------------------------------------------
     p = add("diff", "compare the memberships of two runs, or follow a chain of runs", "diffs", "cmd_diff")
     p.add_argument("runs", nargs="*", type=int, metavar="RUN", help="two runs (or, with --track, a chain)")

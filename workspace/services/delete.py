@@ -21,6 +21,7 @@ from workspace.store.schema import Network, NetworkVersion, ParamSet, Project, R
 _BLOB_COLUMNS = (
     ("network_versions", ("node_offsets_blob", "node_bytes_blob", "edge_u_blob", "edge_v_blob", "weight_blob")),
     ("runs", ("membership_blob", "stability_blob", "eigenvalues_blob")),
+    ("embeddings", ("values_blob", "vectors_blob")),
 )
 
 

@@ -49,6 +49,10 @@ class RunSpec:
     param_set_version_id: int | None = None
     param_set_ref: str | None = None
     rerun_of: int | None = None
+    # a k-way run that takes its eigenvectors from a shared embedding of this many vectors, solved with
+    # this start-vector seed (recorded in the run's provenance; see services/sweeps.py)
+    embedding_vectors: int | None = None
+    embedding_seed: int | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return asdict(self)
@@ -123,44 +127,37 @@ def prepare_run(store: Store, ref: str | VersionRef, *, params_ref: str | None =
 # --- computing (no store access) ------------------------------------------------------------
 
 def _perturbed(A, spread: float, seed: int, directed: bool = False):
-    """Multiply each undirected edge's weight by independent Gamma noise with mean 1 and sd ``spread``.
+    """Seeded multiplicative edge-weight noise (see :func:`workspace.spectral.sweep.perturbed_adjacency`).
 
-    Every edge keeps a positive weight, so the graph's components never change
-    (dropping edges instead would split sparse graphs into many pieces). With
-    ``spread`` = 1 the factors are Exp(1): the Bayesian bootstrap of edge weights
-    (Rubin 1981). Seeded: the same seed gives the same perturbed graph. A directed
-    graph gets one factor per arc.
+    A directed graph gets one Gamma factor (mean 1, sd ``spread``) per arc.
     """
+    if not directed:
+        from workspace.spectral.sweep import perturbed_adjacency
+
+        return perturbed_adjacency(A, spread, seed)
     import numpy as np
 
     import scipy.sparse as sp
 
-    if directed:
-        arcs = sp.csr_array(A, copy=True)
-        shape = 1.0 / spread**2
-        arcs.data = arcs.data * np.random.default_rng([seed, 0x5EED]).gamma(shape, 1.0 / shape,
-                                                                             size=arcs.nnz)
-        return arcs
-
-    upper = sp.triu(A, k=0, format="coo")
+    arcs = sp.csr_array(A, copy=True)
     shape = 1.0 / spread**2
-    factor = np.random.default_rng([seed, 0x5EED]).gamma(shape, 1.0 / shape, size=upper.nnz)
-    r, c, w = upper.row, upper.col, upper.data * factor
-    off = r != c
-    B = sp.csr_array((np.concatenate([w, w[off]]), (np.concatenate([r, c[off]]), np.concatenate([c, r[off]]))),
-                     shape=A.shape)
-    B.sum_duplicates()
-    return B
+    arcs.data = arcs.data * np.random.default_rng([seed, 0x5EED]).gamma(shape, 1.0 / shape, size=arcs.nnz)
+    return arcs
 
 
 def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None,
-            cancel: Callable[[], bool] | None = None) -> Computed:
+            cancel: Callable[[], bool] | None = None, embedding=None) -> Computed:
     """Run the method (``spec.repeats`` times with seeds seed … seed+N−1) on the graph.
 
     With repeats, each repeat multiplies edge weights by seeded random noise of
     standard deviation ``spec.perturb`` (see :func:`_perturbed`); the stored membership is the consensus (each node's most frequent
     community after matching every repeat to the first by overlap), and the
     per-node stability is the share of repeats that keep the node in it.
+
+    A single run with ``perturb`` > 0 (a sweep's stability repeat) is computed on the graph perturbed
+    with its own seed; its quality measures are those of its membership on the version's graph. With
+    ``spec.embedding_vectors``, the eigenvectors come from a shared embedding (``embedding``, or solved
+    here from the spec exactly as the sweep solved it).
     """
     import numpy as np
 
@@ -178,8 +175,22 @@ def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None
             progress(label, matvecs, total)
 
     if spec.repeats == 1:
-        res = partition(A, spec.method, k=k, seed=spec.seed, progress=prog, cancel=cancel,
+        Ar = _perturbed(A, spec.perturb, spec.seed, directed=graph.directed) if spec.perturb > 0 else A
+        if spec.embedding_vectors is not None and embedding is None:
+            from workspace.spectral.sweep import compute_embedding
+
+            embedding = compute_embedding(Ar, spec.method, spec.embedding_vectors, seed=spec.embedding_seed or 0,
+                                          progress=prog, cancel=cancel, directed=graph.directed,
+                                          **spec.params)
+        res = partition(Ar, spec.method, k=k, seed=spec.seed, progress=prog, cancel=cancel, embedding=embedding,
                         directed=graph.directed, **spec.params)
+        if spec.perturb > 0:
+            q = quality_measures(A, res.labels, directed=graph.directed)
+            communities = q.pop("communities", None) or []
+            diagnostics = dict(res.diagnostics, perturb=spec.perturb)
+            return Computed(labels=np.asarray(res.labels, dtype=np.int64), k=int(res.k),
+                            eigenvalues=np.asarray(res.eigenvalues, dtype=np.float64), quality=q,
+                            communities=communities, warnings=list(res.warnings), diagnostics=diagnostics)
         return Computed(labels=np.asarray(res.labels, dtype=np.int64), k=int(res.k),  # canonical already
                         eigenvalues=np.asarray(res.eigenvalues, dtype=np.float64), quality=dict(res.quality),
                         communities=list(res.communities), warnings=list(res.warnings),
@@ -217,24 +228,31 @@ def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None
 
 # --- recording ---------------------------------------------------------------------------
 
-def _insert_running(store: Store, spec: RunSpec, *, kind: str = "computed", label: str = "") -> int:
+def _insert_running(store: Store, spec: RunSpec, *, kind: str = "computed", label: str = "",
+                    provenance_extra: dict[str, Any] | None = None,
+                    after_insert: Callable[[Any, int], None] | None = None) -> int:
+    """Record a ``running`` run in one short transaction (``after_insert(session, run_id)`` joins it)."""
     with store.write() as s:
-        run = _new_run(spec, kind=kind, label=label)
+        run = _new_run(spec, kind=kind, label=label, provenance_extra=provenance_extra)
         s.add(run)
         s.flush()
+        if after_insert is not None:
+            after_insert(s, run.id)
         return run.id
 
 
-def _new_run(spec: RunSpec, *, kind: str = "computed", label: str = "") -> Run:
+def _new_run(spec: RunSpec, *, kind: str = "computed", label: str = "",
+             provenance_extra: dict[str, Any] | None = None) -> Run:
     """A ``running`` run record for ``spec`` (not yet added to any session)."""
     pid = os.getpid()
     return Run(version_id=spec.version_id, param_set_version_id=spec.param_set_version_id,
                rerun_of=spec.rerun_of, kind=kind, method=spec.method, label=label,
                params_json=json.dumps({**spec.params, "perturb": spec.perturb} if spec.repeats > 1
-                                      else spec.params, sort_keys=True),
+                                      or spec.perturb > 0 else spec.params, sort_keys=True),
                k_requested=spec.k, seed=spec.seed if kind == "computed" else None, repeats=spec.repeats,
                status="running", started_at=repo.utcnow(), host=socket.gethostname(), pid=pid,
-               process_token=_process_token(pid), provenance_json=json.dumps(provenance(), sort_keys=True))
+               process_token=_process_token(pid),
+               provenance_json=json.dumps({**provenance(), **(provenance_extra or {})}, sort_keys=True))
 
 
 def _json_floats(obj):
@@ -332,12 +350,12 @@ def _num(x):
 
 
 def execute(store: Store, run_id: int, spec: RunSpec, graph: GraphData, *, progress: Progress | None = None,
-            cancel: Callable[[], bool] | None = None) -> None:
+            cancel: Callable[[], bool] | None = None, embedding=None) -> None:
     """Compute a recorded ``running`` run and record its outcome (done / failed / cancelled)."""
     import numpy as np
 
     try:
-        computed = compute(graph, spec, progress=progress, cancel=cancel)
+        computed = compute(graph, spec, progress=progress, cancel=cancel, embedding=embedding)
     except (Cancelled, KeyboardInterrupt):
         _finish(store, run_id, "cancelled", error="cancelled by the user")
         raise Cancelled(f"run {run_id} cancelled") from None
@@ -358,12 +376,13 @@ def _load_version_graph(store: Store, version_id: int) -> GraphData:
 
 
 def launch(store: Store, spec: RunSpec, *, progress: Progress | None = None,
-           cancel: Callable[[], bool] | None = None) -> dict[str, Any]:
+           cancel: Callable[[], bool] | None = None, embedding=None,
+           provenance_extra: dict[str, Any] | None = None) -> dict[str, Any]:
     """Record, compute and store one run; returns its summary (see :func:`show_run`)."""
     graph = _load_version_graph(store, spec.version_id)
-    run_id = _insert_running(store, spec)
+    run_id = _insert_running(store, spec, provenance_extra=provenance_extra)
     try:
-        execute(store, run_id, spec, graph, progress=progress, cancel=cancel)
+        execute(store, run_id, spec, graph, progress=progress, cancel=cancel, embedding=embedding)
     except ComputeError as exc:
         raise RunFailed(run_id, str(exc)) from exc
     return show_run(store, run_id, include_labels=False)
@@ -391,11 +410,19 @@ def rerun(store: Store, run_id: int, *, progress: Progress | None = None,
         v = s.get(NetworkVersion, old.version_id)
         net = s.get(Network, v.network_id)
         proj = s.get(Project, net.project_id)
+        emb_info = json.loads(old.provenance_json or "{}").get("embedding")
         spec = RunSpec(version_ref=f"{proj.name}/{net.name}@{v.number}", version_id=v.id, method=old.method,
                        k=old.k_requested, params=params, seed=old.seed or 0, repeats=old.repeats,
-                       perturb=perturb, param_set_version_id=old.param_set_version_id, rerun_of=old.id)
+                       perturb=perturb, param_set_version_id=old.param_set_version_id, rerun_of=old.id,
+                       embedding_vectors=emb_info["n_vectors"] if emb_info else None,
+                       embedding_seed=emb_info["seed"] if emb_info else None)
         old_hash = old.membership_hash
-    out = launch(store, spec, progress=progress, cancel=cancel)
+    embedding = extra = None
+    if emb_info:  # the cached embedding when the store still holds it, else solved again from the spec
+        from workspace.services import sweeps as sweeps_service
+
+        embedding, extra = sweeps_service.embedding_for_rerun(store, emb_info)
+    out = launch(store, spec, progress=progress, cancel=cancel, embedding=embedding, provenance_extra=extra)
     out["rerun_of"] = run_id
     out["identical"] = old_hash is not None and out["membership_hash"] == old_hash
     return out

@@ -8,7 +8,7 @@ from sqlalchemy import select, text
 
 from workspace.store.blobs import array_hash, decode_array
 from workspace.store.db import Store
-from workspace.store.schema import Blob, Network, NetworkVersion, Project, Run
+from workspace.store.schema import Blob, Embedding, Network, NetworkVersion, Project, Run
 
 _VERSION_BLOBS = ("node_offsets_blob", "node_bytes_blob", "edge_u_blob", "edge_v_blob", "weight_blob")
 _RUN_BLOBS = ("membership_blob", "stability_blob", "eigenvalues_blob")
@@ -21,6 +21,9 @@ def _owners(s) -> dict[str, list[str]]:
     for v, net, proj in s.execute(q).all():
         for col in _VERSION_BLOBS:
             owners.setdefault(getattr(v, col), []).append(f"version {proj}/{net}@{v.number} ({col[:-5]})")
+    for emb in s.scalars(select(Embedding)).all():
+        for col in ("values_blob", "vectors_blob"):
+            owners.setdefault(getattr(emb, col), []).append(f"embedding {emb.key[:12]} ({col[:-5]})")
     for run in s.scalars(select(Run)).all():
         for col in _RUN_BLOBS:
             h = getattr(run, col)
@@ -57,6 +60,14 @@ def verify_store(store: Store) -> dict[str, Any]:
             if not ok:
                 findings.append({"kind": "blob", "blob": b.hash, "detail": detail,
                                  "belongs_to": owners.get(b.hash, ["(no owner)"])})
+        for emb in s.scalars(select(Embedding)).all():  # cached embeddings: shapes agree with their arrays
+            lengths = dict(s.execute(select(Blob.hash, Blob.length)
+                                     .where(Blob.hash.in_([emb.values_blob, emb.vectors_blob]))).all())
+            if emb.vectors_blob in lengths and lengths[emb.vectors_blob] != emb.n_rows * emb.n_vectors or \
+                    emb.values_blob in lengths and lengths[emb.values_blob] < emb.n_vectors:
+                findings.append({"kind": "embedding", "blob": emb.vectors_blob,
+                                 "detail": f"arrays do not hold {emb.n_rows} x {emb.n_vectors} values",
+                                 "belongs_to": [f"embedding {emb.key[:12]}"]})
         for h, who in owners.items():
             if s.get(Blob, h) is None:
                 findings.append({"kind": "missing_blob", "blob": h, "belongs_to": who})

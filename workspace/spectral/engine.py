@@ -15,6 +15,7 @@ from .baselines import run_baseline
 from .bisection import fiedler_bisection, recursive_bisection
 from .directed import directed_embedding, symmetrised
 from .eigen import SolverContext, laplacian_eigenpairs
+from .embedding import EMBEDDING_METHODS, Embedding
 from .kway import assign_rows, bethe_embedding, eigengap_k, laplacian_embedding
 from .laplacians import degrees, with_loops_doubled
 from .methods import METHODS, MethodInfo, validate_params
@@ -131,7 +132,7 @@ def _union_eigenvalues(chunks: list[np.ndarray]) -> np.ndarray:
 def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
               progress: Callable[[str, int], None] | None = None,
               cancel: Callable[[], bool] | None = None, directed: bool = False,
-              **params) -> PartitionResult:
+              embedding: Embedding | None = None, **params) -> PartitionResult:
     r"""Partition the nodes of a weighted graph into communities.
 
     Parameters
@@ -168,6 +169,13 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
         an undirected loop of its weight) and a warning says so. Components
         are the weakly connected ones; quality measures are the directed
         ones (see :func:`workspace.spectral.quality.quality_measures`).
+    embedding : Embedding, optional
+        Precomputed eigenpairs for the k-way methods (``njw``, ``shi-malik``,
+        ``regularized``, ``bethe``) from
+        :func:`workspace.spectral.sweep.compute_embedding` with the same method
+        parameters; the eigensolve is skipped and the first k vectors are used,
+        so only the assignment runs. Only for graphs partitioned as one
+        component; ``diagnostics["embedding_reused"]`` is then True.
     **params
         Method parameters, validated by
         :func:`workspace.spectral.methods.validate_params` (strings such as
@@ -233,6 +241,8 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
     if n < 3:
         raise ComputeError(f"the graph has {n} node(s); partitioning needs at least 3")
     k_req = _resolve_k(info, k, n)
+    if embedding is not None and method not in EMBEDDING_METHODS:
+        raise ParameterError(f"{method} cannot use a shared embedding (only {', '.join(EMBEDDING_METHODS)})")
     offdiag = S.nnz - int(np.count_nonzero(S.diagonal()))
     if offdiag == 0 or not np.any(S.data > 0):
         raise ComputeError("the graph has no edges between distinct nodes; nothing to partition")
@@ -306,6 +316,13 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
             diag_extra.update(extra)
             k_for_ties = 2
         else:
+            if embedding is not None:
+                if len(comp_nodes) != 1:
+                    raise ComputeError("a shared embedding applies to a graph partitioned as one component; "
+                                       f"this one has {len(comp_nodes)}")
+                embedding.check(method, p, int(comp_nodes[0].shape[0]))
+                ctx.extra_accuracy = embedding.extra_accuracy
+                diag_extra["embedding_reused"] = True
             alloc = _allocate(S, comp_nodes, k_req, method, ctx, p, warnings)
             two_m = float(degrees(A_loops).sum())
             next_label = 0
@@ -316,7 +333,8 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
                     next_label += 1
                     continue
                 sub = _induced(A_loops, nodes) if len(comp_nodes) > 1 or kept_mask is not None else A_loops
-                lab, vals, extra = _run_spectral(sub, method, k_i, ctx, p, two_m)
+                lab, vals, extra = _run_spectral(sub, method, k_i, ctx, p, two_m,
+                                                 None if embedding is None else embedding.solution())
                 labels[nodes] = lab + next_label
                 next_label += int(lab.max()) + 1
                 eig_chunks.append(vals)
@@ -528,7 +546,7 @@ def _allocate(A, comp_nodes: list[np.ndarray], k: int | None, method: str, ctx: 
 
 
 def _run_spectral(sub, method: str, k: int | None, ctx: SolverContext, p: dict,
-                  two_m: float) -> tuple[np.ndarray, np.ndarray, dict]:
+                  two_m: float, solution=None) -> tuple[np.ndarray, np.ndarray, dict]:
     """One connected component; returns (labels 0.., eigenvalues, extra diagnostics)."""
     n = sub.shape[0]
     if k is not None and k >= n:
@@ -544,7 +562,7 @@ def _run_spectral(sub, method: str, k: int | None, ctx: SolverContext, p: dict,
             tau = p["tau"] if p["tau"] >= 0 else float(degrees(sub).mean())
             extra["tau"] = tau
         U, vals, k_used = laplacian_embedding(sub, k, method, ctx, extra=p["extra_eigenvalues"],
-                                              k_max=p["k_max"], tau=tau)
+                                              k_max=p["k_max"], tau=tau, solution=solution)
         lab, info = assign_rows(U, k_used, ctx, assign=p["assign"], n_init=p["n_init"],
                                 max_iter=p["kmeans_max_iter"])
         extra.update(info)
@@ -556,7 +574,7 @@ def _run_spectral(sub, method: str, k: int | None, ctx: SolverContext, p: dict,
             sub = with_loops_doubled(sp.csr_array((np.ones_like(sub.data), sub.indices, sub.indptr),
                                                   shape=sub.shape))
         U, vals, k_used, extra = bethe_embedding(sub, k, ctx, r=p["r"], extra=p["extra_eigenvalues"],
-                                                 k_max=p["k_max"])
+                                                 k_max=p["k_max"], solution=solution)
         extra["weights"] = p["weights"]
         lab, info = assign_rows(U, k_used, ctx, assign=p["assign"], n_init=p["n_init"],
                                 max_iter=p["kmeans_max_iter"])

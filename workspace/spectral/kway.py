@@ -8,7 +8,7 @@ import scipy.sparse as sp
 from workspace.errors import ComputeError
 
 from .assign import discretize, kmeans
-from .eigen import SolverContext, SymmetricOperator, largest_eigenpairs, shifted_laplacian_operator
+from .eigen import EigenSolution, SolverContext, SymmetricOperator, largest_eigenpairs, shifted_laplacian_operator
 from .laplacians import degrees, inverse_sqrt_degrees
 
 __all__ = ["laplacian_embedding", "bethe_embedding", "assign_rows", "eigengap_k",
@@ -42,7 +42,8 @@ def eigengap_k(values: np.ndarray, k_max: int | None = None) -> int | None:
 
 
 def laplacian_embedding(A, k: int | None, method: str, ctx: SolverContext, *, extra: int = 1,
-                        k_max: int = 10, tau: float = 0.0) -> tuple[np.ndarray, np.ndarray, int]:
+                        k_max: int = 10, tau: float = 0.0,
+                        solution: EigenSolution | None = None) -> tuple[np.ndarray, np.ndarray, int]:
     r"""Spectral embedding of a connected graph for the k-way methods.
 
     Solve for the leading eigenvectors :math:`v_1..v_m` of
@@ -67,6 +68,10 @@ def laplacian_embedding(A, k: int | None, method: str, ctx: SolverContext, *, ex
     extra : int, default 1
     k_max : int, default 10
     tau : float, default 0
+    solution : EigenSolution, optional
+        Precomputed eigenpairs of the same operator (at least ``k`` of them,
+        from a shared :class:`workspace.spectral.embedding.Embedding`); the
+        solve is skipped and its first ``k`` vectors are used.
 
     Returns
     -------
@@ -90,7 +95,8 @@ def laplacian_embedding(A, k: int | None, method: str, ctx: SolverContext, *, ex
     d = degrees(A)
     op, shift, _ = shifted_laplacian_operator(A, "sym", d, regularizer=tau)
     m = min(n, k if k is not None else k_max)
-    sol = largest_eigenpairs(op, m, ctx, stage=method, bound=shift, extra=extra)
+    sol = _reuse(solution, m, extra, ctx) if solution is not None else \
+        largest_eigenpairs(op, m, ctx, stage=method, bound=shift, extra=extra)
     values = shift - sol.values
     if k is None:
         k = eigengap_k(values, k_max) or 1
@@ -103,6 +109,18 @@ def laplacian_embedding(A, k: int | None, method: str, ctx: SolverContext, *, ex
         norms[norms == 0] = 1.0
         U /= norms[:, None]
     return U, values, k
+
+
+def _reuse(solution: EigenSolution, m: int, extra: int, ctx: SolverContext) -> EigenSolution:
+    """The first ``m`` pairs (and ``m + extra`` values) of precomputed eigenpairs, recorded in ``ctx``."""
+    if solution.vectors.shape[1] < m:
+        raise ComputeError(f"the shared embedding holds {solution.vectors.shape[1]} vectors; {m} are needed")
+    sol = EigenSolution(values=np.asarray(solution.values[:m + extra], dtype=np.float64),
+                        vectors=solution.vectors[:, :m], solver=solution.solver, matvecs=0,
+                        residual_norms=list(solution.residual_norms[:m]))
+    ctx.solvers.append(sol.solver)
+    ctx.residual_norms.extend(sol.residual_norms)
+    return sol
 
 
 def bethe_default_r(d: np.ndarray) -> float:
@@ -129,7 +147,8 @@ def bethe_default_r(d: np.ndarray) -> float:
 
 
 def bethe_embedding(A, k: int | None, ctx: SolverContext, *, r: float = 0.0, extra: int = 1,
-                    k_max: int = 10) -> tuple[np.ndarray, np.ndarray, int, dict]:
+                    k_max: int = 10, solution: EigenSolution | None = None
+                    ) -> tuple[np.ndarray, np.ndarray, int, dict]:
     r"""Eigenvectors of the Bethe Hessian :math:`H(r) = (r^2-1)I - rA + D`.
 
     The smallest eigenpairs of :math:`H` are the largest of
@@ -147,6 +166,8 @@ def bethe_embedding(A, k: int | None, ctx: SolverContext, *, r: float = 0.0, ext
         0 means :func:`bethe_default_r`.
     extra : int, default 1
     k_max : int, default 10
+    solution : EigenSolution, optional
+        Precomputed eigenpairs of the same operator (see :func:`laplacian_embedding`).
 
     Returns
     -------
@@ -170,7 +191,8 @@ def bethe_embedding(A, k: int | None, ctx: SolverContext, *, r: float = 0.0, ext
     c = r * r - 1.0 + (1.0 + r) * float(d.max())
     op = SymmetricOperator(A, diagonal=(c - r * r + 1.0) - d, scale=r)
     m = min(n, k if k is not None else k_max)
-    sol = largest_eigenpairs(op, m, ctx, stage="bethe", bound=abs(c) + 1.0, extra=extra)
+    sol = _reuse(solution, m, extra, ctx) if solution is not None else \
+        largest_eigenpairs(op, m, ctx, stage="bethe", bound=abs(c) + 1.0, extra=extra)
     values = c - sol.values
     negative = int(np.sum(values < 0))
     if k is None:

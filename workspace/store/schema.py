@@ -240,3 +240,80 @@ class Annotation(Base):
     action: Mapped[str] = mapped_column(String(16))
     text: Mapped[str] = mapped_column(Text)
     created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+
+
+# --- sweeps and cached embeddings (revision 0004) ----------------------------------
+
+SWEEP_STATUSES = ("running", "done", "failed", "cancelled", "interrupted")
+
+
+class Sweep(Base):
+    """A recorded exploration of one version over k, a parameter's values and seeds; it groups ordinary runs.
+
+    The request (method, base parameters, k list, varied parameter, seeds, perturbation) is kept as asked;
+    extending a sweep widens ``ks_json``/``seeds`` and adds runs, never recomputes existing ones.
+    """
+
+    __tablename__ = "sweeps"
+    __table_args__ = (
+        CheckConstraint("status IN ('running', 'done', 'failed', 'cancelled', 'interrupted')",
+                        name="status_known"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    version_id: Mapped[int] = mapped_column(ForeignKey("network_versions.id", ondelete="CASCADE"), index=True)
+    param_set_version_id: Mapped[int | None] = mapped_column(ForeignKey("param_set_versions.id"), nullable=True)
+    method: Mapped[str] = mapped_column(String(64))
+    params_json: Mapped[str] = mapped_column(Text)
+    ks_json: Mapped[str] = mapped_column(Text)            # list of int, or [null] when the method picks k
+    vary_name: Mapped[str | None] = mapped_column(String(64), nullable=True)
+    vary_values_json: Mapped[str] = mapped_column(Text, default="[null]")
+    seed: Mapped[int] = mapped_column(Integer)
+    seeds: Mapped[int] = mapped_column(Integer)
+    perturb: Mapped[float] = mapped_column(Float)
+    status: Mapped[str] = mapped_column(String(16), index=True)
+    error: Mapped[str | None] = mapped_column(Text, nullable=True)
+    started_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    finished_at: Mapped[datetime | None] = mapped_column(DateTime(timezone=True), nullable=True)
+    host: Mapped[str | None] = mapped_column(String(255), nullable=True)
+    pid: Mapped[int | None] = mapped_column(Integer, nullable=True)
+    process_token: Mapped[str | None] = mapped_column(String(64), nullable=True)
+
+
+class SweepRun(Base):
+    """One task of a sweep: a run computed for (k, varied value, repeat).
+
+    A task whose run failed or was cancelled may be tried again (resume, extend): it then has several
+    runs, and the newest finished one counts.
+    """
+
+    __tablename__ = "sweep_runs"
+
+    sweep_id: Mapped[int] = mapped_column(ForeignKey("sweeps.id", ondelete="CASCADE"), primary_key=True)
+    run_id: Mapped[int] = mapped_column(ForeignKey("runs.id", ondelete="CASCADE"), primary_key=True, index=True)
+    k: Mapped[int | None] = mapped_column(Integer, nullable=True)
+    value_json: Mapped[str] = mapped_column(String(200), default="null")
+    repeat: Mapped[int] = mapped_column(Integer)
+
+
+class Embedding(Base):
+    """A cached spectral embedding (eigenpairs of one operator), content-addressed by ``key``.
+
+    ``key`` is sha256 over the version's content hash and ``fields_json`` (operator and its parameters,
+    number of vectors, seed, solver settings). Vectors are stored column after column as one blob.
+    """
+
+    __tablename__ = "embeddings"
+
+    key: Mapped[str] = mapped_column(String(64), primary_key=True)
+    version_id: Mapped[int] = mapped_column(ForeignKey("network_versions.id", ondelete="CASCADE"), index=True)
+    operator: Mapped[str] = mapped_column(String(32))
+    fields_json: Mapped[str] = mapped_column(Text)
+    n_rows: Mapped[int] = mapped_column(Integer)
+    n_vectors: Mapped[int] = mapped_column(Integer)
+    values_blob: Mapped[str] = mapped_column(ForeignKey("blobs.hash"))
+    vectors_blob: Mapped[str] = mapped_column(ForeignKey("blobs.hash"))
+    solver: Mapped[str] = mapped_column(String(32))
+    residuals_json: Mapped[str] = mapped_column(Text)
+    info_json: Mapped[str] = mapped_column(Text)
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))

@@ -22,16 +22,17 @@ from workspace.tui.messages import RunEnded, RunProgress, RunStarted, StoreChang
 from workspace.tui.screens.ledger import LedgerScreen  # the first screen; the others load on first use
 
 SCREEN_NAMES = {"ledger": "Ledger", "launch": "Launch", "spectrum": "Spectrum", "diff": "Diff",
-                "lookup": "Node lookup"}
+                "lookup": "Node lookup", "sweep": "Sweep"}
 SCREEN_CLASSES = {"ledger": ("ledger", "LedgerScreen"), "launch": ("launch", "LaunchScreen"),
                   "spectrum": ("spectrum", "SpectrumScreen"), "diff": ("diff", "DiffScreen"),
-                  "lookup": ("lookup", "LookupScreen")}
+                  "lookup": ("lookup", "LookupScreen"), "sweep": ("sweep", "SweepScreen")}
 SCREEN_HELP = {
     "ledger": "browse projects, networks, versions and runs",
     "launch": "start a run from a parameter set or the method's form",
     "spectrum": "eigenvalues with the largest gap, community sizes",
     "diff": "compare two runs: scores, matches, events, moved nodes",
     "lookup": "where a node sits across runs and versions",
+    "sweep": "quality and stability against k, recommended k, how communities split",
 }
 
 
@@ -102,6 +103,7 @@ class CutbookApp(App):
         Binding("3", "goto('spectrum')", "Spectrum", show=False, tooltip="eigenvalues and sizes of a run"),
         Binding("4", "goto('diff')", "Diff", show=False, tooltip="compare two runs"),
         Binding("5", "goto('lookup')", "Lookup", show=False, tooltip="where a node sits across runs"),
+        Binding("6", "goto('sweep')", "Sweep", show=False, tooltip="quality and stability across a range of k"),
         Binding("question_mark,f1", "keys_help", "Keys", tooltip="this list of keys"),
         Binding("m", "maximise", "Max", tooltip="the pane holding the focus fills the screen; m again restores"),
         Binding("ctrl+p", "command_palette", "Palette", show=False, tooltip="every command by name; 'run N' opens a run"),

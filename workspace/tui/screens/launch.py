@@ -33,6 +33,7 @@ class LaunchScreen(Screen):
         Binding("ctrl+r", "start", "Start run", priority=True),
         Binding("ctrl+t", "stop", "Stop run", priority=True),
         Binding("ctrl+s", "save_set", "Save parameter set", priority=True),
+        Binding("ctrl+w", "sweep", "Sweep k", priority=True),
     ]
 
     def __init__(self) -> None:
@@ -66,6 +67,9 @@ class LaunchScreen(Screen):
                     yield Input("0", id="launch-seed", type="integer", compact=True)
                     yield Label("repeats", classes="name short")
                     yield Input("1", id="launch-repeats", type="integer", compact=True)
+                with Horizontal(classes="field-row"):
+                    yield Label("sweep k", classes="name")
+                    yield Input("", id="launch-sweep-k", placeholder="e.g. 2..10 (ctrl+w; repeats = seeds)")
                 with Horizontal(classes="field-row"):
                     yield Label("save as", classes="name")
                     yield Input("", id="launch-save-name", placeholder="name for a new parameter set", compact=True)
@@ -256,6 +260,12 @@ class LaunchScreen(Screen):
         bar.add_class("-busy")
         self._tick()
         self._sync_job_state()
+
+    def action_sweep(self) -> None:
+        """Start a sweep over the k typed in 'sweep k' (see workspace/tui/screens/sweep.py)."""
+        from workspace.tui.screens.sweep import launch_sweep_from
+
+        launch_sweep_from(self)
 
     def action_stop(self) -> None:
         if self.app.job is None or self.app.job.finished:

@@ -1,0 +1,148 @@
+"""Pilot tests of the Sweep screen: plotted values equal the stored ones, the layout fits 80x24,
+a row opens its run, and a sweep launched from Launch can be stopped mid-way (finished runs kept).
+Outside references: networkx (karate club, modularity)."""
+
+from __future__ import annotations
+
+import asyncio
+import contextlib
+import time
+from pathlib import Path
+
+import networkx as nx
+import pytest
+
+from graphs import import_adjacency
+from workspace.services.store import open_workspace
+
+
+@pytest.fixture(autouse=True)
+def _no_animations(monkeypatch):
+    monkeypatch.setenv("TEXTUAL_ANIMATIONS", "none")
+
+
+@contextlib.asynccontextmanager
+async def workspace(path: Path, size=(120, 36)):
+    from workspace.tui.app import CutbookApp
+
+    store = open_workspace(path)
+    app = CutbookApp(store, poll_interval=0.05)
+    try:
+        async with app.run_test(size=size) as pilot:
+            await pilot.pause()
+            yield app, pilot
+    finally:
+        store.dispose()
+
+
+async def wait_until(pilot, condition, timeout: float, what: str) -> None:
+    deadline = time.monotonic() + timeout
+    while not condition():
+        if time.monotonic() > deadline:
+            raise AssertionError(f"timed out after {timeout} s waiting for {what}")
+        await pilot.pause(0.05)
+
+
+@pytest.fixture
+def karate_sweep(tmp_path):
+    from workspace.services import sweeps
+
+    path = tmp_path / "s.sqlite"
+    store = open_workspace(path)
+    G = nx.karate_club_graph()       # Zachary (1977) as shipped by networkx
+    A = nx.to_scipy_sparse_array(G, nodelist=range(34), weight="weight")
+    import_adjacency(store, A, tmp_path, project="club", network="karate", names=[f"m{i:02d}" for i in range(34)])
+    out = sweeps.sweep(store, sweeps.prepare_sweep(store, "club/karate", method="njw", ks="2..7", seeds=3))
+    store.dispose()
+    return path, out, G
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("size", [(80, 24), (120, 36)])
+def test_sweep_screen_plots_the_stored_values(karate_sweep, size):
+    from textual.widgets import DataTable
+
+    from workspace.services.runs import load_membership
+    from workspace.tui.screens.sweep import SweepPlot
+
+    path, out, G = karate_sweep
+
+    async def go():
+        async with workspace(path, size) as (app, pilot):
+            await pilot.press("6")
+            await pilot.pause()
+            screen = app.screen
+            assert screen.id == "sweep" and screen.sweep_id == out["sweep"]
+            plot = screen.query_one(SweepPlot)
+            # what is drawn is what the store holds (services.sweeps.show_sweep) ...
+            assert plot.values["k"] == [p["k"] for p in out["points"]]
+            assert plot.values["modularity"] == [p["modularity"] for p in out["points"]]
+            assert plot.values["ari_mean"] == [p["ari_mean"] for p in out["points"]]
+            assert plot.values["recommended"] == out["recommended_k"] is not None
+            # ... and the stored modularity is networkx.community.modularity of each run's membership
+            for p in out["points"]:
+                ids, labels, _ = load_membership(app.store, p["run"])
+                comms = [{int(x[1:]) for x in ids[labels == c].tolist()} for c in range(labels.max() + 1)]
+                assert p["modularity"] == pytest.approx(nx.community.modularity(G, comms, weight="weight"),
+                                                        abs=1e-12)
+            # the chart fits the terminal: every drawn line no wider than the pane
+            lines = plot.render().plain.splitlines()
+            assert max(len(line) for line in lines) <= plot.size.width <= size[0]
+            assert "▲" in lines[plot.chart_height + 1]
+            table = screen.query_one("#sweep-table", DataTable)
+            assert table.row_count == len(out["points"])
+            table.focus()
+            await pilot.pause()
+            await pilot.press("down")
+            await pilot.press("enter")
+            await pilot.pause()
+            assert app.screen.id == "spectrum" and app.current_run == out["points"][1]["run"]
+
+    asyncio.run(go())
+
+
+@pytest.mark.slow
+def test_launch_a_sweep_and_stop_it_mid_way(tmp_path):
+    from textual.widgets import Input, Select
+
+    from workspace.services.sweeps import list_sweeps, show_sweep
+    from workspace.spectral.generators import planted_partition
+
+    path = tmp_path / "big.sqlite"
+    store = open_workspace(path)
+    A, _ = planted_partition(6000, 4, c_in=24.0, c_out=3.0, seed=1)
+    import_adjacency(store, A, tmp_path, project="big", network="planted")
+    store.dispose()
+
+    async def go():
+        async with workspace(path) as (app, pilot):
+            await pilot.press("2")
+            await pilot.pause()
+            launch = app.screen
+            launch.query_one("#launch-version", Select).value = "big/planted@1"
+            await pilot.pause()
+            launch.query_one("#launch-method", Select).value = "njw"
+            await pilot.pause()
+            await app.workers.wait_for_complete()
+            await pilot.pause()
+            launch.query_one("#launch-sweep-k", Input).value = "2..20"
+            launch.query_one("#launch-repeats", Input).value = "3"
+            await pilot.press("ctrl+w")
+            await wait_until(pilot, lambda: app.screen.id == "sweep" and app.screen.job is not None, 20,
+                             f"the sweep screen to start the job {getattr(app, 'shown', [])} {app.screen.id}")
+            screen = app.screen
+            await wait_until(pilot, lambda: screen.job.last_progress is not None
+                             and screen.job.last_progress["done"] >= 2, 180, "two finished tasks")
+            assert not screen.job.finished
+            assert "/57 tasks" in str(screen.query_one("#sweep-state").render())
+            await pilot.press("ctrl+t")
+            await wait_until(pilot, lambda: screen.job.finished, 90, "the sweep to stop")
+            await pilot.pause()
+            assert screen.job.status == "cancelled", screen.job.message
+            sw = show_sweep(app.store, screen.job.sweep_id)
+            assert sw["status"] == "cancelled" and sw["tasks"]["done"] >= 2 and sw["tasks"]["running"] == 0
+            assert list_sweeps(app.store)[0]["status"] == "cancelled"
+            # the screen shows the sweep with its finished k
+            assert screen.sweep_id == screen.job.sweep_id and len(screen.points) >= 2
+
+    asyncio.run(go())
