@@ -14,18 +14,21 @@ from rich.text import Text
 from textual import on
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Horizontal, Vertical, VerticalScroll
+from textual.containers import Horizontal, VerticalScroll
 from textual.screen import Screen
 from textual.widget import Widget
-from textual.widgets import DataTable, Footer, Input, Label, ProgressBar, Static
+from textual.widgets import DataTable, Input, Label, ProgressBar, Static
+
+from workspace.tui import palette
+from workspace.tui.widgets.chrome import Pane, ScreenBar, ScreenFooter
 
 from workspace.errors import CutbookError
 
 BARS = " ▁▂▃▄▅▆▇█"
-QUALITY_STYLE = "#e0a34a"
-STABILITY_STYLE = "#8fb58a"
-MARK_STYLE = "bold #f0c070"
-MUTED_STYLE = "#7d8794"
+QUALITY_STYLE = palette.ACCENT      # orange and sky blue stay apart under colour-vision deficiencies
+STABILITY_STYLE = palette.PRIMARY
+MARK_STYLE = f"bold {palette.TEXT}"
+MUTED_STYLE = palette.FAINT
 
 
 def _bar_cells(value: float | None, top: float, height: int) -> list[str]:
@@ -101,7 +104,7 @@ class SweepScreen(Screen):
     DEFAULT_CSS = """
     #sweep-top { height: 3; }
     #sweep-top Input { width: 16; }
-    #sweep-summary { padding: 1 0 0 1; color: #9aa3ad; }
+    #sweep-summary { padding: 1 0 0 1; color: $dim; }
     #sweep-body .pane { height: auto; }
     #sweep-plot { height: 12; }
     #sweep-table { height: auto; max-height: 16; }
@@ -125,28 +128,24 @@ class SweepScreen(Screen):
         self._ready = False
 
     def compose(self) -> ComposeResult:
+        yield ScreenBar("sweep")
         with Horizontal(id="sweep-top", classes="field-row"):
             yield Label("sweep", classes="name")
             yield Input("", id="sweep-id", placeholder="sweep id, then enter", type="integer")
             yield Static("", id="sweep-summary")
         with VerticalScroll(id="sweep-body"):
-            with Vertical(classes="pane", id="sweep-progress-pane"):
-                yield Static("Progress", classes="pane-title")
+            with Pane(title="Progress", id="sweep-progress-pane"):
                 yield Static("idle — no sweep computing (launch one from Launch with ctrl+w)", id="sweep-state")
                 yield ProgressBar(total=None, show_eta=False, id="sweep-bar")
-            with Vertical(classes="pane"):
-                yield Static("Quality and stability against k", classes="pane-title")
+            with Pane(title="Quality and stability against k"):
                 yield SweepPlot(id="sweep-plot")
-            with Vertical(classes="pane"):
-                yield Static("Measures per k (▲ rec: recommended · enter: open the run)", classes="pane-title")
+            with Pane(title="Measures per k (▲ rec: recommended · enter: open the run)"):
                 yield DataTable(id="sweep-table", cursor_type="row", zebra_stripes=True)
-            with Vertical(classes="pane"):
-                yield Static("Recommendation", classes="pane-title")
+            with Pane(title="Recommendation"):
                 yield Static("", id="sweep-recommendation")
-            with Vertical(classes="pane"):
-                yield Static("How communities split as k grows", classes="pane-title")
+            with Pane(title="How communities split as k grows"):
                 yield Static("", id="sweep-splits")
-        yield Footer()
+        yield ScreenFooter("sweep")
 
     def on_mount(self) -> None:
         self._ready = True
