@@ -142,10 +142,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--filter", metavar="TEXT",
                    help="only runs whose method, label, version, status or parameter set contains every word")
 
-    p = add("export", "write a run's membership to a file", "runs", "cmd_export")
+    p = add("export", "write a run's membership (csv), or the network with it (json node-link, graphml)",
+            "runs", "cmd_export")
     p.add_argument("run", type=int)
-    p.add_argument("--format", choices=["csv", "json", "graphml"], default="csv")
-    p.add_argument("-o", "--output", required=True, metavar="FILE")
+    p.add_argument("--format", choices=["csv", "json", "graphml"], default="csv",
+                   help="csv: node,community; json/graphml: nodes, edges, weights and each node's community")
+    p.add_argument("-o", "--output", required=True, metavar="FILE", help="output file; '-' for standard output")
 
     p = add("where", "a node's community in every run of every version (of every network unless --network)",
             "runs", "cmd_where")
