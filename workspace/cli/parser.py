@@ -154,6 +154,18 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("node")
     p.add_argument("--network", metavar="PROJECT/NETWORK", help="search this network only (default: every network)")
 
+    # --- reports (workspace/cli/report.py) -------------------------------------------
+    p = add("report", "an HTML report of a run, or of the diff of two runs; or one of its figures "
+            "as SVG/PNG", "report", "cmd_report")
+    p.add_argument("runs", nargs="+", type=int, metavar="RUN", help="one run, or two runs (A B) to compare")
+    p.add_argument("-o", "--output", required=True, metavar="FILE",
+                   help="FILE.html (the page), FILE.svg or FILE.png (with --figure); '-' for standard output")
+    p.add_argument("--figure", metavar="NAME",
+                   help="write one figure alone: spectrum, sizes, stability, network (run); contingency (diff)")
+    p.add_argument("--format", choices=["html", "svg", "png"], help="output format (default: by extension)")
+    p.add_argument("--moved", type=int, default=None, metavar="N",
+                   help="diff report: moved nodes listed (default 50; the rest are counted)")
+
     # --- comparing -------------------------------------------------------------------
     p = add("diff", "compare the memberships of two runs, or follow a chain of runs", "diffs", "cmd_diff")
     p.add_argument("runs", nargs="*", type=int, metavar="RUN", help="two runs (or, with --track, a chain)")

@@ -1,0 +1,284 @@
+"""The report's figures, drawn with matplotlib from plain arrays.
+
+Each function returns a ``matplotlib.figure.Figure`` built without pyplot (no
+global state, no window). Colours come from ``workspace.palette``: community
+colours are the terminal UI's (Okabe & Ito 2008), on a light "paper" ground.
+"""
+
+from __future__ import annotations
+
+from typing import Sequence
+
+import numpy as np
+
+from workspace import palette
+
+#: Networks with more nodes than this are not drawn (the drawing would be a blot).
+DRAW_LIMIT = 3000
+#: Seed of the spring layout, so the drawing of a network never jumps between reports.
+LAYOUT_SEED = 7
+
+
+def _figure(width: float, height: float):
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(width, height), dpi=100, facecolor=palette.PAPER, layout="constrained")
+    return fig
+
+
+def _axes(fig):
+    ax = fig.add_subplot(1, 1, 1)
+    ax.set_facecolor(palette.PAPER)
+    for side in ("top", "right"):
+        ax.spines[side].set_visible(False)
+    for side in ("left", "bottom"):
+        ax.spines[side].set_color(palette.INK_SOFT)
+    ax.tick_params(colors=palette.INK, labelsize=9)
+    ax.xaxis.label.set_color(palette.INK)
+    ax.yaxis.label.set_color(palette.INK)
+    ax.title.set_color(palette.INK)
+    return ax
+
+
+def spectrum(eigenvalues: Sequence[float], gap_k: int | None):
+    """Bar chart of the smallest eigenvalues, marking the chosen gap.
+
+    With eigenvalues ``λ_1 <= λ_2 <= …`` of the normalised Laplacian, the
+    eigengap heuristic picks ``k = argmax_i (λ_{i+1} - λ_i)``; bars
+    ``λ_1 … λ_k`` are drawn in the lead colour, the rest faint, and a marker
+    stands between ``λ_k`` and ``λ_{k+1}``.
+
+    Parameters
+    ----------
+    eigenvalues : sequence of float
+        In ascending order, as stored on the run.
+    gap_k : int or None
+        The run's eigengap suggestion (diagnostics); None draws no marker.
+
+    References
+    ----------
+    U. von Luxburg, "A tutorial on spectral clustering", Statistics and
+    Computing 17 (2007), section 8.3.
+    """
+    lam = np.asarray(eigenvalues, dtype=float)
+    fig = _figure(6.4, 3.0)
+    ax = _axes(fig)
+    idx = np.arange(1, lam.size + 1)
+    k = gap_k if gap_k is not None and 1 <= gap_k < lam.size else None
+    colours = [palette.BEFORE_GAP if (k is None or i <= k) else palette.FAINT for i in idx]
+    ax.bar(idx, lam, color=colours, width=0.7)
+    if k is not None:
+        ax.axvline(k + 0.5, color=palette.GAP_MARK, linewidth=2, linestyle="--")
+        top = float(lam.max()) if lam.size else 1.0
+        ax.annotate(f"largest gap: k = {k}\nλ{k + 1} − λ{k} = {lam[k] - lam[k - 1]:.3g}",
+                    xy=(k + 0.5, top), xytext=(-8, -2), textcoords="offset points", va="top",
+                    ha="right", fontsize=9, color=palette.INK)
+    ax.set_xticks(idx)
+    ax.set_xlabel("index i")
+    ax.set_ylabel("eigenvalue λi")
+    return fig
+
+
+def community_sizes(sizes: Sequence[int]):
+    """Bar chart of community sizes ``|C_c| = #{i : label_i = c}`` in label order.
+
+    Parameters
+    ----------
+    sizes : sequence of int
+        Size of community ``c`` at position ``c`` (a ``numpy.bincount`` of the
+        membership); each bar in the community's colour.
+
+    References
+    ----------
+    Common practice; colours after M. Okabe and K. Ito, "Color Universal
+    Design" (2008).
+    """
+    sizes = np.asarray(sizes, dtype=np.int64)
+    fig = _figure(6.4, 2.8)
+    ax = _axes(fig)
+    labels = np.arange(sizes.size)
+    ax.bar(labels, sizes, color=[palette.community_colour(c) for c in labels],
+           edgecolor=palette.INK_SOFT, linewidth=0.5, width=0.75, gid="sizes")
+    if sizes.size <= 40:
+        ax.set_xticks(labels)
+    ax.set_xlabel("community")
+    ax.set_ylabel("nodes")
+    return fig
+
+
+def stability_histogram(stability: Sequence[float], repeats: int):
+    """Histogram of per-node stability over repeated runs, ten bins on [0, 1].
+
+    Stability of node ``i`` is the share ``s_i = c_i / R`` of the ``R``
+    perturbed repeats in which its community (labels aligned) equals the
+    reported one, as stored on the run.
+
+    Parameters
+    ----------
+    stability : sequence of float
+        One value in [0, 1] per node.
+    repeats : int
+        ``R``, shown in the axis label.
+
+    References
+    ----------
+    A. Strehl and J. Ghosh, "Cluster ensembles", JMLR 3 (2002) (agreement of
+    repeated partitions); common practice.
+    """
+    s = np.asarray(stability, dtype=float)
+    fig = _figure(6.4, 2.6)
+    ax = _axes(fig)
+    ax.hist(s, bins=np.linspace(0.0, 1.0, 11), color=palette.BARS, edgecolor=palette.PAPER)
+    ax.set_xlim(0, 1)
+    ax.set_xlabel(f"share of {repeats} repeats that agree with the reported community")
+    ax.set_ylabel("nodes")
+    return fig
+
+
+def spring_positions(n: int, edge_u: np.ndarray, edge_v: np.ndarray, weight: np.ndarray,
+                     *, seed: int = LAYOUT_SEED) -> np.ndarray:
+    """Node positions from a seeded force-directed layout, shape (n, 2).
+
+    Fruchterman–Reingold: attraction ``d^2 / k`` along edges (times the
+    weight), repulsion ``k^2 / d`` between all pairs, ``k = 1/sqrt(n)``;
+    ``networkx.spring_layout`` with a fixed seed, so the same network is drawn
+    the same way each time.
+
+    Parameters
+    ----------
+    n : int
+    edge_u, edge_v : ndarray of int
+    weight : ndarray of float
+    seed : int, default ``LAYOUT_SEED``
+
+    References
+    ----------
+    T. M. J. Fruchterman and E. M. Reingold, "Graph drawing by force-directed
+    placement", Software: Practice and Experience 21 (1991).
+    """
+    import networkx as nx
+
+    g = nx.Graph()
+    g.add_nodes_from(range(n))
+    g.add_weighted_edges_from(zip(np.asarray(edge_u).tolist(), np.asarray(edge_v).tolist(),
+                                  np.asarray(weight, dtype=float).tolist()))
+    pos = nx.spring_layout(g, seed=seed, iterations=100)
+    return np.array([pos[i] for i in range(n)], dtype=float).reshape(n, 2)
+
+
+def network_drawing(positions: np.ndarray, edge_u: np.ndarray, edge_v: np.ndarray,
+                    labels: np.ndarray):
+    """The network drawn at ``positions``, nodes coloured by community.
+
+    Parameters
+    ----------
+    positions : ndarray of float, shape (n, 2)
+    edge_u, edge_v : ndarray of int
+        Edges drawn as thin lines under the nodes.
+    labels : ndarray of int, shape (n,)
+        Community per node (-1: none, drawn grey).
+
+    References
+    ----------
+    Common practice; colours after Okabe and Ito (2008).
+    """
+    from matplotlib.collections import LineCollection
+
+    pos = np.asarray(positions, dtype=float)
+    labels = np.asarray(labels)
+    fig = _figure(6.4, 6.0)
+    ax = fig.add_subplot(1, 1, 1)
+    ax.set_facecolor(palette.PAPER)
+    ax.set_axis_off()
+    ax.set_aspect("equal")
+    if len(edge_u):
+        segs = np.stack([pos[np.asarray(edge_u)], pos[np.asarray(edge_v)]], axis=1)
+        ax.add_collection(LineCollection(segs, colors=palette.PAPER_RULE, linewidths=0.6, zorder=1))
+    n = pos.shape[0]
+    size = float(np.clip(2400.0 / max(n, 1), 4.0, 60.0))
+    colours = [palette.community_colour(c) if c >= 0 else palette.FAINT for c in labels.tolist()]
+    ax.scatter(pos[:, 0], pos[:, 1], s=size, c=colours, edgecolors=palette.INK, linewidths=0.3,
+               zorder=2)
+    ax.autoscale_view()
+    return fig
+
+
+def contingency_block(cells: Sequence[Sequence[int]], row_sizes: Sequence[int],
+                      col_sizes: Sequence[int], *, top: int = 15):
+    """The dense block of the contingency table over the ``top`` largest communities.
+
+    ``n_ab = |A_a ∩ B_b|`` for the ``top`` largest communities of each side
+    (ties by label), rows and columns in label order.
+
+    Parameters
+    ----------
+    cells : sequence of [a, b, count]
+        The non-zero cells (the diff's sparse form).
+    row_sizes, col_sizes : sequence of int
+        ``|A_a|`` and ``|B_b|``.
+    top : int, default 15
+
+    Returns
+    -------
+    rows, cols : ndarray of int
+        Labels shown.
+    table : ndarray of int64, shape (len(rows), len(cols))
+
+    References
+    ----------
+    L. Hubert and P. Arabie, "Comparing partitions", Journal of
+    Classification 2 (1985) (the contingency table).
+    """
+    rs, cs = np.asarray(row_sizes, dtype=np.int64), np.asarray(col_sizes, dtype=np.int64)
+    rows = np.sort(np.argsort(-rs, kind="stable")[:top])
+    cols = np.sort(np.argsort(-cs, kind="stable")[:top])
+    r_at = {int(a): i for i, a in enumerate(rows)}
+    c_at = {int(b): j for j, b in enumerate(cols)}
+    table = np.zeros((rows.size, cols.size), dtype=np.int64)
+    for a, b, count in cells:
+        if a in r_at and b in c_at:
+            table[r_at[a], c_at[b]] = count
+    return rows, cols, table
+
+
+def contingency_heatmap(cells: Sequence[Sequence[int]], row_sizes: Sequence[int],
+                        col_sizes: Sequence[int], *, top: int = 15):
+    """Heat map of the contingency table of two partitions, largest communities only.
+
+    Cell ``(a, b)`` holds ``n_ab = |A_a ∩ B_b|`` (see :func:`contingency_block`),
+    shaded on a single-hue ramp from the paper colour, counts written in the
+    cells when the block has at most 400 of them.
+
+    Parameters
+    ----------
+    cells : sequence of [a, b, count]
+    row_sizes, col_sizes : sequence of int
+    top : int, default 15
+
+    References
+    ----------
+    L. Hubert and P. Arabie, "Comparing partitions", Journal of
+    Classification 2 (1985).
+    """
+    from matplotlib.colors import ListedColormap
+
+    rows, cols, table = contingency_block(cells, row_sizes, col_sizes, top=top)
+    fig = _figure(6.4, max(2.4, 0.35 * rows.size + 1.4))
+    ax = _axes(fig)
+    peak = max(int(table.max()) if table.size else 0, 1)
+    im = ax.imshow(table, cmap=ListedColormap(palette.PAPER_HEAT), aspect="auto", vmin=0, vmax=peak,
+                   interpolation="nearest")
+    ax.set_xticks(range(cols.size), [str(b) for b in cols])
+    ax.set_yticks(range(rows.size), [str(a) for a in rows])
+    ax.set_xlabel("community in run B")
+    ax.set_ylabel("community in run A")
+    if table.size <= 400:
+        for i in range(rows.size):
+            for j in range(cols.size):
+                if table[i, j]:
+                    ax.text(j, i, str(table[i, j]), ha="center", va="center", fontsize=8,
+                            color=palette.PAPER if table[i, j] > 0.55 * peak else palette.INK)
+    cb = fig.colorbar(im, ax=ax, shrink=0.8)
+    cb.ax.tick_params(colors=palette.INK, labelsize=8)
+    cb.set_label("shared nodes", color=palette.INK)
+    return fig
