@@ -170,12 +170,20 @@ def test_network_drawing_places_every_node_in_its_community_colour(store, club, 
     data = run_report_data(store, club["auto"])
     fig = run_figures(data)["network"][1]()
     ax = fig.axes[0]
-    nodes = ax.collections[-1]
-    edges = ax.collections[0]
-    assert nodes.get_offsets().shape == (34, 2)
+    edges, *scatters = ax.collections
     assert len(edges.get_segments()) == nx.karate_club_graph().number_of_edges() == 78
+    points = np.concatenate([sc.get_offsets() for sc in scatters])
+    colours = [to_hex(c) for sc in scatters for c in sc.get_facecolors()]
+    assert points.shape == (34, 2)
+    # each node i sits at the seeded layout position and wears its stored community's colour
+    from workspace.report.figures import spring_positions
+
+    g = data["graph"]
+    pos = spring_positions(g["n"], g["edge_u"], g["edge_v"], g["weight"])
     _, labels, _, _ = _stored(store_path, club["auto"])
-    assert [to_hex(c) for c in nodes.get_facecolors()] == [community_colour(c) for c in labels.tolist()]
+    for i, c in enumerate(labels.tolist()):
+        j = int(np.argmin(np.abs(points - pos[i]).sum(axis=1)))
+        assert np.allclose(points[j], pos[i]) and colours[j] == community_colour(c)
 
 
 def test_diff_report_contingency_matches_scikit_learn(store, club, store_path, cli, tmp_path):
@@ -206,6 +214,20 @@ def test_diff_report_contingency_matches_scikit_learn(store, club, store_path, c
     for node, *_ in data["moved_nodes"][:3]:
         assert f"<td>{node}</td>" in page
     assert f"<td>{data['moved_nodes'][3][0]}</td>" not in page
+
+
+def test_communities_past_seven_get_their_own_marker_and_hatching():
+    from workspace.report import figures as F
+
+    # colours cycle after seven (the terminal UI's palette); shape and hatching tell 0 from 7
+    labels = np.arange(16)
+    pos = np.c_[np.arange(16.0), np.zeros(16)]
+    fig = F.network_drawing(pos, np.array([0]), np.array([1]), labels)
+    markers = [sc.get_paths()[0].vertices.shape[0] for sc in fig.axes[0].collections[1:]]
+    assert len(markers) == 3 and len(set(markers)) == 3
+    bars = F.community_sizes(np.ones(16, dtype=int)).axes[0].patches
+    assert [b.get_hatch() or "" for b in bars] == [F.hatch_of(c) for c in range(16)]
+    assert F.hatch_of(0) == "" and F.hatch_of(7) != "" and F.hatch_of(14) not in ("", F.hatch_of(7))
 
 
 def test_heatmap_keeps_the_largest_communities():

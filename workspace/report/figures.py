@@ -19,6 +19,22 @@ DRAW_LIMIT = 3000
 LAYOUT_SEED = 7
 
 
+#: Seven colours cycle (``palette.COMMUNITY``); each further round of seven gets its own marker
+#: (network drawing) and hatching (bars), so communities 0 and 7 never look alike.
+MARKERS = ("o", "s", "^", "D", "v", "P")
+HATCHES = ("", "///", "...", "xxx", "\\\\\\", "+++")
+
+
+def marker_of(label: int) -> str:
+    """Marker of community ``label``: one per round of ``len(palette.COMMUNITY)`` colours."""
+    return MARKERS[(int(label) // len(palette.COMMUNITY)) % len(MARKERS)] if label >= 0 else "o"
+
+
+def hatch_of(label: int) -> str:
+    """Bar hatching of community ``label``: none for the first seven, then one per round."""
+    return HATCHES[(int(label) // len(palette.COMMUNITY)) % len(HATCHES)] if label >= 0 else ""
+
+
 def _figure(width: float, height: float):
     from matplotlib.figure import Figure
 
@@ -97,8 +113,10 @@ def community_sizes(sizes: Sequence[int]):
     fig = _figure(6.4, 2.8)
     ax = _axes(fig)
     labels = np.arange(sizes.size)
-    ax.bar(labels, sizes, color=[palette.community_colour(c) for c in labels],
-           edgecolor=palette.INK_SOFT, linewidth=0.5, width=0.75)
+    bars = ax.bar(labels, sizes, color=[palette.community_colour(c) for c in labels],
+                  edgecolor=palette.INK_SOFT, linewidth=0.5, width=0.75)
+    for c, bar in zip(labels.tolist(), bars):
+        bar.set_hatch(hatch_of(c))
     if sizes.size <= 40:
         ax.set_xticks(labels)
     ax.set_xlabel("community")
@@ -176,7 +194,8 @@ def network_drawing(positions: np.ndarray, edge_u: np.ndarray, edge_v: np.ndarra
     edge_u, edge_v : ndarray of int
         Edges drawn as thin lines under the nodes.
     labels : ndarray of int, shape (n,)
-        Community per node (-1: none, drawn grey).
+        Community per node (-1: none, drawn grey); colour ``palette.community_colour``,
+        marker :func:`marker_of` (a new shape after each seven colours).
 
     References
     ----------
@@ -196,9 +215,12 @@ def network_drawing(positions: np.ndarray, edge_u: np.ndarray, edge_v: np.ndarra
         ax.add_collection(LineCollection(segs, colors=palette.PAPER_RULE, linewidths=0.6, zorder=1))
     n = pos.shape[0]
     size = float(np.clip(2400.0 / max(n, 1), 4.0, 60.0))
-    colours = [palette.community_colour(c) if c >= 0 else palette.FAINT for c in labels.tolist()]
-    ax.scatter(pos[:, 0], pos[:, 1], s=size, c=colours, edgecolors=palette.INK, linewidths=0.3,
-               zorder=2)
+    rounds = np.where(labels >= 0, labels // len(palette.COMMUNITY), 0)
+    for r in np.unique(rounds).tolist():  # one scatter per marker; node order kept within each
+        idx = np.flatnonzero(rounds == r)
+        colours = [palette.community_colour(c) if c >= 0 else palette.FAINT for c in labels[idx].tolist()]
+        ax.scatter(pos[idx, 0], pos[idx, 1], s=size, c=colours, marker=MARKERS[r % len(MARKERS)],
+                   edgecolors=palette.INK, linewidths=0.3, zorder=2)
     ax.autoscale_view()
     return fig
 

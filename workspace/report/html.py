@@ -81,7 +81,11 @@ class _Raw(str):
 
 def _swatch(label: int) -> _Raw:
     colour = palette.community_colour(label) if label >= 0 else palette.FAINT
-    return _Raw(f'<span class="swatch" style="background:{colour}"></span>{int(label)}')
+    if label >= len(palette.COMMUNITY):  # colours cycle after seven: striped like the hatched bars
+        fill = f"repeating-linear-gradient(45deg,{colour} 0 3px,{palette.PAPER} 3px 5px)"
+    else:
+        fill = colour
+    return _Raw(f'<span class="swatch" style="background:{fill}"></span>{int(label)}')
 
 
 def _figure_html(name: str, fig, caption: str) -> str:
