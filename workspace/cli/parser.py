@@ -166,6 +166,16 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--moved", type=int, default=None, metavar="N",
                    help="diff report: moved nodes listed (default 50; the rest are counted)")
 
+    p = add("composition", "a run's communities by a node attribute from a node table file "
+            "(counts, shares, dominant value; ARI/NMI agreement)", "report", "cmd_composition")
+    p.add_argument("run", type=int)
+    p.add_argument("--nodes", required=True, metavar="FILE",
+                   help="node table: CSV with a 'node' (or 'id') column, GraphML node data, or node-link JSON")
+    p.add_argument("--by", required=True, metavar="ATTRIBUTE", help="the attribute (column) to group by")
+    p.add_argument("--nodes-format", choices=["csv", "graphml", "json"], help="node table format (default: by extension)")
+    p.add_argument("--nmi", choices=["arithmetic", "geometric", "max", "min"], default="arithmetic",
+                   help="NMI normalisation (default arithmetic)")
+
     # --- comparing -------------------------------------------------------------------
     p = add("diff", "compare the memberships of two runs, or follow a chain of runs", "diffs", "cmd_diff")
     p.add_argument("runs", nargs="*", type=int, metavar="RUN", help="two runs (or, with --track, a chain)")

@@ -143,3 +143,21 @@ def write_report(store: Store, runs: list[int], path: str | os.PathLike, *, figu
             raise
     summary.update({"path": target, "bytes": len(body)})
     return summary
+
+
+def composition(store: Store, run_id: int, nodes_path: str | os.PathLike, attribute: str, *,
+                nodes_format: str | None = None, nmi_normalization: str = "arithmetic") -> dict[str, Any]:
+    """A run's communities by a node attribute read from a node table file (CSV / GraphML / JSON).
+
+    The file is read and checked before anything else; nothing is written to the store.
+    """
+    from workspace.compare.composition import composition as compose
+    from workspace.io.node_data import align_column, read_node_table
+
+    table = read_node_table(nodes_path, format=nodes_format)
+    table.column(attribute)  # a missing column is named before the store is read
+    node_ids, labels, summary = runs_service.load_membership(store, run_id)
+    kind, values = align_column(table, attribute, node_ids)
+    out = compose(labels, values, nmi_normalization=nmi_normalization)
+    return {"run": run_id, "ref": summary["ref"], "attribute": attribute, "type": kind,
+            "nodes_file": os.fspath(nodes_path), "missing_values": sum(v is None for v in values), **out}
