@@ -162,3 +162,50 @@ def test_composition_cli_on_the_karate_club(cli, tmp_path):
     assert text.code == 0 and "ARI" in text.out and "Officer" in text.out
     missing = cli("composition", run, "--nodes", nodes, "--by", "district")
     assert missing.code == 1 and "club.graphml" in missing.err and "no node attribute 'district'" in missing.err and "club" in missing.err
+
+
+def test_run_report_with_a_composition(cli, tmp_path):
+    import re
+
+    import defusedxml.ElementTree as safe_etree
+
+    G = _karate_with_attributes()
+    A = nx.to_scipy_sparse_array(nx.karate_club_graph(), nodelist=range(34), weight="weight")
+    csv = adjacency_to_csv(A, tmp_path / "karate.csv", [f"m{i:02d}" for i in range(34)])
+    assert cli("import", csv, "--project", "club", "--network", "karate", "--weight", "weight").code == 0
+    run = cli("run", "club/karate", "--method", "njw", "--k", "3", "--json").json["run"]
+    other = cli("run", "club/karate", "--method", "njw", "--k", "2", "--json").json["run"]
+    nodes = tmp_path / "club.json"
+    nodes.write_text(json.dumps(nx.node_link_data(G, edges="links")), encoding="utf-8")
+    page = tmp_path / "r.html"
+    res = cli("report", run, "--nodes", nodes, "--by", "club", "-o", page, "--json")
+    assert res.code == 0, res.err
+    assert "composition" in res.json["figures"]
+    text = page.read_text(encoding="utf-8")
+    assert "Composition by club" in text
+    svgs = re.findall(r"<svg\b.*?</svg>", text, re.S)
+    assert len(svgs) == len(res.json["figures"])
+    for svg in svgs:
+        safe_etree.fromstring(svg)  # well-formed XML (defusedxml)
+
+    # the stacked bars are the shares of each value per community, recounted with numpy.bincount
+    from workspace.report.figures import composition_bars
+    from workspace.services import reports, runs
+    from workspace.services.store import open_workspace
+
+    st = open_workspace(tmp_path / "store.sqlite")
+    try:
+        comp = reports.composition(st, run, nodes, "club")
+        ids, labels, _ = runs.load_membership(st, run)
+    finally:
+        st.dispose()
+    club = np.array([G.nodes[i]["club"] for i in ids.tolist()])
+    fig = composition_bars(comp["communities"], comp["categories"], "club")
+    widths = np.array([p.get_width() for p in fig.axes[0].patches]).reshape(len(comp["categories"]), -1)
+    for j, value in enumerate(comp["categories"]):
+        recount = np.bincount(labels[club == value], minlength=labels.max() + 1) / np.bincount(labels)
+        np.testing.assert_allclose(widths[j], recount, atol=1e-12)
+
+    assert cli("report", run, "--nodes", nodes, "-o", tmp_path / "x.html").code == 2
+    assert cli("report", run, other, "--nodes", nodes, "--by", "club", "-o", tmp_path / "x.html").code == 2
+    assert not (tmp_path / "x.html").exists()

@@ -161,10 +161,13 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--output", required=True, metavar="FILE",
                    help="FILE.html (the page), FILE.svg or FILE.png (with --figure); '-' for standard output")
     p.add_argument("--figure", metavar="NAME",
-                   help="write one figure alone: spectrum, sizes, stability, network (run); contingency (diff)")
+                   help="write one figure alone: spectrum, sizes, stability, composition, network (run); "
+                        "contingency (diff)")
     p.add_argument("--format", choices=["html", "svg", "png"], help="output format (default: by extension)")
     p.add_argument("--moved", type=int, default=None, metavar="N",
                    help="diff report: moved nodes listed (default 50; the rest are counted)")
+    p.add_argument("--nodes", metavar="FILE", help="run report: a node table (CSV/GraphML/JSON) for a composition")
+    p.add_argument("--by", metavar="ATTRIBUTE", help="run report, with --nodes: the attribute to compose by")
 
     p = add("composition", "a run's communities by a node attribute from a node table file "
             "(counts, shares, dominant value; ARI/NMI agreement)", "report", "cmd_composition")

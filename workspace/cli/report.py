@@ -16,7 +16,8 @@ def cmd_report(args) -> int:
         raise UsageError("-o - writes the report to standard output; leave out --json")
     with session(args) as (store, out):
         res = svc.write_report(store, args.runs, args.output, figure=args.figure, format=args.format,
-                               stream=sys.stdout.buffer if to_stdout else None, moved_shown=args.moved)
+                               stream=sys.stdout.buffer if to_stdout else None, moved_shown=args.moved,
+                               nodes=args.nodes, by=args.by)
         if args.json:
             emit_json(res)
         else:

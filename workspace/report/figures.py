@@ -7,7 +7,7 @@ colours are the terminal UI's (Okabe & Ito 2008), on a light "paper" ground.
 
 from __future__ import annotations
 
-from typing import Sequence
+from typing import Any, Sequence
 
 import numpy as np
 
@@ -54,6 +54,12 @@ def _axes(fig):
     ax.yaxis.label.set_color(palette.INK)
     ax.title.set_color(palette.INK)
     return ax
+
+
+def _integer_y(ax) -> None:
+    from matplotlib.ticker import MaxNLocator
+
+    ax.yaxis.set_major_locator(MaxNLocator(integer=True))
 
 
 def spectrum(eigenvalues: Sequence[float], gap_k: int | None):
@@ -121,6 +127,7 @@ def community_sizes(sizes: Sequence[int]):
         ax.set_xticks(labels)
     ax.set_xlabel("community")
     ax.set_ylabel("nodes")
+    _integer_y(ax)
     return fig
 
 
@@ -150,6 +157,7 @@ def stability_histogram(stability: Sequence[float], repeats: int):
     ax.set_xlim(0, 1)
     ax.set_xlabel(f"share of {repeats} repeats that agree with the reported community")
     ax.set_ylabel("nodes")
+    _integer_y(ax)
     return fig
 
 
@@ -317,4 +325,47 @@ def contingency_heatmap(cells: Sequence[Sequence[int]], row_sizes: Sequence[int]
     cb = fig.colorbar(im, ax=ax, shrink=0.8)
     cb.ax.tick_params(colors=palette.INK, labelsize=8)
     cb.set_label("shared nodes", color=palette.INK)
+    return fig
+
+
+def composition_bars(communities: Sequence[dict], categories: Sequence[Any], attribute: str):
+    """Stacked horizontal bars: each community's shares of an attribute's values.
+
+    Bar ``c`` is split into segments of width ``n_cv / Σ_v n_cv`` (the
+    composition's ``shares``), in the order of ``categories``; values take the
+    palette's colours in turn (up to 12 values are named in the legend).
+
+    Parameters
+    ----------
+    communities : sequence of dict
+        Rows of ``compare.composition.composition``: ``community``, ``shares``.
+    categories : sequence
+        The attribute's values, in the order of ``shares``.
+    attribute : str
+        Named in the axis label.
+
+    References
+    ----------
+    Common practice (stacked share bars); colours after Okabe and Ito (2008).
+    """
+    fig = _figure(6.4, max(2.2, 0.32 * len(communities) + 1.6))
+    ax = _axes(fig)
+    y = np.arange(len(communities))
+    left = np.zeros(len(communities))
+    colours = palette.COMMUNITY
+    for j, value in enumerate(categories):
+        widths = np.array([row["shares"][j] for row in communities], dtype=float)
+        ax.barh(y, widths, left=left, color=colours[j % len(colours)],
+                hatch=HATCHES[(j // len(colours)) % len(HATCHES)], edgecolor=palette.PAPER, linewidth=0.5,
+                label=str(value) if j < 12 else None)
+        left += widths
+    ax.set_yticks(y, [str(row["community"]) for row in communities])
+    ax.set_ylim(len(communities) - 0.5, -0.5)
+    ax.set_xlim(0, 1)
+    ax.set_xlabel(f"share of the community's nodes, by {attribute}")
+    ax.set_ylabel("community")
+    if categories:
+        legend = ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=8, frameon=False)
+        for text in legend.get_texts():
+            text.set_color(palette.INK)
     return fig

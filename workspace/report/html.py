@@ -17,7 +17,7 @@ from workspace.report import figures as F
 from workspace.report.render import inline_svg
 
 #: Figures of a run report, in page order (``network`` only up to ``figures.DRAW_LIMIT`` nodes).
-RUN_FIGURES = ("spectrum", "sizes", "stability", "network")
+RUN_FIGURES = ("spectrum", "sizes", "stability", "composition", "network")
 #: Figures of a diff report.
 DIFF_FIGURES = ("contingency",)
 #: Moved nodes listed by default (the rest summed up as "and N more").
@@ -123,6 +123,11 @@ def run_figures(data: dict[str, Any]) -> dict[str, tuple[str, Callable[[], Any]]
     if data.get("stability") is not None and (data.get("repeats") or 1) > 1:
         out["stability"] = (f"Node stability over {data['repeats']} repeats.",
                             lambda: F.stability_histogram(data["stability"], data["repeats"]))
+    comp = data.get("composition")
+    if comp is not None:
+        out["composition"] = (f"Each community's make-up by {comp['attribute']}.",
+                              lambda: F.composition_bars(comp["communities"], comp["categories"],
+                                                         comp["attribute"]))
     g = data.get("graph")
     if g is not None and 0 < g["n"] <= F.DRAW_LIMIT:
         def draw():
@@ -165,7 +170,10 @@ def run_page(data: dict[str, Any]) -> str:
         if name in figs:
             caption, draw = figs[name]
             heading = {"spectrum": "Spectrum", "sizes": "Community sizes", "stability": "Stability",
-                       "network": "Network"}[name]
+                       "network": "Network", "composition": "Composition"}[name]
+            if name == "composition":
+                body.append(_composition_html(data["composition"], _figure_html(name, draw(), caption)))
+                continue
             body.append(f"<h2>{heading}</h2>" + _figure_html(name, draw(), caption))
     g = data.get("graph")
     if g is not None and g["n"] > F.DRAW_LIMIT:
@@ -174,6 +182,20 @@ def run_page(data: dict[str, Any]) -> str:
     for note in data.get("notes") or []:
         body.append(f'<p class="note">{escape(note)}</p>')
     return _page(title, "cutbook run report", body)
+
+
+def _composition_html(comp: dict[str, Any], figure: str) -> str:
+    attr = escape(str(comp["attribute"]))
+    head = (f"<h2>Composition by {attr}</h2>"
+            f"<p>Values of <b>{attr}</b> ({escape(comp['type'])}) from {escape(str(comp.get('nodes_file', '')))}: "
+            f"{comp['nodes']} nodes with a community and a value"
+            + (f", {comp['left_out']} left out" if comp.get("left_out") else "") + ".</p>")
+    scores = _table(["agreement", "value"], [["adjusted Rand index", comp["ari"]],
+                                             [f"NMI ({comp['nmi_normalization']})", comp["nmi"]],
+                                             ["purity", comp["purity"]]], {"value"})
+    rows = [[_swatch(c["community"]), c["size"], c["dominant"], c["dominant_share"]] for c in comp["communities"]]
+    table = _table(["community", "size", "dominant value", "share"], rows, {"size", "share"})
+    return head + scores + figure + table
 
 
 # --- diff --------------------------------------------------------------------------------

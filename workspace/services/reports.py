@@ -16,6 +16,8 @@ from workspace.store.db import Store
 from workspace.store.schema import NetworkVersion, Run
 
 REPORT_FORMATS = ("html", "svg", "png")
+_MISSING = {"spectrum": "no eigengap suggestion", "stability": "no repeats",
+            "composition": "give --nodes FILE --by ATTRIBUTE"}
 
 
 def run_report_data(store: Store, run_id: int) -> dict[str, Any]:
@@ -70,7 +72,8 @@ def _format_of(path: str, format: str | None) -> str:
 
 
 def build_report(store: Store, runs: list[int], *, figure: str | None = None, format: str = "html",
-                 moved_shown: int | None = None) -> tuple[bytes, dict[str, Any]]:
+                 moved_shown: int | None = None, nodes: str | os.PathLike | None = None,
+                 by: str | None = None) -> tuple[bytes, dict[str, Any]]:
     """The report (or one of its figures) as bytes, and a summary.
 
     Parameters
@@ -84,6 +87,9 @@ def build_report(store: Store, runs: list[int], *, figure: str | None = None, fo
         ``html`` needs ``figure=None``; ``svg``/``png`` need a figure.
     moved_shown : int or None
         Diff reports: moved nodes listed (default ``report.html.MOVED_SHOWN``).
+    nodes, by : path and attribute name, or None
+        Run reports: add the communities' composition by attribute ``by`` of the node
+        table ``nodes`` (see :func:`composition`).
     """
     from workspace.report import html as pages
     from workspace.report.render import figure_bytes
@@ -95,7 +101,14 @@ def build_report(store: Store, runs: list[int], *, figure: str | None = None, fo
     if format in ("svg", "png") and figure is None:
         raise UsageError(f"a .{format} output holds one figure: name it with --figure")
     kind = "run" if len(runs) == 1 else "diff"
+    if (nodes is None) != (by is None):
+        raise UsageError("--nodes FILE and --by ATTRIBUTE go together")
+    if nodes is not None and kind == "diff":
+        raise UsageError("--nodes/--by add a composition to a run report (one run)")
+    comp = composition(store, runs[0], nodes, by) if nodes is not None else None
     data = run_report_data(store, runs[0]) if kind == "run" else diff_report_data(store, *runs)
+    if comp is not None:
+        data["composition"] = comp
     figs = pages.run_figures(data) if kind == "run" else pages.diff_figures(data)
     summary: dict[str, Any] = {"kind": kind, "runs": list(runs), "format": format,
                                "figures": list(figs)}
@@ -105,7 +118,7 @@ def build_report(store: Store, runs: list[int], *, figure: str | None = None, fo
             raise UsageError(f"no figure {figure!r} in a {kind} report (figures: {', '.join(known)})")
         if figure not in figs:
             raise NotFoundError(f"run {runs[0]} has no {figure} figure "
-                                f"({'no eigengap suggestion' if figure == 'spectrum' else 'no repeats' if figure == 'stability' else 'too many nodes to draw'}); "
+                                f"({_MISSING.get(figure, 'too many nodes to draw')}); "
                                 f"this run has: {', '.join(figs)}")
         body = figure_bytes(figs[figure][1](), format)
         summary["figure"] = figure
@@ -118,11 +131,13 @@ def build_report(store: Store, runs: list[int], *, figure: str | None = None, fo
 
 
 def write_report(store: Store, runs: list[int], path: str | os.PathLike, *, figure: str | None = None,
-                 format: str | None = None, stream=None, moved_shown: int | None = None) -> dict[str, Any]:
+                 format: str | None = None, stream=None, moved_shown: int | None = None,
+                 nodes: str | os.PathLike | None = None, by: str | None = None) -> dict[str, Any]:
     """Build the report and write it to ``path`` (beside, then renamed over) or to ``stream`` (binary)."""
     target = os.fspath(path)
     fmt = _format_of(target, format)
-    body, summary = build_report(store, runs, figure=figure, format=fmt, moved_shown=moved_shown)
+    body, summary = build_report(store, runs, figure=figure, format=fmt, moved_shown=moved_shown,
+                                 nodes=nodes, by=by)
     if stream is not None:
         stream.write(body)
         stream.flush()
