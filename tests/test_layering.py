@@ -15,7 +15,9 @@ ALLOWED = {
     "io": {"domain", "errors", "io"},
     "store": {"domain", "errors", "store"},
     "cli": {"services", "jobs", "domain", "errors", "cli", "tui"},
-    "tui": {"services", "jobs", "domain", "errors", "tui"},
+    "tui": {"services", "jobs", "domain", "errors", "tui", "palette"},
+    # reports sit at the numerics / io level: plain arrays in, HTML / SVG / PNG out
+    "report": {"domain", "errors", "report", "palette"},
 }
 
 
@@ -47,7 +49,7 @@ def test_dependency_direction(layer):
 
 
 def test_numerics_do_not_import_front_ends_or_store():
-    for layer in ("spectral", "compare", "io"):
+    for layer in ("spectral", "compare", "io", "report"):
         for f in (PKG / layer).rglob("*.py"):
             src = f.read_text(encoding="utf-8")
             for mod in ("sqlalchemy", "textual", "rich", "alembic"):
@@ -80,12 +82,19 @@ def test_no_pickle_eval_exec_or_shell():
     assert not offenders, offenders
 
 
+def test_palette_imports_nothing():
+    # the shared colours are imported by the UI and the reports alike: no Textual, no workspace layer
+    tree = ast.parse((PKG / "palette.py").read_text(encoding="utf-8"))
+    imports = [n for n in ast.walk(tree) if isinstance(n, (ast.Import, ast.ImportFrom))]
+    assert all(isinstance(n, ast.ImportFrom) and n.module == "__future__" for n in imports)
+
+
 def test_cli_help_imports_nothing_heavy():
     import subprocess
     import sys
 
     code = ("import sys; from workspace.cli.parser import build_parser; build_parser(); "
             "import workspace.cli; heavy = [m for m in ('numpy', 'scipy', 'sqlalchemy', 'textual', 'rich', "
-            "'networkx', 'pyarrow') if m in sys.modules]; print(','.join(heavy))")
+            "'networkx', 'pyarrow', 'matplotlib') if m in sys.modules]; print(','.join(heavy))")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == ""

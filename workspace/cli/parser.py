@@ -142,10 +142,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--filter", metavar="TEXT",
                    help="only runs whose method, label, version, status or parameter set contains every word")
 
-    p = add("export", "write a run's membership to a file", "runs", "cmd_export")
+    p = add("export", "write a run's membership (csv), or the network with it (json node-link, graphml)",
+            "runs", "cmd_export")
     p.add_argument("run", type=int)
-    p.add_argument("--format", choices=["csv", "json", "graphml"], default="csv")
-    p.add_argument("-o", "--output", required=True, metavar="FILE")
+    p.add_argument("--format", choices=["csv", "json", "graphml"], default="csv",
+                   help="csv: node,community; json/graphml: nodes, edges, weights and each node's community")
+    p.add_argument("-o", "--output", required=True, metavar="FILE", help="output file; '-' for standard output")
 
     p = add("where", "a node's community in every run of every version (of every network unless --network)",
             "runs", "cmd_where")
@@ -190,6 +192,31 @@ def build_parser() -> argparse.ArgumentParser:
     p = add("embeddings", "report the cached spectral embeddings, or prune them", "sweeps", "cmd_embeddings")
     p.add_argument("ref", nargs="?", metavar="PROJECT/NETWORK[@V]", help="only this network or version")
     p.add_argument("--prune", action="store_true", help="remove them (runs stay reproducible: rerun re-solves)")
+
+    # --- reports (workspace/cli/report.py) -------------------------------------------
+    p = add("report", "an HTML report of a run, or of the diff of two runs; or one of its figures "
+            "as SVG/PNG", "report", "cmd_report")
+    p.add_argument("runs", nargs="+", type=int, metavar="RUN", help="one run, or two runs (A B) to compare")
+    p.add_argument("-o", "--output", required=True, metavar="FILE",
+                   help="FILE.html (the page), FILE.svg or FILE.png (with --figure); '-' for standard output")
+    p.add_argument("--figure", metavar="NAME",
+                   help="write one figure alone: spectrum, sizes, stability, composition, network (run); "
+                        "contingency (diff)")
+    p.add_argument("--format", choices=["html", "svg", "png"], help="output format (default: by extension)")
+    p.add_argument("--moved", type=int, default=None, metavar="N",
+                   help="diff report: moved nodes listed (default 50; the rest are counted)")
+    p.add_argument("--nodes", metavar="FILE", help="run report: a node table (CSV/GraphML/JSON) for a composition")
+    p.add_argument("--by", metavar="ATTRIBUTE", help="run report, with --nodes: the attribute to compose by")
+
+    p = add("composition", "a run's communities by a node attribute from a node table file "
+            "(counts, shares, dominant value; ARI/NMI agreement)", "report", "cmd_composition")
+    p.add_argument("run", type=int)
+    p.add_argument("--nodes", required=True, metavar="FILE",
+                   help="node table: CSV with a 'node' (or 'id') column, GraphML node data, or node-link JSON")
+    p.add_argument("--by", required=True, metavar="ATTRIBUTE", help="the attribute (column) to group by")
+    p.add_argument("--nodes-format", choices=["csv", "graphml", "json"], help="node table format (default: by extension)")
+    p.add_argument("--nmi", choices=["arithmetic", "geometric", "max", "min"], default="arithmetic",
+                   help="NMI normalisation (default arithmetic)")
 
     # --- comparing -------------------------------------------------------------------
     p = add("diff", "compare the memberships of two runs, or follow a chain of runs", "diffs", "cmd_diff")

@@ -152,14 +152,24 @@ def show_run(args) -> int:
 
 
 def cmd_export(args) -> int:
+    import sys
+
+    from workspace.errors import UsageError
     from workspace.services import runs as svc
 
+    to_stdout = args.output == "-"
+    if to_stdout and args.json:
+        raise UsageError("-o - writes the file to standard output; leave out --json")
     with session(args) as (store, out):
-        res = svc.export_run(store, args.run, args.output, format=args.format)
+        res = svc.export_run(store, args.run, args.output, format=args.format,
+                             stream=sys.stdout if to_stdout else None)
         if args.json:
             emit_json(res)
         else:
-            out.line(f"wrote {res['nodes']} nodes of run {res['run']} to {res['path']} ({res['format']})")
+            edges = f", {res['edges']} edges" if res.get("edges") is not None else ""
+            say = out.note if to_stdout else out.line  # standard output holds the file itself
+            say(f"wrote {res['nodes']} nodes{edges} of run {res['run']} to "
+                f"{'standard output' if to_stdout else res['path']} ({res['format']})")
     return 0
 
 

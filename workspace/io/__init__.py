@@ -8,6 +8,7 @@ Public interface
 ``structural_changes(old, new, *, limit=None)`` -> dict
 ``read_membership(path, node_ids, *, format=None)`` -> ``(labels, info)``
 ``write_membership(path, node_ids, labels, format="csv", *, graph=None)`` -> int
+``membership_text(node_ids, labels, format="csv", *, graph=None)`` -> ``(text, count)``
 ``SAMPLES_DIR``: folder of the bundled sample network(s).
 
 This package imports only ``workspace.domain`` / ``workspace.errors`` and
@@ -30,12 +31,13 @@ if TYPE_CHECKING:  # the readers (pyarrow, scipy, defusedxml) load on first use
     from workspace.domain import GraphData, ImportReport
     from workspace.io._common import Progress
     from workspace.io.changes import structural_changes
-    from workspace.io.membership import read_membership, write_membership
+    from workspace.io.membership import membership_text, read_membership, write_membership
 
 _LAZY = {
     "structural_changes": "workspace.io.changes",
     "read_membership": "workspace.io.membership",
     "write_membership": "workspace.io.membership",
+    "membership_text": "workspace.io.membership",
 }
 
 
@@ -51,7 +53,7 @@ def __getattr__(name: str):
 
 __all__ = [
     "FORMATS", "SAMPLES_DIR", "read_network", "structural_changes", "read_membership",
-    "write_membership", "format_from_path", "validate_policy",
+    "write_membership", "membership_text", "format_from_path", "validate_policy",
 ]
 
 #: Supported network formats, ``(name, one-line description)``.

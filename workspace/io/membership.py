@@ -9,6 +9,7 @@ appearance in canonical node order, the numbering the rest of the package uses.
 from __future__ import annotations
 
 import csv
+import io
 import json
 import os
 import re
@@ -199,7 +200,8 @@ def _read_json(path: str, data: bytes, node_ids: np.ndarray):
     if not isinstance(document, dict) or not isinstance(document.get("nodes"), list):
         raise InputError('a membership JSON needs {"nodes": [{"id": ..., "community": ...}]}',
                          path=path)
-    entries = document["nodes"]
+    # a node-link export lists nodes without a community too (no "community" field): skipped
+    entries = [e for e in document["nodes"] if not (isinstance(e, dict) and "community" not in e)]
     ids = [_id_text(e.get("id")) if isinstance(e, dict) else None for e in entries]
     names = [_id_text(e.get("community")) if isinstance(e, dict) else None for e in entries]
     for values, what in ((ids, "id"), (names, "community")):
@@ -291,17 +293,62 @@ def write_membership(path: str | os.PathLike, node_ids: np.ndarray, labels: np.n
     labels : ndarray of int, shape (n,)
         Community of each node, -1 for none.
     format : {"csv", "json", "graphml"}, default "csv"
-        CSV: header ``node,community``, RFC 4180 quoting, UTF-8, ``\\n``.
-        JSON: ``{"nodes": [{"id": str, "community": int}, ...]}``.
-        GraphML: ``<key attr.name="community" attr.type="int" for="node">``.
+        See :func:`membership_text`.
     graph : GraphData or None, default None
-        GraphML only: also write its edges with a ``weight`` attribute, so
-        the file shows the partition on the network.
+        JSON and GraphML: also write the network's edges with their weights.
 
     Returns
     -------
     int
-        Number of nodes written.
+        Number of nodes written with a community.
+
+    Raises
+    ------
+    ParameterError, InputError
+        As :func:`membership_text`.
+
+    References
+    ----------
+    RFC 4180 (2005); U. Brandes et al., "GraphML Progress Report" (2002).
+    """
+    path = os.fspath(path)
+    text, count = membership_text(node_ids, labels, format, graph=graph, path=path)
+    with open(path, "w", encoding="utf-8", newline="") as out:
+        out.write(text)
+    return count
+
+
+def membership_text(node_ids: np.ndarray, labels: np.ndarray, format: str = "csv", *,
+                    graph=None, path: str | None = None) -> tuple[str, int]:
+    """The text of a membership file, and how many nodes it gives a community.
+
+    Parameters
+    ----------
+    node_ids : ndarray of str, shape (n,)
+    labels : ndarray of int, shape (n,)
+        Community of each node, -1 for none.
+    format : {"csv", "json", "graphml"}, default "csv"
+        CSV: header ``node,community``, RFC 4180 quoting, UTF-8, ``\\n``; nodes
+        labelled -1 are left out. JSON without ``graph``: ``{"nodes": [{"id",
+        "community"}]}`` (nodes labelled -1 left out); with ``graph``, the node-link layout ``{"directed",
+        "multigraph", "graph", "nodes": [{"id", "community"}], "links":
+        [{"source", "target", "weight"}]}`` (every node; one labelled -1 has
+        no ``community``). GraphML: ``<key
+        attr.name="community" attr.type="int" for="node">`` and, with
+        ``graph``, ``<key attr.name="weight" attr.type="double" for="edge">``;
+        every node is written, a node labelled -1 has no community data.
+    graph : GraphData or None, default None
+        JSON and GraphML: also write its edges (arcs when directed) with
+        their weights, so the file carries the network with the partition.
+        Weights are written with Python's shortest round-trip repr.
+    path : str or None
+        Named in errors.
+
+    Returns
+    -------
+    text : str
+    count : int
+        Nodes given a community.
 
     Raises
     ------
@@ -313,9 +360,9 @@ def write_membership(path: str | os.PathLike, node_ids: np.ndarray, labels: np.n
 
     References
     ----------
-    RFC 4180 (2005); U. Brandes et al., "GraphML Progress Report" (2002).
+    RFC 4180 (2005); U. Brandes et al., "GraphML Progress Report" (2002);
+    NetworkX developers, ``networkx.node_link_data`` (networkx 3.x, 2024).
     """
-    path = os.fspath(path)
     if format not in MEMBERSHIP_FORMATS:
         raise ParameterError(f"membership format must be one of "
                              f"{', '.join(MEMBERSHIP_FORMATS)}, not {format!r}")
@@ -323,6 +370,8 @@ def write_membership(path: str | os.PathLike, node_ids: np.ndarray, labels: np.n
     labels = np.asarray(labels)
     if node_ids.shape != labels.shape or node_ids.ndim != 1:
         raise ParameterError("node_ids and labels must be 1-D arrays of the same length")
+    if graph is not None and not np.array_equal(graph.node_ids, node_ids):
+        raise ParameterError("graph node ids differ from node_ids")
     keep = np.flatnonzero(labels >= 0)
     ids = node_ids[keep].tolist()
     values = labels[keep].astype(np.int64).tolist()
@@ -331,44 +380,50 @@ def write_membership(path: str | os.PathLike, node_ids: np.ndarray, labels: np.n
         if bad is not None:
             raise InputError(f"node id {bad!r} holds a line break, which a membership CSV "
                              "cannot carry; write json or graphml", path=path)
-        with open(path, "w", encoding="utf-8", newline="") as out:
-            writer = csv.writer(out, lineterminator="\n")
-            writer.writerow(["node", "community"])
-            writer.writerows(zip(ids, values))
-    elif format == "json":
-        with open(path, "w", encoding="utf-8") as out:
-            json.dump({"nodes": [{"id": i, "community": c} for i, c in zip(ids, values)]},
-                      out, ensure_ascii=False, indent=None)
-            out.write("\n")
-    else:
-        all_ids = node_ids.tolist()
-        bad = next((x for x in all_ids if _XML_FORBIDDEN.search(x)), None)
-        if bad is not None:
-            raise InputError(f"node id {bad!r} holds a character XML cannot carry; write "
-                             "json", path=path)
-        if graph is not None and not np.array_equal(graph.node_ids, node_ids):
-            raise ParameterError("graph node ids differ from node_ids")
-        label_of = labels.astype(np.int64).tolist()
-        parts = ['<?xml version="1.0" encoding="UTF-8"?>\n',
-                 '<graphml xmlns="http://graphml.graphdrawing.org/xmlns">\n',
-                 '  <key id="community" for="node" attr.name="community" attr.type="int"/>\n']
-        if graph is not None:
-            parts.append('  <key id="weight" for="edge" attr.name="weight" '
-                         'attr.type="double"/>\n')
-        parts.append('  <graph id="G" edgedefault="undirected">\n')
-        for node, label in zip(all_ids, label_of):
-            if label >= 0:
-                parts.append(f'    <node id={quoteattr(node)}><data key="community">{label}'
-                             '</data></node>\n')
-            else:
-                parts.append(f'    <node id={quoteattr(node)}/>\n')
+        buf = io.StringIO()
+        writer = csv.writer(buf, lineterminator="\n")
+        writer.writerow(["node", "community"])
+        writer.writerows(zip(ids, values))
+        return buf.getvalue(), len(ids)
+    all_ids = node_ids.tolist()
+    label_of = labels.astype(np.int64).tolist()
+    if format == "json" and graph is None:
+        document = {"nodes": [{"id": i, "community": c} for i, c in zip(ids, values)]}
+        return json.dumps(document, ensure_ascii=False, indent=None) + "\n", len(ids)
+    if format == "json":
+        nodes = [{"id": i, "community": c} if c >= 0 else {"id": i}
+                 for i, c in zip(all_ids, label_of)]
+        document = {"directed": bool(graph.directed) if graph is not None else False,
+                    "multigraph": False, "graph": {}, "nodes": nodes}
         if graph is not None:
             names = graph.node_ids
-            for a, b, w in zip(names[graph.edge_u].tolist(), names[graph.edge_v].tolist(),
-                               graph.weight.tolist()):
-                parts.append(f'    <edge source={quoteattr(a)} target={quoteattr(b)}>'
-                             f'<data key="weight">{w!r}</data></edge>\n')
-        parts.append("  </graph>\n</graphml>\n")
-        with open(path, "w", encoding="utf-8") as out:
-            out.write("".join(parts))
-    return len(ids)
+            document["links"] = [{"source": a, "target": b, "weight": w} for a, b, w in
+                                 zip(names[graph.edge_u].tolist(), names[graph.edge_v].tolist(),
+                                     graph.weight.tolist())]
+        return json.dumps(document, ensure_ascii=False, indent=None) + "\n", len(ids)
+    bad = next((x for x in all_ids if _XML_FORBIDDEN.search(x)), None)
+    if bad is not None:
+        raise InputError(f"node id {bad!r} holds a character XML cannot carry; write "
+                         "json", path=path)
+    edgedefault = "directed" if graph is not None and graph.directed else "undirected"
+    parts = ['<?xml version="1.0" encoding="UTF-8"?>\n',
+             '<graphml xmlns="http://graphml.graphdrawing.org/xmlns">\n',
+             '  <key id="community" for="node" attr.name="community" attr.type="int"/>\n']
+    if graph is not None:
+        parts.append('  <key id="weight" for="edge" attr.name="weight" '
+                     'attr.type="double"/>\n')
+    parts.append(f'  <graph id="G" edgedefault="{edgedefault}">\n')
+    for node, label in zip(all_ids, label_of):
+        if label >= 0:
+            parts.append(f'    <node id={quoteattr(node)}><data key="community">{label}'
+                         '</data></node>\n')
+        else:
+            parts.append(f'    <node id={quoteattr(node)}/>\n')
+    if graph is not None:
+        names = graph.node_ids
+        for a, b, w in zip(names[graph.edge_u].tolist(), names[graph.edge_v].tolist(),
+                           graph.weight.tolist()):
+            parts.append(f'    <edge source={quoteattr(a)} target={quoteattr(b)}>'
+                         f'<data key="weight">{w!r}</data></edge>\n')
+    parts.append("  </graph>\n</graphml>\n")
+    return "".join(parts), len(ids)

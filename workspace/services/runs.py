@@ -597,29 +597,45 @@ def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict
         return out
 
 
-def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: str = "csv") -> dict[str, Any]:
-    """Write a run's membership as CSV ``node,community``, node-link JSON or GraphML."""
-    from workspace.io import write_membership
+def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: str = "csv",
+               stream=None) -> dict[str, Any]:
+    """Write a run's membership as CSV ``node,community``, or the network with it (node-link JSON, GraphML).
+
+    JSON and GraphML carry every node of the run's network version, its edges with their
+    weights, and each node's community. ``stream`` (a text file object) receives the text
+    instead of ``path`` (the CLI's ``-o -``).
+    """
+    from workspace.io import membership_text
 
     node_ids, labels, summary = load_membership(store, run_id)
-    # Written beside the target and renamed over it: a full disk or a refused write leaves no partial file.
+    graph = None
+    if format in ("json", "graphml"):
+        with store.read() as s:
+            graph = repo.load_graph(s, s.get(NetworkVersion, s.get(Run, run_id).version_id))
     target = os.fspath(path)
-    partial = os.path.join(os.path.dirname(os.path.abspath(target)), f".{os.path.basename(target)}.partial-{os.getpid()}")
-    try:
-        write_membership(partial, node_ids, labels, format=format)
-        os.replace(partial, target)
-    except BaseException as exc:
+    text, count = membership_text(node_ids, labels, format, graph=graph, path=target)
+    edges = None if graph is None else graph.n_edges
+    if stream is not None:
+        stream.write(text)
+        stream.flush()
+    else:
+        # Written beside the target and renamed over it: a full disk or a refused write leaves no partial file.
+        partial = os.path.join(os.path.dirname(os.path.abspath(target)),
+                               f".{os.path.basename(target)}.partial-{os.getpid()}")
         try:
-            os.unlink(partial)
-        except OSError:
-            pass
-        if isinstance(exc, OSError) and exc.filename in (None, partial):
-            exc.filename = target
-        if isinstance(exc, CutbookError) and exc.path == partial:
-            exc.path = target
-        raise
-    return {"run": run_id, "path": os.fspath(path), "format": format, "nodes": int(labels.shape[0]),
-            "membership_hash": summary["membership_hash"]}
+            with open(partial, "w", encoding="utf-8", newline="") as out:
+                out.write(text)
+            os.replace(partial, target)
+        except BaseException as exc:
+            try:
+                os.unlink(partial)
+            except OSError:
+                pass
+            if isinstance(exc, OSError) and exc.filename in (None, partial):
+                exc.filename = target
+            raise
+    return {"run": run_id, "path": target, "format": format, "nodes": int(labels.shape[0]),
+            "with_community": count, "edges": edges, "membership_hash": summary["membership_hash"]}
 
 
 def _networks_holding(store: Store, node: str, *, exclude: str) -> list[str]:

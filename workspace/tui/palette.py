@@ -1,4 +1,5 @@
-"""The workspace's one colour palette ("fjord"): every colour the UI uses is defined here.
+"""The workspace's one colour palette ("fjord") for the terminal UI: the colours live in
+``workspace.palette`` (shared with the reports) and are re-exported here with the theme.
 
 A deep sea-ink ground with a sky-blue lead colour and an orange accent. The
 colours that carry meaning — run statuses, community colours, the heat ramp —
@@ -13,47 +14,33 @@ statuses are always written out and community colours sit beside their labels.
 
 from __future__ import annotations
 
-# ground and text
-GROUND = "#0d1a1e"      # deep sea-ink
-SURFACE = "#132329"     # inputs, raised areas
-PANEL = "#1a2e35"       # toasts, popups
-RULE = "#2c4650"        # pane borders
-TEXT = "#e3ebe7"        # body text
-DIM = "#93a9ad"         # secondary text (labels, keys)
-FAINT = "#647b80"       # hints, empty states
-BAR_GROUND = "#0a1417"  # header and footer strip
-
-# the lead colours
-PRIMARY = "#56b4e9"     # sky blue (Okabe–Ito)
-ACCENT = "#e69f00"      # orange (Okabe–Ito)
-
-# run statuses (Okabe–Ito, lightened where needed for contrast on GROUND)
-DONE = "#2dbf8f"         # bluish green
-RUNNING = PRIMARY        # sky blue
-FAILED = "#ee7733"       # vermillion
-CANCELLED = "#f0e442"    # yellow
-INTERRUPTED = "#d98cb8"  # reddish purple
-STATUS = {"done": DONE, "running": RUNNING, "failed": FAILED, "cancelled": CANCELLED,
-          "interrupted": INTERRUPTED}
-
-# categorical colours for communities, in order (Okabe–Ito without black)
-COMMUNITY = ("#e69f00", "#56b4e9", "#2dbf8f", "#f0e442", "#3b8fd9", "#ee7733", "#d98cb8")
-
-# sequential single-hue ramp (ground -> sky blue) for shares in the contingency table
-HEAT = ("#132329", "#15344a", "#18456b", "#1f5a8a", "#2e73a8", "#4291c8", "#56b4e9")
-HEAT_TEXT_DARK = GROUND   # figures on the two lightest shades
-HEAT_TEXT_LIGHT = TEXT
-
-# chart roles
-BEFORE_GAP = PRIMARY     # eigenvalue bars up to the largest gap
-AFTER_GAP = FAINT        # the rest
-GAP_MARK = ACCENT        # the gap marker
-BARS = PRIMARY           # size histogram bars
-
-
-def community_colour(label: int) -> str:
-    """The colour of community ``label`` (cycles after seven)."""
-    return COMMUNITY[int(label) % len(COMMUNITY)]
+from workspace.palette import (  # noqa: F401  (re-exported: widgets import them from here)
+    ACCENT,
+    AFTER_GAP,
+    BAR_GROUND,
+    BARS,
+    BEFORE_GAP,
+    CANCELLED,
+    COMMUNITY,
+    DIM,
+    DONE,
+    FAILED,
+    FAINT,
+    GAP_MARK,
+    GROUND,
+    HEAT,
+    HEAT_TEXT_DARK,
+    HEAT_TEXT_LIGHT,
+    INTERRUPTED,
+    PANEL,
+    PRIMARY,
+    RULE,
+    RUNNING,
+    STATUS,
+    SURFACE,
+    TEXT,
+    community_colour,
+)
 
 
 def status_style(status: str | None) -> str:
