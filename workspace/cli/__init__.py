@@ -52,7 +52,9 @@ def _run(argv: list[str] | None) -> int:
             return _fail(fault, exc)
         if os.environ.get("CUTBOOK_DEBUG"):
             raise
-        sys.stderr.write(f"cutbook: internal error: {type(exc).__name__}: {exc} "
+        from workspace.store.faults import redact
+
+        sys.stderr.write(f"cutbook: internal error: {type(exc).__name__}: {redact(str(exc))} "
                          "(set CUTBOOK_DEBUG=1 for the traceback)\n")
         return 1
 
@@ -64,7 +66,9 @@ def _fail(exc, cause: BaseException | None = None) -> int:
         import traceback
 
         traceback.print_exception(cause if cause is not None else exc, file=sys.stderr)
-    sys.stderr.write(f"cutbook: error: {exc}\n")
+    from workspace.store.faults import redact
+
+    sys.stderr.write(f"cutbook: error: {redact(str(exc))}\n")
     return exc.exit_code
 
 

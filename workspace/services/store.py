@@ -121,7 +121,8 @@ def _finish_open(url: str, probed, *, notify, create: bool, readonly: str | None
         current, tables = probed
     name = display_name(url)
     if current is None and tables:
-        raise faults.not_a_store(name, "an SQLite database without cutbook's tables")
+        raise faults.not_a_store(name, ("an SQLite database" if sqlite_file(url) is not None else "a database")
+                                 + " without cutbook's tables")
     if current is None and not create:
         raise StoreMissing("the database is empty: no store here yet; nothing was created — check the path",
                            path=name)

@@ -1,8 +1,19 @@
 """Engine, connection pragmas, transactions and migrate-on-open.
 
-Writers use :meth:`Store.write` (SQLite: ``BEGIN IMMEDIATE``, so two writers
-queue on the busy timeout instead of failing half way); readers use
-:meth:`Store.read`. Opening a store upgrades it to the newest schema (after a
+Writers use :meth:`Store.write`; readers use :meth:`Store.read`. One writer at a
+time on both back ends, so a writer that reads "the latest version" and adds the
+next one can never collide with another:
+
+- SQLite: ``BEGIN IMMEDIATE`` takes the database's write lock at the start, so two
+  writers queue on the busy timeout instead of failing half way.
+- PostgreSQL: every write transaction (and every migration) first takes one
+  transaction-level advisory lock, ``pg_advisory_xact_lock(WRITE_LOCK_KEY)``, under
+  ``SET LOCAL lock_timeout`` = the busy timeout; the server releases it at commit,
+  rollback or when the client dies (PostgreSQL documentation, "Explicit Locking:
+  Advisory Locks" and "Advisory Lock Functions"). Writes run at READ COMMITTED, so
+  each statement after the lock sees every earlier writer's commit; reads run at
+  REPEATABLE READ, one snapshot per read transaction as SQLite gives.
+ Opening a store upgrades it to the newest schema (after a
 backup copy when it already holds data) and refuses a store newer than the
 code.
 """
@@ -24,6 +35,9 @@ from workspace.errors import CutbookError, StoreError
 from workspace.store import faults
 
 BUSY_TIMEOUT_MS = 60_000
+# pg_advisory_xact_lock key of a store's write section (any fixed 64-bit value: advisory locks are
+# per database, so two stores on one server never share it). int.from_bytes(b"cutbook!", "big") >> 1.
+WRITE_LOCK_KEY = int.from_bytes(b"cutbook!", "big") >> 1
 # The newest migration's revision id. Checking a store against it needs no Alembic import, which
 # keeps every command's start-up short; tests/store checks it equals Alembic's own head.
 HEAD_REVISION = "0003"
@@ -71,8 +85,8 @@ def display_name(url: str) -> str:
         return os.fspath(path)
     try:
         return make_url(url).render_as_string(hide_password=True)
-    except Exception:  # noqa: BLE001 - a URL SQLAlchemy cannot parse is named as given
-        return url
+    except Exception:  # noqa: BLE001 - a URL SQLAlchemy cannot parse is named as given, password masked
+        return faults.redact(url)
 
 
 SQLITE_MAGIC = b"SQLite format 3\x00"
@@ -162,7 +176,17 @@ def _make_engine(url: str, *, foreign_keys: bool = True, access: str = "rw") -> 
                 return sqlite3.connect(uri, uri=True, timeout=timeout, check_same_thread=False)
 
             kwargs = {"creator": _connect}
+    if parsed.get_backend_name() == "postgresql":
+        kwargs["connect_args"] = {"connect_timeout": max(1, int(min(timeout, 30)))}
+        kwargs["pool_pre_ping"] = True
     engine = create_engine(url, **kwargs)
+    if parsed.get_backend_name() == "postgresql":
+        @event.listens_for(engine, "begin")
+        def _on_begin_pg(conn):
+            if conn.get_execution_options().get("cutbook_write", False):
+                # lock_timeout 0 would mean "wait forever": the shortest wait is 1 ms
+                conn.exec_driver_sql(f"SET LOCAL lock_timeout = {max(1, int(timeout * 1000))}")
+                conn.exec_driver_sql(f"SELECT pg_advisory_xact_lock({WRITE_LOCK_KEY})")
     if is_sqlite:
         @event.listens_for(engine, "connect")
         def _on_connect(dbapi_conn, _record):  # pragma: no cover - exercised by every test
@@ -231,7 +255,10 @@ class Store:
         self.readonly = readonly
         self.name = display_name(url)
         self._write_engine = engine.execution_options(cutbook_write=True)
-        self._read_sessions = sessionmaker(bind=engine, expire_on_commit=False)
+        read_engine = engine
+        if engine.dialect.name == "postgresql":
+            read_engine = engine.execution_options(isolation_level="REPEATABLE READ")
+        self._read_sessions = sessionmaker(bind=read_engine, expire_on_commit=False)
         self._write_sessions = sessionmaker(bind=self._write_engine, expire_on_commit=False)
 
     @property
