@@ -68,6 +68,7 @@ def test_newer_schema_is_refused_untouched(store_url):
     assert dump_any(store_url) == before
 
 
+@pytest.mark.slow
 @pytest.mark.postgres
 def test_four_clients_opening_a_new_database_migrate_it_once(pg_url):
     """Four fresh interpreters open the same empty database at once: the advisory lock lets one
@@ -119,6 +120,7 @@ def test_password_is_never_printed(pg_server, pg_url):
         assert pg_server.password not in r.stderr + r.stdout
 
 
+@pytest.mark.slow
 @pytest.mark.postgres
 def test_read_only_role_reads_and_every_write_is_refused(pg_server, pg_url):
     """A role with CONNECT and SELECT only: listing, showing and verifying work; import, run,

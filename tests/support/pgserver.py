@@ -129,11 +129,11 @@ class PgServer:
             cur = con.execute(sql)
             return cur.fetchall() if cur.description else []
 
-    def new_database(self, prefix: str = "t") -> str:
-        """A fresh, empty database; returns its name."""
+    def new_database(self, prefix: str = "t", *, template: str | None = None) -> str:
+        """A fresh database (empty, or a copy of ``template``); returns its name."""
         self._counter += 1
         name = f"{prefix}_{os.getpid()}_{self._counter}_{secrets.token_hex(3)}"
-        self.admin(f'CREATE DATABASE "{name}"')
+        self.admin(f'CREATE DATABASE "{name}"' + (f' TEMPLATE "{template}"' if template else ""))
         return name
 
 

@@ -16,7 +16,11 @@ def write_edges(path: Path, rows, header: str | None = "source,target,weight", s
 
 
 def dump_store(path: Path) -> dict:
-    """Every user table's rows, for before/after comparisons ("store exactly as it was")."""
+    """Every user table's rows, for before/after comparisons ("store exactly as it was").
+
+    A SQLAlchemy URL (a PostgreSQL store) is read with :func:`dump_any`."""
+    if "://" in str(path):
+        return dump_any(str(path))
     if not Path(path).exists():
         return {}
     con = sqlite3.connect(path)
