@@ -119,6 +119,14 @@ def test_password_is_never_printed(pg_server, pg_url):
         assert r.returncode == 0, r.stderr
         assert pg_server.password not in r.stderr + r.stdout
 
+    # no password in the URL: libpq takes it from $PGPASSWORD (PostgreSQL documentation, "libpq
+    # Environment Variables"); the same holds for ~/.pgpass and service files, which libpq reads itself
+    bare = pg_server.url(pg_url.rsplit("/", 1)[1], user="cutbook_admin", password="")
+    assert ":" not in bare.split("//", 1)[1].split("@", 1)[0]
+    r = _cli_proc(bare, "projects", "--json", env={"PGPASSWORD": pg_server.password})
+    assert r.returncode == 0, r.stderr
+    assert [p["project"] for p in __import__("json").loads(r.stdout)] == ["p"]
+
 
 @pytest.mark.slow
 @pytest.mark.postgres
