@@ -31,7 +31,7 @@ from sqlalchemy import create_engine, event, inspect, text
 from sqlalchemy.engine import Engine, make_url
 from sqlalchemy.orm import Session, sessionmaker
 
-from workspace.errors import CutbookError, StoreError
+from workspace.errors import CutbookError, StoreError, UsageError
 from workspace.store import faults
 
 BUSY_TIMEOUT_MS = 60_000
@@ -40,8 +40,35 @@ BUSY_TIMEOUT_MS = 60_000
 WRITE_LOCK_KEY = int.from_bytes(b"cutbook!", "big") >> 1
 # The newest migration's revision id. Checking a store against it needs no Alembic import, which
 # keeps every command's start-up short; tests/store checks it equals Alembic's own head.
-HEAD_REVISION = "0003"
+HEAD_REVISION = "0006"
 ENV_STORE = "CUTBOOK_STORE"
+ENV_USER = "CUTBOOK_USER"
+MAX_USER_LENGTH = 200  # the created_by columns are String(200)
+
+
+def resolve_user(user: str | None = None) -> str:
+    """Who is making records: ``user`` (``--user``), else ``$CUTBOOK_USER``, else the OS account.
+
+    A name only: never a password (a ``name:secret`` value is refused). Raises
+    :class:`UsageError` for an empty name, one with control characters or a colon, or one longer
+    than 200 characters.
+    """
+    import getpass
+
+    value = user if user is not None else os.environ.get(ENV_USER) or None
+    source = "--user" if user is not None else f"${ENV_USER}"
+    if value is None:
+        try:
+            value = getpass.getuser()
+        except Exception:  # noqa: BLE001 - no account name (a container without passwd entry): say so
+            value = f"uid-{os.getuid()}" if hasattr(os, "getuid") else "unknown"
+        source = "the OS account"
+    value = value.strip()
+    if not value or len(value) > MAX_USER_LENGTH or ":" in value or any(ord(c) < 32 or ord(c) == 127
+                                                                        for c in value):
+        raise UsageError(f"{source}: a user name must be 1 to {MAX_USER_LENGTH} printable characters without "
+                         "':' (a name, never a password)")
+    return value
 
 
 def default_store_path() -> Path:
@@ -249,8 +276,9 @@ class Store:
     touching the database.
     """
 
-    def __init__(self, url: str, engine: Engine, *, readonly: str | None = None) -> None:
+    def __init__(self, url: str, engine: Engine, *, readonly: str | None = None, user: str | None = None) -> None:
         self.url = url
+        self.user = user
         self.engine = engine
         self.readonly = readonly
         self.name = display_name(url)
@@ -260,6 +288,13 @@ class Store:
             read_engine = engine.execution_options(isolation_level="REPEATABLE READ")
         self._read_sessions = sessionmaker(bind=read_engine, expire_on_commit=False)
         self._write_sessions = sessionmaker(bind=self._write_engine, expire_on_commit=False)
+        if user is not None:
+            @event.listens_for(self._write_sessions, "before_flush")
+            def _record_user(session, _context, _instances):
+                # every record a person creates says who: any new row with a created_by column left empty
+                for obj in session.new:
+                    if hasattr(obj, "created_by") and obj.created_by is None:
+                        obj.created_by = user
 
     @property
     def is_sqlite(self) -> bool:
