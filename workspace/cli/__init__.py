@@ -52,7 +52,7 @@ def _run(argv: list[str] | None) -> int:
             return _fail(fault, exc)
         if os.environ.get("CUTBOOK_DEBUG"):
             raise
-        from workspace.store.faults import redact
+        from workspace.errors import redact
 
         sys.stderr.write(f"cutbook: internal error: {type(exc).__name__}: {redact(str(exc))} "
                          "(set CUTBOOK_DEBUG=1 for the traceback)\n")
@@ -66,9 +66,7 @@ def _fail(exc, cause: BaseException | None = None) -> int:
         import traceback
 
         traceback.print_exception(cause if cause is not None else exc, file=sys.stderr)
-    from workspace.store.faults import redact
-
-    sys.stderr.write(f"cutbook: error: {redact(str(exc))}\n")
+    sys.stderr.write(f"cutbook: error: {exc}\n")  # CutbookError.__str__ masks any password
     return exc.exit_code
 
 

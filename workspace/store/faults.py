@@ -50,12 +50,12 @@ from __future__ import annotations
 
 import errno
 import os
-import re
 import shutil
 from contextlib import contextmanager
 from pathlib import Path
 from typing import Iterator
 
+from workspace.errors import redact  # noqa: F401 - re-exported: the store layer's messages use it
 from workspace.errors import (ConflictError, CutbookError, NoSpace, PermissionDenied, StoreBusy, StoreDamaged, StoreError,
                               StoreMissing, StoreReadOnly)
 
@@ -66,17 +66,6 @@ FULL_DISK = "its disk is full"  # Store.readonly reason when a full disk forced 
 _WRITE_IOERRS = {"SQLITE_IOERR_WRITE", "SQLITE_IOERR_SHMSIZE", "SQLITE_IOERR_FSYNC", "SQLITE_IOERR_DIR_FSYNC",
                  "SQLITE_IOERR_TRUNCATE", "SQLITE_IOERR_SHMMAP", "SQLITE_IOERR_SHMOPEN"}
 _PG_READ_ONLY = {"25006", "42501"}
-
-
-_URL_PASSWORD = re.compile(r"(?P<head>[a-zA-Z][a-zA-Z0-9+.\-]*://[^:/@\s]*):[^@\s]*@")
-_KV_PASSWORD = re.compile(r"(?i)\b(?P<key>password|pwd)\s*=\s*(?:'[^']*'|\"[^\"]*\"|[^\s&;]+)")
-
-
-def redact(text: str) -> str:
-    """``text`` with every password of a connection URL (``scheme://user:password@``) or keyword
-    string (``password=...``) replaced by ``***``."""
-    text = _URL_PASSWORD.sub(lambda m: f"{m.group('head')}:***@", text)
-    return _KV_PASSWORD.sub(lambda m: f"{m.group('key')}=***", text)
 
 
 def busy_timeout_s() -> float:
