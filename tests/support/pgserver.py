@@ -31,6 +31,7 @@ import time
 from pathlib import Path
 
 SUPERUSER = "cutbook_admin"
+WATCH_S = 6 * 3600  # the watchdog gives up after six hours
 
 
 def find_bindir() -> Path | None:
@@ -98,6 +99,7 @@ class PgServer:
             res = self._cmd(str(self.bindir / "pg_ctl"), "-D", str(self.data), "-l", str(self.log), "-w",
                             "-t", "60", "-o", opts, "start")
             if res.returncode == 0:
+                self._start_watchdog()
                 return self
             last = res.stderr.strip() or res.stdout.strip()
             try:
@@ -106,7 +108,22 @@ class PgServer:
                 pass
         raise RuntimeError(f"pg_ctl start failed: {last}")
 
+    def _start_watchdog(self) -> None:
+        """A shell loop that stops the server and removes its folder once this process is gone
+        (a test session killed by a signal runs no fixture teardown). Bounded: at most WATCH_S seconds."""
+        stop = ["pg_ctl", "-D", str(self.data), "-m", "immediate", "-w", "stop"]
+        stop[0] = str(self.bindir / "pg_ctl")
+        stop_cmd = " ".join(f"'{a}'" for a in (["runuser", "-u", "postgres", "--", *stop] if self.as_root else stop))
+        script = (f"i=0; while [ $i -lt {WATCH_S} ] && kill -0 {os.getpid()} 2>/dev/null; do i=$((i+1)); sleep 1; "
+                  f"done; [ -f '{self.data}/postmaster.pid' ] && {stop_cmd}; rm -rf '{self.root}'")
+        self._watchdog = subprocess.Popen(["sh", "-c", script], stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL,
+                                          stderr=subprocess.DEVNULL, start_new_session=True)
+
     def stop(self) -> None:
+        watchdog = getattr(self, "_watchdog", None)
+        if watchdog is not None and watchdog.poll() is None:
+            watchdog.kill()
+            watchdog.wait(timeout=10)
         try:
             if (self.data / "postmaster.pid").exists():
                 self._cmd(str(self.bindir / "pg_ctl"), "-D", str(self.data), "-m", "immediate", "-w", "stop")
