@@ -35,6 +35,17 @@ operating-system errors into these classes.
 from __future__ import annotations
 
 import os
+import re
+
+_URL_PASSWORD = re.compile(r"(?P<head>[a-zA-Z][a-zA-Z0-9+.\-]*://[^:/@\s]*):[^\s/]*@")
+_KV_PASSWORD = re.compile(r"(?i)\b(?P<key>password|pwd)\s*=\s*(?:'[^']*'|\"[^\"]*\"|[^\s&;]+)")
+
+
+def redact(text: str) -> str:
+    """``text`` with every password of a connection URL (``scheme://user:password@``) or keyword
+    string (``password=...``) replaced by ``***``. Every error message goes through it."""
+    text = _URL_PASSWORD.sub(lambda m: f"{m.group('head')}:***@", text)
+    return _KV_PASSWORD.sub(lambda m: f"{m.group('key')}=***", text)
 
 
 class CutbookError(Exception):
@@ -53,7 +64,7 @@ class CutbookError(Exception):
         where = ""
         if self.path is not None:
             where = f"{self.path}:{self.line}: " if self.line is not None else f"{self.path}: "
-        return f"{where}{self.message}"
+        return redact(f"{where}{self.message}")
 
 
 class InputError(CutbookError):

@@ -74,7 +74,7 @@ def test_diff_track_accepts_the_readme_form(cli, club, tmp_path):
 
 # --- 13: where, suggestions, attach help, delimiter hint -----------------------------------------------
 
-def test_where_searches_every_network_and_suggests_near_ids(cli, club, tmp_path, store_path):
+def test_where_searches_every_network_and_suggests_near_ids(cli, club, tmp_path, store_target):
     write_edges(tmp_path / "other.csv", [("m00", "x1"), ("x1", "x2"), ("x2", "m00")], header=None)
     assert cli("import", tmp_path / "other.csv", "--project", "side", "--network", "tri").code == 0
     r = cli("where", "m00", "--json")
@@ -89,7 +89,7 @@ def test_where_searches_every_network_and_suggests_near_ids(cli, club, tmp_path,
     assert one["versions_with_node"] == [1] and one["network"] == "club/karate"
     assert "network" in cli("where", "x1").out  # text names each network
 
-    before = dump_store(store_path)
+    before = dump_store(store_target)
     r = cli("where", "M00")
     _one_line_error(r, 3)
     assert "did you mean m00?" in r.err  # same id in another letter case
@@ -108,7 +108,7 @@ def test_where_searches_every_network_and_suggests_near_ids(cli, club, tmp_path,
     r = cli("versions", "club/Karate")  # other commands naming a network get the hint too
     _one_line_error(r, 3)
     assert "did you mean club/karate?" in r.err
-    assert dump_store(store_path) == before
+    assert dump_store(store_target) == before
 
 
 def test_attach_help_names_every_membership_format(cli, capsys):
@@ -130,16 +130,16 @@ def test_attach_reads_json_and_graphml_as_the_help_says(cli, club, tmp_path):
         assert _labels(cli, tmp_path, r.json["run"]) == base
 
 
-def test_attach_reads_other_separators_and_names_delimiter(cli, club, tmp_path, store_path):
+def test_attach_reads_other_separators_and_names_delimiter(cli, club, tmp_path, store_target):
     base = _labels(cli, tmp_path, club["njw4"])
     rows = "".join(f"{n};{c}\n" for n, c in base.items())
     semi = tmp_path / "m.csv"
     semi.write_text("node;community\n" + rows, encoding="utf-8")
-    before = dump_store(store_path)
+    before = dump_store(store_target)
     r = cli("attach", semi, "--to", "club/karate", "--label", "semi")
     _one_line_error(r, 1)
     assert f"{semi}:1: " in r.err and "--delimiter ';'" in r.err
-    assert dump_store(store_path) == before
+    assert dump_store(store_target) == before
     r = cli("attach", semi, "--to", "club/karate", "--label", "semi", "--delimiter", ";", "--json")
     assert r.code == 0, r.err
     assert _labels(cli, tmp_path, r.json["run"]) == base
@@ -155,15 +155,15 @@ def test_attach_reads_other_separators_and_names_delimiter(cli, club, tmp_path, 
 
 @pytest.mark.parametrize("sep, hint", [(";", "--delimiter ';'"), ("|", "--delimiter '|'"), ("\t", "--delimiter tab"),
                                        (" ", "--delimiter whitespace")])
-def test_wrongly_delimited_file_suggests_delimiter(cli, tmp_path, store_path, sep, hint):
+def test_wrongly_delimited_file_suggests_delimiter(cli, tmp_path, store_target, sep, hint):
     f = write_edges(tmp_path / "semi.csv", [("a", "b", 1), ("b", "c", 2), ("c", "a", 3)],
                     header="source,target,weight", sep=sep)
     cli("projects")  # create the store so the comparison below sees its tables
-    before = dump_store(store_path)
+    before = dump_store(store_target)
     r = cli("import", f, "--project", "p", "--network", "n")
     _one_line_error(r, 1)
     assert r.err.startswith(f"cutbook: error: {f}:1: ") and hint in r.err
-    assert dump_store(store_path) == before
+    assert dump_store(store_target) == before
     # following the hint imports the file; networkx's reader is the reference for its content
     given = hint.split()[1].strip("'")
     r = cli("import", f, "--project", "p", "--network", "n", "--delimiter", given, "--weight", "weight", "--json")
@@ -223,22 +223,22 @@ def _export(cli, run_id, tmp_path) -> Path:
     return out
 
 
-def test_delete_run_refuses_a_run_that_a_rerun_repeats(cli, club, store_path):
+def test_delete_run_refuses_a_run_that_a_rerun_repeats(cli, club, store_target):
     rr = cli("rerun", club["njw2"], "--json").json["run"]
-    before = dump_store(store_path)
+    before = dump_store(store_target)
     r = cli("delete-run", club["njw2"], "--yes")
     _one_line_error(r, 4)
     assert f"run {rr} repeats run {club['njw2']}" in r.err and f"delete-run {club['njw2']} {rr}" in r.err
-    assert dump_store(store_path) == before
+    assert dump_store(store_target) == before
     assert cli("delete-run", club["njw2"], rr, "--yes").code == 0
     assert cli("verify", "--json").json["ok"] is True
 
 
 # --- 14: annotations ----------------------------------------------------------------------------------------
 
-def test_tags_and_notes_are_insert_only_events(cli, club, store_path):
+def test_tags_and_notes_are_insert_only_events(cli, club, store_target):
     run = club["njw4"]
-    runs_before = dump_store(store_path)["runs"]
+    runs_before = dump_store(store_target)["runs"]
     r = cli("tag", run, "baseline", "reviewed", "--json")
     assert r.code == 0, r.err
     assert r.json["tags"] == ["baseline", "reviewed"] and [e["action"] for e in r.json["added"]] == ["tag", "tag"]
@@ -250,7 +250,7 @@ def test_tags_and_notes_are_insert_only_events(cli, club, store_path):
     assert [e["action"] for e in doc["history"]] == ["tag", "tag", "note", "untag"]
     assert [e["text"] for e in doc["history"]] == ["baseline", "reviewed", "looks right at k=4", "reviewed"]
     # the run record itself is untouched; listings and show carry the current state
-    assert dump_store(store_path)["runs"] == runs_before
+    assert dump_store(store_target)["runs"] == runs_before
     shown = cli("show", run, "--json").json
     assert shown["tags"] == ["baseline"] and [n["note"] for n in shown["notes"]] == ["looks right at k=4"]
     assert "tags   baseline" in cli("show", run).out
@@ -273,10 +273,10 @@ def test_tags_and_notes_are_insert_only_events(cli, club, store_path):
     assert [(t["kind"], t["target"]) for t in tagged] == [("run", f"run {run}"), ("params", "club/two@1")]
 
 
-def test_annotation_errors_leave_the_store_unchanged(cli, club, store_path):
+def test_annotation_errors_leave_the_store_unchanged(cli, club, store_target):
     run = club["njw2"]
     cli("tag", run, "keep")
-    before = dump_store(store_path)
+    before = dump_store(store_target)
     r = cli("untag", run, "keep", "absent")
     _one_line_error(r, 3)
     assert "no tag absent" in r.err  # and 'keep' was not removed either
@@ -286,7 +286,7 @@ def test_annotation_errors_leave_the_store_unchanged(cli, club, store_path):
     r = cli("tag", "club/two", "x")  # a parameter set named without --params
     _one_line_error(r, 3)
     _one_line_error(cli("tag", "club/karate@7", "x"), 3)
-    assert dump_store(store_path) == before
+    assert dump_store(store_target) == before
 
 
 def test_annotations_go_with_their_network(cli, club, store_path):
@@ -397,19 +397,19 @@ def test_compare_matrix_hand_worked_vi_and_versions(cli, tmp_path):
     assert every["ari"][0][1] == pytest.approx(adjusted_rand_score([0, 0, 1, 1, 2], [0, 0, 1, 1, 1]), abs=1e-12)
 
 
-def test_read_only_commands_leave_the_store_as_it_was(cli, club, store_path):
+def test_read_only_commands_leave_the_store_as_it_was(cli, club, store_target):
     cli("tag", club["njw2"], "keep")
-    before = dump_store(store_path)
+    before = dump_store(store_target)
     for argv in (("members", club["njw2"]), ("members", club["njw2"], "0", "--json"),
                  ("compare", club["njw2"], club["njw4"], "--json"), ("annotations", club["njw2"]),
                  ("tagged", "keep"), ("where", "m01"), ("diff", "--track", club["njw2"], club["njw4"])):
         assert cli(*argv).code == 0, argv
-    assert dump_store(store_path) == before
+    assert dump_store(store_target) == before
 
 
-def test_unknown_names_get_did_you_mean(cli, club, store_path):
+def test_unknown_names_get_did_you_mean(cli, club, store_target):
     cli("params", "save", "club/two", "--method", "njw", "--k", "2")
-    before = dump_store(store_path)
+    before = dump_store(store_target)
     for argv, expected in ((("networks", "--project", "Club"), "did you mean club?"),
                            (("params", "list", "clu"), "did you mean club?"),
                            (("params", "show", "club/tw"), "did you mean club/two?"),
@@ -420,19 +420,19 @@ def test_unknown_names_get_did_you_mean(cli, club, store_path):
         r = cli(*argv)
         _one_line_error(r, 3)
         assert expected in r.err, (argv, r.err)
-    assert dump_store(store_path) == before
+    assert dump_store(store_target) == before
 
 
-def test_semicolon_file_with_decimal_commas_is_not_read_as_phantom_ids(cli, tmp_path, store_path):
+def test_semicolon_file_with_decimal_commas_is_not_read_as_phantom_ids(cli, tmp_path, store_target):
     # `a;b;1,5` split at the comma gives ids "a;b;1" and "5" that exist nowhere: refuse, name --delimiter
     f = tmp_path / "eu.csv"
     f.write_text("a;b;1,5\nb;c;2,5\nc;a;3,5\n", encoding="utf-8")
     cli("projects")
-    before = dump_store(store_path)
+    before = dump_store(store_target)
     r = cli("import", f, "--project", "p", "--network", "eu")
     _one_line_error(r, 1)
     assert f"{f}:1: " in r.err and "--delimiter ';'" in r.err
-    assert dump_store(store_path) == before
+    assert dump_store(store_target) == before
     r = cli("import", f, "--project", "p", "--network", "eu", "--delimiter", ";", "--json")
     assert r.code == 0, r.err
     # reference: networkx.read_edgelist with the same separator, weights left aside

@@ -89,10 +89,10 @@ BAD_INPUTS = [
 
 
 @pytest.mark.parametrize("name,content,fragment,has_line", BAD_INPUTS, ids=[b[0] for b in BAD_INPUTS])
-def test_bad_input_leaves_store_untouched(cli, store_path, tmp_path, name, content, fragment, has_line):
+def test_bad_input_leaves_store_untouched(cli, store_target, tmp_path, name, content, fragment, has_line):
     good = write_edges(tmp_path / "good.csv", [("a", "b", 1), ("b", "c", 2)], header="source,target,weight")
     assert cli("import", good, "--project", "keep", "--network", "me", "--weight", "weight").code == 0
-    before = dump_store(store_path)
+    before = dump_store(store_target)
     f = tmp_path / name
     f.write_text(content, encoding="utf-8")
     weight = ["--weight", "weight"] if name.endswith(".csv") and content.startswith("source") else []
@@ -104,18 +104,18 @@ def test_bad_input_leaves_store_untouched(cli, store_path, tmp_path, name, conte
         assert fragment in r.err
         if has_line:
             assert f"{name}:" in r.err
-        assert dump_store(store_path) == before
+        assert dump_store(store_target) == before
 
 
-def test_missing_file_and_directory(cli, tmp_path, store_path):
+def test_missing_file_and_directory(cli, tmp_path, store_target):
     good = write_edges(tmp_path / "good.csv", [("a", "b", 1)], header=None)
     assert cli("import", good, "--project", "p", "--network", "n").code == 0
-    before = dump_store(store_path)
+    before = dump_store(store_target)
     r = cli("import", tmp_path / "nope.csv", "--project", "p", "--network", "n")
     assert r.code == 1 and "nope.csv" in r.err
     r = cli("import", tmp_path, "--project", "p", "--network", "n")
     assert r.code == 1 and "Traceback" not in r.err
-    assert dump_store(store_path) == before
+    assert dump_store(store_target) == before
 
 
 @pytest.mark.slow

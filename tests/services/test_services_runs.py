@@ -3,7 +3,6 @@ attach/export, stability, node lookup."""
 
 from __future__ import annotations
 
-import sqlite3
 
 import networkx as nx
 import numpy as np
@@ -48,8 +47,11 @@ def test_done_run_records_everything(store, karate):
     sizes = sorted(c["size"] for c in res["communities"])
     assert sum(sizes) == 34
     # measures stored as rows too, for SQL queries
-    con = sqlite3.connect(store.sqlite_path)
-    names_rows = {r[0] for r in con.execute("SELECT name FROM run_measures WHERE run_id = ?", (res["run"],))}
+    from sqlalchemy import text
+
+    with store.read() as s:  # either back end
+        names_rows = {r[0] for r in s.execute(text("SELECT name FROM run_measures WHERE run_id = :r"),
+                                              {"r": res["run"]})}
     assert "modularity" in names_rows
 
 
@@ -71,8 +73,8 @@ def test_cancelled_run(store, karate):
     assert rec["status"] == "cancelled"
 
 
-def test_invalid_parameters_create_no_record(store, karate, store_path):
-    before = dump_store(store_path)
+def test_invalid_parameters_create_no_record(store, karate, store_target):
+    before = dump_store(store_target)
     for kwargs, fragment in [
         (dict(method="njw", sets={"no_such_key": "1"}), "no_such_key"),
         (dict(method="fiedler", sets={"split": "sideways"}), "split"),
@@ -83,7 +85,7 @@ def test_invalid_parameters_create_no_record(store, karate, store_path):
     ]:
         with pytest.raises((ParameterError, UsageError), match=fragment):
             runs.prepare_run(store, "club/karate", **kwargs)
-    assert dump_store(store_path) == before
+    assert dump_store(store_target) == before
 
 
 def test_rerun_is_identical(store, karate):
@@ -127,14 +129,14 @@ def test_export_attach_round_trip(store, karate, tmp_path):
             assert att["missing_nodes"] == 0
 
 
-def test_attach_errors_and_missing_nodes(store, karate, tmp_path, store_path):
+def test_attach_errors_and_missing_nodes(store, karate, tmp_path, store_target):
     names, faction = karate
-    before = dump_store(store_path)
+    before = dump_store(store_target)
     bad = write_edges(tmp_path / "bad.csv", [("m00", "a"), ("ghost", "b")], header="node,community")
     with pytest.raises(Exception) as e:
         runs.attach(store, bad, "club/karate", label="x")
     assert "ghost" in str(e.value) and ":3" in str(e.value)  # file:line of the unknown node
-    assert dump_store(store_path) == before
+    assert dump_store(store_target) == before
     part = write_edges(tmp_path / "part.csv", [(n, "left" if f == 0 else "right")
                                                for n, f in zip(names[:30], faction[:30])], header="node,community")
     att = runs.attach(store, part, "club/karate", label="survey")

@@ -52,7 +52,9 @@ def _run(argv: list[str] | None) -> int:
             return _fail(fault, exc)
         if os.environ.get("CUTBOOK_DEBUG"):
             raise
-        sys.stderr.write(f"cutbook: internal error: {type(exc).__name__}: {exc} "
+        from workspace.errors import redact
+
+        sys.stderr.write(f"cutbook: internal error: {type(exc).__name__}: {redact(str(exc))} "
                          "(set CUTBOOK_DEBUG=1 for the traceback)\n")
         return 1
 
@@ -64,7 +66,7 @@ def _fail(exc, cause: BaseException | None = None) -> int:
         import traceback
 
         traceback.print_exception(cause if cause is not None else exc, file=sys.stderr)
-    sys.stderr.write(f"cutbook: error: {exc}\n")
+    sys.stderr.write(f"cutbook: error: {exc}\n")  # CutbookError.__str__ masks any password
     return exc.exit_code
 
 

@@ -48,7 +48,7 @@ def session(args, *, writes: bool = False, create: bool | None = None):
     create = writes if create is None else create
     try:
         store = open_workspace(explicit, notify=out.note, create=create, create_dirs=explicit is None,
-                               require_write=writes)
+                               require_write=writes, user=getattr(args, "user", None))
     except StoreMissing as exc:
         hint = demo_hint(args)
         if explicit is None and hint:

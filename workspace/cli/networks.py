@@ -122,8 +122,9 @@ def cmd_versions(args) -> int:
             emit_json(rows)
         else:
             tags = any(r.get("tags") for r in rows)  # a tags column only once something is tagged
-            out.table(["version", "nodes", "edges", "hash", "created", "source", "message"] + ["tags"] * tags,
-                      [(r["version"], r["nodes"], r["edges"], r["content_hash"][:12], r["created"], r["source"],
+            out.table(["version", "nodes", "edges", "hash", "created", "by", "source", "message"] + ["tags"] * tags,
+                      [(r["version"], r["nodes"], r["edges"], r["content_hash"][:12], r["created"], r["by"] or "-",
+                        r["source"],
                         r["message"]) + ((" ".join(r["tags"]),) if tags else ()) for r in rows],
                       right=["version", "nodes", "edges"])
     return 0
@@ -163,7 +164,7 @@ def cmd_show(args) -> int:
             emit_json(info)
             return 0
         out.line(f"{info['ref']}   {info['nodes']} nodes, {info['edges']} edges   hash {info['content_hash']}")
-        out.fields([("created", info["created"]), ("message", info["message"] or "-"),
+        out.fields([("created", info["created"]), ("by", info.get("by") or "-"), ("message", info["message"] or "-"),
                     ("parent", info["parent"] or "- (first version)")])
         from workspace.cli.notes import print_annotations
 

@@ -24,9 +24,9 @@ def cmd_params(args) -> int:
                 out.line("no parameter sets")
             else:
                 tags = any(r.get("tags") for r in rows)  # a tags column only once something is tagged
-                out.table(["parameter set", "method", "k", "values", "created"] + ["tags"] * tags,
+                out.table(["parameter set", "method", "k", "values", "created", "by"] + ["tags"] * tags,
                           [(r["ref"], r["method"], r["k"] or "default",
-                            " ".join(f"{k}={v}" for k, v in r["params"].items()), r["created"])
+                            " ".join(f"{k}={v}" for k, v in r["params"].items()), r["created"], r.get("by") or "-")
                            + ((" ".join(r["tags"]),) if tags else ()) for r in rows])
         else:
             res = svc.show_params(store, args.name)

@@ -17,6 +17,8 @@ def _common() -> argparse.ArgumentParser:
     p.add_argument("--store", default=argparse.SUPPRESS, metavar="PATH|URL",
                    help="store to use (SQLite path or SQLAlchemy URL)")
     p.add_argument("--json", action="store_true", help="print one JSON document on stdout")
+    p.add_argument("--user", default=argparse.SUPPRESS, metavar="NAME",
+                   help="who makes the records this command writes (default: $CUTBOOK_USER, else the OS account)")
     return p
 
 

@@ -111,10 +111,11 @@ def cmd_runs(args) -> int:
             measure = args.sort if args.sort in browse.LEDGER_MEASURES else "modularity"
             extra = ["conductance"] if measure == "modularity" else []
             out.table(["run", "status", "method", "version", "k", "parameter set", measure.replace("_", " "),
-                       *extra, "started"],
+                       *extra, "started", "by"],
                       [(r["run"], r["status"], r["method"] if r["kind"] == "computed" else f"attached:{r['label']}",
                         r["ref"], r["k"], _set_name(r["param_set"]), r["quality"].get(measure),
-                        *[r["quality"].get(m) for m in extra], (r["created"] or "").replace("T", " ")[:16])
+                        *[r["quality"].get(m) for m in extra], (r["created"] or "").replace("T", " ")[:16],
+                        r.get("by") or "-")
                        for r in rows],
                       right=["run", "k", measure.replace("_", " "), *extra])
     return 0
@@ -142,6 +143,7 @@ def show_run(args) -> int:
         out.fields([("parameters", " ".join(f"{k}={v}" for k, v in res["params"].items()) or "-"),
                     ("parameter set", res["param_set"]), ("rerun of", res["rerun_of"]),
                     ("started", res["created"]), ("finished", res["finished"]),
+                    ("by", f"{res.get('by') or '-'} on host {res.get('host') or '-'}"),
                     ("solver", (res["diagnostics"] or {}).get("solver")),
                     ("provenance", " ".join(f"{k}={v}" for k, v in res["provenance"].items()))])
         from workspace.cli.notes import print_annotations

@@ -59,6 +59,7 @@ def version_summary(v: NetworkVersion, project: str, network: str) -> dict[str, 
         "version": v.number, "nodes": v.n_nodes, "edges": v.n_edges, "total_weight": v.total_weight,
         "content_hash": v.content_hash, "message": v.message, "source": v.source_name,
         "format": v.source_format, "created": v.created_at.isoformat(timespec="seconds"),
+        "by": v.created_by,
     }
 
 

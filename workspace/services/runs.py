@@ -482,7 +482,8 @@ def _run_row_dict(run: Run, project: str, network: str, number: int) -> dict[str
             "k": run.k, "k_requested": run.k_requested, "seed": run.seed, "repeats": run.repeats,
             "membership_hash": run.membership_hash,
             "created": run.started_at.isoformat(timespec="seconds"),
-            "finished": run.finished_at.isoformat(timespec="seconds") if run.finished_at else None}
+            "finished": run.finished_at.isoformat(timespec="seconds") if run.finished_at else None,
+            "by": run.created_by, "host": run.host}
 
 
 def _runs_query():

@@ -16,7 +16,7 @@ from typing import Callable
 
 from workspace.errors import CutbookError, NoSpace, StoreBusy, StoreError, StoreMissing, StoreReadOnly
 from workspace.store import faults
-from workspace.store.db import (ENV_STORE, HEAD_REVISION, Store, _current_revision, _make_engine,  # noqa: F401
+from workspace.store.db import (ENV_STORE, ENV_USER, HEAD_REVISION, resolve_user, Store, _current_revision, _make_engine,  # noqa: F401
                                 default_demo_path, default_store_path, display_name, inspect_sqlite_file, migrate,
                                 resolve_store_url, sqlite_file)
 from workspace.store.faults import translate as translate_fault  # noqa: F401 - the CLI's top level uses it
@@ -24,7 +24,7 @@ from workspace.store.faults import translate as translate_fault  # noqa: F401 - 
 
 def open_workspace(store: str | os.PathLike | None = None, *,
                    notify: Callable[[str], None] | None = None, create: bool = True, create_dirs: bool = True,
-                   require_write: bool = False) -> Store:
+                   require_write: bool = False, user: str | None = None) -> Store:
     """Open the store, upgrading its schema first when needed.
 
     Parameters
@@ -42,13 +42,19 @@ def open_workspace(store: str | os.PathLike | None = None, *,
         Refuse at once (:class:`StoreReadOnly`, :class:`NoSpace`) when the store cannot be
         written, instead of opening it for reading.
 
+    user : str or None
+        Who makes the records written through this store (``--user``); None: ``$CUTBOOK_USER``, else
+        the OS account. Every new project, network, version, parameter set, run and annotation
+        records it in ``created_by``.
+
     A store that already holds data is copied before an upgrade; later revisions also mark
     runs whose process has vanished as interrupted here.
     """
+    who = resolve_user(user)
     url = resolve_store_url(store)
     path = sqlite_file(url)
     if path is None:
-        return _finish_open(url, _probe_server(url), notify=notify, create=create, readonly=None)
+        return _finish_open(url, _probe_server(url), notify=notify, create=create, readonly=None, user=who)
     name = os.fspath(path)
     state = inspect_sqlite_file(path)
     if state == "absent":
@@ -64,7 +70,7 @@ def open_workspace(store: str | os.PathLike | None = None, *,
     if not _writable(path):
         if state != "present" or require_write:
             raise faults.read_only(name)
-        return _open_read_only(url, path, notify=notify, reason=faults.read_only_reason(path))
+        return _open_read_only(url, path, notify=notify, reason=faults.read_only_reason(path), user=who)
     engine = _make_engine(url)
     try:
         current, tables = _probe(engine, name)
@@ -73,13 +79,14 @@ def open_workspace(store: str | os.PathLike | None = None, *,
         _remove_leftovers(path, new=state == "absent")
         if require_write or state != "present":
             raise
-        return _open_read_only(url, path, notify=notify, reason=faults.FULL_DISK)
+        return _open_read_only(url, path, notify=notify, reason=faults.FULL_DISK, user=who)
     except BaseException:
         engine.dispose()
         _remove_leftovers(path, new=state == "absent")
         raise
     try:
-        return _finish_open(url, (current, tables), notify=notify, create=create, readonly=None, engine=engine)
+        return _finish_open(url, (current, tables), notify=notify, create=create, readonly=None, engine=engine,
+                            user=who)
     except BaseException:
         engine.dispose()
         _remove_leftovers(path, new=state == "absent")
@@ -114,14 +121,16 @@ def _probe_server(url: str):
         raise
 
 
-def _finish_open(url: str, probed, *, notify, create: bool, readonly: str | None, engine=None) -> Store:
+def _finish_open(url: str, probed, *, notify, create: bool, readonly: str | None, engine=None,
+                 user: str | None = None) -> Store:
     if engine is None:
         current, tables, engine = probed
     else:
         current, tables = probed
     name = display_name(url)
     if current is None and tables:
-        raise faults.not_a_store(name, "an SQLite database without cutbook's tables")
+        raise faults.not_a_store(name, ("an SQLite database" if sqlite_file(url) is not None else "a database")
+                                 + " without cutbook's tables")
     if current is None and not create:
         raise StoreMissing("the database is empty: no store here yet; nothing was created — check the path",
                            path=name)
@@ -136,7 +145,7 @@ def _finish_open(url: str, probed, *, notify, create: bool, readonly: str | None
         backup = migrate(url)
         if backup is not None and notify:
             notify(f"cutbook: store upgraded to the current schema; previous copy kept at {backup}")
-    opened = Store(url, engine, readonly=readonly)
+    opened = Store(url, engine, readonly=readonly, user=user)
     if readonly is None:
         from workspace.services.liveness import mark_interrupted
 
@@ -150,7 +159,7 @@ def _finish_open(url: str, probed, *, notify, create: bool, readonly: str | None
     return opened
 
 
-def _open_read_only(url: str, path: Path, *, notify, reason: str) -> Store:
+def _open_read_only(url: str, path: Path, *, notify, reason: str, user: str | None = None) -> Store:
     """Open for reading only.
 
     A ``-wal`` or ``-shm`` beside the file means a writer may be connected (or left work in the log):
@@ -178,7 +187,7 @@ def _open_read_only(url: str, path: Path, *, notify, reason: str) -> Store:
             notify(f"cutbook: {name}: its write-ahead log cannot be read here ({reason}); showing the store as of "
                    "its last checkpoint")
         try:
-            return _finish_open(url, probed, notify=notify, create=False, readonly=reason, engine=engine)
+            return _finish_open(url, probed, notify=notify, create=False, readonly=reason, engine=engine, user=user)
         except BaseException:
             engine.dispose()
             raise

@@ -1,8 +1,19 @@
 """Engine, connection pragmas, transactions and migrate-on-open.
 
-Writers use :meth:`Store.write` (SQLite: ``BEGIN IMMEDIATE``, so two writers
-queue on the busy timeout instead of failing half way); readers use
-:meth:`Store.read`. Opening a store upgrades it to the newest schema (after a
+Writers use :meth:`Store.write`; readers use :meth:`Store.read`. One writer at a
+time on both back ends, so a writer that reads "the latest version" and adds the
+next one can never collide with another:
+
+- SQLite: ``BEGIN IMMEDIATE`` takes the database's write lock at the start, so two
+  writers queue on the busy timeout instead of failing half way.
+- PostgreSQL: every write transaction (and every migration) first takes one
+  transaction-level advisory lock, ``pg_advisory_xact_lock(WRITE_LOCK_KEY)``, under
+  ``SET LOCAL lock_timeout`` = the busy timeout; the server releases it at commit,
+  rollback or when the client dies (PostgreSQL documentation, "Explicit Locking:
+  Advisory Locks" and "Advisory Lock Functions"). Writes run at READ COMMITTED, so
+  each statement after the lock sees every earlier writer's commit; reads run at
+  REPEATABLE READ, one snapshot per read transaction as SQLite gives.
+ Opening a store upgrades it to the newest schema (after a
 backup copy when it already holds data) and refuses a store newer than the
 code.
 """
@@ -20,14 +31,44 @@ from sqlalchemy import create_engine, event, inspect, text
 from sqlalchemy.engine import Engine, make_url
 from sqlalchemy.orm import Session, sessionmaker
 
-from workspace.errors import CutbookError, StoreError
+from workspace.errors import CutbookError, StoreError, UsageError
 from workspace.store import faults
 
 BUSY_TIMEOUT_MS = 60_000
+# pg_advisory_xact_lock key of a store's write section (any fixed 64-bit value: advisory locks are
+# per database, so two stores on one server never share it). int.from_bytes(b"cutbook!", "big") >> 1.
+WRITE_LOCK_KEY = int.from_bytes(b"cutbook!", "big") >> 1
 # The newest migration's revision id. Checking a store against it needs no Alembic import, which
 # keeps every command's start-up short; tests/store checks it equals Alembic's own head.
-HEAD_REVISION = "0004"
+HEAD_REVISION = "0005"
 ENV_STORE = "CUTBOOK_STORE"
+ENV_USER = "CUTBOOK_USER"
+MAX_USER_LENGTH = 200  # the created_by columns are String(200)
+
+
+def resolve_user(user: str | None = None) -> str:
+    """Who is making records: ``user`` (``--user``), else ``$CUTBOOK_USER``, else the OS account.
+
+    A name only: never a password (a ``name:secret`` value is refused). Raises
+    :class:`UsageError` for an empty name, one with control characters or a colon, or one longer
+    than 200 characters.
+    """
+    import getpass
+
+    value = user if user is not None else os.environ.get(ENV_USER) or None
+    source = "--user" if user is not None else f"${ENV_USER}"
+    if value is None:
+        try:
+            value = getpass.getuser()
+        except Exception:  # noqa: BLE001 - no account name (a container without passwd entry): say so
+            value = f"uid-{os.getuid()}" if hasattr(os, "getuid") else "unknown"
+        source = "the OS account"
+    value = value.strip()
+    if not value or len(value) > MAX_USER_LENGTH or ":" in value or any(ord(c) < 32 or ord(c) == 127
+                                                                        for c in value):
+        raise UsageError(f"{source}: a user name must be 1 to {MAX_USER_LENGTH} printable characters without "
+                         "':' (a name, never a password)")
+    return value
 
 
 def default_store_path() -> Path:
@@ -71,8 +112,8 @@ def display_name(url: str) -> str:
         return os.fspath(path)
     try:
         return make_url(url).render_as_string(hide_password=True)
-    except Exception:  # noqa: BLE001 - a URL SQLAlchemy cannot parse is named as given
-        return url
+    except Exception:  # noqa: BLE001 - a URL SQLAlchemy cannot parse is named as given, password masked
+        return faults.redact(url)
 
 
 SQLITE_MAGIC = b"SQLite format 3\x00"
@@ -162,7 +203,17 @@ def _make_engine(url: str, *, foreign_keys: bool = True, access: str = "rw") -> 
                 return sqlite3.connect(uri, uri=True, timeout=timeout, check_same_thread=False)
 
             kwargs = {"creator": _connect}
+    if parsed.get_backend_name() == "postgresql":
+        kwargs["connect_args"] = {"connect_timeout": max(1, int(min(timeout, 30)))}
+        kwargs["pool_pre_ping"] = True
     engine = create_engine(url, **kwargs)
+    if parsed.get_backend_name() == "postgresql":
+        @event.listens_for(engine, "begin")
+        def _on_begin_pg(conn):
+            if conn.get_execution_options().get("cutbook_write", False):
+                # lock_timeout 0 would mean "wait forever": the shortest wait is 1 ms
+                conn.exec_driver_sql(f"SET LOCAL lock_timeout = {max(1, int(timeout * 1000))}")
+                conn.exec_driver_sql(f"SELECT pg_advisory_xact_lock({WRITE_LOCK_KEY})")
     if is_sqlite:
         @event.listens_for(engine, "connect")
         def _on_connect(dbapi_conn, _record):  # pragma: no cover - exercised by every test
@@ -225,14 +276,25 @@ class Store:
     touching the database.
     """
 
-    def __init__(self, url: str, engine: Engine, *, readonly: str | None = None) -> None:
+    def __init__(self, url: str, engine: Engine, *, readonly: str | None = None, user: str | None = None) -> None:
         self.url = url
+        self.user = user
         self.engine = engine
         self.readonly = readonly
         self.name = display_name(url)
         self._write_engine = engine.execution_options(cutbook_write=True)
-        self._read_sessions = sessionmaker(bind=engine, expire_on_commit=False)
+        read_engine = engine
+        if engine.dialect.name == "postgresql":
+            read_engine = engine.execution_options(isolation_level="REPEATABLE READ")
+        self._read_sessions = sessionmaker(bind=read_engine, expire_on_commit=False)
         self._write_sessions = sessionmaker(bind=self._write_engine, expire_on_commit=False)
+        if user is not None:
+            @event.listens_for(self._write_sessions, "before_flush")
+            def _record_user(session, _context, _instances):
+                # every record a person creates says who: any new row with a created_by column left empty
+                for obj in session.new:
+                    if hasattr(obj, "created_by") and obj.created_by is None:
+                        obj.created_by = user
 
     @property
     def is_sqlite(self) -> bool:

@@ -26,8 +26,20 @@ not a cutbook store / damaged          SQLITE_NOTADB, SQLITE_CORRUPT*,        13
                                        SQLITE_IOERR_SHORT_READ; a database
                                        without cutbook's tables (at open)
 permission denied                      SQLITE_PERM, SQLITE_AUTH, EACCES,      14
-                                       EPERM
+                                       EPERM; PostgreSQL 28000/28P01 (login
+                                       refused), 42501 on read
+another writer got there first         PostgreSQL 23505 unique_violation,     4
+                                       40001 serialization_failure (on write)
+no such database on the server         PostgreSQL 3D000                       10
+server unreachable / connection lost   PostgreSQL class 08, 57P01-57P03,      1
+                                       a connection refused before login
 =====================================  =====================================  ====
+
+On PostgreSQL one writer at a time holds the store's advisory lock
+(:mod:`workspace.store.db`), so 23505/40001 on a cutbook write means a client
+outside cutbook changed the same rows; the message says to run the command again.
+Passwords never appear in a message: :func:`redact` masks ``user:password@`` and
+``password=...`` in anything that quotes a connection string.
 
 Result codes: SQLite "Result and Error Codes" (sqlite.org/rescode.html); SQLSTATE
 classes: PostgreSQL documentation, Appendix A "PostgreSQL Error Codes"; errno
@@ -43,7 +55,8 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Iterator
 
-from workspace.errors import (CutbookError, NoSpace, PermissionDenied, StoreBusy, StoreDamaged, StoreError,
+from workspace.errors import redact  # noqa: F401 - re-exported: the store layer's messages use it
+from workspace.errors import (ConflictError, CutbookError, NoSpace, PermissionDenied, StoreBusy, StoreDamaged, StoreError,
                               StoreMissing, StoreReadOnly)
 
 ENV_BUSY_TIMEOUT = "CUTBOOK_BUSY_TIMEOUT"
@@ -268,15 +281,50 @@ def translate(exc: BaseException, *, path: str | os.PathLike | None = None, writ
                     "SQLITE_ERROR")
         return _sqlite_fault(name, msg, path, writing, needed, free)
     sqlstate = getattr(orig, "pgcode", None) or getattr(orig, "sqlstate", None)
+    if sqlstate is None and _is_pg_operational(orig):
+        # libpq reports a refused login before the session exists, so without SQLSTATE: read its message
+        # (the server's own words, PostgreSQL src/backend/libpq/auth.c and postinit.c)
+        low = str(orig).lower()
+        if "password authentication failed" in low or "no pg_hba.conf entry" in low or (
+                "authentication failed" in low):
+            sqlstate = "28P01"
+        elif "database" in low and "does not exist" in low:
+            sqlstate = "3D000"
     if sqlstate in _PG_READ_ONLY and (writing or sqlstate == "25006"):
-        return read_only(None, detail="the database role or transaction may not write")
+        return StoreReadOnly("the store is read-only for this database role (it may not write); nothing was "
+                             "written — reading commands still work; ask the database administrator for a role "
+                             "with write grants to change it", path=path)
     if sqlstate == "42501":
-        return permission_denied(path)
+        return PermissionDenied("permission denied: the database role may not read the store's tables — ask "
+                                "the database administrator for a role with SELECT on them", path=path)
     if sqlstate == "53100":  # disk_full
         return no_space(None, needed=needed, free=free)
     if sqlstate in ("55P03", "40P01"):  # lock_not_available, deadlock_detected
         return busy(path)
+    if sqlstate in ("23505", "40001") and writing is not False:
+        return ConflictError("another writer changed the same records at the same moment; nothing was written — "
+                             "run the command again", path=path)
+    if sqlstate == "3D000":
+        return StoreMissing("no such database on the server; nothing was created — ask the database "
+                            "administrator to create it (CREATE DATABASE), then run the command again", path=path)
+    if sqlstate in ("28000", "28P01"):
+        return PermissionDenied("the database server refused the login (wrong user name or password, or no "
+                                "pg_hba.conf entry for this host) — check the URL, $PGPASSWORD, ~/.pgpass or the "
+                                "service file", path=path)
+    if (sqlstate or "").startswith("08") or sqlstate in ("57P01", "57P02", "57P03"):
+        return StoreError("the connection to the database server failed or was lost; nothing more was written "
+                          "— check that the server is running and reachable, then run the command again", path=path)
+    if sqlstate is None and _is_pg_operational(orig):
+        first = redact(str(orig).strip().splitlines()[0] if str(orig).strip() else type(orig).__name__)
+        return StoreError(f"cannot use the database server ({first}) — check the host, port and that the server "
+                          "is running", path=path)
     return None
+
+
+def _is_pg_operational(exc: BaseException) -> bool:
+    """A psycopg OperationalError without SQLSTATE: the connection failed before the server answered."""
+    mod = type(exc).__module__ or ""
+    return mod.startswith("psycopg") and type(exc).__name__ == "OperationalError"
 
 
 @contextmanager

@@ -59,6 +59,7 @@ class Project(Base):
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     name: Mapped[str] = mapped_column(String(200), unique=True)
     created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    created_by: Mapped[str | None] = mapped_column(String(200), nullable=True)  # who made it (0005)
 
     networks: Mapped[list["Network"]] = relationship(back_populates="project")
 
@@ -71,6 +72,7 @@ class Network(Base):
     project_id: Mapped[int] = mapped_column(ForeignKey("projects.id", ondelete="CASCADE"), index=True)
     name: Mapped[str] = mapped_column(String(200))
     created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    created_by: Mapped[str | None] = mapped_column(String(200), nullable=True)  # who made it (0005)
 
     project: Mapped[Project] = relationship(back_populates="networks")
     versions: Mapped[list["NetworkVersion"]] = relationship(
@@ -105,6 +107,7 @@ class NetworkVersion(Base):
     edge_v_blob: Mapped[str] = mapped_column(ForeignKey("blobs.hash"))
     weight_blob: Mapped[str] = mapped_column(ForeignKey("blobs.hash"))
     created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    created_by: Mapped[str | None] = mapped_column(String(200), nullable=True)  # who made it (0005)
 
     network: Mapped[Network] = relationship(back_populates="versions", foreign_keys=[network_id])
 
@@ -123,6 +126,7 @@ class ParamSet(Base):
     project_id: Mapped[int] = mapped_column(ForeignKey("projects.id", ondelete="CASCADE"), index=True)
     name: Mapped[str] = mapped_column(String(200))
     created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    created_by: Mapped[str | None] = mapped_column(String(200), nullable=True)  # who made it (0005)
 
 
 class ParamSetVersion(Base):
@@ -142,6 +146,7 @@ class ParamSetVersion(Base):
     values_json: Mapped[str] = mapped_column(Text)
     values_hash: Mapped[str] = mapped_column(String(64), index=True)
     created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    created_by: Mapped[str | None] = mapped_column(String(200), nullable=True)  # who made it (0005)
 
 
 class Run(Base):
@@ -173,6 +178,7 @@ class Run(Base):
     status: Mapped[str] = mapped_column(String(16), index=True)
     error: Mapped[str | None] = mapped_column(Text, nullable=True)
     started_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    created_by: Mapped[str | None] = mapped_column(String(200), nullable=True)  # who made it (0005)
     finished_at: Mapped[datetime | None] = mapped_column(DateTime(timezone=True), nullable=True)
     host: Mapped[str | None] = mapped_column(String(255), nullable=True)
     pid: Mapped[int | None] = mapped_column(Integer, nullable=True)
@@ -240,6 +246,7 @@ class Annotation(Base):
     action: Mapped[str] = mapped_column(String(16))
     text: Mapped[str] = mapped_column(Text)
     created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    created_by: Mapped[str | None] = mapped_column(String(200), nullable=True)  # who made it (0005)
 
 
 # --- sweeps and cached embeddings (revision 0004) ----------------------------------
