@@ -9,7 +9,7 @@ from __future__ import annotations
 import os
 import socket
 
-from sqlalchemy import select, update
+from sqlalchemy import text, update
 
 from workspace.store.db import Store
 from workspace.store.schema import Run
@@ -39,14 +39,16 @@ def _process_alive(pid: int, token: str | None) -> bool:
     return True
 
 
+_RUNNING_HERE = text("SELECT id, pid, process_token FROM runs WHERE status = 'running' AND host = :host")
+
+
 def mark_interrupted(store: Store) -> list[int]:
     """Mark ``running`` runs of this host whose process is gone as ``interrupted``."""
     from workspace.store.repo import utcnow
 
     host = socket.gethostname()
-    with store.read() as s:
-        rows = s.execute(select(Run.id, Run.pid, Run.process_token)
-                         .where(Run.status == "running", Run.host == host)).all()
+    with store.read() as s:  # plain SQL: every command runs this on open, and compiling an ORM select costs more
+        rows = s.execute(_RUNNING_HERE, {"host": host}).all()
     gone = [r.id for r in rows if r.pid is not None and not _process_alive(r.pid, r.process_token)]
     if gone:
         with store.write() as s:
