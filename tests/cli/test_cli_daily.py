@@ -466,3 +466,18 @@ def test_delete_run_in_a_terminal_asks_for_the_ids(cli, club, store_path):
         if code == 1:
             assert "nothing deleted" in proc.stderr and dump_store(store_path) == before
     assert cli("show", run).code == 3
+
+
+# --- 9 (sibling): a listing of a scope that does not exist ------------------------------------------
+
+
+def test_runs_of_a_mistyped_scope_is_not_found_not_empty(cli, club):
+    """`runs P`, `runs P/N` and `runs P/N@V` naming nothing in the store exit 3 with a suggestion,
+    instead of printing "no runs" with exit 0; an existing scope without matches still lists nothing."""
+    for scope, hint in (("clb", "club"), ("club/karat", "club/karate"), ("club/karate@9", "versions are 1")):
+        r = cli("runs", scope)
+        _one_line_error(r, 3)
+        assert hint in r.err, r.err
+    r = cli("runs", "club/karate", "--status", "cancelled")
+    assert r.code == 0 and "no runs" in r.out
+    assert cli("runs", "club", "--json").json  # the runs of an existing project are listed

@@ -103,6 +103,8 @@ def cmd_runs(args) -> int:
     with session(args) as (store, out):
         rows = browse.ledger_runs(store, args.ref, status=args.status, text=args.filter, sort=args.sort,
                                   descending=args.descending, limit=args.limit)
+        if not rows and args.ref:  # an empty listing must not hide a mistyped project or network
+            browse.check_scope(store, args.ref)
         if args.json:
             emit_json(rows)
         elif not rows:

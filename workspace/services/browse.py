@@ -148,6 +148,22 @@ def count_ledger_runs(store: Store, scope: str | None = None, *, status: str | N
         return int(s.scalar(q) or 0)
 
 
+def check_scope(store: Store, scope: str | None) -> None:
+    """Raise NotFoundError (with a 'did you mean') when ``scope`` (``P``, ``P/N`` or ``P/N@V``)
+    names a project, network or version the store does not hold; None is the whole store."""
+    if scope is None:
+        return
+    from workspace.services.networks import project_not_found, resolve_version
+    from workspace.store import repo
+
+    with store.read() as s:
+        if "/" not in scope:
+            if repo.find_project(s, scope) is None:
+                raise project_not_found(s, scope)
+            return
+        resolve_version(s, VersionRef.parse(scope))
+
+
 def ledger_runs(store: Store, scope: str | None = None, *, status: str | None = None, text: str | None = None,
                 sort: str = "run", descending: bool | None = None, limit: int | None = None,
                 offset: int = 0) -> list[dict[str, Any]]:
