@@ -336,11 +336,11 @@ def test_tui_cancel_a_running_run(tmp_path):
                              and not static_text(stage).rstrip().endswith(" 0 matvecs"), 120,
                              "the solver to report matvecs")
             assert not app.job.finished
-            # the event loop is free while the child computes: switching screens answers at once
-            t = time.monotonic()
+            # the event loop is free while the child computes: the screen switches while the run is
+            # still computing (no wall-clock limit here: timing belongs in tests/benchmarks)
             await pilot.press("1")
             await pilot.pause()
-            assert app.screen.id == "ledger" and time.monotonic() - t < 2.0
+            assert app.screen.id == "ledger" and not app.job.finished
             await pilot.press("2")
             await pilot.pause()
             await pilot.press("ctrl+t")
