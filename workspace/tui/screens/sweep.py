@@ -102,7 +102,6 @@ class SweepScreen(Screen):
     TITLE = "Sweep"
     # local layout (kept beside the screen so the shared stylesheet needs no edit)
     DEFAULT_CSS = """
-    #sweep-top { height: 3; }
     #sweep-top Input { width: 16; }
     #sweep-summary { padding: 1 0 0 1; color: $dim; }
     #sweep-body .pane { height: auto; }
@@ -131,7 +130,7 @@ class SweepScreen(Screen):
         yield ScreenBar("sweep")
         with Horizontal(id="sweep-top", classes="field-row"):
             yield Label("sweep", classes="name")
-            yield Input("", id="sweep-id", placeholder="sweep id, then enter", type="integer")
+            yield Input("", id="sweep-id", placeholder="sweep id, then enter", type="integer", compact=True)
             yield Static("", id="sweep-summary")
         with VerticalScroll(id="sweep-body"):
             with Pane(title="Progress", id="sweep-progress-pane"):
