@@ -54,26 +54,35 @@ def _child(store_url: str, spec: dict[str, Any], events, stop) -> None:
                     "message": f"{type(exc).__name__}: {exc}"})
 
 
-class RunJob:
-    """One run computing in a spawned process."""
+class ChildJob:
+    """Work computing in a spawned process that reports through an event queue.
 
-    def __init__(self, store_url: str, spec: RunSpec) -> None:
+    The child puts ``{"type": "started", KEY: id}``, any number of ``progress`` events and one
+    ``{"type": "finished", KEY: id, "status": …, "message": …}``; ``KEY`` is the record the job
+    computes (``run`` or ``sweep``). A child that dies without its last word is reported
+    ``interrupted`` (the store marks its records so on the next open).
+    """
+
+    KEY = "run"
+    WHAT = "run"
+
+    def __init__(self, store_url: str, spec, target, name: str) -> None:
         ctx = mp.get_context("spawn")
         self.spec = spec
         self._events = ctx.Queue()
         self._stop = ctx.Event()
-        self._process = ctx.Process(target=_child, args=(store_url, spec.to_dict(), self._events, self._stop),
-                                    daemon=True, name="cutbook-run")
-        self.run_id: int | None = None
+        self._process = ctx.Process(target=target, args=(store_url, spec.to_dict(), self._events, self._stop),
+                                    daemon=True, name=name)
+        self.record_id: int | None = None
         self.status: str | None = None
         self.message: str | None = None
 
-    def start(self) -> "RunJob":
+    def start(self):
         self._process.start()
         return self
 
     def cancel(self) -> None:
-        """Ask the child to stop at its next check (inside the solver's matvec)."""
+        """Ask the child to stop at its next check (inside the solver's matvec, or between tasks)."""
         self._stop.set()
 
     def poll(self) -> list[dict[str, Any]]:
@@ -89,24 +98,23 @@ class RunJob:
         if self.status is None and not self._process.is_alive() and self._process.exitcode is not None:
             try:  # the child's last events may still be in the pipe
                 ev = self._events.get(timeout=0.5)
-                return out + [ev] + self.poll() if self._absorb(ev) else out + [ev]
+                self._absorb(ev)
+                return out + [ev] + self.poll()
             except queue_module.Empty:
                 pass
-            # The child died without a word (killed): the store marks the run interrupted on next open.
             self.status = "interrupted"
-            self.message = f"the run process stopped (exit code {self._process.exitcode})"
-            out.append({"type": "finished", "run": self.run_id, "status": "interrupted", "message": self.message})
+            self.message = f"the {self.WHAT} process stopped (exit code {self._process.exitcode})"
+            out.append({"type": "finished", self.KEY: self.record_id, "status": "interrupted",
+                        "message": self.message})
         return out
 
-    def _absorb(self, ev: dict[str, Any]) -> bool:
-        """Update state from an event; True while more events may follow."""
+    def _absorb(self, ev: dict[str, Any]) -> None:
+        """Update state from an event."""
         if ev["type"] == "started":
-            self.run_id = ev["run"]
+            self.record_id = ev[self.KEY]
         elif ev["type"] == "finished":
-            self.run_id = ev["run"] if ev["run"] is not None else self.run_id
+            self.record_id = ev[self.KEY] if ev[self.KEY] is not None else self.record_id
             self.status, self.message = ev["status"], ev["message"]
-            return False
-        return True
 
     @property
     def finished(self) -> bool:
@@ -131,3 +139,16 @@ class RunJob:
         if self._process.is_alive():
             self._process.kill()
         self._process.join(timeout=5)
+
+
+class RunJob(ChildJob):
+    """One run computing in a spawned process."""
+
+    KEY = WHAT = "run"
+
+    def __init__(self, store_url: str, spec: RunSpec) -> None:
+        super().__init__(store_url, spec, _child, "cutbook-run")
+
+    @property
+    def run_id(self) -> int | None:
+        return self.record_id
