@@ -142,20 +142,9 @@ def write_report(store: Store, runs: list[int], path: str | os.PathLike, *, figu
         stream.write(body)
         stream.flush()
     else:
-        partial = os.path.join(os.path.dirname(os.path.abspath(target)),
-                               f".{os.path.basename(target)}.partial-{os.getpid()}")
-        try:
-            with open(partial, "wb") as out:
-                out.write(body)
-            os.replace(partial, target)
-        except BaseException as exc:
-            try:
-                os.unlink(partial)
-            except OSError:
-                pass
-            if isinstance(exc, OSError) and exc.filename in (None, partial):
-                exc.filename = target
-            raise
+        from workspace.services.runs import write_atomically
+
+        write_atomically(target, body)
     summary.update({"path": target, "bytes": len(body)})
     return summary
 

@@ -598,6 +598,25 @@ def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict
         return out
 
 
+def write_atomically(target: str, body: bytes) -> None:
+    """Write ``body`` beside ``target`` and rename it over: a full disk or a refused write leaves
+    no partial file (an OSError names ``target``, not the temporary file)."""
+    partial = os.path.join(os.path.dirname(os.path.abspath(target)),
+                           f".{os.path.basename(target)}.partial-{os.getpid()}")
+    try:
+        with open(partial, "wb") as out:
+            out.write(body)
+        os.replace(partial, target)
+    except BaseException as exc:
+        try:
+            os.unlink(partial)
+        except OSError:
+            pass
+        if isinstance(exc, OSError) and exc.filename in (None, partial):
+            exc.filename = target
+        raise
+
+
 def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: str = "csv",
                stream=None) -> dict[str, Any]:
     """Write a run's membership as CSV ``node,community``, or the network with it (node-link JSON, GraphML).
@@ -620,21 +639,7 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
         stream.write(text)
         stream.flush()
     else:
-        # Written beside the target and renamed over it: a full disk or a refused write leaves no partial file.
-        partial = os.path.join(os.path.dirname(os.path.abspath(target)),
-                               f".{os.path.basename(target)}.partial-{os.getpid()}")
-        try:
-            with open(partial, "w", encoding="utf-8", newline="") as out:
-                out.write(text)
-            os.replace(partial, target)
-        except BaseException as exc:
-            try:
-                os.unlink(partial)
-            except OSError:
-                pass
-            if isinstance(exc, OSError) and exc.filename in (None, partial):
-                exc.filename = target
-            raise
+        write_atomically(target, text.encode("utf-8"))
     return {"run": run_id, "path": target, "format": format, "nodes": int(labels.shape[0]),
             "with_community": count, "edges": edges, "membership_hash": summary["membership_hash"]}
 
