@@ -37,7 +37,7 @@ from tests_support import dump_store
 
 REPO = Path(__file__).resolve().parents[2]
 KARATE = REPO / "tests" / "data" / "karate.csv"
-BIG_EDGES = 1_500_000
+BIG_EDGES = 4_000_000  # large enough that the faster import still runs for seconds
 
 pytestmark = pytest.mark.slow
 
@@ -122,7 +122,7 @@ def base_store(tmp_path_factory) -> Path:
 
 @pytest.fixture(scope="module")
 def big_csv(tmp_path_factory) -> Path:
-    """1.5 million random edges over 200,000 ids (about 22 MB)."""
+    """4 million random edges over 200,000 ids (about 60 MB)."""
     path = tmp_path_factory.mktemp("big") / "big.csv"
     rng = np.random.default_rng(20260101)
     u = rng.integers(0, 200_000, BIG_EDGES).tolist()
