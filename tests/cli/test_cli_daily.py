@@ -181,7 +181,10 @@ def test_readme_documents_delimiter_and_new_commands():
 # --- 14: delete a run ------------------------------------------------------------------------------------
 
 def test_delete_run_removes_it_and_its_unused_arrays(cli, club, tmp_path, store_path):
-    failed = cli("run", "club/karate", "--method", "njw", "--k", "99", "--json")
+    three = tmp_path / "three.csv"  # three components, so k=2 fails in the computation
+    three.write_text("a,b\nb,c\nc,a\nd,e\ne,f\nf,d\ng,h\n", encoding="utf-8")
+    assert cli("import", three, "--project", "club", "--network", "three", "--header", "no").code == 0
+    failed = cli("run", "club/three", "--method", "njw", "--k", "2", "--json")
     assert failed.code == 1 and failed.json["status"] == "failed"
     att = cli("attach", _export(cli, club["njw2"], tmp_path), "--to", "club/karate", "--label", "copy",
               "--json").json["run"]

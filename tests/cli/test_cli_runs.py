@@ -72,8 +72,16 @@ def test_params_and_run_json_contract(cli, karate_csv, tmp_path):
 
 def test_run_failures_and_usage(cli, karate_csv):
     cli("import", karate_csv, "--project", "club", "--network", "karate")
-    r = cli("run", "club/karate", "--method", "njw", "--k", "99", "--json")
-    assert r.code == 1 and "failed" in r.err
+    # karate has 34 nodes (networkx.karate_club_graph): k=99 is refused before anything is recorded
+    r = cli("run", "club/karate", "--method", "njw", "--k", "99")
+    assert r.code == 2 and "n=34" in r.err and cli("runs", "--json").json == []
+    assert cli("run", "club/karate", "--method", "louvain", "--k", "3").code == 2  # louvain picks k itself
+    # three components and k=2: known only once the graph is analysed, so recorded as a failed run
+    three = Path(karate_csv).with_name("three.csv")
+    three.write_text("a,b\nb,c\nc,a\nd,e\ne,f\nf,d\ng,h\n", encoding="utf-8")
+    assert cli("import", three, "--project", "club", "--network", "three", "--header", "no").code == 0
+    r = cli("run", "club/three", "--method", "njw", "--k", "2", "--json")
+    assert r.code == 1 and "failed" in r.err and "components" in r.err
     assert r.json["status"] == "failed" and r.json["error"]
     assert cli("run", "club/karate", "--method", "njw", "--set", "bogus=1").code == 2
     assert cli("run", "club/none", "--method", "njw").code == 3

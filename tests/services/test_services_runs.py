@@ -55,9 +55,20 @@ def test_done_run_records_everything(store, karate):
     assert "modularity" in names_rows
 
 
+def test_k_beyond_the_node_count_is_refused_before_recording(store, karate, store_target):
+    # karate has 34 nodes (Zachary 1977, networkx.karate_club_graph): k=40 cannot be met, known up front
+    before = dump_store(store_target)
+    with pytest.raises(ParameterError, match="n=34"):
+        runs.prepare_run(store, "club/karate", method="njw", k=40)
+    assert dump_store(store_target) == before
+
+
 def test_failed_run_keeps_its_message(store, karate):
-    # k larger than the number of nodes is a data-dependent impossibility: recorded as failed
-    spec = runs.prepare_run(store, "club/karate", method="njw", k=40)
+    # a spec that passes preparation but fails in the computation (here forced past the up-front
+    # check) is recorded as failed with the engine's message
+    import dataclasses
+
+    spec = dataclasses.replace(runs.prepare_run(store, "club/karate", method="njw", k=2), k="40")
     with pytest.raises(runs.RunFailed) as exc:
         runs.launch(store, spec)
     rec = runs.show_run(store, exc.value.run_id)

@@ -158,6 +158,14 @@ def fmt(x: Any) -> str:
     return str(x)
 
 
+def fmt_spectrum(values: Sequence[float], limit: int = 12) -> str:
+    """Eigenvalues to 4 significant digits; rounding noise (|x| below 1e-12 of the largest) shows as 0."""
+    vals = [float(v) for v in values]
+    scale = max((abs(v) for v in vals if math.isfinite(v)), default=1.0) or 1.0
+    text = " ".join("0" if math.isfinite(v) and abs(v) < 1e-12 * max(scale, 1.0) else f"{v:.4g}" for v in vals[:limit])
+    return text + (" …" if len(vals) > limit else "")
+
+
 class ProgressBar:
     """A rich progress bar on stderr that appears only once work has run for a second.
 

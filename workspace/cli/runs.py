@@ -4,7 +4,7 @@ from __future__ import annotations
 
 
 from workspace.cli.common import emit_json, progress_bar, session
-from workspace.cli.output import fmt
+from workspace.cli.output import fmt, fmt_spectrum
 
 SCALAR_MEASURES = ("modularity", "normalized_cut", "conductance", "ratio_cut", "cut", "coverage")
 
@@ -22,7 +22,7 @@ def _print_run(out, r: dict) -> None:
         out.line("  " + "   ".join(f"{n.replace('_', ' ')} {fmt(v)}" for n, v in shown))
     eig = r.get("eigenvalues") or []
     if eig:
-        out.line("  eigenvalues " + " ".join(f"{x:.4g}" for x in eig[:12]) + (" …" if len(eig) > 12 else ""))
+        out.line("  eigenvalues " + fmt_spectrum(eig))
     diag = r.get("diagnostics") or {}
     if isinstance(diag.get("eigengap_suggestion"), int) and diag["eigengap_suggestion"] >= 2:
         out.line(f"  eigengap suggests k={diag['eigengap_suggestion']}")

@@ -53,6 +53,11 @@ def normalize_k(method: str, k: Any) -> str | None:
         raise ParameterError(f"k must be an integer >= 2 or 'auto', got {k!r}") from None
     if value < 2 or str(value) != str(k).strip():
         raise ParameterError(f"k must be an integer >= 2 or 'auto', got {k!r}")
+    if not info.accepts_k:
+        raise ParameterError(f"method {method!r} chooses the number of communities itself; leave k out")
+    if info.fixed_k is not None and value != info.fixed_k:
+        raise ParameterError(f"method {method!r} always makes {info.fixed_k} parts (got k={value}); "
+                             "use recursive, njw or shi-malik for more")
     return str(value)
 
 

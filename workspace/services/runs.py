@@ -106,6 +106,7 @@ def prepare_run(store: Store, ref: str | VersionRef, *, params_ref: str | None =
     with store.read() as s:
         version = resolve_version(s, vref)
         version_ref = f"{vref.project}/{vref.network}@{version.number}"
+        n_nodes = version.n_nodes
         ps_id = ps_ref = None
         if params_ref is not None:
             p_project, p_name, psv = params_service.find_params(s, params_ref)
@@ -119,6 +120,9 @@ def prepare_run(store: Store, ref: str | VersionRef, *, params_ref: str | None =
             k = psv.k if k is None else k
             ps_id, ps_ref = psv.id, f"{p_project}/{p_name}@{psv.number}"
     k_norm, values = params_service.validate(method, k, sets or {})
+    if k_norm not in (None, "auto") and int(k_norm) >= n_nodes:
+        raise ParameterError(f"k={k_norm} must be smaller than the number of nodes of {version_ref} "
+                             f"(n={n_nodes}); nothing was recorded")
     return RunSpec(version_ref=version_ref, version_id=version.id, method=method, k=k_norm, params=values,
                    seed=seed, repeats=repeats, perturb=float(perturb), param_set_version_id=ps_id,
                    param_set_ref=ps_ref)
