@@ -117,9 +117,9 @@ class LedgerScreen(Screen):
             return
         for p in projects:
             newest = next((n["versions"][-1]["ref"] for n in p["networks"] if n["versions"]), None)
-            sets = p["param_sets"]
-            pnode = root.add(Text.assemble((p["project"], "bold"),
-                                           (f"  {sets} set{'s' if sets != 1 else ''}", palette.FAINT)),
+            # the parameter-set count lives in the project's detail pane: beside the name it was cut
+            # to "1 s" in the outline's 30 columns at 80x24
+            pnode = root.add(Text(p["project"], style="bold"),
                              data={"kind": "project", "scope": p["project"], "project": p["project"],
                                    "launch": newest, "info": p}, expand=True)
             for n in p["networks"]:
