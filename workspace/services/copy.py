@@ -44,7 +44,7 @@ from sqlalchemy.engine import make_url
 
 from workspace.domain import VersionRef
 from workspace.errors import NotFoundError, StoreDamaged, UsageError
-from workspace.store import repo
+from workspace.store import faults, repo
 from workspace.store.db import Store, sqlite_file
 from workspace.store.schema import (Annotation, Blob, BlobChunk, Network, NetworkVersion, ParamSet, ParamSetVersion,
                                     Project, Run, RunCommunity, RunMeasure)
@@ -92,6 +92,35 @@ def same_store(a: Store, b: Store) -> bool:
     return (ua.host or "", ua.port or 5432, ua.database) == (ub.host or "", ub.port or 5432, ub.database)
 
 
+class _SourceSession:
+    """The source's read session, whose faults name the source store (the copy runs inside the
+    destination's write, whose own mapping would otherwise name the destination)."""
+
+    def __init__(self, session, name: str) -> None:
+        self._session, self._name = session, name
+
+    def __getattr__(self, attr):
+        value = getattr(self._session, attr)
+        if not callable(value):
+            return value
+
+        def call(*args, **kwargs):
+            with faults.translating(self._name):
+                return value(*args, **kwargs)
+        return call
+
+    def stream(self, rows):
+        """Iterate a streamed result, its faults named as the source's."""
+        it = iter(rows)
+        while True:
+            with faults.translating(self._name):
+                try:
+                    row = next(it)
+                except StopIteration:
+                    return
+            yield row
+
+
 class _Copier:
     """One copy: source session ``s`` (a read snapshot), destination session ``d`` (the write)."""
 
@@ -133,7 +162,7 @@ class _Copier:
         self.added["arrays"] += 1
         self.added["bytes"] += len(row.data)
         self.s.expunge(row)
-        for chunk in repo.iter_chunks(self.s, h):  # one chunk in memory at a time
+        for chunk in self.s.stream(repo.iter_chunks(self.s, h)):  # one chunk in memory at a time
             self.d.execute(insert(BlobChunk).values(blob_hash=h, seq=chunk.seq, raw_size=chunk.raw_size,
                                                     hash=chunk.hash, data=chunk.data))
             self.added["chunks"] += 1
@@ -382,23 +411,26 @@ def copy_work(source: Store, dest: Store, *, projects: list[str] | None = None, 
                     raise project_not_found(s, name)
                 found.append(p)
             scope = {"projects": [p.name for p in found]}
+        src = _SourceSession(s, source.name)
         with dest.write() as d:
-            c = _Copier(s, d)
+            c = _Copier(src, d)
             if run is not None:
                 for net_id, ids in sorted(wanted.items()):
-                    c.copy_versions(s.get(Network, net_id), ids)
+                    c.copy_versions(src.get(Network, net_id), ids)
                 _copy_runs(c, lineage)
             elif network is not None:
                 c.copy_versions(net)
-                _copy_runs(c, _scope_runs(s, sorted(c.version_ids)))
+                _copy_runs(c, _scope_runs(src, sorted(c.version_ids)))
             else:
                 for p in found:
                     c.project(p)
-                    for n in s.scalars(select(Network).where(Network.project_id == p.id).order_by(Network.name)):
+                    for n in src.scalars(select(Network).where(Network.project_id == p.id)
+                                         .order_by(Network.name)).all():
                         c.copy_versions(n)
-                    for ps in s.scalars(select(ParamSet).where(ParamSet.project_id == p.id).order_by(ParamSet.name)):
+                    for ps in src.scalars(select(ParamSet).where(ParamSet.project_id == p.id)
+                                          .order_by(ParamSet.name)).all():
                         c.param_set(ps)
-                _copy_runs(c, _scope_runs(s, sorted(c.version_ids)))
+                _copy_runs(c, _scope_runs(src, sorted(c.version_ids)))
             c.annotations()
             verified = _verify_arrival(d, c.used_blobs, source.name)
     return {"source": source.name, "destination": dest.name, "scope": scope, "added": c.added,
