@@ -23,12 +23,17 @@ def cmd_copy(args) -> int:
             return 0
         added, matched = res["added"], res["matched"]
         kinds = ("projects", "networks", "versions", "param_set_versions", "runs", "annotations")
-        got = ", ".join(f"{added[k]} {k.replace('_', ' ')}" for k in kinds if added[k])
+
+        def count(n: int, kind: str) -> str:
+            words = kind.replace("_", " ")
+            return f"{n} {words if n != 1 else words.replace('versions', 'version').rstrip('s')}"
+
+        got = ", ".join(count(added[k], k) for k in kinds if added[k])
         out.line(f"copied to {res['destination']}: {got or 'nothing new (everything was already there)'}")
         if added["arrays"]:
             chunks = f" in {added['chunks']} chunks" if added["chunks"] else ""
             out.line(f"  arrays   {added['arrays']} new{chunks}, {added['bytes']:,} bytes")
-        there = ", ".join(f"{matched[k]} {k.replace('_', ' ')}" for k in kinds if matched[k])
+        there = ", ".join(count(matched[k], k) for k in kinds if matched[k])
         if there:
             out.line(f"  already there: {there}")
         for r in res["renumbered"]:
