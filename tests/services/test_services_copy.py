@@ -220,3 +220,27 @@ def test_bad_scopes_are_refused_and_change_nothing(tmp_path):
         with pytest.raises(UsageError, match="same store"):
             copy_work(src, src)
     assert dump_any(str(b)) == before
+
+
+def test_chunked_arrays_travel_as_chunks_and_are_checked_on_arrival(tmp_path, monkeypatch):
+    from sqlalchemy import func, select
+
+    from workspace.services.copy import copy_work
+    from workspace.services.verify import verify_store
+    from workspace.store.schema import BlobChunk
+
+    a, b = tmp_path / "a.sqlite", tmp_path / "b.sqlite"
+    monkeypatch.setenv("CUTBOOK_BLOB_CHUNK_BYTES", "48")
+    _build_source(a, tmp_path)
+    monkeypatch.delenv("CUTBOOK_BLOB_CHUNK_BYTES")
+
+    def chunks(where):
+        with _open(where) as st, st.read() as s:
+            return s.scalar(select(func.count()).select_from(BlobChunk))
+
+    with _open(a) as src, _open(b) as dst:
+        res = copy_work(src, dst)
+        report = verify_store(dst)
+    assert chunks(a) > 20 and res["added"]["chunks"] == chunks(a) == chunks(b)
+    assert res["verified"]["chunks"] == chunks(a) and report["ok"] and report["chunks_checked"] == chunks(b)
+    assert _summary(a) == _summary(b)
