@@ -239,6 +239,16 @@ def build_parser() -> argparse.ArgumentParser:
     add("verify", "check every stored array against its hash, and the database's integrity", "upkeep",
         "cmd_verify")
 
+    p = add("copy", "copy projects, one network or one run's lineage from --store to another store "
+            "(SQLite or PostgreSQL); copying again adds nothing", "copy", "cmd_copy")
+    p.add_argument("--to", required=True, metavar="PATH|URL", help="destination store (made when it does not exist)")
+    scope = p.add_mutually_exclusive_group()
+    scope.add_argument("--project", dest="projects", action="append", default=[], metavar="NAME",
+                       help="a project to copy (repeatable; default: every project)")
+    scope.add_argument("--network", metavar="PROJECT/NETWORK", help="one network with its runs")
+    scope.add_argument("--run", type=int, metavar="RUN",
+                       help="one run with its version chain and parameter-set versions")
+
     p = add("delete", "delete a project or a network with everything in it (asks first)", "upkeep", "cmd_delete")
     p.add_argument("target", metavar="PROJECT[/NETWORK]")
     p.add_argument("--yes", action="store_true", help="do not ask")

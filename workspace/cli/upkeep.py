@@ -13,7 +13,8 @@ def cmd_verify(args) -> int:
         if args.json:
             emit_json(res)
         else:
-            out.line(f"{'ok' if res['ok'] else 'PROBLEMS FOUND'}: {res['blobs_checked']} arrays checked")
+            chunks = f" ({res['chunks_checked']} chunks)" if res.get("chunks_checked") else ""
+            out.line(f"{'ok' if res['ok'] else 'PROBLEMS FOUND'}: {res['blobs_checked']} arrays checked{chunks}")
             for f in res["findings"]:
                 who = "; ".join(f.get("belongs_to", []))
                 out.line(f"  {f['kind']}: {f.get('detail', '')} {('— ' + who) if who else ''}".rstrip())

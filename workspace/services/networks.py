@@ -207,7 +207,7 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
                                   source_label=source_label)
     graph, content_hash = prepared.graph, prepared.content_hash
     report_dict, policy_dict = prepared.report, prepared.policy
-    with store.write(needed=sum(len(a.data) for a in prepared.arrays.values())) as s:
+    with store.write(needed=sum(a.stored_size for a in prepared.arrays.values())) as s:
         proj = repo.get_or_create_project(s, project)
         net = repo.get_or_create_network(s, proj, network)
         latest = repo.latest_version(s, net.id)

@@ -292,7 +292,7 @@ def _finish(store: Store, run_id: int | None, status: str, *, computed: Computed
         if computed.stability_counts is not None:
             c = computed.stability_counts
             encoded["stability"] = encode_array(c.astype(np.uint8 if c.max(initial=0) < 256 else np.uint16))
-    with store.write(needed=sum(len(e.data) for e in encoded.values()) or None) as s:
+    with store.write(needed=sum(e.stored_size for e in encoded.values()) or None) as s:
         if new_run is not None:
             s.add(new_run)
             s.flush()

@@ -237,7 +237,6 @@ def embedding_for_rerun(store: Store, info: dict[str, Any]):
 
 def embedding_cache(store: Store) -> dict[str, Any]:
     """What the embedding cache holds: one row per embedding with its version and stored size."""
-    from workspace.store.schema import Blob
 
     with store.read() as s:
         q = (select(EmbeddingRow, Project.name, Network.name, NetworkVersion.number)
@@ -246,8 +245,7 @@ def embedding_cache(store: Store) -> dict[str, Any]:
              .join(Project, Project.id == Network.project_id).order_by(EmbeddingRow.created_at))
         rows = []
         for e, p, n, v in s.execute(q).all():
-            size = s.scalar(select(func.coalesce(func.sum(func.length(Blob.data)), 0))
-                            .where(Blob.hash.in_([e.values_blob, e.vectors_blob])))
+            size = repo.stored_size(s, [e.values_blob, e.vectors_blob])  # chunks included
             fields = json.loads(e.fields_json)
             rows.append({"key": e.key, "ref": f"{p}/{n}@{v}", "operator": e.operator,
                          "operator_params": fields["operator_params"], "n_rows": e.n_rows,
@@ -730,14 +728,12 @@ def diff_sweeps(store: Store, a: int, b: int) -> dict[str, Any]:
 def sweep_size(store: Store, sweep_id: int) -> dict[str, Any]:
     """Stored bytes of a sweep's runs (membership, eigenvalue and stability arrays, each counted once, plus
     their rows' JSON) and of the cached embeddings they used."""
-    from workspace.store.schema import Blob
 
     with store.read() as s:
         runs = list(s.scalars(select(Run).join(SweepRun, SweepRun.run_id == Run.id)
                               .where(SweepRun.sweep_id == sweep_id)).all())
         hashes = {h for r in runs for h in (r.membership_blob, r.eigenvalues_blob, r.stability_blob) if h}
-        blob_bytes = int(s.scalar(select(func.coalesce(func.sum(func.length(Blob.data)), 0))
-                                  .where(Blob.hash.in_(hashes))) or 0) if hashes else 0
+        blob_bytes = repo.stored_size(s, hashes)  # chunks included
         json_bytes = sum(len(r.params_json) + len(r.quality_json) + len(r.diagnostics_json) + len(r.warnings_json)
                          + len(r.provenance_json) for r in runs)
         keys = {json.loads(r.provenance_json).get("embedding", {}).get("key") for r in runs} - {None}
@@ -745,6 +741,5 @@ def sweep_size(store: Store, sweep_id: int) -> dict[str, Any]:
         for key in keys:
             e = s.get(EmbeddingRow, key)
             if e is not None:
-                emb_bytes += int(s.scalar(select(func.coalesce(func.sum(func.length(Blob.data)), 0))
-                                          .where(Blob.hash.in_([e.values_blob, e.vectors_blob]))) or 0)
+                emb_bytes += repo.stored_size(s, [e.values_blob, e.vectors_blob])
     return {"runs": len(runs), "run_bytes": blob_bytes + json_bytes, "embedding_bytes": emb_bytes}

@@ -1,15 +1,28 @@
 """Array <-> blob codec and content hash.
 
 Codec ``npy+zstd``: ``np.save(..., allow_pickle=False)`` of a little-endian,
-C-contiguous 1-D array, compressed with zstandard. The hash is sha256 over
-``b"<dtype>:<length>\\0"`` followed by the raw little-endian bytes, so it does
-not depend on the codec or compression level.
+C-contiguous 1-D array, compressed with zstandard, in one ``blobs.data`` value.
+Codec ``zstd-chunks`` (revision 0006), for arrays larger than the chunk size
+(``$CUTBOOK_BLOB_CHUNK_BYTES``, default 64 MiB of raw bytes): the raw little-endian
+bytes cut into pieces of whole items, each compressed on its own and stored as one
+``blob_chunks`` row with the sha256 of its raw bytes; dtype and length live on the
+``blobs`` row. A bytea value and an SQLite blob are each limited to 1 GB (PostgreSQL
+documentation, "Binary Data Types"; SQLite "Limits In SQLite", SQLITE_MAX_LENGTH), so
+a single value could not hold a 100M-edge network's arrays; chunks can.
+
+The hash is sha256 over ``b"<dtype>:<length>\\0"`` followed by the raw little-endian
+bytes, so it does not depend on the codec, the compression level or the chunking.
+
+New code that stores arrays calls ``repo.put_array`` (or ``encode_array`` before the
+write transaction and ``repo.put_encoded`` inside it) and reads them with
+``repo.get_array``; it never reads or writes ``blobs.data`` itself.
 """
 
 from __future__ import annotations
 
 import hashlib
 import io
+import os
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
@@ -18,7 +31,38 @@ if TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI sta
 
 
 CODEC = "npy+zstd"
+CHUNKED_CODEC = "zstd-chunks"
 _LEVEL = 3
+ENV_CHUNK_BYTES = "CUTBOOK_BLOB_CHUNK_BYTES"
+DEFAULT_CHUNK_BYTES = 64 << 20  # raw bytes per chunk: compressed, far below the 1 GB value limit
+
+
+def chunk_bytes() -> int:
+    """Raw bytes per chunk: ``$CUTBOOK_BLOB_CHUNK_BYTES`` (tests use a few bytes), else 64 MiB.
+
+    Read at each encoding, so a spawned run process uses the same setting as its parent.
+    """
+    value = os.environ.get(ENV_CHUNK_BYTES)
+    if not value:
+        return DEFAULT_CHUNK_BYTES
+    try:
+        size = int(value)
+    except ValueError:
+        size = 0
+    if size < 1:
+        from workspace.errors import UsageError
+
+        raise UsageError(f"${ENV_CHUNK_BYTES} must be a positive number of bytes, not {value!r}")
+    return size
+
+
+@dataclass(frozen=True)
+class Chunk:
+    """One stored piece of a chunked array: its raw size, the sha256 of its raw bytes, its zstd bytes."""
+
+    raw_size: int
+    hash: str
+    data: bytes
 
 
 @dataclass(frozen=True)
@@ -28,7 +72,13 @@ class EncodedArray:
     dtype: str
     length: int
     raw_size: int
-    data: bytes
+    data: bytes  # b"" for a chunked array
+    chunks: tuple[Chunk, ...] = ()
+
+    @property
+    def stored_size(self) -> int:
+        """Bytes the database will hold (compressed)."""
+        return len(self.data) + sum(len(c.data) for c in self.chunks)
 
 
 def _canonical(arr: np.ndarray) -> np.ndarray:
@@ -55,6 +105,8 @@ def encode_array(arr: np.ndarray) -> EncodedArray:
     import zstandard
 
     a = _canonical(arr)
+    if a.nbytes > chunk_bytes():
+        return _encode_chunked(a)
     if a.nbytes <= 1 << 22:
         buf = io.BytesIO()
         np.save(buf, a, allow_pickle=False)
@@ -72,6 +124,42 @@ def encode_array(arr: np.ndarray) -> EncodedArray:
     data = (compressor.compress(head) + compressor.compress(memoryview(a).cast("B"))
             + compressor.flush())
     return EncodedArray(array_hash(a), CODEC, a.dtype.str, int(a.shape[0]), size, data)
+
+
+def _encode_chunked(a: np.ndarray) -> EncodedArray:
+    """``zstd-chunks``: whole items per chunk, each chunk compressed alone (level 1, all cores)."""
+    import zstandard
+
+    raw = memoryview(a).cast("B")
+    step = max(1, chunk_bytes() // a.itemsize) * a.itemsize
+    compressor = zstandard.ZstdCompressor(level=1, threads=-1)
+    chunks = tuple(Chunk(len(piece), hashlib.sha256(piece).hexdigest(), compressor.compress(piece))
+                   for piece in (raw[i:i + step] for i in range(0, a.nbytes, step)))
+    return EncodedArray(array_hash(a), CHUNKED_CODEC, a.dtype.str, int(a.shape[0]), a.nbytes, b"", chunks)
+
+
+def decompress_chunk_into(data: bytes, out: memoryview) -> None:
+    """Decompress one chunk straight into ``out`` (a slice of the array's buffer: no second copy).
+
+    Raises ValueError when the chunk does not fill ``out`` exactly.
+    """
+    import zstandard
+
+    filled = 0
+    with zstandard.ZstdDecompressor().stream_reader(data) as reader:
+        while filled < len(out):
+            n = reader.readinto(out[filled:])
+            if not n:
+                break
+            filled += n
+        extra = reader.read(1)
+    if filled != len(out) or extra:
+        raise ValueError(f"chunk holds {'more' if extra else filled} bytes, expected {len(out)}")
+
+
+def chunk_header(dtype: str, length: int) -> bytes:
+    """What :func:`array_hash` hashes before the raw bytes (for hashing a chunked array piece by piece)."""
+    return f"{dtype}:{length}\0".encode()
 
 
 _NPY_MAGIC = b"\x93NUMPY"

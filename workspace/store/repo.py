@@ -6,13 +6,13 @@ from __future__ import annotations
 from datetime import datetime, timezone
 from typing import TYPE_CHECKING
 
-from sqlalchemy import func, select
+from sqlalchemy import func, insert, select
 from sqlalchemy.orm import Session
 
 from workspace.domain import GraphData, decode_node_ids
-from workspace.store.blobs import (GRAPH_ARRAYS, EncodedArray, decode_array, decode_values, encode_array,
-                                   encode_graph_arrays)
-from workspace.store.schema import Blob, Network, NetworkVersion, Project
+from workspace.store.blobs import (GRAPH_ARRAYS, EncodedArray, decode_array, decode_values, decompress_chunk_into,
+                                   encode_array, encode_graph_arrays)
+from workspace.store.schema import Blob, BlobChunk, Network, NetworkVersion, Project
 
 if TYPE_CHECKING:  # numpy loads inside the functions that use it (quick CLI start-up)
     import numpy as np
@@ -34,23 +34,73 @@ def put_array(session: Session, arr: np.ndarray) -> str:
 
 
 def put_encoded(session: Session, enc: EncodedArray) -> str:
-    """Insert an already encoded array unless the same content is stored; return its hash."""
+    """Insert an already encoded array unless the same content is stored; return its hash.
+
+    A chunked array (``enc.chunks``) goes in as its ``blobs`` row plus one ``blob_chunks`` row per
+    chunk, inserted one at a time.
+    """
     if session.get(Blob, enc.hash) is None:
         session.add(Blob(hash=enc.hash, codec=enc.codec, dtype=enc.dtype, length=enc.length,
-                         raw_size=enc.raw_size, data=enc.data))
+                         raw_size=enc.raw_size, data=enc.data, chunks=len(enc.chunks)))
         session.flush()
+        for seq, chunk in enumerate(enc.chunks):
+            session.execute(insert(BlobChunk).values(blob_hash=enc.hash, seq=seq, raw_size=chunk.raw_size,
+                                                     hash=chunk.hash, data=chunk.data))
     return enc.hash
 
 
+def iter_chunks(session: Session, blob_hash: str):
+    """The ``blob_chunks`` rows of one array in order (seq, raw_size, hash, data), fetched one at a time."""
+    q = (select(BlobChunk.seq, BlobChunk.raw_size, BlobChunk.hash, BlobChunk.data)
+         .where(BlobChunk.blob_hash == blob_hash).order_by(BlobChunk.seq))
+    return session.execute(q, execution_options={"yield_per": 1})
+
+
+def _read_chunked(session: Session, blob_hash: str, dtype: str, length: int, n_chunks: int) -> np.ndarray:
+    """Assemble a chunked array: one array allocated at its final size, each chunk decompressed into
+    its place (peak memory: the array plus one compressed chunk)."""
+    import numpy as np
+
+    out = np.empty(length, dtype=np.dtype(dtype))
+    buf = memoryview(out).cast("B")
+    offset = seen = 0
+    for row in iter_chunks(session, blob_hash):
+        if row.seq != seen or offset + row.raw_size > len(buf):
+            raise ValueError(f"array {blob_hash[:12]}: chunk {row.seq} out of place")
+        decompress_chunk_into(row.data, buf[offset:offset + row.raw_size])
+        offset += row.raw_size
+        seen += 1
+    if seen != n_chunks or offset != len(buf):
+        raise ValueError(f"array {blob_hash[:12]}: {seen} of {n_chunks} chunks, {offset} of {len(buf)} bytes")
+    return out
+
+
 def get_array(session: Session, blob_hash: str) -> np.ndarray:
-    row = session.execute(select(Blob.codec, Blob.data, Blob.raw_size).where(Blob.hash == blob_hash)).one()
+    row = session.execute(select(Blob.codec, Blob.data, Blob.raw_size, Blob.dtype, Blob.length, Blob.chunks)
+                          .where(Blob.hash == blob_hash)).one()
+    if row.chunks:
+        return _read_chunked(session, blob_hash, row.dtype, row.length, row.chunks)
     return decode_array(row.codec, row.data, row.raw_size)
 
 
 def get_values(session: Session, blob_hash: str) -> list:
-    """A stored 1-D array as a Python list, without loading numpy (small arrays)."""
-    row = session.execute(select(Blob.codec, Blob.data, Blob.raw_size).where(Blob.hash == blob_hash)).one()
+    """A stored 1-D array as a Python list, without loading numpy (small arrays; a chunked one uses numpy)."""
+    row = session.execute(select(Blob.codec, Blob.data, Blob.raw_size, Blob.chunks)
+                          .where(Blob.hash == blob_hash)).one()
+    if row.chunks:
+        return get_array(session, blob_hash).tolist()
     return decode_values(row.codec, row.data, row.raw_size)
+
+
+def stored_size(session: Session, hashes) -> int:
+    """Compressed bytes the given arrays take in the store (their chunks included)."""
+    hashes = list(hashes)
+    if not hashes:
+        return 0
+    single = session.scalar(select(func.coalesce(func.sum(func.length(Blob.data)), 0)).where(Blob.hash.in_(hashes)))
+    chunked = session.scalar(select(func.coalesce(func.sum(func.length(BlobChunk.data)), 0))
+                             .where(BlobChunk.blob_hash.in_(hashes)))
+    return int(single or 0) + int(chunked or 0)
 
 
 # --- projects and networks -----------------------------------------------------

@@ -10,6 +10,7 @@ from __future__ import annotations
 from datetime import datetime
 
 from sqlalchemy import (
+    BigInteger,
     CheckConstraint,
     DateTime,
     Float,
@@ -32,6 +33,10 @@ NAMING_CONVENTION = {
 }
 
 
+# 64-bit on PostgreSQL (an array may exceed 2**31 bytes); SQLite's INTEGER is 64-bit already
+_BIG_INT = BigInteger().with_variant(Integer(), "sqlite")
+
+
 class Base(DeclarativeBase):
     metadata = MetaData(naming_convention=NAMING_CONVENTION)
 
@@ -48,8 +53,23 @@ class Blob(Base):
     hash: Mapped[str] = mapped_column(String(64), primary_key=True)
     codec: Mapped[str] = mapped_column(String(32))
     dtype: Mapped[str] = mapped_column(String(16))
-    length: Mapped[int] = mapped_column(Integer)
+    length: Mapped[int] = mapped_column(_BIG_INT)
+    raw_size: Mapped[int] = mapped_column(_BIG_INT)
+    data: Mapped[bytes] = mapped_column(LargeBinary)  # b"" when the array is in chunks
+    # 0: the array is ``data``; n > 0: it is in n ``blob_chunks`` rows (codec zstd-chunks, revision 0006)
+    chunks: Mapped[int] = mapped_column(Integer, server_default="0", default=0)
+
+
+class BlobChunk(Base):
+    """One piece of a chunked array (revision 0006): raw bytes ``raw_size`` long, sha256 ``hash`` over
+    them, stored zstd-compressed in ``data``; pieces are numbered from 0 in array order."""
+
+    __tablename__ = "blob_chunks"
+
+    blob_hash: Mapped[str] = mapped_column(ForeignKey("blobs.hash", ondelete="CASCADE"), primary_key=True)
+    seq: Mapped[int] = mapped_column(Integer, primary_key=True)
     raw_size: Mapped[int] = mapped_column(Integer)
+    hash: Mapped[str] = mapped_column(String(64))
     data: Mapped[bytes] = mapped_column(LargeBinary)
 
 

@@ -50,6 +50,7 @@ RUN_COLUMNS = [
     Column("conductance", "conductance", 11, "right", format=_measure("conductance"), drop=4),
     Column("param_set", "parameter set", 14, format=lambda v, r: (v or "—").split("/", 1)[-1], drop=3),
     Column("created", "started", 11, format=lambda v, r: (v or "").replace("T", " ")[5:16], drop=1),
+    Column("by", "by", 9, format=lambda v, r: v or "—", drop=5),  # who started it (created_by)
 ]
 
 

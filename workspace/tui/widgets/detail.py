@@ -122,7 +122,8 @@ def run_text(run: dict[str, Any]) -> Text:
     _pairs(t, {"k": run.get("k"), "k_requested": run.get("k_requested"), "seed": run.get("seed"),
                "repeats": run.get("repeats"), "started": fmt_when(run.get("created")),
                "finished": fmt_when(run.get("finished")), "wall_time_s": run.get("wall_time_s"),
-               "membership": (run.get("membership_hash") or "")[:16] or None})
+               "membership": (run.get("membership_hash") or "")[:16] or None,
+               "by": run.get("by") or "unknown", "host": run.get("host")})
     if run.get("error"):
         _section(t, "Error")
         t.append("  " + run["error"] + "\n", style=BAD)
@@ -164,7 +165,7 @@ def version_text(v: dict[str, Any]) -> Text:
     if v.get("message"):
         t.append(v["message"] + "\n", style="italic")
     _pairs(t, {"source": v.get("source"), "format": v.get("format"), "created": fmt_when(v.get("created")),
-               "content hash": (v.get("content_hash") or "")[:16], "parent": v.get("parent")})
+               "by": v.get("by") or "unknown", "content hash": (v.get("content_hash") or "")[:16], "parent": v.get("parent")})
     _section(t, "Import report")
     _pairs(t, v.get("report"))
     _section(t, "Import policy")

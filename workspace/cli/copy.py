@@ -1,0 +1,51 @@
+"""Command: copy (projects, one network or one run's lineage, from --store to another store)."""
+
+from __future__ import annotations
+
+from workspace.cli.common import emit_json, session
+
+
+def cmd_copy(args) -> int:
+    from workspace.services.copy import copy_work
+    from workspace.services.store import open_workspace
+
+    scope = dict(projects=args.projects or None, network=args.network, run=args.run)
+    with session(args) as (source, out):
+        # the destination may be new (an SQLite file or an empty server database): it is made and migrated
+        dest = open_workspace(args.to, notify=out.note, create=True, create_dirs=False, require_write=True,
+                              user=getattr(args, "user", None))
+        try:
+            res = copy_work(source, dest, **scope)
+        finally:
+            dest.dispose()
+        if args.json:
+            emit_json(res)
+            return 0
+        added, matched = res["added"], res["matched"]
+        kinds = ("projects", "networks", "versions", "param_set_versions", "runs", "annotations")
+
+        def count(n: int, kind: str) -> str:
+            words = kind.replace("_", " ")
+            return f"{n} {words if n != 1 else words.replace('versions', 'version').rstrip('s')}"
+
+        got = ", ".join(count(added[k], k) for k in kinds if added[k])
+        out.line(f"copied to {res['destination']}: {got or 'nothing new (everything was already there)'}")
+        if added["arrays"]:
+            chunks = f" in {added['chunks']} chunks" if added["chunks"] else ""
+            out.line(f"  arrays   {added['arrays']} new{chunks}, {added['bytes']:,} bytes")
+        there = ", ".join(count(matched[k], k) for k in kinds if matched[k])
+        if there:
+            out.line(f"  already there: {there}")
+        for r in res["renumbered"]:
+            what = r.get("network") or r.get("param_set")
+            out.line(f"  {what}: version {r['source']} is version {r['destination']} on the destination")
+        moved = [(k, v) for k, v in res["run_ids"].items() if int(k) != v]
+        if moved:
+            out.line("  run ids  " + ", ".join(f"{k} -> {v}" for k, v in moved[:20])
+                     + (f" (and {len(moved) - 20} more; --json lists all)" if len(moved) > 20 else ""))
+        if res["skipped_running"]:
+            out.line(f"  not copied (still running): runs {', '.join(map(str, res['skipped_running']))}")
+        v = res["verified"]
+        out.line(f"  verified on arrival: {v['arrays']} arrays" + (f", {v['chunks']} chunks" if v["chunks"] else "")
+                 + " match their hashes")
+    return 0
