@@ -70,6 +70,13 @@ def build_parser() -> argparse.ArgumentParser:
                    help="first line names the columns (default: auto - yes when it reads like "
                         "source,target / from,to / u,v ... or cannot be data; the choice is "
                         "printed, with a WARNING when it looks like a header read as an edge)")
+    g = p.add_argument_group("node attributes (stored with the version; see also `cutbook nodes`)")
+    g.add_argument("--nodes", metavar="FILE",
+                   help="node table: CSV with a 'node' (or 'id') column, GraphML node data or node-link JSON "
+                        "(default: a GraphML/JSON network's own node data; else the previous version's table)")
+    g.add_argument("--nodes-format", choices=["csv", "graphml", "json"], help="node table format (default: by extension)")
+    g.add_argument("--coords", metavar="X,Y", help="two number columns holding node positions: x,y or lat,lon "
+                                                  "(drawn by `cutbook report`)")
 
     add("projects", "list projects", "networks", "cmd_projects")
     p = add("networks", "list networks", "networks", "cmd_networks")
@@ -83,6 +90,24 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("a", metavar="P/N@A")
     p.add_argument("b", metavar="P/N@B")
     p.add_argument("--limit", type=int, default=None, help="list at most this many items per kind")
+
+    # --- node attribute tables (workspace/cli/nodes.py) -----------------------------------
+    p = add("nodes", "node attribute tables of network versions: add one (as the next version), show, values",
+            "nodes", "cmd_nodes")
+    nsub = p.add_subparsers(dest="nodes_action", metavar="ACTION", required=True)
+    q = nsub.add_parser("add", help="add or replace the node table: the next version, same graph arrays",
+                        parents=[common])
+    q.add_argument("ref", metavar="PROJECT/NETWORK[@V]", help="whose graph the new version keeps (default latest)")
+    q.add_argument("file", help="CSV with a 'node' (or 'id') column, GraphML node data or node-link JSON")
+    q.add_argument("--nodes-format", choices=["csv", "graphml", "json"], help="default: by extension")
+    q.add_argument("--coords", metavar="X,Y", help="two number columns holding positions: x,y or lat,lon")
+    q.add_argument("-m", "--message", default="", help="a note kept with the version")
+    q = nsub.add_parser("show", help="the attributes of a version's node table", parents=[common])
+    q.add_argument("ref", metavar="PROJECT/NETWORK[@V]")
+    q = nsub.add_parser("values", help="every node's value of one attribute", parents=[common])
+    q.add_argument("ref", metavar="PROJECT/NETWORK[@V]")
+    q.add_argument("attribute")
+    q.add_argument("--limit", type=int, default=50, help="text output: nodes listed (default 50; --json lists all)")
 
     # --- parameter sets ----------------------------------------------------------------
     p = add("params", "save, list and show named parameter sets", "params", "cmd_params")
