@@ -86,6 +86,8 @@ def build_parser() -> argparse.ArgumentParser:
     p = add("show", "show a network version (project/network[@V]) or a run (its id)", "networks", "cmd_show")
     p.add_argument("target", metavar="REF|RUN")
     p.add_argument("--limit", type=int, default=20, help="how many changed items to list (default 20)")
+    p.add_argument("--label-by", metavar="ATTRIBUTE",
+                   help="a run: list each community's first members by this node attribute")
     p = add("changes", "structural changes between two versions", "networks", "cmd_changes")
     p.add_argument("a", metavar="P/N@A")
     p.add_argument("b", metavar="P/N@B")
@@ -180,6 +182,7 @@ def build_parser() -> argparse.ArgumentParser:
             "runs", "cmd_where")
     p.add_argument("node")
     p.add_argument("--network", metavar="PROJECT/NETWORK", help="search this network only (default: every network)")
+    p.add_argument("--label-by", metavar="ATTRIBUTE", help="show nodes by this node attribute (stored node table)")
 
     # --- sweeps (workspace/cli/sweeps.py) ------------------------------------------------
     p = add("sweep", "runs over a range of k, a parameter's values and seeds, with a recommendation",
@@ -232,14 +235,17 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=["html", "svg", "png"], help="output format (default: by extension)")
     p.add_argument("--moved", type=int, default=None, metavar="N",
                    help="diff report: moved nodes listed (default 50; the rest are counted)")
-    p.add_argument("--nodes", metavar="FILE", help="run report: a node table (CSV/GraphML/JSON) for a composition")
-    p.add_argument("--by", metavar="ATTRIBUTE", help="run report, with --nodes: the attribute to compose by")
+    p.add_argument("--by", metavar="ATTRIBUTE",
+                   help="run report: add the communities' composition by this node attribute (stored table)")
+    p.add_argument("--nodes", metavar="FILE",
+                   help="run report, with --by: read the attribute from this node table file instead")
 
-    p = add("composition", "a run's communities by a node attribute from a node table file "
-            "(counts, shares, dominant value; ARI/NMI agreement)", "report", "cmd_composition")
+    p = add("composition", "a run's communities by a node attribute of its version's node table, or of a "
+            "node table file (counts, shares, dominant value; ARI/NMI agreement)", "report", "cmd_composition")
     p.add_argument("run", type=int)
-    p.add_argument("--nodes", required=True, metavar="FILE",
-                   help="node table: CSV with a 'node' (or 'id') column, GraphML node data, or node-link JSON")
+    p.add_argument("--nodes", metavar="FILE",
+                   help="read the attribute from this node table file instead of the stored one: CSV with a "
+                        "'node' (or 'id') column, GraphML node data, or node-link JSON")
     p.add_argument("--by", required=True, metavar="ATTRIBUTE", help="the attribute (column) to group by")
     p.add_argument("--nodes-format", choices=["csv", "graphml", "json"], help="node table format (default: by extension)")
     p.add_argument("--nmi", choices=["arithmetic", "geometric", "max", "min"], default="arithmetic",
@@ -259,6 +265,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="rows per section in text output: matches, events, cells, moved nodes (JSON lists all)")
     p.add_argument("--dense-table", action="store_true",
                    help="with --json: add the contingency as a dense 'counts' table (small tables only)")
+    p.add_argument("--label-by", metavar="ATTRIBUTE",
+                   help="name moved nodes by this node attribute (--json: a 'moved_labels' list beside 'moved_nodes')")
 
     # --- upkeep -------------------------------------------------------------------------
     add("verify", "check every stored array against its hash, and the database's integrity", "upkeep",
@@ -298,6 +306,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--limit", type=int, default=None,
                    help="nodes listed per community (text default 50; --json lists all unless given)")
     p.add_argument("--offset", type=int, default=0, help="skip this many nodes of each community first")
+    p.add_argument("--label-by", metavar="ATTRIBUTE", help="show nodes by this node attribute (stored node table)")
 
     p = add("compare", "ARI, NMI and VI of every pair of several runs (a comparison matrix)", "housekeeping",
             "cmd_compare")

@@ -416,3 +416,94 @@ def carried_table(s, parent_id: int, node_ids) -> PreparedNodeTable | None:
     coords = json.loads(row.coords_json or "null")
     n_rows = sum(i is not None for i in index)
     return PreparedNodeTable(row.source_name, n_rows, columns, coords, attributes_hash(columns, coords), summary)
+
+
+# --- display labels (--label-by) ---------------------------------------------------------------
+
+def run_labels(store: Store, run_id: int, attribute: str) -> dict[str, Any]:
+    """Display labels of a run's nodes: ``{"attribute", "ids": list, "labels": list}`` in node order.
+
+    A node without a value is labelled by its id. NotFoundError when the run's version has no
+    node table or no such attribute.
+    """
+    from workspace.store import repo
+    from workspace.store.schema import NetworkVersion, Run
+
+    with store.read() as s:
+        run = s.get(Run, run_id)
+        if run is None:
+            raise NotFoundError(f"no run {run_id}")
+        v = s.get(NetworkVersion, run.version_id)
+        ids = repo.load_node_ids(s, v)
+        labels = node_labels(s, v.id, ids, attribute)
+    return {"attribute": attribute, "ids": ids.tolist(), "labels": labels}
+
+
+def labels_of(store: Store, run_ids: list[int], attribute: str, nodes: list[str]) -> dict[str, str]:
+    """Labels of some nodes, looked up in the versions of ``run_ids`` (later runs first).
+
+    Nodes found in none of the versions' tables keep their id. NotFoundError when none of the
+    versions has the attribute.
+    """
+    import numpy as np
+
+    from workspace.store import repo
+    from workspace.store.schema import NetworkVersion, Run
+
+    wanted = set(nodes)
+    found: dict[str, str] = {}
+    any_table = False
+    errors = []
+    with store.read() as s:
+        for run_id in reversed(run_ids):
+            run = s.get(Run, run_id)
+            if run is None:
+                raise NotFoundError(f"no run {run_id}")
+            v = s.get(NetworkVersion, run.version_id)
+            try:
+                got = stored_column(s, v.id, attribute)
+            except NotFoundError as err:
+                errors.append(err)
+                continue
+            if got is None:
+                continue
+            any_table = True
+            ids = repo.load_node_ids(s, v)
+            todo = sorted(wanted - found.keys())
+            if not todo:
+                break
+            pos = np.searchsorted(ids, np.array(todo, dtype=ids.dtype if ids.size else np.str_))
+            values = got[1]
+            for node, p in zip(todo, pos.tolist()):
+                if p < ids.shape[0] and ids[p] == node and values[p] is not None:
+                    found[node] = _text(values[p])
+    if not any_table:
+        if errors:
+            raise errors[0]
+        raise NotFoundError("--label-by: the runs' versions have no node attribute table (add one: "
+                            "cutbook nodes add REF FILE)")
+    return {node: found.get(node, node) for node in nodes}
+
+
+def labels_in_versions(store: Store, version_ids: list[int], attribute: str, node: str) -> dict[int, str | None]:
+    """The label of one node in each version (None where the version has no such attribute or node)."""
+    import numpy as np
+
+    from workspace.store import repo
+    from workspace.store.schema import NetworkVersion
+
+    out: dict[int, str | None] = {}
+    with store.read() as s:
+        for vid in dict.fromkeys(version_ids):
+            out[vid] = None
+            try:
+                got = stored_column(s, vid, attribute)
+            except NotFoundError:
+                continue
+            if got is None:
+                continue
+            ids = repo.load_node_ids(s, s.get(NetworkVersion, vid))
+            p = int(np.searchsorted(ids, node))
+            if p < ids.shape[0] and ids[p] == node and got[1][p] is not None:
+                out[vid] = _text(got[1][p])
+    return out

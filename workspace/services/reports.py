@@ -17,7 +17,7 @@ from workspace.store.schema import NetworkVersion, Run
 
 REPORT_FORMATS = ("html", "svg", "png")
 _MISSING = {"spectrum": "no eigengap suggestion", "stability": "no repeats",
-            "composition": "give --nodes FILE --by ATTRIBUTE"}
+            "composition": "give --by ATTRIBUTE (and --nodes FILE when the version has no node table)"}
 
 
 def run_report_data(store: Store, run_id: int) -> dict[str, Any]:
@@ -101,11 +101,11 @@ def build_report(store: Store, runs: list[int], *, figure: str | None = None, fo
     if format in ("svg", "png") and figure is None:
         raise UsageError(f"a .{format} output holds one figure: name it with --figure")
     kind = "run" if len(runs) == 1 else "diff"
-    if (nodes is None) != (by is None):
-        raise UsageError("--nodes FILE and --by ATTRIBUTE go together")
-    if nodes is not None and kind == "diff":
-        raise UsageError("--nodes/--by add a composition to a run report (one run)")
-    comp = composition(store, runs[0], nodes, by) if nodes is not None else None
+    if nodes is not None and by is None:
+        raise UsageError("--nodes FILE needs --by ATTRIBUTE (the attribute to compose by)")
+    if by is not None and kind == "diff":
+        raise UsageError("--by/--nodes add a composition to a run report (one run)")
+    comp = composition(store, runs[0], nodes, by) if by is not None else None
     data = run_report_data(store, runs[0]) if kind == "run" else diff_report_data(store, *runs)
     if comp is not None:
         data["composition"] = comp
@@ -149,19 +149,33 @@ def write_report(store: Store, runs: list[int], path: str | os.PathLike, *, figu
     return summary
 
 
-def composition(store: Store, run_id: int, nodes_path: str | os.PathLike, attribute: str, *,
+def composition(store: Store, run_id: int, nodes_path: str | os.PathLike | None, attribute: str, *,
                 nodes_format: str | None = None, nmi_normalization: str = "arithmetic") -> dict[str, Any]:
-    """A run's communities by a node attribute read from a node table file (CSV / GraphML / JSON).
+    """A run's communities by a node attribute: from the run's version's stored node table, or from
+    a node table file (CSV / GraphML / JSON) given as ``nodes_path`` (an override).
 
-    The file is read and checked before anything else; nothing is written to the store.
+    A file is read and checked before anything else; nothing is written to the store.
     """
     from workspace.compare.composition import composition as compose
-    from workspace.io.node_data import align_column, read_node_table
 
-    table = read_node_table(nodes_path, format=nodes_format)
-    table.column(attribute)  # a missing column is named before the store is read
-    node_ids, labels, summary = runs_service.load_membership(store, run_id)
-    kind, values = align_column(table, attribute, node_ids)
+    if nodes_path is not None:
+        from workspace.io.node_data import align_column, read_node_table
+
+        table = read_node_table(nodes_path, format=nodes_format)
+        table.column(attribute)  # a missing column is named before the store is read
+        node_ids, labels, summary = runs_service.load_membership(store, run_id)
+        kind, values = align_column(table, attribute, node_ids)
+        source = os.fspath(nodes_path)
+    else:
+        from workspace.services import nodes as node_tables
+
+        node_ids, labels, summary = runs_service.load_membership(store, run_id)
+        with store.read() as s:
+            run = s.get(Run, run_id)
+            row = node_tables.table_row(s, run.version_id)
+            kind, values = node_tables.require_column(s, run.version_id, attribute,
+                                                      f"{summary['ref']} (run {run_id}'s version)")
+            source = f"{row.source_name} (stored with {summary['ref']})"
     out = compose(labels, values, nmi_normalization=nmi_normalization)
     return {"run": run_id, "ref": summary["ref"], "attribute": attribute, "type": kind,
-            "nodes_file": os.fspath(nodes_path), "missing_values": sum(v is None for v in values), **out}
+            "nodes_file": source, "missing_values": sum(v is None for v in values), **out}
