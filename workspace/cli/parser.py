@@ -224,14 +224,24 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--prune", action="store_true", help="remove them (runs stay reproducible: rerun re-solves)")
 
     # --- reports (workspace/cli/report.py) -------------------------------------------
-    p = add("report", "an HTML report of a run, or of the diff of two runs; or one of its figures "
-            "as SVG/PNG", "report", "cmd_report")
-    p.add_argument("runs", nargs="+", type=int, metavar="RUN", help="one run, or two runs (A B) to compare")
+    p = add("report", "an HTML report of a run, the diff of two runs, a sweep, or a chain of runs across "
+            "versions; or one of its figures as SVG/PNG", "report", "cmd_report")
+    p.add_argument("runs", nargs="*", type=int, metavar="RUN",
+                   help="one run, two runs (A B) to compare, or with --chain two or more runs in order")
+    p.add_argument("--sweep", type=int, metavar="ID", help="a sweep report: quality and stability against k")
+    p.add_argument("--chain", action="store_true",
+                   help="a chain report of the runs given (a flow chart of communities across them)")
+    p.add_argument("--params", metavar="PROJECT/NAME[@V]",
+                   help="a chain report of this parameter-set version's runs across a network's versions "
+                        "(default version: the one its newest run used)")
+    p.add_argument("--network", metavar="PROJECT/NETWORK", help="with --params: which network")
+    p.add_argument("--label-by", metavar="ATTRIBUTE",
+                   help="run report: name the nodes of small network drawings by this node attribute")
     p.add_argument("-o", "--output", required=True, metavar="FILE",
                    help="FILE.html (the page), FILE.svg or FILE.png (with --figure); '-' for standard output")
     p.add_argument("--figure", metavar="NAME",
                    help="write one figure alone: spectrum, sizes, stability, composition, network (run); "
-                        "contingency (diff)")
+                        "contingency (diff); quality, stability (sweep); flow (chain)")
     p.add_argument("--format", choices=["html", "svg", "png"], help="output format (default: by extension)")
     p.add_argument("--moved", type=int, default=None, metavar="N",
                    help="diff report: moved nodes listed (default 50; the rest are counted)")
