@@ -181,6 +181,11 @@ def cmd_show(args) -> int:
         print_report(out, info["report"])
         out.line("")
         out.line("policies  " + "  ".join(f"{k}={v}" for k, v in info["policy"].items()))
+        if info.get("node_table") is not None:
+            from workspace.cli.nodes import print_table_summary
+
+            out.line("")
+            print_table_summary(out, info["node_table"])
         if info["changes_from_parent"] is not None:
             out.line("")
             out.line(f"changes from {info['parent']}")

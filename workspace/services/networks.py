@@ -353,6 +353,9 @@ def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20)
         out.update(current_for(s, "version", [v.id]).get(v.id, {"tags": [], "notes": []}))
         out["policy"] = json.loads(v.policy_json)
         out["report"] = json.loads(v.report_json)
+        from workspace.services.nodes import describe_table
+
+        out["node_table"] = describe_table(s, v.id)
         out["parent"] = None
         out["changes_from_parent"] = None
         if v.parent_id is not None:
