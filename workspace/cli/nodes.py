@@ -5,6 +5,17 @@ from __future__ import annotations
 from workspace.cli.common import emit_json, session
 
 
+def value_text(value) -> str:
+    """A node attribute value as a table shows it: true/false, whole numbers without ``.0``, '-' for none."""
+    if value is None:
+        return "-"
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, float) and value.is_integer():
+        return str(int(value))
+    return str(value)
+
+
 def print_table_summary(out, table: dict) -> None:
     """Lines about a node table: source, rows, coordinates and each attribute with its type."""
     coords = table.get("coords")
@@ -50,7 +61,7 @@ def cmd_nodes(args) -> int:
                      f"[{t['attributes_hash'][:12]}]" + (f"; positions {coords['x']},{coords['y']} "
                                                            f"({coords['kind']})" if coords else ""))
             rows = [[c["name"], c["type"], c["present"], c["missing"], c["distinct"],
-                     ", ".join(map(str, c["examples"]))] for c in t["columns"]]
+                     ", ".join(map(value_text, c["examples"]))] for c in t["columns"]]
             out.table(["attribute", "type", "nodes", "missing", "distinct", "examples"], rows,
                       right=["nodes", "missing", "distinct"])
         return 0
@@ -63,7 +74,7 @@ def cmd_nodes(args) -> int:
             return 0
         shown = res["nodes"][:max(args.limit, 0)]
         out.line(f"{res['ref']}: {res['attribute']} ({res['type']}) of {len(res['nodes'])} nodes")
-        out.table(["node", res["attribute"]], [[n, "-" if v is None else v] for n, v in shown])
+        out.table(["node", res["attribute"]], [[n, value_text(v)] for n, v in shown])
         if len(res["nodes"]) > len(shown):
             out.line(f"  and {len(res['nodes']) - len(shown)} more (--limit N, or --json for all)")
     return 0
