@@ -289,3 +289,32 @@ def composition(store: Store, run_id: int, nodes_path: str | os.PathLike | None,
     out = compose(labels, values, nmi_normalization=nmi_normalization)
     return {"run": run_id, "ref": summary["ref"], "attribute": attribute, "type": kind,
             "nodes_file": source, "missing_values": sum(v is None for v in values), **out}
+
+
+#: Runs on versions with more nodes than this get no automatic compositions (the UI's run detail).
+AUTO_COMPOSITION_LIMIT = 200_000
+
+
+def run_compositions(store: Store, run_id: int, *, max_values: int = 20, limit: int = 3) -> list[dict[str, Any]]:
+    """Compositions of a run by the categorical attributes of its version's node table (for the UI).
+
+    Categorical: text or boolean attributes with 2 to ``max_values`` distinct values; the first
+    ``limit`` of them in table order, each as :func:`composition` gives it. An empty list when the
+    version has no node table, none such attribute, the run no membership, or more than
+    ``AUTO_COMPOSITION_LIMIT`` nodes.
+    """
+    from workspace.services import nodes as node_tables
+
+    with store.read() as s:
+        run = s.get(Run, run_id)
+        if run is None or run.membership_blob is None:
+            return []
+        version = s.get(NetworkVersion, run.version_id)
+        if version.n_nodes > AUTO_COMPOSITION_LIMIT:
+            return []
+        info = node_tables.describe_table(s, version.id)
+    if info is None:
+        return []
+    names = [c["name"] for c in info["columns"]
+             if c["type"] in ("text", "boolean") and 2 <= c["distinct"] <= max_values][:limit]
+    return [composition(store, run_id, None, name) for name in names]
