@@ -153,3 +153,28 @@ def test_geographic_coordinates_by_name(store, tmp_path):
     # equidistant cylindrical projection (Snyder 1987): x = lon * cos(mean latitude), y = lat
     phi0 = np.deg2rad(np.mean([60.0, 60.0, 61.0]))
     np.testing.assert_allclose(pos, [[10 * np.cos(phi0), 60], [11 * np.cos(phi0), 60], [10 * np.cos(phi0), 61]])
+
+
+def test_verify_names_node_table_blobs_and_delete_removes_them(store, tmp_path):
+    from workspace.services.delete import delete_target
+    from workspace.services.verify import verify_store
+    from workspace.store.schema import Blob, NodeTable, NodeTableColumn
+
+    edges = tmp_path / "e.csv"
+    edges.write_text("source,target\na,b\nb,c\n", encoding="utf-8")
+    networks.import_network(store, edges, project="p", network="n",
+                            prepared=networks.prepare_import(edges, nodes=_csv(tmp_path / "t.csv", ["a,x,1", "c,y,3"])))
+    networks.import_network(store, edges, project="q", network="m")  # another network's blobs stay
+    assert verify_store(store)["ok"]
+    with store.read() as s:
+        owned = {h for c in s.scalars(select(NodeTableColumn)).all()
+                 for h in (c.values_blob, c.present_blob, c.dictionary_offsets_blob, c.dictionary_bytes_blob) if h}
+    assert owned
+    delete_target(store, "p/n")
+    with store.read() as s:
+        assert s.scalar(select(func.count()).select_from(NodeTable)) == 0
+        assert s.scalar(select(func.count()).select_from(NodeTableColumn)) == 0
+        left = set(s.scalars(select(Blob.hash)).all())
+    # the column arrays nothing else uses are gone (common practice: no orphan blobs after a delete)
+    assert not (owned & left)
+    assert verify_store(store)["ok"]
