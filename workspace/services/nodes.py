@@ -507,3 +507,11 @@ def labels_in_versions(store: Store, version_ids: list[int], attribute: str, nod
             if p < ids.shape[0] and ids[p] == node and got[1][p] is not None:
                 out[vid] = _text(got[1][p])
     return out
+
+
+def stored_attributes(s, version_id: int) -> list[tuple[str, str, list]] | None:
+    """Every column of a version's node table as ``(name, type, aligned values)``; None without a table."""
+    row = table_row(s, version_id)
+    if row is None:
+        return None
+    return [(col.name, *_decode_column(s, col)) for col in _column_rows(s, row.id)]
