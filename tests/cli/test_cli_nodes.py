@@ -106,3 +106,16 @@ def test_label_by_in_members_where_diff_and_show(cli, club):
     shown = cli("show", run_a, "--label-by", "name")
     assert shown.code == 0 and "first members by name" in shown.out
     assert cli("members", run_a, "--label-by", "nickname").code == 3
+
+
+def test_label_by_in_the_diff_report(cli, club, tmp_path):
+    run_a = cli("run", "club/karate", "--method", "njw", "--k", "2", "--json").json["run"]
+    run_b = cli("run", "club/karate", "--method", "njw", "--k", "3", "--json").json["run"]
+    moved = cli("diff", run_a, run_b, "--json").json["moved_nodes"]
+    page = tmp_path / "d.html"
+    assert cli("report", run_a, run_b, "--label-by", "name", "-o", page).code == 0
+    text = page.read_text(encoding="utf-8")
+    assert "<th>name</th>" in text
+    for node, *_ in moved[:50]:
+        assert f"<td>{node}</td><td>person {int(node[1:])}</td>" in text
+    assert cli("report", "--chain", run_a, run_b, "--label-by", "name", "-o", page).code == 2

@@ -236,7 +236,7 @@ def build_parser() -> argparse.ArgumentParser:
                         "(default version: the one its newest run used)")
     p.add_argument("--network", metavar="PROJECT/NETWORK", help="with --params: which network")
     p.add_argument("--label-by", metavar="ATTRIBUTE",
-                   help="run report: name the nodes of small network drawings by this node attribute")
+                   help="name nodes by this node attribute: in small network drawings (run) and moved nodes (diff)")
     p.add_argument("-o", "--output", required=True, metavar="FILE",
                    help="FILE.html (the page), FILE.svg or FILE.png (with --figure); '-' for standard output")
     p.add_argument("--figure", metavar="NAME",

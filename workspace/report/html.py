@@ -267,8 +267,12 @@ def diff_page(data: dict[str, Any], *, moved_shown: int = MOVED_SHOWN) -> str:
     if total:
         rows = [[m[0], _swatch(m[1]) if m[1] is not None else "–", _swatch(m[2]) if m[2] is not None else "–"]
                 for m in moved[:moved_shown]]
+        cols = ["node", "community in A", "community in B"]
+        if data.get("moved_labels") is not None:  # --label-by: each node's name beside its id
+            cols.insert(1, str(data["label_by"]))
+            rows = [[r[0], label] + r[1:] for r, label in zip(rows, data["moved_labels"])]
         more = total - len(rows)
-        body.append("<h2>Moved nodes</h2>" + _table(["node", "community in A", "community in B"], rows)
+        body.append("<h2>Moved nodes</h2>" + _table(cols, rows)
                     + (f'<p class="note">and {more} more</p>' if more > 0 else ""))
     for note in data.get("notes") or []:
         body.append(f'<p class="note">{escape(note)}</p>')

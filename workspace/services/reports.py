@@ -196,8 +196,10 @@ def build_report(store: Store, runs: list[int], *, figure: str | None = None, fo
         kind = "run" if len(runs) == 1 else "diff"
     if nodes is not None and by is None:
         raise UsageError("--nodes FILE needs --by ATTRIBUTE (the attribute to compose by)")
-    if (by is not None or label_by is not None) and kind != "run":
-        raise UsageError("--by/--nodes/--label-by belong to a run report (one run)")
+    if by is not None and kind != "run":
+        raise UsageError("--by/--nodes belong to a run report (one run)")
+    if label_by is not None and kind not in ("run", "diff"):
+        raise UsageError("--label-by names nodes in a run or diff report")
     summary: dict[str, Any] = {"kind": kind, "runs": list(runs), "format": format}
     if kind == "sweep":
         data = sweep_report_data(store, sweep)
@@ -219,6 +221,12 @@ def build_report(store: Store, runs: list[int], *, figure: str | None = None, fo
         render = lambda: pages.run_page(data)  # noqa: E731
     else:
         data = diff_report_data(store, *runs)
+        if label_by is not None:
+            from workspace.services.nodes import labels_of
+
+            moved = [m[0] for m in data.get("moved_nodes") or []]
+            named = labels_of(store, list(runs), label_by, moved)
+            data["label_by"], data["moved_labels"] = label_by, [named[n] for n in moved]
         figs, known = pages.diff_figures(data), pages.DIFF_FIGURES
         render = lambda: pages.diff_page(  # noqa: E731
             data, **({} if moved_shown is None else {"moved_shown": moved_shown}))
