@@ -178,3 +178,18 @@ def test_verify_names_node_table_blobs_and_delete_removes_them(store, tmp_path):
     # the column arrays nothing else uses are gone (common practice: no orphan blobs after a delete)
     assert not (owned & left)
     assert verify_store(store)["ok"]
+
+
+def test_numeric_ids_apply_to_the_network_files_own_node_data(store, tmp_path):
+    from workspace.domain import ImportPolicy
+
+    path = tmp_path / "z.graphml"
+    G = nx.Graph()
+    G.add_edge("007", "08")
+    G.nodes["007"]["zone"] = "east"
+    nx.write_graphml(G, path)
+    out = networks.import_network(store, path, project="p", network="z",
+                                  policy=ImportPolicy(numeric_ids=True))
+    assert out.node_table is not None
+    # ids read as integers by the import ("007" -> "7") are matched the same way in the node data
+    assert _stored(store, "p/z", "zone") == {"7": "east", "8": None}

@@ -188,10 +188,12 @@ def prepare_import(path: str | os.PathLike, *, format: str | None = None,
     from workspace.services.nodes import prepare_node_table
 
     if nodes is not None:
-        node_table = prepare_node_table(nodes, graph.node_ids, format=nodes_format, coords=coords)
+        node_table = prepare_node_table(nodes, graph.node_ids, format=nodes_format, coords=coords,
+                                        numeric_ids=policy.numeric_ids)
     elif report.format in ("graphml", "json"):
         node_table = prepare_node_table(path, graph.node_ids, format=report.format, coords=coords,
-                                        source_label=source_label, optional=coords is None)
+                                        source_label=source_label, optional=coords is None,
+                                        numeric_ids=policy.numeric_ids)
     elif coords is not None:
         raise UsageError("--coords names columns of a node table: give --nodes FILE (or a GraphML / "
                          "node-link JSON network with node data)")

@@ -118,7 +118,7 @@ def attributes_hash(columns: list[dict[str, Any]], coords: dict[str, str] | None
 
 def prepare_node_table(path: str | os.PathLike, node_ids, *, format: str | None = None,
                        coords: tuple[str, str] | None = None, source_label: str | None = None,
-                       optional: bool = False) -> PreparedNodeTable | None:
+                       optional: bool = False, numeric_ids: bool = False) -> PreparedNodeTable | None:
     """Read a node table, align it to ``node_ids`` (a version's canonical order) and encode it.
 
     Parameters
@@ -133,6 +133,9 @@ def prepare_node_table(path: str | os.PathLike, node_ids, *, format: str | None 
     optional : bool, default False
         True when reading attributes from the network file itself: a file with no node
         attribute gives None instead of a table.
+    numeric_ids : bool, default False
+        The import read node ids as integers (``--numeric-ids``): table ids are read the same
+        way (``"007"`` -> ``"7"``; blanks and a leading ``+`` dropped) before they are matched.
 
     Raises
     ------
@@ -153,6 +156,12 @@ def prepare_node_table(path: str | os.PathLike, node_ids, *, format: str | None 
     known = {str(n): i for i, n in enumerate(node_ids.tolist() if hasattr(node_ids, "tolist") else node_ids)}
     rows = []
     for node in table.ids:
+        if numeric_ids:
+            text = node.strip().removeprefix("+")
+            try:
+                node = str(int(text))
+            except ValueError:
+                pass  # not an integer: named below as not in the network
         i = known.get(node)
         if i is None:
             raise InputError(f"node {node!r} of the node table is not in the network", path=path)
