@@ -31,8 +31,13 @@ def build_demo(store: Store, *, say: Callable[[str], None] = lambda s: None) -> 
             note = {"2026-03": "March trips (baseline)", "2026-04": "April trips: spring ridership",
                     "2026-05": "May trips: Lantern Wharf district opens",
                     "2026-06": "June trips: Cinder Bridge closed for repairs"}[month]
+            # each month's station table travels with its version: names, districts, positions on the city grid
+            table = tmp / f"stations-{month}.csv"
+            scenario.station_table_csv(month, table)
+            prepared = networks.prepare_import(f, policy=policy, source_label=f.name, nodes=table,
+                                               coords=("east_km", "north_km"))
             res = networks.import_network(store, f, project=CITY, network="stations", policy=policy, message=note,
-                                          source_label=f.name)
+                                          source_label=f.name, prepared=prepared)
             say(f"imported {res.ref}: {res.nodes} stations, {res.edges} station pairs — {note}")
         for year in (2025, 2026):
             f = tmp / f"ties-{year}.csv"

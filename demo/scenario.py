@@ -98,6 +98,44 @@ def bike_trips(month: str) -> EdgeTable:
     return EdgeTable([ids[x] for x in i[keep]], [ids[y] for y in j[keep]], trips[keep].astype(int).tolist())
 
 
+# district centres on the city's own grid, in km east and north of the old market; the river Sable runs
+# west-east along north = 0, Cinder Bridge crosses it between Tannery Row and Ferrow Park
+CENTRES = {"Old Quay": (-1.0, 1.2), "Millbrook": (-3.2, 2.6), "Quarry Hill": (0.2, 3.4),
+           "Tannery Row": (2.4, 1.3), "Saltmarsh": (-2.4, -1.4), "Eastgate": (0.4, -2.3),
+           "Ferrow Park": (2.8, -1.2), "Lantern Wharf": (-0.8, -3.8)}
+
+
+def station_table(month: str) -> list[dict]:
+    """One row per station open in ``month``: id, name, district, bank, position (km), docks, e-bikes.
+
+    Positions scatter around the district's centre (deterministic per station, the same every month),
+    kept on the district's bank of the river.
+    """
+    rows = []
+    banks = {**{d: b for d, (b, _) in DISTRICTS.items()}, NEW_DISTRICT[0]: NEW_DISTRICT[1]}
+    for station, district in sorted(stations(month).items()):
+        number = int(station.rsplit("-", 1)[1])
+        rng = np.random.default_rng([SEED, 7, list(CODES).index(district), number])
+        cx, cy = CENTRES[district]
+        x, y = cx + rng.normal(0, 0.45), cy + rng.normal(0, 0.35)
+        y = max(y, 0.2) if banks[district] == "north" else min(y, -0.2)
+        rows.append({"station": station, "name": f"{district} {number}", "district": district,
+                     "bank": banks[district], "east_km": round(float(x), 3), "north_km": round(float(y), 3),
+                     "docks": int(8 + rng.integers(0, 17)), "ebikes": bool(rng.random() < 0.4)})
+    return rows
+
+
+def station_table_csv(month: str, path) -> None:
+    """:func:`station_table` as a CSV keyed by ``station`` (booleans written yes/no)."""
+    rows = station_table(month)
+    columns = list(rows[0])
+    with open(path, "w", encoding="utf-8", newline="\n") as fh:
+        fh.write(",".join(["node"] + columns[1:]) + "\n")
+        for r in rows:
+            fh.write(",".join(("yes" if r[c] else "no") if isinstance(r[c], bool) else str(r[c])
+                              for c in columns) + "\n")
+
+
 def district_grouping(month: str) -> list[tuple[str, str]]:
     """The city's own planning districts as a (station, district) grouping."""
     return sorted(stations(month).items())

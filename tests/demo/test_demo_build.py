@@ -79,3 +79,28 @@ def test_demo_command_refuses_a_store_with_other_work(cli, tmp_path):
     assert cli("import", f, "--project", "mine", "--network", "n").code == 0
     r = cli("demo", "--no-ui")
     assert r.code == 4 and "already holds" in r.err
+
+
+def test_station_tables_travel_with_each_month(demo):
+    from workspace.services import nodes
+    from workspace.services.reports import composition
+    from demo import scenario
+
+    store, summary, _ = demo
+    for v, month in enumerate(scenario.MONTHS, start=1):
+        shown = nodes.show_node_table(store, f"velmora-bikes/stations@{v}")["table"]
+        assert shown["coords"] == {"x": "east_km", "y": "north_km", "kind": "plane"}
+        assert {c["name"]: c["type"] for c in shown["columns"]} == {
+            "name": "text", "district": "text", "bank": "text", "east_km": "number", "north_km": "number",
+            "docks": "number", "ebikes": "boolean"}
+        # the stored districts round-trip the scenario's own station list, station by station
+        stored = dict(nodes.node_values(store, f"velmora-bikes/stations@{v}", "district")["nodes"])
+        assert stored == dict(scenario.stations(month))
+        # the river runs along north = 0: every station sits on its own bank
+        banks = dict(nodes.node_values(store, f"velmora-bikes/stations@{v}", "bank")["nodes"])
+        north = dict(nodes.node_values(store, f"velmora-bikes/stations@{v}", "north_km")["nodes"])
+        assert all((north[s] > 0) == (banks[s] == "north") for s in north)
+    # the districts explain June's modularity baseline almost entirely (scikit-learn ARI in composition,
+    # as the attached planning districts do in test_story_holds)
+    comp = composition(store, summary["runs"]["louvain@4"], None, "district")
+    assert comp["ari"] > 0.95 and len(comp["categories"]) == 8

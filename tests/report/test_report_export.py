@@ -120,3 +120,34 @@ def test_directed_graphml_export_keeps_the_arcs(cli, tmp_path):
         {(u, v): d["weight"] for u, v, d in ref.edges(data=True)}
     assert {n: d["community"] for n, d in back.nodes(data=True)} == \
         {"a": 0, "b": 0, "c": 1, "d": 1, "lonely": 2}
+
+
+def test_exports_carry_the_stored_node_attributes(cli, tmp_path):
+    import json
+
+    G = nx.karate_club_graph()  # Zachary's karate club (networkx) with its "club" attribute
+    A = nx.to_scipy_sparse_array(G, nodelist=range(34))
+    from graphs import adjacency_to_csv
+
+    edges = adjacency_to_csv(A, tmp_path / "k.csv", [f"m{i:02d}" for i in range(34)])
+    table = tmp_path / "t.csv"
+    table.write_text("node,club,age,founder\n" + "".join(
+        f"m{i:02d},{G.nodes[i]['club']},{20 + i if i % 5 else ''},{'yes' if i in (0, 33) else 'no'}\n"
+        for i in range(34)), encoding="utf-8")
+    assert cli("import", edges, "--project", "p", "--network", "k", "--nodes", table).code == 0
+    run = cli("run", "p/k", "--method", "njw", "--k", "2", "--json").json["run"]
+    graphml, nodelink = tmp_path / "out.graphml", tmp_path / "out.json"
+    assert cli("export", run, "--format", "graphml", "-o", graphml).code == 0
+    assert cli("export", run, "--format", "json", "-o", nodelink).code == 0
+    # networkx.read_graphml / node_link_graph as the reference readings of the exported files
+    for H in (nx.read_graphml(graphml),
+              nx.node_link_graph(json.loads(nodelink.read_text(encoding="utf-8")), edges="links")):
+        for i in range(34):
+            data = H.nodes[f"m{i:02d}"]
+            assert data["club"] == G.nodes[i]["club"]
+            assert data["founder"] is (i in (0, 33))
+            if i % 5:
+                assert data["age"] == 20 + i
+            else:
+                assert "age" not in data
+            assert "community" in data

@@ -20,6 +20,8 @@ def cmd_diff(args) -> int:
 
     with session(args) as (store, out):
         if args.track is not None:
+            if getattr(args, "label_by", None):
+                raise UsageError("--label-by names the moved nodes of a diff of two runs; leave it out with --track")
             run_ids = list(args.runs)
             if args.track.strip().isdigit():
                 # `diff --track 1 2 3`: argparse hands the first run id to --track's optional value;
@@ -39,6 +41,13 @@ def cmd_diff(args) -> int:
             raise UsageError("diff takes two run ids (or --track for a chain)")
         res = diffs.diff_runs(store, args.runs[0], args.runs[1], nodes=args.nodes, nmi_normalization=args.nmi,
                               dense_table=getattr(args, "dense_table", False), moved_rows=bool(args.json))
+        if getattr(args, "label_by", None):
+            from workspace.services.nodes import labels_of
+
+            moved = [m[0] if isinstance(m, list) else m["node"] for m in res.get("moved_nodes") or []]
+            named = labels_of(store, list(args.runs), args.label_by, moved)
+            res["label_by"] = args.label_by
+            res["moved_labels"] = [named[n] for n in moved]
         if args.json:
             emit_diff_json(res)
         else:
@@ -128,8 +137,13 @@ def print_diff(out, d: dict, limit: int = 20) -> None:
         _more(out, len(cells), int(c.get("nnz", len(c.get("cells") or []))), "non-zero cells")
     moved = d.get("moved_nodes") or []
     if moved and limit:
-        out.table(["node", "A community", "B community"], [(m["node"], m["from"], m["to"]) for m in moved[:limit]],
-                  title="moved nodes (ascending id)")
+        if d.get("moved_labels") is not None:
+            out.table(["node", d["label_by"], "A community", "B community"],
+                      [(m["node"], label, m["from"], m["to"]) for m, label in zip(moved[:limit], d["moved_labels"])],
+                      title="moved nodes (ascending id)")
+        else:
+            out.table(["node", "A community", "B community"], [(m["node"], m["from"], m["to"]) for m in moved[:limit]],
+                      title="moved nodes (ascending id)")
         _more(out, min(limit, len(moved)), int(d.get("moved") or len(moved)), "moved nodes")
 
 

@@ -33,9 +33,24 @@ def cmd_members(args) -> int:
     limit = args.limit if args.limit is not None else (None if args.json else 50)
     with session(args) as (store, out):
         res = run_members(store, args.run, community=args.community, limit=limit, offset=args.offset)
+        named = None
+        if getattr(args, "label_by", None):
+            from workspace.services.nodes import labels_of
+
+            listed = [n for c in res["communities"] for n in c["nodes"]] + res["unassigned"]
+            named = labels_of(store, [args.run], args.label_by, listed)
+            res["label_by"] = args.label_by
+            for c in res["communities"]:
+                c["labels"] = [named[n] for n in c["nodes"]]
+            res["unassigned_labels"] = [named[n] for n in res["unassigned"]]
         if args.json:
             emit_json(res)
             return 0
+
+        def shown(node: str) -> str:
+            label = named.get(node, node) if named is not None else node
+            return node if label == node else f"{label} [{node}]"
+
         what = res["method"] if res["kind"] == "computed" else f"attached '{res['label']}'"
         out.line(f"run {res['run']}  {what} on {res['ref']}  k={res['k']}  {res['nodes']} nodes")
         for c in res["communities"]:
@@ -43,11 +58,12 @@ def cmd_members(args) -> int:
             span = f" (nodes {first}-{last} of {c['size']}; --limit/--offset for more)" if c["truncated"] else ""
             out.line(f"community {c['community']}  size {c['size']}{span}")
             if "stability" in c:
-                out.line("  " + "  ".join(f"{n} ({fmt(s)})" for n, s in zip(c["nodes"], c["stability"])))
+                out.line("  " + "  ".join(f"{shown(n)} ({fmt(s)})" for n, s in zip(c["nodes"], c["stability"])))
             elif c["nodes"]:
-                out.line("  " + "  ".join(c["nodes"]))
+                out.line("  " + "  ".join(map(shown, c["nodes"])))
         if res["unassigned"]:
-            out.line(f"unassigned  {len(res['unassigned'])} node(s): " + "  ".join(res["unassigned"][:limit]))
+            out.line(f"unassigned  {len(res['unassigned'])} node(s): "
+                     + "  ".join(map(shown, res["unassigned"][:limit])))
     return 0
 
 

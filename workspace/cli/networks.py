@@ -55,8 +55,11 @@ def cmd_import(args) -> int:
     with progress_bar() as bar:
         # the file is read before the store opens: a bad file leaves no trace in any store
         try:
+            from workspace.services.nodes import parse_coords
+
             prepared = prepare_import(args.file, format=args.format, policy=_policy(args),
-                                      progress=bar)
+                                      progress=bar, nodes=args.nodes, nodes_format=args.nodes_format,
+                                      coords=parse_coords(args.coords))
         finally:
             warming.join()  # never import the store layer on two threads at once
         with session(args, writes=True) as (store, out):
@@ -79,6 +82,10 @@ def _print_import(args, out, res) -> int:
         out.line(f"unchanged: {res.report['source']} has the same content as {res.ref} (matched "
                  f"version {res.version}); no new version made  [{res.content_hash[:12]}]")
     print_report(out, res.report)
+    if res.node_table is not None:
+        from workspace.cli.nodes import print_table_summary
+
+        print_table_summary(out, res.node_table)
     return 0
 
 
@@ -174,6 +181,11 @@ def cmd_show(args) -> int:
         print_report(out, info["report"])
         out.line("")
         out.line("policies  " + "  ".join(f"{k}={v}" for k, v in info["policy"].items()))
+        if info.get("node_table") is not None:
+            from workspace.cli.nodes import print_table_summary
+
+            out.line("")
+            print_table_summary(out, info["node_table"])
         if info["changes_from_parent"] is not None:
             out.line("")
             out.line(f"changes from {info['parent']}")

@@ -70,6 +70,13 @@ def build_parser() -> argparse.ArgumentParser:
                    help="first line names the columns (default: auto - yes when it reads like "
                         "source,target / from,to / u,v ... or cannot be data; the choice is "
                         "printed, with a WARNING when it looks like a header read as an edge)")
+    g = p.add_argument_group("node attributes (stored with the version; see also `cutbook nodes`)")
+    g.add_argument("--nodes", metavar="FILE",
+                   help="node table: CSV with a 'node' (or 'id') column, GraphML node data or node-link JSON "
+                        "(default: a GraphML/JSON network's own node data; else the previous version's table)")
+    g.add_argument("--nodes-format", choices=["csv", "graphml", "json"], help="node table format (default: by extension)")
+    g.add_argument("--coords", metavar="X,Y", help="two number columns holding node positions: x,y or lat,lon "
+                                                  "(drawn by `cutbook report`)")
 
     add("projects", "list projects", "networks", "cmd_projects")
     p = add("networks", "list networks", "networks", "cmd_networks")
@@ -79,10 +86,30 @@ def build_parser() -> argparse.ArgumentParser:
     p = add("show", "show a network version (project/network[@V]) or a run (its id)", "networks", "cmd_show")
     p.add_argument("target", metavar="REF|RUN")
     p.add_argument("--limit", type=int, default=20, help="how many changed items to list (default 20)")
+    p.add_argument("--label-by", metavar="ATTRIBUTE",
+                   help="a run: list each community's first members by this node attribute")
     p = add("changes", "structural changes between two versions", "networks", "cmd_changes")
     p.add_argument("a", metavar="P/N@A")
     p.add_argument("b", metavar="P/N@B")
     p.add_argument("--limit", type=int, default=None, help="list at most this many items per kind")
+
+    # --- node attribute tables (workspace/cli/nodes.py) -----------------------------------
+    p = add("nodes", "node attribute tables of network versions: add one (as the next version), show, values",
+            "nodes", "cmd_nodes")
+    nsub = p.add_subparsers(dest="nodes_action", metavar="ACTION", required=True)
+    q = nsub.add_parser("add", help="add or replace the node table: the next version, same graph arrays",
+                        parents=[common])
+    q.add_argument("ref", metavar="PROJECT/NETWORK[@V]", help="whose graph the new version keeps (default latest)")
+    q.add_argument("file", help="CSV with a 'node' (or 'id') column, GraphML node data or node-link JSON")
+    q.add_argument("--nodes-format", choices=["csv", "graphml", "json"], help="default: by extension")
+    q.add_argument("--coords", metavar="X,Y", help="two number columns holding positions: x,y or lat,lon")
+    q.add_argument("-m", "--message", default="", help="a note kept with the version")
+    q = nsub.add_parser("show", help="the attributes of a version's node table", parents=[common])
+    q.add_argument("ref", metavar="PROJECT/NETWORK[@V]")
+    q = nsub.add_parser("values", help="every node's value of one attribute", parents=[common])
+    q.add_argument("ref", metavar="PROJECT/NETWORK[@V]")
+    q.add_argument("attribute")
+    q.add_argument("--limit", type=int, default=50, help="text output: nodes listed (default 50; --json lists all)")
 
     # --- parameter sets ----------------------------------------------------------------
     p = add("params", "save, list and show named parameter sets", "params", "cmd_params")
@@ -155,6 +182,7 @@ def build_parser() -> argparse.ArgumentParser:
             "runs", "cmd_where")
     p.add_argument("node")
     p.add_argument("--network", metavar="PROJECT/NETWORK", help="search this network only (default: every network)")
+    p.add_argument("--label-by", metavar="ATTRIBUTE", help="show nodes by this node attribute (stored node table)")
 
     # --- sweeps (workspace/cli/sweeps.py) ------------------------------------------------
     p = add("sweep", "runs over a range of k, a parameter's values and seeds, with a recommendation",
@@ -196,25 +224,38 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--prune", action="store_true", help="remove them (runs stay reproducible: rerun re-solves)")
 
     # --- reports (workspace/cli/report.py) -------------------------------------------
-    p = add("report", "an HTML report of a run, or of the diff of two runs; or one of its figures "
-            "as SVG/PNG", "report", "cmd_report")
-    p.add_argument("runs", nargs="+", type=int, metavar="RUN", help="one run, or two runs (A B) to compare")
+    p = add("report", "an HTML report of a run, the diff of two runs, a sweep, or a chain of runs across "
+            "versions; or one of its figures as SVG/PNG", "report", "cmd_report")
+    p.add_argument("runs", nargs="*", type=int, metavar="RUN",
+                   help="one run, two runs (A B) to compare, or with --chain two or more runs in order")
+    p.add_argument("--sweep", type=int, metavar="ID", help="a sweep report: quality and stability against k")
+    p.add_argument("--chain", action="store_true",
+                   help="a chain report of the runs given (a flow chart of communities across them)")
+    p.add_argument("--params", metavar="PROJECT/NAME[@V]",
+                   help="a chain report of this parameter-set version's runs across a network's versions "
+                        "(default version: the one its newest run used)")
+    p.add_argument("--network", metavar="PROJECT/NETWORK", help="with --params: which network")
+    p.add_argument("--label-by", metavar="ATTRIBUTE",
+                   help="name nodes by this node attribute: in small network drawings (run) and moved nodes (diff)")
     p.add_argument("-o", "--output", required=True, metavar="FILE",
                    help="FILE.html (the page), FILE.svg or FILE.png (with --figure); '-' for standard output")
     p.add_argument("--figure", metavar="NAME",
                    help="write one figure alone: spectrum, sizes, stability, composition, network (run); "
-                        "contingency (diff)")
+                        "contingency (diff); quality, stability (sweep); flow (chain)")
     p.add_argument("--format", choices=["html", "svg", "png"], help="output format (default: by extension)")
     p.add_argument("--moved", type=int, default=None, metavar="N",
                    help="diff report: moved nodes listed (default 50; the rest are counted)")
-    p.add_argument("--nodes", metavar="FILE", help="run report: a node table (CSV/GraphML/JSON) for a composition")
-    p.add_argument("--by", metavar="ATTRIBUTE", help="run report, with --nodes: the attribute to compose by")
+    p.add_argument("--by", metavar="ATTRIBUTE",
+                   help="run report: add the communities' composition by this node attribute (stored table)")
+    p.add_argument("--nodes", metavar="FILE",
+                   help="run report, with --by: read the attribute from this node table file instead")
 
-    p = add("composition", "a run's communities by a node attribute from a node table file "
-            "(counts, shares, dominant value; ARI/NMI agreement)", "report", "cmd_composition")
+    p = add("composition", "a run's communities by a node attribute of its version's node table, or of a "
+            "node table file (counts, shares, dominant value; ARI/NMI agreement)", "report", "cmd_composition")
     p.add_argument("run", type=int)
-    p.add_argument("--nodes", required=True, metavar="FILE",
-                   help="node table: CSV with a 'node' (or 'id') column, GraphML node data, or node-link JSON")
+    p.add_argument("--nodes", metavar="FILE",
+                   help="read the attribute from this node table file instead of the stored one: CSV with a "
+                        "'node' (or 'id') column, GraphML node data, or node-link JSON")
     p.add_argument("--by", required=True, metavar="ATTRIBUTE", help="the attribute (column) to group by")
     p.add_argument("--nodes-format", choices=["csv", "graphml", "json"], help="node table format (default: by extension)")
     p.add_argument("--nmi", choices=["arithmetic", "geometric", "max", "min"], default="arithmetic",
@@ -234,6 +275,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="rows per section in text output: matches, events, cells, moved nodes (JSON lists all)")
     p.add_argument("--dense-table", action="store_true",
                    help="with --json: add the contingency as a dense 'counts' table (small tables only)")
+    p.add_argument("--label-by", metavar="ATTRIBUTE",
+                   help="name moved nodes by this node attribute (--json: a 'moved_labels' list beside 'moved_nodes')")
 
     # --- upkeep -------------------------------------------------------------------------
     add("verify", "check every stored array against its hash, and the database's integrity", "upkeep",
@@ -283,6 +326,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--limit", type=int, default=None,
                    help="nodes listed per community (text default 50; --json lists all unless given)")
     p.add_argument("--offset", type=int, default=0, help="skip this many nodes of each community first")
+    p.add_argument("--label-by", metavar="ATTRIBUTE", help="show nodes by this node attribute (stored node table)")
 
     p = add("compare", "ARI, NMI and VI of every pair of several runs (a comparison matrix)", "housekeeping",
             "cmd_compare")

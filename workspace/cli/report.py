@@ -17,14 +17,17 @@ def cmd_report(args) -> int:
     with session(args) as (store, out):
         res = svc.write_report(store, args.runs, args.output, figure=args.figure, format=args.format,
                                stream=sys.stdout.buffer if to_stdout else None, moved_shown=args.moved,
-                               nodes=args.nodes, by=args.by)
+                               nodes=args.nodes, by=args.by, label_by=args.label_by, sweep=args.sweep,
+                               chain=args.chain, params=args.params, network=args.network)
         if args.json:
             emit_json(res)
         else:
             what = f"figure '{res['figure']}'" if res.get("figure") else f"{res['kind']} report"
             say = out.note if to_stdout else out.line
-            say(f"wrote {what} of run{'s' if len(res['runs']) > 1 else ''} "
-                f"{' and '.join(map(str, res['runs']))} to {'standard output' if to_stdout else res['path']} "
+            of = (f"sweep {res['sweep']}" if res["kind"] == "sweep" else
+                  f"run{'s' if len(res['runs']) > 1 else ''} "
+                  + (' -> ' if res["kind"] == "chain" else ' and ').join(map(str, res['runs'])))
+            say(f"wrote {what} of {of} to {'standard output' if to_stdout else res['path']} "
                 f"({res['format']}, {res['bytes']} bytes; figures: {', '.join(res['figures'])})")
     return 0
 

@@ -152,6 +152,16 @@ def show_run(args) -> int:
 
         print_annotations(out, res)
         _print_communities(out, res)
+        if getattr(args, "label_by", None):
+            from workspace.services.members import run_members
+            from workspace.services.nodes import labels_of
+
+            members = run_members(store, run_id, limit=3)
+            named = labels_of(store, [run_id], args.label_by, [n for c in members["communities"] for n in c["nodes"]])
+            out.table(["community", "size", f"first members by {args.label_by}"],
+                      [[c["community"], c["size"], ", ".join(named[n] for n in c["nodes"])
+                        + (", …" if c["size"] > len(c["nodes"]) else "")] for c in members["communities"][:30]],
+                      right=["community", "size"])
     return 0
 
 
@@ -182,6 +192,26 @@ def cmd_where(args) -> int:
 
     with session(args) as (store, out):
         res = svc.where_node(store, args.node, args.network)
+        label_by = getattr(args, "label_by", None)
+        if label_by:
+            from workspace.errors import NotFoundError
+            from workspace.services.nodes import labels_of
+
+            first_run: dict[tuple, int] = {}
+            for r in res["runs"]:
+                first_run.setdefault((r["network"], r["version"]), r["run"])
+            label_at: dict[tuple, str | None] = {}
+            for key, run_id in first_run.items():
+                try:
+                    label_at[key] = labels_of(store, [run_id], label_by, [args.node])[args.node]
+                except NotFoundError:  # this version has no such attribute
+                    label_at[key] = None
+            if first_run and not any(v is not None for v in label_at.values()):
+                raise NotFoundError(f"--label-by: no version holding node {args.node!r} has a node attribute "
+                                    f"{label_by!r}")
+            res["label_by"] = label_by
+            for r in res["runs"]:
+                r["node_label"] = label_at.get((r["network"], r["version"])) if r["present"] else None
         if args.json:
             emit_json(res)
             return 0
@@ -189,10 +219,13 @@ def cmd_where(args) -> int:
             out.line(f"node {res['node']} in {held['network']}: present in versions "
                      + ", ".join(map(str, held["versions"])))
         several = len(res["networks_with_node"]) > 1 or res["network"] is None
-        cols = (["run"] + (["network"] if several else []) + ["version", "method", "community", "size", "stability"])
+        named = ([label_by] if label_by else [])
+        cols = (["run"] + (["network"] if several else []) + ["version"] + named
+                + ["method", "community", "size", "stability"])
         out.table(cols,
-                  [[r["run"]] + ([r["network"]] if several else [])
-                   + [r["version"], r["method"] if r["kind"] == "computed" else f"attached:{r['label']}",
+                  [[r["run"]] + ([r["network"]] if several else []) + [r["version"]]
+                   + ([r["node_label"] or "-"] if label_by else [])
+                   + [r["method"] if r["kind"] == "computed" else f"attached:{r['label']}",
                       r["community"] if r["present"] else "(absent)", r["community_size"], r["stability"]]
                    for r in res["runs"]], right=["run", "version", "community", "size", "stability"])
     return 0

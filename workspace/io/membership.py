@@ -14,7 +14,7 @@ import json
 import os
 import re
 from xml.etree.ElementTree import ParseError
-from xml.sax.saxutils import quoteattr
+from xml.sax.saxutils import escape, quoteattr
 
 import defusedxml
 import defusedxml.ElementTree as safe_etree
@@ -319,7 +319,8 @@ def write_membership(path: str | os.PathLike, node_ids: np.ndarray, labels: np.n
 
 
 def membership_text(node_ids: np.ndarray, labels: np.ndarray, format: str = "csv", *,
-                    graph=None, path: str | None = None) -> tuple[str, int]:
+                    graph=None, path: str | None = None,
+                    attributes: list[tuple[str, str, list]] | None = None) -> tuple[str, int]:
     """The text of a membership file, and how many nodes it gives a community.
 
     Parameters
@@ -343,6 +344,12 @@ def membership_text(node_ids: np.ndarray, labels: np.ndarray, format: str = "csv
         Weights are written with Python's shortest round-trip repr.
     path : str or None
         Named in errors.
+    attributes : list of (name, type, values) or None
+        Node attributes to write with ``graph`` (JSON and GraphML): ``type`` one of
+        ``boolean``, ``number``, ``text``; ``values`` aligned with ``node_ids``, None where a
+        node has none (left out). JSON: node fields; GraphML: one ``<key for="node">`` each
+        (``attr.type`` boolean / double / string). Names ``id`` and ``community`` are not
+        written (they would clash).
 
     Returns
     -------
@@ -390,9 +397,14 @@ def membership_text(node_ids: np.ndarray, labels: np.ndarray, format: str = "csv
     if format == "json" and graph is None:
         document = {"nodes": [{"id": i, "community": c} for i, c in zip(ids, values)]}
         return json.dumps(document, ensure_ascii=False, indent=None) + "\n", len(ids)
+    attributes = [a for a in (attributes or []) if a[0] not in ("id", "community")] if graph is not None else []
     if format == "json":
         nodes = [{"id": i, "community": c} if c >= 0 else {"id": i}
                  for i, c in zip(all_ids, label_of)]
+        for name, _kind, values in attributes:
+            for node, value in zip(nodes, values):
+                if value is not None:
+                    node[name] = value
         document = {"directed": bool(graph.directed) if graph is not None else False,
                     "multigraph": False, "graph": {}, "nodes": nodes}
         if graph is not None:
@@ -412,11 +424,28 @@ def membership_text(node_ids: np.ndarray, labels: np.ndarray, format: str = "csv
     if graph is not None:
         parts.append('  <key id="weight" for="edge" attr.name="weight" '
                      'attr.type="double"/>\n')
+    graphml_type = {"boolean": "boolean", "number": "double", "text": "string"}
+    for j, (name, kind, values) in enumerate(attributes):
+        bad = next((v for v in values if isinstance(v, str) and _XML_FORBIDDEN.search(v)), None)
+        if bad is not None or _XML_FORBIDDEN.search(name):
+            raise InputError(f"node attribute {name!r} holds a character XML cannot carry; write json", path=path)
+        parts.append(f'  <key id="n{j}" for="node" attr.name={quoteattr(name)} '
+                     f'attr.type="{graphml_type[kind]}"/>\n')
+
+    def xml_value(value) -> str:
+        if isinstance(value, bool):
+            return "true" if value else "false"
+        if isinstance(value, float):
+            return repr(value)
+        return escape(str(value))
+
     parts.append(f'  <graph id="G" edgedefault="{edgedefault}">\n')
-    for node, label in zip(all_ids, label_of):
-        if label >= 0:
-            parts.append(f'    <node id={quoteattr(node)}><data key="community">{label}'
-                         '</data></node>\n')
+    for i, (node, label) in enumerate(zip(all_ids, label_of)):
+        data = [f'<data key="community">{label}</data>'] if label >= 0 else []
+        data += [f'<data key="n{j}">{xml_value(values[i])}</data>' for j, (_, _, values) in enumerate(attributes)
+                 if values[i] is not None]
+        if data:
+            parts.append(f'    <node id={quoteattr(node)}>{"".join(data)}</node>\n')
         else:
             parts.append(f'    <node id={quoteattr(node)}/>\n')
     if graph is not None:

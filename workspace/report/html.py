@@ -20,6 +20,9 @@ from workspace.report.render import inline_svg
 RUN_FIGURES = ("spectrum", "sizes", "stability", "composition", "network")
 #: Figures of a diff report.
 DIFF_FIGURES = ("contingency",)
+#: Figures of a sweep report and of a chain report.
+SWEEP_FIGURES = ("quality", "stability")
+CHAIN_FIGURES = ("flow",)
 #: Moved nodes listed by default (the rest summed up as "and N more").
 MOVED_SHOWN = 50
 
@@ -130,11 +133,22 @@ def run_figures(data: dict[str, Any]) -> dict[str, tuple[str, Callable[[], Any]]
                                                          comp["attribute"]))
     g = data.get("graph")
     if g is not None and 0 < g["n"] <= F.DRAW_LIMIT:
+        layout = g.get("layout") or {"kind": "spring", "seed": F.LAYOUT_SEED}
+
         def draw():
-            pos = F.spring_positions(g["n"], g["edge_u"], g["edge_v"], g["weight"])
-            return F.network_drawing(pos, g["edge_u"], g["edge_v"], labels)
-        out["network"] = (f"The network, coloured by community (force-directed layout, seed "
-                          f"{F.LAYOUT_SEED}).", draw)
+            if g.get("positions") is not None:
+                pos = g["positions"]
+            else:
+                pos = F.spring_positions(g["n"], g["edge_u"], g["edge_v"], g["weight"],
+                                         seed=layout.get("seed", F.LAYOUT_SEED))
+            return F.network_drawing(pos, g["edge_u"], g["edge_v"], labels, node_labels=g.get("node_labels"))
+        if g.get("positions") is not None:
+            where = f"at the nodes' coordinates: x = {layout.get('x')}, y = {layout.get('y')}"
+            if layout.get("projection") == "geographic":
+                where += ", longitude scaled by the cosine of the mean latitude"
+        else:
+            where = f"force-directed layout, seed {layout.get('seed', F.LAYOUT_SEED)}"
+        out["network"] = (f"The network, coloured by community ({where}).", draw)
     return out
 
 
@@ -253,9 +267,116 @@ def diff_page(data: dict[str, Any], *, moved_shown: int = MOVED_SHOWN) -> str:
     if total:
         rows = [[m[0], _swatch(m[1]) if m[1] is not None else "–", _swatch(m[2]) if m[2] is not None else "–"]
                 for m in moved[:moved_shown]]
+        cols = ["node", "community in A", "community in B"]
+        if data.get("moved_labels") is not None:  # --label-by: each node's name beside its id
+            cols.insert(1, str(data["label_by"]))
+            rows = [[r[0], label] + r[1:] for r, label in zip(rows, data["moved_labels"])]
         more = total - len(rows)
-        body.append("<h2>Moved nodes</h2>" + _table(["node", "community in A", "community in B"], rows)
+        body.append("<h2>Moved nodes</h2>" + _table(cols, rows)
                     + (f'<p class="note">and {more} more</p>' if more > 0 else ""))
     for note in data.get("notes") or []:
         body.append(f'<p class="note">{escape(note)}</p>')
     return _page(title, "cutbook diff report", body)
+
+
+# --- sweep -------------------------------------------------------------------------------
+
+def sweep_figures(data: dict[str, Any]) -> dict[str, tuple[str, Callable[[], Any]]]:
+    """The figures a sweep report holds: quality against k, and stability against k (with repeats).
+
+    ``data``: the sweep as ``services.sweeps.show_sweep`` gives it (``points``, ``recommended_k``,
+    ``stable_ari``).
+    """
+    points = [p for p in data.get("points") or [] if p.get("k") is not None]
+    rec = data.get("recommended_k")
+    out: dict[str, tuple[str, Callable[[], Any]]] = {}
+    if points:
+        mark = f"; the dashed line marks the recommended k = {rec}" if rec is not None else ""
+        out["quality"] = (f"Quality of each k's first run{mark}.", lambda: F.sweep_quality(points, rec))
+    if any(p.get("ari_mean") is not None for p in points):
+        out["stability"] = (f"Agreement between the {data.get('seeds')} repeats at each k (mean ± sd of "
+                            f"pairwise ARI; dotted: the stability threshold {data.get('stable_ari')}).",
+                            lambda: F.sweep_stability(points, rec, data.get("stable_ari")))
+    return out
+
+
+def sweep_page(data: dict[str, Any]) -> str:
+    """The HTML report of a sweep: its request, the recommendation, the measures per k and the figures."""
+    title = f"Sweep {data['sweep']}: {data['method']} on {data['ref']}"
+    vary = data.get("vary")
+    facts = [["status", data.get("status")], ["k asked", ", ".join(map(str, data.get("ks") or []))],
+             ["varied", f"{vary['name']} = {', '.join(map(str, vary['values']))}" if vary else "–"],
+             ["seeds", f"{data.get('seeds')} from {data.get('seed')} (perturb {data.get('perturb')})"],
+             ["recommended k", data.get("recommended_k")], ["created", data.get("created")],
+             ["finished", data.get("finished")]]
+    body = ["<h2>Sweep</h2>" + _table(["item", "value"], facts)]
+    for rec in data.get("recommendations") or []:
+        head = "Recommendation" + (f" (value {escape(str(rec['value']))})" if rec.get("value") is not None else "")
+        rows = [[c["k"], c.get("rank"), "; ".join(map(str, c.get("reasons") or []))] for c in rec.get("candidates") or []]
+        part = f"<h2>{head}</h2><p>Recommended k: <b>{_num(rec.get('recommended'))}</b></p>"
+        if rows:
+            part += _table(["k", "rank", "reasons"], rows, {"k", "rank"})
+        for note in rec.get("notes") or []:
+            part += f'<p class="note">{escape(str(note))}</p>'
+        body.append(part)
+    cols = ["k", "value", "run", "k found", "modularity", "conductance", "normalized cut", "eigengap",
+            "ARI mean", "ARI sd", "stable"]
+    keys = ["k", "value", "run", "k_found", "modularity", "conductance", "normalized_cut", "eigengap",
+            "ari_mean", "ari_sd", "stable"]
+    rows = [[p.get(k) for k in keys] for p in data.get("points") or []]
+    if not (vary):
+        cols, rows = cols[:1] + cols[2:], [r[:1] + r[2:] for r in rows]
+    body.append("<h2>Measures per k</h2>" + _table(cols, rows, set(cols) - {"value", "stable"}))
+    figs = sweep_figures(data)
+    headings = {"quality": "Quality against k", "stability": "Stability against k"}
+    for name in SWEEP_FIGURES:
+        if name in figs:
+            caption, draw = figs[name]
+            body.append(f"<h2>{headings[name]}</h2>" + _figure_html(name, draw(), caption))
+    return _page(title, "cutbook sweep report", body)
+
+
+# --- chain across versions -----------------------------------------------------------------
+
+def chain_figures(data: dict[str, Any]) -> dict[str, tuple[str, Callable[[], Any]]]:
+    """The figure of a chain report: the flow of communities across the chain's runs.
+
+    ``data``: ``columns`` (per run, ``[community, size]`` in drawing order), ``steps`` (per
+    consecutive pair, the diff's contingency ``cells``), ``colour_of`` (per run, community ->
+    thread), ``titles``.
+    """
+    caption = ("Communities of each run (boxes, with sizes) and the nodes they share with the next run's "
+               "(bands, widths by shared nodes); a community matched step after step keeps its colour.")
+    return {"flow": (caption, lambda: F.community_flow(data["columns"], data["steps"], data["colour_of"],
+                                                       data["titles"]))}
+
+
+def chain_page(data: dict[str, Any]) -> str:
+    """The HTML report of a chain of runs across versions: per-step agreement, the flow chart, threads."""
+    details = data["run_details"]
+    first, last = details[0], details[-1]
+    title = (f"Chain of {len(details)} runs: {escape(str(data.get('what') or first.get('method')))}"
+             f" from {first['ref']} to {last['ref']}")
+    body = []
+    rows = [[d["run"], d["ref"], d.get("method") or d.get("label"), d.get("k")] for d in details]
+    body.append("<h2>Runs</h2>" + _table(["run", "version", "method", "k"], rows, {"run", "k"}))
+    steps = data.get("track_steps") or []
+    rows = [[f"{st['from_run']} → {st['to_run']}", st.get("ari"), st.get("nmi"), st.get("moved"),
+             _count(st.get("only_in_a")), _count(st.get("only_in_b")),
+             ", ".join(sorted({e["kind"] for e in st.get("events") or []} - {"kept"})) or "–"] for st in steps]
+    body.append("<h2>Steps</h2>" + _table(["step", "ARI", "NMI", "moved", "nodes gone", "nodes new", "events"],
+                                          rows, {"ARI", "NMI", "moved", "nodes gone", "nodes new"}))
+    caption, draw = chain_figures(data)["flow"]
+    body.append("<h2>Flow of communities</h2>" + _figure_html("flow", draw(), caption))
+    threads = data.get("lineage") or []
+    if threads:
+        rows = [[_swatch(t["thread"]), " → ".join(f"{p['community']} ({p['size']})" for p in t["path"]),
+                 ", ".join(t.get("origin") or []), ", ".join(t.get("fate") or [])] for t in threads[:60]]
+        body.append("<h2>Threads</h2><p>Each thread follows one community through the chain by the "
+                    "diff's matching (Hungarian assignment on shared nodes).</p>"
+                    + _table(["thread", "community (size) per run", "origin", "fate"], rows))
+    return _page(title, "cutbook chain report", body)
+
+
+def _count(x: Any) -> int:
+    return len(x) if isinstance(x, (list, tuple)) else int(x or 0)

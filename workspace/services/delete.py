@@ -22,6 +22,7 @@ _BLOB_COLUMNS = (
     ("network_versions", ("node_offsets_blob", "node_bytes_blob", "edge_u_blob", "edge_v_blob", "weight_blob")),
     ("runs", ("membership_blob", "stability_blob", "eigenvalues_blob")),
     ("embeddings", ("values_blob", "vectors_blob")),
+    ("node_table_columns", ("values_blob", "present_blob", "dictionary_offsets_blob", "dictionary_bytes_blob")),
 )
 
 

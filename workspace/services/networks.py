@@ -34,11 +34,12 @@ class ImportOutcome:
     new_version: bool
     report: dict[str, Any]
     policy: dict[str, Any] = field(default_factory=dict)
+    node_table: dict[str, Any] | None = None  # what the version's node attribute table holds (or None)
 
     def to_dict(self) -> dict[str, Any]:
         return {"ref": self.ref, "version": self.version, "nodes": self.nodes, "edges": self.edges,
                 "content_hash": self.content_hash, "new_version": self.new_version,
-                "report": self.report, "policy": self.policy}
+                "report": self.report, "policy": self.policy, "node_table": self.node_table}
 
 
 def _check_name(kind: str, name: str) -> str:
@@ -88,15 +89,20 @@ class PreparedImport:
     format: str
     content_hash: str
     arrays: dict
+    node_table: Any = None  # services.nodes.PreparedNodeTable, or None
 
 
 def prepare_import(path: str | os.PathLike, *, format: str | None = None,
                    policy: ImportPolicy | None = None, progress: Progress | None = None,
-                   source_label: str | None = None) -> PreparedImport:
+                   source_label: str | None = None, nodes: str | os.PathLike | None = None,
+                   nodes_format: str | None = None, coords: tuple[str, str] | None = None) -> PreparedImport:
     """Read ``path`` into canonical form, hash it and compress its arrays; touches no store.
 
     Raises what :func:`workspace.io.read_network` raises. ``source_label`` replaces the path
-    in the report.
+    in the report. Node attributes: ``nodes`` names a node table file (CSV / GraphML /
+    node-link JSON, see ``services.nodes.prepare_node_table``); without it, a GraphML or
+    node-link JSON network file's own node data is read when it has any. ``coords`` names two
+    of its number columns as positions.
     """
     import threading
 
@@ -179,8 +185,22 @@ def prepare_import(path: str | os.PathLike, *, format: str | None = None,
     if "error" in done:
         raise done["error"]
     content_hash, arrays = done["hash"], done["arrays"]
+    from workspace.services.nodes import prepare_node_table
+
+    if nodes is not None:
+        node_table = prepare_node_table(nodes, graph.node_ids, format=nodes_format, coords=coords,
+                                        numeric_ids=policy.numeric_ids)
+    elif report.format in ("graphml", "json"):
+        node_table = prepare_node_table(path, graph.node_ids, format=report.format, coords=coords,
+                                        source_label=source_label, optional=coords is None,
+                                        numeric_ids=policy.numeric_ids)
+    elif coords is not None:
+        raise UsageError("--coords names columns of a node table: give --nodes FILE (or a GraphML / "
+                         "node-link JSON network with node data)")
+    else:
+        node_table = None
     return PreparedImport(os.fspath(path), graph, report_dict, policy.as_dict(), report.format,
-                          content_hash, arrays)
+                          content_hash, arrays, node_table)
 
 
 def import_network(store: Store, path: str | os.PathLike, *, project: str, network: str,
@@ -198,6 +218,7 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
     from another file). A failed read leaves the store untouched (no project, network or
     version is created).
     """
+    from workspace.services import nodes as node_tables
     from workspace.store import repo
 
     _check_name("project", project)
@@ -207,25 +228,43 @@ def import_network(store: Store, path: str | os.PathLike, *, project: str, netwo
                                   source_label=source_label)
     graph, content_hash = prepared.graph, prepared.content_hash
     report_dict, policy_dict = prepared.report, prepared.policy
+    table = prepared.node_table
+    carried = None
+    if table is None:
+        # a new graph without a table of its own keeps its parent's attributes (re-aligned), read
+        # and encoded here, before the write transaction
+        with store.read() as s:
+            net = repo.find_network(s, project, network)
+            latest = repo.latest_version(s, net.id) if net is not None else None
+            if latest is not None and latest.content_hash != content_hash:
+                carried = (latest.id, node_tables.carried_table(s, latest.id, graph.node_ids))
     with store.write(needed=sum(a.stored_size for a in prepared.arrays.values())) as s:
         proj = repo.get_or_create_project(s, project)
         net = repo.get_or_create_network(s, proj, network)
         latest = repo.latest_version(s, net.id)
-        if latest is not None and latest.content_hash == content_hash:
+        same_table = table is None or (latest is not None and
+                                       node_tables.table_hash(s, latest.id) == table.attributes_hash)
+        if latest is not None and latest.content_hash == content_hash and same_table:
             # report what was just read (its name, columns, notes); the stored version keeps its own
             return ImportOutcome(f"{project}/{network}@{latest.number}", latest.number, graph.n_nodes,
-                                 graph.n_edges, content_hash, False, report_dict, policy_dict)
+                                 graph.n_edges, content_hash, False, report_dict, policy_dict,
+                                 table.describe() if table is not None else None)
         v = repo.add_version(s, net, graph, parent=latest, content_hash=content_hash, message=message,
                              source_name=source_label or os.path.basename(os.fspath(path)),
                              source_format=prepared.format,
                              policy_json=json.dumps(policy_dict, sort_keys=True),
                              report_json=json.dumps(report_dict, sort_keys=True),
                              arrays=prepared.arrays)
+        if table is None and carried is not None and latest is not None and carried[0] == latest.id:
+            table = carried[1]
+        if table is not None:
+            node_tables.insert_node_table(s, v.id, table)
         number = v.number
     if progress:
         progress("store", 1, 1)
     return ImportOutcome(f"{project}/{network}@{number}", number, graph.n_nodes, graph.n_edges,
-                         content_hash, True, report_dict, policy_dict)
+                         content_hash, True, report_dict, policy_dict,
+                         table.describe() if table is not None else None)
 
 
 def list_projects(store: Store) -> list[dict[str, Any]]:
@@ -316,6 +355,9 @@ def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20)
         out.update(current_for(s, "version", [v.id]).get(v.id, {"tags": [], "notes": []}))
         out["policy"] = json.loads(v.policy_json)
         out["report"] = json.loads(v.report_json)
+        from workspace.services.nodes import describe_table
+
+        out["node_table"] = describe_table(s, v.id)
         out["parent"] = None
         out["changes_from_parent"] = None
         if v.parent_id is not None:

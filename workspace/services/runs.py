@@ -626,18 +626,23 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
     """Write a run's membership as CSV ``node,community``, or the network with it (node-link JSON, GraphML).
 
     JSON and GraphML carry every node of the run's network version, its edges with their
-    weights, and each node's community. ``stream`` (a text file object) receives the text
+    weights, each node's community and the version's node attributes (its node table). ``stream`` (a text file object) receives the text
     instead of ``path`` (the CLI's ``-o -``).
     """
     from workspace.io import membership_text
 
     node_ids, labels, summary = load_membership(store, run_id)
     graph = None
+    attributes = None
     if format in ("json", "graphml"):
+        from workspace.services.nodes import stored_attributes
+
         with store.read() as s:
-            graph = repo.load_graph(s, s.get(NetworkVersion, s.get(Run, run_id).version_id))
+            version_id = s.get(Run, run_id).version_id
+            graph = repo.load_graph(s, s.get(NetworkVersion, version_id))
+            attributes = stored_attributes(s, version_id)  # the version's node table, if it has one
     target = os.fspath(path)
-    text, count = membership_text(node_ids, labels, format, graph=graph, path=target)
+    text, count = membership_text(node_ids, labels, format, graph=graph, path=target, attributes=attributes)
     edges = None if graph is None else graph.n_edges
     if stream is not None:
         stream.write(text)

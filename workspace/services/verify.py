@@ -30,6 +30,15 @@ def _owners(s) -> dict[str, list[str]]:
     for emb in s.scalars(select(Embedding)).all():
         for col in ("values_blob", "vectors_blob"):
             owners.setdefault(getattr(emb, col), []).append(f"embedding {emb.key[:12]} ({col[:-5]})")
+    from workspace.store.schema import NodeTable, NodeTableColumn  # node attribute tables (0008)
+
+    q = (select(NodeTableColumn, NodeTable.version_id).join(NodeTable, NodeTable.id == NodeTableColumn.table_id))
+    for col_row, version_id in s.execute(q).all():
+        for col in ("values_blob", "present_blob", "dictionary_offsets_blob", "dictionary_bytes_blob"):
+            h = getattr(col_row, col)
+            if h:
+                owners.setdefault(h, []).append(f"node table of version id {version_id}, "
+                                                f"column {col_row.name!r} ({col[:-5]})")
     for run in s.scalars(select(Run)).all():
         for col in _RUN_BLOBS:
             h = getattr(run, col)

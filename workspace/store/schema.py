@@ -344,3 +344,54 @@ class Embedding(Base):
     residuals_json: Mapped[str] = mapped_column(Text)
     info_json: Mapped[str] = mapped_column(Text)
     created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+
+
+# --- node attribute tables (revision 0008) -------------------------------------------
+
+NODE_ATTRIBUTE_TYPES = ("boolean", "number", "text")
+
+
+class NodeTable(Base):
+    """The node attribute table of one network version (at most one; insert-only like the version).
+
+    Columns are aligned to the version's canonical node order and stored as blobs
+    (:class:`NodeTableColumn`). ``attributes_hash`` is sha256 over the column names, types and
+    array hashes: it is kept apart from the version's ``content_hash``, which covers the graph
+    only, so a version that differs from its parent only by attributes has the same content hash.
+    ``coords_json`` names the coordinate columns (``{"x": name, "y": name, "kind": "plane" |
+    "geographic"}``) or is ``null``.
+    """
+
+    __tablename__ = "node_tables"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    version_id: Mapped[int] = mapped_column(ForeignKey("network_versions.id", ondelete="CASCADE"),
+                                            unique=True)
+    attributes_hash: Mapped[str] = mapped_column(String(64), index=True)
+    n_rows: Mapped[int] = mapped_column(Integer)
+    source_name: Mapped[str] = mapped_column(Text)
+    coords_json: Mapped[str] = mapped_column(Text, default="null")
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+
+
+class NodeTableColumn(Base):
+    """One attribute column of a node table, typed, as blobs aligned to the version's node order.
+
+    ``values_blob``: float64 (number), bool (boolean) or int32 codes into a dictionary (text, -1 for
+    no value); ``present_blob``: bool, True where the node has a value; text columns keep their
+    distinct values as ``dictionary_offsets_blob`` / ``dictionary_bytes_blob`` (UTF-8, like node ids).
+    """
+
+    __tablename__ = "node_table_columns"
+    __table_args__ = (
+        CheckConstraint("type IN ('boolean', 'number', 'text')", name="type_known"),
+    )
+
+    table_id: Mapped[int] = mapped_column(ForeignKey("node_tables.id", ondelete="CASCADE"), primary_key=True)
+    position: Mapped[int] = mapped_column(Integer, primary_key=True)
+    name: Mapped[str] = mapped_column(String(200))
+    type: Mapped[str] = mapped_column(String(16))
+    values_blob: Mapped[str] = mapped_column(ForeignKey("blobs.hash"))
+    present_blob: Mapped[str] = mapped_column(ForeignKey("blobs.hash"))
+    dictionary_offsets_blob: Mapped[str | None] = mapped_column(ForeignKey("blobs.hash"), nullable=True)
+    dictionary_bytes_blob: Mapped[str | None] = mapped_column(ForeignKey("blobs.hash"), nullable=True)

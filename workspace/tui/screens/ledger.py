@@ -226,6 +226,10 @@ class LedgerScreen(Screen):
 
         try:
             run = show_run(self.app.store, run_id)
+            if run.get("status") == "done":  # its make-up by the version's categorical node attributes
+                from workspace.services.reports import run_compositions
+
+                run["compositions"] = run_compositions(self.app.store, run_id)
         except Exception as exc:  # noqa: BLE001
             self.app.call_from_thread(self.app.report, exc)
             return

@@ -152,6 +152,15 @@ def run_text(run: dict[str, Any]) -> Text:
             t.append("\n")
         if len(comms) > 12:
             t.append(f"  … {len(comms) - 12} more (see Spectrum for the size histogram)\n", style=MUTED)
+    for comp in run.get("compositions") or []:
+        _section(t, f"Composition by {comp['attribute']}")
+        t.append(f"  ARI {fmt_value(comp['ari'])}  NMI {fmt_value(comp['nmi'])}  purity {fmt_value(comp['purity'])}"
+                 f"  ({comp['nodes']} nodes, {len(comp['categories'])} values)\n")
+        for c in comp["communities"][:12]:
+            t.append(f"  c{c['community']:<4}", style=KEY)
+            t.append(f"{c['dominant']}  {fmt_value(100 * c['dominant_share'])}% of {c['size']}\n")
+        if len(comp["communities"]) > 12:
+            t.append(f"  … {len(comp['communities']) - 12} more (`cutbook composition` lists them)\n", style=MUTED)
     _section(t, "Provenance")
     _pairs(t, run.get("provenance"))
     return t
@@ -166,6 +175,16 @@ def version_text(v: dict[str, Any]) -> Text:
         t.append(v["message"] + "\n", style="italic")
     _pairs(t, {"source": v.get("source"), "format": v.get("format"), "created": fmt_when(v.get("created")),
                "by": v.get("by") or "unknown", "content hash": (v.get("content_hash") or "")[:16], "parent": v.get("parent")})
+    table = v.get("node_table")
+    if table:
+        _section(t, "Node attributes")
+        coords = table.get("coords")
+        t.append(f"  from {table['source']}, {table['rows']} rows"
+                 + (f"; positions {coords['x']}, {coords['y']}" if coords else "") + "\n", style=MUTED)
+        for c in table["columns"]:
+            t.append("  " + str(c["name"]).ljust(20), style=KEY)
+            t.append(f"{c['type']:<8} {c['distinct']} distinct"
+                     + (f", {c['missing']} missing" if c["missing"] else "") + "\n")
     _section(t, "Import report")
     _pairs(t, v.get("report"))
     _section(t, "Import policy")
