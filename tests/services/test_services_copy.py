@@ -244,3 +244,31 @@ def test_chunked_arrays_travel_as_chunks_and_are_checked_on_arrival(tmp_path, mo
     assert chunks(a) > 20 and res["added"]["chunks"] == chunks(a) == chunks(b)
     assert res["verified"]["chunks"] == chunks(a) and report["ok"] and report["chunks_checked"] == chunks(b)
     assert _summary(a) == _summary(b)
+
+
+def test_node_tables_travel_with_their_versions(tmp_path):
+    # a node table on version 2 (attribute-only version) travels with it; the values read on the
+    # destination equal the source's and the file's own (common practice: a copy reproduces its source)
+    from workspace.services.copy import copy_work
+    from workspace.services.networks import import_network
+    from workspace.services.nodes import add_node_table, node_values
+
+    a, b = tmp_path / "a.sqlite", tmp_path / "b.sqlite"
+    table = tmp_path / "members.csv"
+    table.write_text("node,side,age\n" + "".join(f"{i},{'north' if i % 3 else 'south'},{20 + i}\n"
+                                                for i in range(1, 35)), encoding="utf-8")
+    with _open(a) as st:
+        import_network(st, KARATE, project="club", network="karate", policy=ImportPolicy(weight="weight"))
+        add_node_table(st, "club/karate", table)
+        want = {attr: node_values(st, "club/karate@2", attr)["nodes"] for attr in ("side", "age")}
+    with _open(a) as src, _open(b) as dst:
+        first = copy_work(src, dst)
+    assert first["added"]["node_tables"] == 1 and first["verified"]["ok"]
+    with _open(b) as st:
+        got = {attr: node_values(st, "club/karate@2", attr)["nodes"] for attr in ("side", "age")}
+    assert got == want
+    assert dict(want["side"])["3"] == "south" and dict(want["age"])["34"] == 54
+    before = dump_any(str(b))
+    with _open(a) as src, _open(b) as dst:
+        again = copy_work(src, dst)
+    assert dump_any(str(b)) == before and again["added"]["node_tables"] == 0

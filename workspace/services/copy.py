@@ -10,6 +10,7 @@ What is copied, by scope:
 - one run's lineage: the run (and the runs it reruns), its version with the versions before it
   (following ``parent``), its parameter-set version with the earlier ones, and their annotations.
 
+A copied version brings its node attribute table (columns and their arrays).
 Records keep what they are: content hashes, arrays (copied as stored, chunked or not), messages,
 import reports and policies, run records and provenance, ``created_at`` and ``created_by``.
 Runs still ``running`` are not copied (their outcome is not known yet); sweeps and cached
@@ -46,10 +47,11 @@ from workspace.domain import VersionRef
 from workspace.errors import NotFoundError, StoreDamaged, UsageError
 from workspace.store import faults, repo
 from workspace.store.db import Store, sqlite_file
-from workspace.store.schema import (Annotation, Blob, BlobChunk, Network, NetworkVersion, ParamSet, ParamSetVersion,
-                                    Project, Run, RunCommunity, RunMeasure)
+from workspace.store.schema import (Annotation, Blob, BlobChunk, Network, NetworkVersion, NodeTable, NodeTableColumn,
+                                    ParamSet, ParamSetVersion, Project, Run, RunCommunity, RunMeasure)
 
 _VERSION_BLOBS = ("node_offsets_blob", "node_bytes_blob", "edge_u_blob", "edge_v_blob", "weight_blob")
+_NODE_TABLE_BLOBS = ("values_blob", "present_blob", "dictionary_offsets_blob", "dictionary_bytes_blob")
 _RUN_BLOBS = ("membership_blob", "stability_blob", "eigenvalues_blob")
 _RUN_KEY = ("kind", "method", "label", "params_json", "k_requested", "seed", "repeats", "status", "host",
             "membership_hash")
@@ -126,8 +128,8 @@ class _Copier:
 
     def __init__(self, s, d) -> None:
         self.s, self.d = s, d
-        self.added = dict.fromkeys(("projects", "networks", "versions", "param_sets", "param_set_versions",
-                                    "runs", "annotations", "arrays", "chunks"), 0)
+        self.added = dict.fromkeys(("projects", "networks", "versions", "node_tables", "param_sets",
+                                    "param_set_versions", "runs", "annotations", "arrays", "chunks"), 0)
         self.added["bytes"] = 0
         self.matched = dict.fromkeys(("projects", "networks", "versions", "param_sets", "param_set_versions",
                                       "runs", "annotations", "arrays"), 0)
@@ -223,11 +225,25 @@ class _Copier:
                 self.version_ids[v.id] = self._insert(NetworkVersion, {**_columns(v), "network_id": nid,
                                                                     "number": top, "parent_id": parent})
                 self.added["versions"] += 1
+                self.node_table(v.id, self.version_ids[v.id])
                 if top != v.number:
                     ref = f"{self.s.get(Project, n.project_id).name}/{n.name}"
                     self.renumbered.append({"network": ref, "source": v.number, "destination": top})
             for col in _VERSION_BLOBS:
                 self.used_blobs.add(getattr(v, col))
+
+    def node_table(self, source_version: int, dest_version: int) -> None:
+        """Copy the node attribute table of a newly copied version (its columns and their arrays)."""
+        t = self.s.scalar(select(NodeTable).where(NodeTable.version_id == source_version))
+        if t is None:
+            return
+        tid = self._insert(NodeTable, {**_columns(t), "version_id": dest_version})
+        for c in self.s.scalars(select(NodeTableColumn).where(NodeTableColumn.table_id == t.id)
+                                .order_by(NodeTableColumn.position)).all():
+            for col in _NODE_TABLE_BLOBS:
+                self.blob(getattr(c, col))
+            self.d.execute(insert(NodeTableColumn).values(**{**_columns(c, skip=()), "table_id": tid}))
+        self.added["node_tables"] += 1
 
     # --- parameter sets ------------------------------------------------------------------
     def param_set(self, ps: ParamSet, up_to: int | None = None) -> None:
