@@ -98,7 +98,7 @@ def test_encode_ids_maps_every_record_to_its_own_id():
     expected = sorted(set(src) | set(dst) | {"zz-only-declared", "007"})
     assert [str(x) for x in node_ids] == expected
     assert [str(node_ids[i]) for i in u] == src and [str(node_ids[i]) for i in v] == dst
-    assert u.dtype == np.int64 and v.dtype == np.int64
+    assert u.dtype == np.int32 and v.dtype == np.int32  # int32 while the ids fit (< 2**31 of them)
 
 
 def test_ascii_and_non_ascii_paths_give_the_same_array_type():
