@@ -363,7 +363,8 @@ def _symmetrise(key: np.ndarray, weight: np.ndarray, record: np.ndarray, n: int,
 
 
 def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
-                 progress: Progress = None, *, on_graph=None) -> tuple[GraphData, ImportReport]:
+                 progress: Progress = None, *, on_graph=None,
+                 consume: bool = False) -> tuple[GraphData, ImportReport]:
     """Apply the import policy to edge records and build the canonical graph.
 
     With ids sorted by code point (index ``i`` = position in that order) an
@@ -394,6 +395,9 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         Receives ``("canonicalise", step, 4)``.
     on_graph : callable or None, default None
         Called with the graph before the report is built.
+    consume : bool, default False
+        The caller is done with ``rec``'s id columns: they are released
+        (:meth:`EdgeRecords.release_columns`) once the ids are encoded.
 
     Returns
     -------
@@ -433,6 +437,13 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         node_ids, u, v = encode_ids(source, target, extra)
     except InputError as err:
         raise InputError(err.message, path=path) from None
+    del source, target, extra
+    if consume:
+        # the string columns are done with: free them before the merge and the report (peak
+        # memory); the record count stays known
+        rec.release_columns()
+        # Arrow's allocator keeps freed pages for reuse: hand them back before numpy's big steps
+        pa.default_memory_pool().release_unused()
     n = int(node_ids.size)
     weight = np.asarray(rec.weight, dtype=np.float64)
     # original record numbers are carried along only where an error may need a line
