@@ -32,16 +32,31 @@ def __getattr__(name: str):
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
-_VECTOR_LIMIT = 1 << 28  # bytes of the padded code-point matrix the vectorised path may build
+# Code points one step of the id encoder/decoder may lay out (4 bytes each): ids are handled in
+# chunks of rows of at most this many padded code points, so the time per id stays flat and the
+# scratch memory bounded whatever the number and length of the ids.
+_CHUNK_POINTS = 1 << 22
+
+
+def _chunk_rows(width: int) -> int:
+    return max(1, _CHUNK_POINTS // max(width, 1))
 
 
 def encode_node_ids(node_ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Pack string node ids as (offsets int64 of length n+1, UTF-8 bytes uint8).
 
     The packed form is what gets stored and hashed: it has no pickled objects
-    and no fixed-width padding, so it stays small for long ids. ASCII ids take a
-    vectorised path (their code points are their UTF-8 bytes); others a loop.
-    Both give the same bytes.
+    and no fixed-width padding, so it stays small for long ids. A numpy ``str``
+    array is packed in chunks of rows straight from its UCS-4 code points: the
+    UTF-8 length of code point ``c`` is ``1 + [c >= 0x80] + [c >= 0x800] +
+    [c >= 0x10000]`` (RFC 3629, section 3), ASCII chunks are narrowed byte by
+    byte and other chunks go through Python's UTF-32 -> UTF-8 codecs. Any other
+    array goes through ``str(x).encode("utf-8")`` per element. Both give the
+    bytes of ``str.encode("utf-8")``.
+
+    References
+    ----------
+    F. Yergeau, RFC 3629, "UTF-8, a transformation format of ISO 10646" (2003).
     """
     import numpy as np
 
@@ -50,36 +65,82 @@ def encode_node_ids(node_ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     offsets = np.zeros(n + 1, dtype=np.int64)
     if n == 0:
         return offsets, np.zeros(0, dtype=np.uint8)
-    if node_ids.dtype.kind == "U" and node_ids.dtype.itemsize and n * node_ids.dtype.itemsize <= _VECTOR_LIMIT:
-        width = node_ids.dtype.itemsize // 4
-        points = np.ascontiguousarray(node_ids).view(np.uint32).reshape(n, width)
-        lengths = np.strings.str_len(node_ids).astype(np.int64)
-        mask = np.arange(width)[None, :] < lengths[:, None]
-        chosen = points[mask]
-        if chosen.size == 0 or (chosen.max() < 128 and chosen.min() > 0):
-            np.cumsum(lengths, out=offsets[1:])
-            return offsets, chosen.astype(np.uint8)
-    encoded = [str(x).encode("utf-8") for x in node_ids.tolist()]
-    np.cumsum(np.fromiter(map(len, encoded), dtype=np.int64, count=n), out=offsets[1:])
-    return offsets, np.frombuffer(b"".join(encoded), dtype=np.uint8).copy()
+    if node_ids.dtype.kind != "U" or not node_ids.dtype.itemsize:
+        encoded = [str(x).encode("utf-8") for x in node_ids.tolist()]
+        np.cumsum(np.fromiter(map(len, encoded), dtype=np.int64, count=n), out=offsets[1:])
+        return offsets, np.frombuffer(b"".join(encoded), dtype=np.uint8).copy()
+    width = node_ids.dtype.itemsize // 4
+    grid = np.ascontiguousarray(node_ids).view(np.uint32).reshape(n, width)
+    lengths = np.strings.str_len(node_ids).astype(np.int64)  # code points, trailing NULs aside
+    step = _chunk_rows(width)
+    pieces = []
+    columns = np.arange(width)
+    for a in range(0, n, step):
+        b = min(n, a + step)
+        block = grid[a:b]
+        points = block[columns[None, :] < lengths[a:b, None]]
+        if points.size == 0 or int(points.max()) < 0x80:
+            offsets[a + 1:b + 1] = lengths[a:b]
+            pieces.append(points.astype(np.uint8))
+            continue
+        row_bytes = lengths[a:b].copy()
+        for bound in (0x80, 0x800, 0x10000):
+            row_bytes += np.count_nonzero(block >= bound, axis=1)
+        offsets[a + 1:b + 1] = row_bytes
+        pieces.append(np.frombuffer(points.tobytes().decode("utf-32-le").encode("utf-8"), dtype=np.uint8))
+    np.cumsum(offsets[1:], out=offsets[1:])
+    data = pieces[0] if len(pieces) == 1 else np.concatenate(pieces)
+    return offsets, np.ascontiguousarray(data, dtype=np.uint8)
 
 
 def decode_node_ids(offsets: np.ndarray, data: np.ndarray) -> np.ndarray:
-    """Inverse of :func:`encode_node_ids`; returns a numpy ``str`` array."""
+    """Inverse of :func:`encode_node_ids`; returns a numpy ``str`` array.
+
+    The code points of id ``i`` are found without a per-id loop: a byte
+    starts a code point unless it is a continuation byte ``10xxxxxx`` (RFC 3629,
+    section 3), so the running count of starting bytes at ``offsets`` gives each
+    id's code-point offsets (for ASCII data the byte offsets themselves). Rows
+    are then filled in chunks of bounded size (ASCII bytes widened, other chunks
+    through Python's UTF-8 -> UTF-32 codecs), so the cost per id does not jump
+    with the number or the length of the ids. Invalid UTF-8 raises
+    :class:`UnicodeDecodeError`, as ``bytes.decode`` does.
+
+    References
+    ----------
+    F. Yergeau, RFC 3629, "UTF-8, a transformation format of ISO 10646" (2003).
+    """
     import numpy as np
 
+    offsets = np.asarray(offsets, dtype=np.int64)
     n = offsets.shape[0] - 1
     if n <= 0:
         return np.array([], dtype="<U1")
-    lengths = np.diff(offsets)
+    data = np.asarray(data, dtype=np.uint8)[offsets[0]:offsets[-1]]
+    rel = offsets - offsets[0]
+    ascii_only = data.size == 0 or int(data.max()) < 0x80
+    if ascii_only:
+        points_at = rel
+    else:
+        starts = np.zeros(data.size + 1, dtype=np.int64)
+        np.cumsum((data & 0xC0) != 0x80, out=starts[1:])
+        points_at = starts[rel]
+        del starts
+    lengths = np.diff(points_at)
     width = max(int(lengths.max()), 1)
-    if n * width * 4 <= _VECTOR_LIMIT and (data.size == 0 or (data.max() < 128 and data.min() > 0)):
-        points = np.zeros((n, width), dtype=np.uint32)
-        points[np.arange(width)[None, :] < lengths[:, None]] = data
-        return points.view(f"<U{width}").reshape(n)
-    raw = data.tobytes()
-    off = offsets.tolist()
-    return np.array([raw[off[i]:off[i + 1]].decode("utf-8") for i in range(n)], dtype=np.str_)
+    out = np.zeros(n, dtype=f"<U{width}")
+    grid = out.view(np.uint32).reshape(n, width)
+    columns = np.arange(width)
+    step = _chunk_rows(width)
+    for a in range(0, n, step):
+        b = min(n, a + step)
+        chunk = data[rel[a]:rel[b]]
+        if ascii_only:
+            points = chunk
+        else:
+            points = np.frombuffer(chunk.tobytes().decode("utf-8").encode("utf-32-le"), dtype=np.uint32)
+        block = grid[a:b]
+        block[columns[None, :] < lengths[a:b, None]] = points
+    return out
 
 
 @dataclass(frozen=True, eq=False)

@@ -98,7 +98,7 @@ def test_encode_ids_maps_every_record_to_its_own_id():
     expected = sorted(set(src) | set(dst) | {"zz-only-declared", "007"})
     assert [str(x) for x in node_ids] == expected
     assert [str(node_ids[i]) for i in u] == src and [str(node_ids[i]) for i in v] == dst
-    assert u.dtype == np.int64 and v.dtype == np.int64
+    assert u.dtype == np.int32 and v.dtype == np.int32  # int32 while the ids fit (< 2**31 of them)
 
 
 def test_ascii_and_non_ascii_paths_give_the_same_array_type():
@@ -119,3 +119,26 @@ def test_a_line_longer_than_the_parser_block_is_read(tmp_path):
     path.write_text("a,b," + "x" * (5 << 20) + "\nb,c,y\n", encoding="utf-8")
     graph, _ = read_network(path, policy=ImportPolicy(header="no"))
     assert graph.node_ids.tolist() == ["a", "b", "c"] and graph.n_edges == 2
+
+
+def test_two_thread_encoding_gives_the_single_pass_result(monkeypatch):
+    # the large-input path (source and target hashed on two threads, dictionaries merged) against
+    # Python's sorted(set()) of the same ids (code point order), with several chunks and declared nodes
+    import pyarrow as pa
+
+    from workspace.io import canonical
+
+    rng = np.random.default_rng(11)
+    pool = TRICKY + [f"n{i}" for i in range(300)]
+    src = [pool[i] for i in rng.integers(0, len(pool), 700)]
+    dst = [pool[i] for i in rng.integers(0, 50, 400)]  # target uses only some ids
+    extra = pa.array(["zz-only-declared", "ä"], pa.string())
+    source = pa.chunked_array([pa.array(src[:300]), pa.array(src[300:])])
+    target = pa.chunked_array([pa.array(dst[:7]), pa.array(dst[7:])])
+    monkeypatch.setattr(canonical, "_PARALLEL_ENCODE_FROM", 0)
+    node_ids, u, v = encode_ids(source, target, extra)
+    assert [str(x) for x in node_ids] == sorted(set(src) | set(dst) | {"zz-only-declared", "ä"})
+    assert [str(node_ids[i]) for i in u] == src and [str(node_ids[i]) for i in v] == dst
+    monkeypatch.setattr(canonical, "_PARALLEL_ENCODE_FROM", 1 << 62)
+    single = encode_ids(source, target, extra)
+    assert all(np.array_equal(a, b) for a, b in zip((node_ids, u, v), single))

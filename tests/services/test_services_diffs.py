@@ -95,3 +95,28 @@ def test_diff_errors(store, two_versions, tmp_path):
             diffs.diff_runs(store, fine, fine, dense_table=True)
         finally:
             diff_module.DENSE_LIMIT = old
+
+
+def test_diff_and_track_decode_each_versions_ids_once(store, tmp_path, monkeypatch):
+    # two runs of one version: its node ids are decoded once per command, not once per run;
+    # a track over both versions decodes each version once. Reference for the values: sklearn's
+    # adjusted_rand_score on the same labels (scikit-learn, sklearn.metrics).
+    from workspace.store import repo
+
+    G = nx.karate_club_graph()
+    A = nx.to_scipy_sparse_array(G, nodelist=range(34), weight="weight")
+    names = [f"m{i:02d}" for i in range(34)]
+    import_adjacency(store, A, tmp_path, project="club", network="karate", names=names)
+    la = np.array([G.nodes[i]["club"] == "Mr. Hi" for i in range(34)], dtype=int)
+    lb = np.arange(34) % 3
+    ra = _attach(store, tmp_path, "club/karate@1", names, la, "clubs")
+    rb = _attach(store, tmp_path, "club/karate@1", names, lb, "thirds")
+    calls = []
+    real = repo.decode_node_ids
+    monkeypatch.setattr(repo, "decode_node_ids", lambda *a: calls.append(1) or real(*a))
+    d = diffs.diff_runs(store, ra, rb)
+    assert len(calls) == 1
+    assert d["ari"] == pytest.approx(adjusted_rand_score(la, lb), abs=1e-12)
+    calls.clear()
+    diffs.track(store, [ra, rb, ra])
+    assert len(calls) == 1

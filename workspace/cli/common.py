@@ -68,6 +68,31 @@ def session(args, *, writes: bool = False, create: bool | None = None):
         store.dispose()
 
 
+@contextmanager
+def read_session(args):
+    """:func:`session` for the listings of :mod:`workspace.services.quickread`: yields ``(store, out)``
+    where ``store`` is a :class:`~workspace.services.quickread.QuickStore` (plain sqlite3, no
+    SQLAlchemy to load) when the store allows it, else the full store from :func:`session`. Pass it
+    only to the ``quickread`` functions, which fall back to the full services themselves."""
+    from workspace.services import quickread
+
+    out = Out(bool(getattr(args, "json", False)))
+    explicit = _explicit_store(args)
+    store = quickread.open_quick(explicit, notify=out.note, user=getattr(args, "user", None))
+    if store is None:
+        with session(args) as pair:
+            yield pair
+        return
+    try:
+        if explicit is None:
+            hint = demo_hint(args)
+            if hint and quickread.is_empty(store):
+                out.note(f"cutbook: {hint}")
+        yield store, out
+    finally:
+        store.dispose()
+
+
 def _is_empty(store) -> bool:
     from workspace.services.networks import list_projects
 
@@ -126,4 +151,4 @@ def progress_bar(enabled: bool = True):
         bar.close()
 
 
-__all__ = ["confirmed", "session", "progress_bar", "warm_imports", "emit_json", "Out", "demo_hint"]
+__all__ = ["confirmed", "session", "read_session", "progress_bar", "warm_imports", "emit_json", "Out", "demo_hint"]

@@ -90,9 +90,10 @@ def _print_import(args, out, res) -> int:
 
 
 def cmd_projects(args) -> int:
-    from workspace.services.networks import list_projects
+    from workspace.cli.common import read_session
+    from workspace.services.quickread import list_projects
 
-    with session(args) as (store, out):
+    with read_session(args) as (store, out):
         rows = list_projects(store)
         if args.json:
             emit_json(rows)

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 
-from workspace.cli.common import emit_json, progress_bar, session
+from workspace.cli.common import emit_json, progress_bar, read_session, session
 from workspace.cli.output import fmt, fmt_spectrum
 
 SCALAR_MEASURES = ("modularity", "normalized_cut", "conductance", "ratio_cut", "cut", "coverage")
@@ -98,19 +98,19 @@ def cmd_attach(args) -> int:
 
 
 def cmd_runs(args) -> int:
-    from workspace.services import browse
+    from workspace.services import quickread
 
-    with session(args) as (store, out):
-        rows = browse.ledger_runs(store, args.ref, status=args.status, text=args.filter, sort=args.sort,
-                                  descending=args.descending, limit=args.limit)
+    with read_session(args) as (store, out):
+        rows = quickread.ledger_runs(store, args.ref, status=args.status, text=args.filter, sort=args.sort,
+                                     descending=args.descending, limit=args.limit)
         if not rows and args.ref:  # an empty listing must not hide a mistyped project or network
-            browse.check_scope(store, args.ref)
+            quickread.check_scope(store, args.ref)
         if args.json:
             emit_json(rows)
         elif not rows:
             out.line("no runs" + (f" matching {args.filter!r}" if args.filter else ""))
         else:
-            measure = args.sort if args.sort in browse.LEDGER_MEASURES else "modularity"
+            measure = args.sort if args.sort in quickread.LEDGER_MEASURES else "modularity"
             extra = ["conductance"] if measure == "modularity" else []
             out.table(["run", "status", "method", "version", "k", "parameter set", measure.replace("_", " "),
                        *extra, "started", "by"],
@@ -130,14 +130,14 @@ def _set_name(ref: str | None) -> str | None:
 
 def show_run(args) -> int:
     from workspace.errors import UsageError
-    from workspace.services import runs as svc
+    from workspace.services import quickread
 
     try:
         run_id = int(args.target)
     except ValueError:
         raise UsageError(f"not a run id or a network reference: {args.target!r}") from None
-    with session(args) as (store, out):
-        res = svc.show_run(store, run_id)
+    with read_session(args) as (store, out):
+        res = quickread.show_run(store, run_id)
         if args.json:
             emit_json(res)
             return 0

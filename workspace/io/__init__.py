@@ -273,6 +273,6 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
         from workspace.io.node_link import read_node_link
         records = read_node_link(path, data, policy, progress)
     del data
-    graph, report = canonicalise(records, policy, progress, on_graph=on_graph)
+    graph, report = canonicalise(records, policy, progress, on_graph=on_graph, consume=True)
     report_progress(progress, "report", 1, 1)
     return graph, report

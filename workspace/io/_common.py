@@ -180,7 +180,13 @@ class EdgeRecords:
 
     @property
     def n_records(self) -> int:
-        return int(len(self.source))
+        return int(len(self.source)) if self.source is not None else self._released_count
+
+    def release_columns(self) -> None:
+        """Drop the id columns (the largest part of the records) once they are encoded; the
+        record count, weights and line lookup stay."""
+        self._released_count = self.n_records
+        self.source = self.target = self.extra_nodes = None
 
     def error(self, index: int, message: str, *, node: bool = False) -> InputError:
         """InputError for record ``index`` (or declared node ``index``), with its line."""

@@ -11,7 +11,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from workspace.domain import NODE_ID_DTYPE, GraphData, ImportPolicy, ImportReport
+from workspace.domain import GraphData, ImportPolicy, ImportReport
 from workspace.errors import InputError
 from workspace.io._common import EdgeRecords, Progress, first_cast_failure, report_progress
 
@@ -93,34 +93,57 @@ def _chunks(values: pa.Array | pa.ChunkedArray) -> list[pa.Array]:
 def _string_array_to_numpy(values: pa.Array) -> np.ndarray:
     """A pyarrow string array as a numpy ``str`` array (same values, width of the longest).
 
-    ASCII data is widened byte -> UCS4 code unit straight from Arrow's offset and data buffers;
-    anything else goes through Python ``str`` objects.
+    Straight from Arrow's offset and UTF-8 data buffers through the chunked node-id decoder
+    (:func:`workspace.domain.decode_node_ids`): no Python ``str`` per id, for any id length.
     """
+    from workspace.domain import decode_node_ids
+
     n = len(values)
     if n == 0:
         return np.array([], dtype="<U1")
+    if values.type not in (pa.string(), pa.large_string()):
+        values = values.cast(pa.string())
     offset_type = np.int64 if values.type == pa.large_string() else np.int32
     buffers = values.buffers()
     offsets = np.frombuffer(buffers[1], dtype=offset_type, count=n + 1,
                             offset=values.offset * np.dtype(offset_type).itemsize).astype(np.int64)
-    data = (np.frombuffer(buffers[2], dtype=np.uint8)[offsets[0]:offsets[-1]]
+    data = (np.frombuffer(buffers[2], dtype=np.uint8)
             if buffers[2] is not None else np.zeros(0, dtype=np.uint8))
-    lengths = np.diff(offsets)
-    width = max(int(lengths.max()), 1)
-    if (data.size and int(data.max()) >= 0x80) or width * n > (1 << 28):
-        return np.asarray(values.to_numpy(zero_copy_only=False), dtype=NODE_ID_DTYPE)
-    units = np.zeros((n, width), dtype=np.uint32)
-    units[np.arange(width)[None, :] < lengths[:, None]] = data
-    return units.view(f"<U{width}").reshape(n)
+    return decode_node_ids(offsets, data)
+
+
+#: records from which the two endpoint columns are hashed on two threads (Arrow's kernels
+#: release the interpreter lock); below it one pass is quicker than the extra merge
+_PARALLEL_ENCODE_FROM = 1 << 20
+
+
+def _dictionary_encode(parts: list[pa.Array]) -> tuple[pa.Array, list[np.ndarray]]:
+    """One pass of Arrow's hash kernel over ``parts``: (distinct ids in order of first
+    appearance, int32 codes of each part into them)."""
+    if not parts:
+        return pa.array([], pa.string()), []
+    encoded = pc.dictionary_encode(pa.chunked_array(parts, type=pa.string()))
+    chunks = encoded.chunks
+    dictionary = chunks[-1].dictionary if chunks else pa.array([], pa.string())
+    # The kernel shares one hash table across chunks, so every chunk's dictionary is a
+    # prefix of the last one; if that ever changes, unify explicitly.
+    if any(c.dictionary is not dictionary and not c.dictionary.equals(
+            dictionary.slice(0, len(c.dictionary))) for c in chunks):
+        chunks = pa.table({"id": encoded}).unify_dictionaries().column("id").chunks
+        dictionary = chunks[0].dictionary
+    return dictionary, [c.indices.to_numpy(zero_copy_only=False) for c in chunks]
 
 
 def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.ChunkedArray,
                extra: pa.Array | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Sorted unique ids and int64 indices of ``source`` and ``target`` into them.
+    """Sorted unique ids and indices of ``source`` and ``target`` into them (int32 while the
+    ids number fewer than 2**31, else int64).
 
-    One pass of Arrow's hash kernel (``dictionary_encode``) over the source,
-    target and declared-node columns gives each distinct id a code (the
-    distinct ids in order of first appearance). The distinct ids are sorted
+    Arrow's hash kernel (``dictionary_encode``) gives each distinct id of the
+    source, target and declared-node columns a code (the distinct ids in order
+    of first appearance). On large inputs the source column and the rest are
+    encoded on two threads and their two dictionaries merged by one more
+    (small) encoding of their concatenation. The distinct ids are sorted
     by Arrow's ``sort_indices``, which compares strings as UTF-8 bytes - for
     valid UTF-8 the same as code point order, the order of numpy ``str``
     arrays - and the codes are mapped through the inverse permutation
@@ -135,23 +158,55 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     """
     parts = _chunks(source) + _chunks(target) + ([extra] if extra is not None else [])
     parts = [p.cast(pa.string()) if p.type != pa.string() else p for p in parts]
-    encoded = pc.dictionary_encode(pa.chunked_array(parts, type=pa.string()))
-    chunks = encoded.chunks
-    dictionary = chunks[-1].dictionary if chunks else pa.array([], pa.string())
-    # The kernel shares one hash table across chunks, so every chunk's dictionary is a
-    # prefix of the last one; if that ever changes, unify explicitly.
-    if any(c.dictionary is not dictionary and not c.dictionary.equals(
-            dictionary.slice(0, len(c.dictionary))) for c in chunks):
-        chunks = pa.table({"id": encoded}).unify_dictionaries().column("id").chunks
-        dictionary = chunks[0].dictionary
+    n_source = len(_chunks(source))
+    m_source, m_target = len(source), len(target)
+    if m_source + m_target >= _PARALLEL_ENCODE_FROM and n_source and len(parts) > n_source:
+        import threading
+
+        halves: list = [None, None]
+
+        def encode_half(i: int, chunk_list: list[pa.Array]) -> None:
+            try:
+                halves[i] = _dictionary_encode(chunk_list)
+            except BaseException as exc:  # noqa: BLE001 - re-raised on the caller's thread
+                halves[i] = exc
+
+        helper = threading.Thread(target=encode_half, args=(1, parts[n_source:]),
+                                  name="cutbook-encode-ids", daemon=True)
+        helper.start()
+        encode_half(0, parts[:n_source])
+        helper.join()
+        for half in halves:
+            if isinstance(half, BaseException):
+                raise half
+        (dict_a, codes_a), (dict_b, codes_b) = halves
+        # the two dictionaries, merged: codes of each half's distinct ids in the merged one
+        dictionary, (map_a, map_b) = _dictionary_encode([dict_a, dict_b])
+        maps = [map_a] * len(codes_a) + [map_b] * len(codes_b)
+        codes = codes_a + codes_b
+    else:
+        dictionary, codes = _dictionary_encode(parts)
+        maps = [None] * len(codes)
     if len(dictionary) and pc.any(pc.match_substring(dictionary, "\x00")).as_py():
         raise InputError("a node id contains a NUL character, which is not supported")
     order = pc.sort_indices(dictionary).to_numpy()
-    rank = np.empty(order.size, dtype=np.int64)
-    rank[order] = np.arange(order.size, dtype=np.int64)
-    codes = [rank[chunk.indices.to_numpy(zero_copy_only=False)] for chunk in chunks]
-    all_codes = np.concatenate(codes) if codes else np.zeros(0, dtype=np.int64)
-    m_source, m_target = len(source), len(target)
+    # int32 indices whenever the ids fit (always, short of 2**31 distinct ids): half the memory
+    # and bandwidth of int64 in every step after this; pair keys are formed in int64
+    index_type = np.int32 if order.size < 2 ** 31 else np.int64
+    rank = np.empty(order.size, dtype=index_type)
+    rank[order] = np.arange(order.size, dtype=index_type)
+    rank_of = {}
+    all_codes = np.empty(sum(c.size for c in codes), dtype=index_type)
+    at = 0
+    for chunk_codes, mapping in zip(codes, maps):
+        if mapping is None:
+            table = rank
+        else:
+            table = rank_of.get(id(mapping))
+            if table is None:
+                table = rank_of[id(mapping)] = rank[mapping]
+        np.take(table, chunk_codes, out=all_codes[at:at + chunk_codes.size])
+        at += chunk_codes.size
     node_ids = _string_array_to_numpy(dictionary.take(pa.array(order)))
     return node_ids, all_codes[:m_source], all_codes[m_source:m_source + m_target]
 
@@ -308,7 +363,8 @@ def _symmetrise(key: np.ndarray, weight: np.ndarray, record: np.ndarray, n: int,
 
 
 def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
-                 progress: Progress = None, *, on_graph=None) -> tuple[GraphData, ImportReport]:
+                 progress: Progress = None, *, on_graph=None,
+                 consume: bool = False) -> tuple[GraphData, ImportReport]:
     """Apply the import policy to edge records and build the canonical graph.
 
     With ids sorted by code point (index ``i`` = position in that order) an
@@ -339,6 +395,9 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         Receives ``("canonicalise", step, 4)``.
     on_graph : callable or None, default None
         Called with the graph before the report is built.
+    consume : bool, default False
+        The caller is done with ``rec``'s id columns: they are released
+        (:meth:`EdgeRecords.release_columns`) once the ids are encoded.
 
     Returns
     -------
@@ -378,6 +437,13 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         node_ids, u, v = encode_ids(source, target, extra)
     except InputError as err:
         raise InputError(err.message, path=path) from None
+    del source, target, extra
+    if consume:
+        # the string columns are done with: free them before the merge and the report (peak
+        # memory); the record count stays known
+        rec.release_columns()
+        # Arrow's allocator keeps freed pages for reuse: hand them back before numpy's big steps
+        pa.default_memory_pool().release_unused()
     n = int(node_ids.size)
     weight = np.asarray(rec.weight, dtype=np.float64)
     # original record numbers are carried along only where an error may need a line
@@ -433,7 +499,7 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
                 record = np.concatenate([record, record[proper]])
             notes.append(f"direction kept: the file declares undirected edges; each of the "
                          f"{int(np.count_nonzero(proper))} edge(s) between two nodes read as two arcs")
-        key = u * n + v
+        key = u.astype(np.int64) * n + v
         key, weight, record, merged = merge_duplicates(key, weight, record, policy.duplicates,
                                                        on_duplicate, n * n)
         report_progress(progress, "canonicalise", 2, 4)
@@ -442,7 +508,7 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         if loops_kept:
             loops_kept = int(np.count_nonzero(key // n == key % n))
     elif rec.directed:
-        key = u * n + v
+        key = u.astype(np.int64) * n + v
         key, weight, record, merged = merge_duplicates(key, weight, record, policy.duplicates,
                                                        on_duplicate, n * n)
         report_progress(progress, "canonicalise", 2, 4)
@@ -463,7 +529,7 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         if loops_kept:
             loops_kept = int(np.count_nonzero(key // n == key % n))
     else:
-        key = np.minimum(u, v)
+        key = np.minimum(u, v).astype(np.int64)
         key *= n
         key += np.maximum(u, v)
         del u, v
@@ -507,11 +573,13 @@ def build_report(graph: GraphData, rec: EdgeRecords, records_read: int, loops_fo
 
     n, m = graph.n_nodes, graph.n_edges
     u, v, w = graph.edge_u, graph.edge_v, graph.weight
-    indptr = np.zeros(n + 1, dtype=np.int64)
+    # int32 indices while they fit: csgraph works on int32 and would otherwise convert a copy
+    index_type = np.int32 if max(n, m) < 2 ** 31 else np.int64
+    indptr = np.zeros(n + 1, dtype=index_type)
     np.cumsum(np.bincount(u, minlength=n), out=indptr[1:])
     # edges are sorted by (u, v): u and v already are CSR row order and column indices
     # float64 data: csgraph works in float64 and would otherwise convert a copy
-    adjacency = sp.csr_array((w, v, indptr), shape=(n, n))
+    adjacency = sp.csr_array((w, v.astype(index_type, copy=False), indptr), shape=(n, n))
     n_components, labels = connected_components(adjacency, directed=False)
     sizes = np.sort(np.bincount(labels, minlength=n_components))[::-1]
     proper = u != v

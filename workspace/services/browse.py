@@ -85,7 +85,7 @@ def outline(store: Store) -> list[dict[str, Any]]:
 # --- the ledger: runs with quality and parameter set, sorted and filtered --------------------------------
 
 #: scalar quality measures a ledger row carries (and can be sorted by), in display order
-LEDGER_MEASURES = ("modularity", "conductance", "normalized_cut", "ratio_cut", "coverage", "cut")
+from workspace.services.quickread import LEDGER_MEASURES  # noqa: E402 - one list for both read paths
 #: sort keys besides the measures: key -> (column, newest/largest first by default)
 LEDGER_SORTS = ("run", "started", "status", "method", "version", "k", "param_set") + LEDGER_MEASURES
 #: sort keys whose natural order is descending (higher is the interesting end)

@@ -25,11 +25,15 @@ import sqlite3
 from contextlib import contextmanager
 from datetime import datetime, timezone
 from pathlib import Path
-from typing import Iterator
+from typing import TYPE_CHECKING, Iterator
 
-from sqlalchemy import create_engine, event, inspect, text
-from sqlalchemy.engine import Engine, make_url
-from sqlalchemy.orm import Session, sessionmaker
+if TYPE_CHECKING:
+    from sqlalchemy.engine import Engine
+    from sqlalchemy.orm import Session
+
+# SQLAlchemy loads inside the functions that use it, so the path and file helpers here
+# (resolve_store_url, inspect_sqlite_file, HEAD_REVISION...) serve the sqlite3 read path of the
+# quick listings (workspace.services.quickread) without it.
 
 from workspace.errors import CutbookError, StoreError, UsageError
 from workspace.store import faults
@@ -98,6 +102,8 @@ def resolve_store_url(store: str | os.PathLike | None = None) -> str:
 
 def sqlite_file(url: str) -> Path | None:
     """The file of an SQLite store URL (None for in-memory or server databases)."""
+    from sqlalchemy.engine import make_url
+
     parsed = make_url(url)
     db = parsed.database
     if parsed.get_backend_name() != "sqlite" or not db or db == ":memory:" or db.startswith("file:"):
@@ -111,6 +117,8 @@ def display_name(url: str) -> str:
     if path is not None:
         return os.fspath(path)
     try:
+        from sqlalchemy.engine import make_url
+
         return make_url(url).render_as_string(hide_password=True)
     except Exception:  # noqa: BLE001 - a URL SQLAlchemy cannot parse is named as given, password masked
         return faults.redact(url)
@@ -187,6 +195,9 @@ def _make_engine(url: str, *, foreign_keys: bool = True, access: str = "rw") -> 
     reads only the main file: for read-only media, where nobody can be writing.
     Neither mode ever creates the file or its folder.
     """
+    from sqlalchemy import create_engine, event
+    from sqlalchemy.engine import make_url
+
     parsed = make_url(url)
     is_sqlite = parsed.get_backend_name() == "sqlite"
     kwargs: dict = {}
@@ -259,6 +270,8 @@ def head_revision() -> str:
 
 def _current_revision(conn) -> str | None:
     """The store's schema revision (None for a new, empty store), read with plain SQL."""
+    from sqlalchemy import inspect, text
+
     if not inspect(conn).has_table("alembic_version"):
         return None
     rows = conn.execute(text("SELECT version_num FROM alembic_version")).all()
@@ -281,6 +294,9 @@ class Store:
         self.user = user
         self.engine = engine
         self.readonly = readonly
+        from sqlalchemy import event
+        from sqlalchemy.orm import sessionmaker
+
         self.name = display_name(url)
         self._write_engine = engine.execution_options(cutbook_write=True)
         read_engine = engine
@@ -357,6 +373,8 @@ class Store:
 
 
 def _has_data(conn) -> bool:
+    from sqlalchemy import inspect, text
+
     names = set(inspect(conn).get_table_names())
     return "projects" in names and conn.execute(text("SELECT 1 FROM projects LIMIT 1")).first() is not None
 
