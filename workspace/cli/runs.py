@@ -156,8 +156,9 @@ def show_run(args) -> int:
             from workspace.services.members import run_members
             from workspace.services.nodes import labels_of
 
-            members = run_members(store, run_id, limit=3)
-            named = labels_of(store, [run_id], args.label_by, [n for c in members["communities"] for n in c["nodes"]])
+            full = store.full() if isinstance(store, quickread.QuickStore) else store
+            members = run_members(full, run_id, limit=3)
+            named = labels_of(full, [run_id], args.label_by, [n for c in members["communities"] for n in c["nodes"]])
             out.table(["community", "size", f"first members by {args.label_by}"],
                       [[c["community"], c["size"], ", ".join(named[n] for n in c["nodes"])
                         + (", …" if c["size"] > len(c["nodes"]) else "")] for c in members["communities"][:30]],

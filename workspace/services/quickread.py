@@ -260,6 +260,10 @@ def show_run(store, run_id: int, *, include_labels: bool = False) -> dict[str, A
         if eig_blob:
             codec, data, raw_size = con.execute("SELECT codec, data, raw_size FROM blobs WHERE hash = ?",
                                                 (eig_blob,)).fetchone()
+            if codec == "zstd-chunks":  # an array stored in pieces: the full services read it
+                from workspace.services import runs
+
+                return runs.show_run(store.full(), run_id)
             eig = decode_values(codec, data, raw_size)
         comms = con.execute("SELECT community, size, volume, cut, conductance, stability FROM run_communities "
                             "WHERE run_id = ? ORDER BY community", (run_id,)).fetchall()
