@@ -153,6 +153,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=["csv", "json", "graphml"], default="csv",
                    help="csv: node,community; json/graphml: nodes, edges, weights and each node's community")
     p.add_argument("-o", "--output", required=True, metavar="FILE", help="output file; '-' for standard output")
+    p.add_argument("--align-to", type=int, metavar="RUN",
+                   help="number the communities by their match in RUN (its shown labels; unmatched ones get fresh "
+                        "numbers)")
 
     p = add("where", "a node's community in every run of every version (of every network unless --network)",
             "runs", "cmd_where")

@@ -580,8 +580,15 @@ def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict
             "host": run.host, "pid": run.pid,
         })
         from workspace.services.annotations import current_for
+        from workspace.services.tracking import shown_map
 
         out.update(current_for(s, "run", [run.id]).get(run.id, {"tags": [], "notes": []}))
+        # what people see: the labels matched to the previous version's run (tracked runs), else the stored ones
+        out["shown_labels"] = shown_map(s, run.id)
+        shown = out["shown_labels"]["map"] if out["shown_labels"] else None
+        for row in out["communities"]:
+            c = row["community"]
+            row["shown"] = shown[c] if shown is not None and 0 <= c < len(shown) else c
         if run.started_at and run.finished_at:
             out["wall_time_s"] = (run.finished_at - run.started_at).total_seconds()
         if include_labels and run.membership_blob:
@@ -618,16 +625,21 @@ def write_atomically(target: str, body: bytes) -> None:
 
 
 def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: str = "csv",
-               stream=None) -> dict[str, Any]:
+               stream=None, align_to: int | None = None) -> dict[str, Any]:
     """Write a run's membership as CSV ``node,community``, or the network with it (node-link JSON, GraphML).
 
     JSON and GraphML carry every node of the run's network version, its edges with their
     weights, and each node's community. ``stream`` (a text file object) receives the text
-    instead of ``path`` (the CLI's ``-o -``).
+    instead of ``path`` (the CLI's ``-o -``). ``align_to`` (a run id) numbers the communities by
+    their match in that run (see :func:`workspace.services.tracking.aligned_labels`).
     """
     from workspace.io import membership_text
 
     node_ids, labels, summary = load_membership(store, run_id)
+    if align_to is not None:
+        from workspace.services.tracking import aligned_labels
+
+        labels = aligned_labels(store, run_id, align_to)
     graph = None
     if format in ("json", "graphml"):
         with store.read() as s:
@@ -641,7 +653,8 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
     else:
         write_atomically(target, text.encode("utf-8"))
     return {"run": run_id, "path": target, "format": format, "nodes": int(labels.shape[0]),
-            "with_community": count, "edges": edges, "membership_hash": summary["membership_hash"]}
+            "with_community": count, "edges": edges, "membership_hash": summary["membership_hash"],
+            "aligned_to": align_to}
 
 
 def _networks_holding(store: Store, node: str, *, exclude: str) -> list[str]:
