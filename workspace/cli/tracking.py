@@ -82,13 +82,13 @@ def print_update_list(out, rows: list[dict]) -> None:
     for u in rows:
         for i, st in enumerate(u["sets"] or [{}]):
             sm = st.get("summary") or {}
-            table.append((u["update"] if i == 0 else "", u["ref"] if i == 0 else "", u["status"] if i == 0 else "",
-                          st.get("params", "-"), st.get("status", "-"), st.get("run") or "-",
-                          st.get("previous_run") or "-", fmt(sm.get("ari")) if sm else "-",
-                          sm.get("moved", "-") if sm else "-", _events_text(sm.get("events")) if sm else "-"))
-    out.table(["update", "version", "status", "tracked set", "run status", "run", "against", "ARI", "moved",
-               "events"], table, right=["update", "run", "against", "ARI", "moved"],
-              title="updates, latest first")
+            status = u["status"] if st.get("status") in (None, u["status"]) else f"{u['status']}: {st['status']}"
+            table.append((u["update"] if i == 0 else "", u["ref"] if i == 0 else "", st.get("params", "-"),
+                          status, st.get("run") or "-", st.get("previous_run") or "-",
+                          fmt(sm.get("ari")) if sm else "-", sm.get("moved", "-") if sm else "-",
+                          _events_text(sm.get("events"), changes_only=True) if sm else "-"))
+    out.table(["update", "version", "tracked set", "status", "run", "vs", "ARI", "moved", "changes"], table,
+              right=["update", "run", "vs", "ARI", "moved"], title="updates, latest first")
 
 
 def _events_text(kinds: dict | None, changes_only: bool = False) -> str:
