@@ -218,3 +218,20 @@ def test_shown_labels_of_a_tracked_run_follow_the_previous_run(store, tmp_path, 
     runs.export_run(store, st["run"], out, align_to=st["previous_run"])
     rows = dict(line.split(",") for line in out.read_text().splitlines()[1:])
     assert all(int(rows[v]) == mapping[int(c)] for v, c in zip(new_ids.tolist(), new.tolist()))
+
+
+def test_deleting_a_tracked_run_or_the_network_leaves_nothing_dangling(store, tmp_path, tracked):
+    from workspace.services import delete
+
+    names, _ = tracked
+    outcome = _import(store, tmp_path, _planted(5), names, "v2")
+    upd = tracking.update_after_import(store, outcome)
+    gone = upd["sets"][0]["run"]
+    delete.delete_runs(store, [gone])
+    after = tracking.show_update(store, upd["update"])
+    assert after["sets"][0]["run"] is None and after["sets"][1]["run"] == upd["sets"][1]["run"]
+    assert tracking.change_report(store, upd["update"])["sets"][0]["diff"] is None
+    delete.delete_target(store, "city/roads")
+    assert tracking.list_updates(store) == []
+    with pytest.raises(NotFoundError):
+        tracking.list_tracked(store, "city/roads")
