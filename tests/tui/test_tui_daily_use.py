@@ -911,3 +911,34 @@ def test_tui_updates_opens_the_diff_of_the_set(demo_path):
             assert app.screen.query_one("#diff-b", Input).value == str(st["run"])
 
     asyncio.run(go())
+
+
+def test_tui_updates_tracks_and_untracks_a_set(demo_copy):
+    """The Updates screen's top row: a parameter set typed in the box is tracked on the chosen network
+    (enter), and ctrl+o stops tracking it; the store's list says the same."""
+    from textual.widgets import Input, Select
+
+    from workspace.services import tracking
+
+    async def go():
+        async with workspace(demo_copy, (80, 24)) as (app, pilot):
+            await pilot.press("7")
+            await settle(app, pilot)
+            screen = app.screen
+            on_screen(app, screen.query_one("#updates-network"), min_width=20)
+            on_screen(app, screen.query_one("#updates-params"), min_width=20)
+            assert screen.query_one("#updates-network", Select).value == "velmora-bikes/stations"
+            await pilot.press("ctrl+f")  # the set box, from the table
+            assert app.focused is screen.query_one("#updates-params", Input)
+            await pilot.press(*"velmora-bikes/two-banks", "enter")
+            await settle(app, pilot)
+            names = [t["params"] for t in tracking.list_tracked(app.store, "velmora-bikes/stations")["tracked"]]
+            assert names == ["velmora-bikes/districts@1", "velmora-bikes/two-banks@1"]
+            assert "two-banks@1" in static_text(screen.query_one("#updates-tracked"))
+            await pilot.press("ctrl+o")
+            await settle(app, pilot)
+            names = [t["params"] for t in tracking.list_tracked(app.store, "velmora-bikes/stations")["tracked"]]
+            assert names == ["velmora-bikes/districts@1"]
+            on_screen(app, screen.query_one("#updates-network"), min_width=20)
+
+    asyncio.run(go())

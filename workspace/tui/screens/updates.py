@@ -3,7 +3,8 @@
 The upper pane lists every update, latest first, one row per tracked set; the lower pane holds the
 change report of the row under the cursor (scores, node changes, events and moved nodes, with
 communities shown by their match in the previous version's run, each in its colour) and the sets the
-network tracks. The report is read in a worker thread (a diff of a large network takes a moment).
+network tracks. The top row adds (enter or ctrl+t) and removes (ctrl+o) a tracked parameter set of
+the chosen network. Reads and writes run in worker threads (a diff of a large network takes a moment).
 """
 
 from __future__ import annotations
@@ -14,8 +15,9 @@ from rich.text import Text
 from textual import on, work
 from textual.app import ComposeResult
 from textual.binding import Binding
+from textual.containers import Horizontal
 from textual.screen import Screen
-from textual.widgets import Static
+from textual.widgets import Input, Label, Select, Static
 
 from workspace.tui import palette
 from workspace.tui.widgets.chrome import Pane, ScreenBar, ScreenFooter, ScrollPane
@@ -126,7 +128,12 @@ class UpdatesScreen(Screen):
 
     TITLE = "Updates"
     BINDINGS = [Binding("ctrl+r", "reload", "Reload", tooltip="read the updates again"),
-                Binding("ctrl+d", "open_diff", "Diff", tooltip="open the Diff screen on this set's two runs")]
+                Binding("ctrl+d", "open_diff", "Diff", tooltip="open the Diff screen on this set's two runs"),
+                Binding("ctrl+f", "set_box", "Set box", priority=True, tooltip="type a parameter set to track"),
+                Binding("ctrl+t", "track", "Track", priority=True,
+                        tooltip="track the parameter set typed in the box on the chosen network"),
+                Binding("ctrl+o", "untrack", "Untrack", priority=True,
+                        tooltip="stop tracking the parameter set typed in the box (its runs are kept)")]
 
     def __init__(self) -> None:
         super().__init__(id="updates")
@@ -135,6 +142,11 @@ class UpdatesScreen(Screen):
 
     def compose(self) -> ComposeResult:
         yield ScreenBar("updates")
+        with Horizontal(id="updates-top", classes="field-row"):
+            yield Label("network", classes="name short")
+            yield Select([], prompt="network", id="updates-network", compact=True)
+            yield Label("set", classes="name short")
+            yield Input("", id="updates-params", placeholder="P/NAME[@V]: enter tracks, ^o untracks", compact=True)
         with Pane(title="Updates, latest first", id="updates-list-pane"):
             yield PagedTable(UPDATE_COLUMNS, id="updates-table",
                              empty_text="no updates yet: track a parameter set (cutbook track add) and import "
@@ -146,6 +158,7 @@ class UpdatesScreen(Screen):
 
     def on_mount(self) -> None:
         self.load()
+        self.load_networks()
 
     def on_screen_resume(self) -> None:
         self.query_one("#updates-table", PagedTable).focus()
@@ -191,9 +204,97 @@ class UpdatesScreen(Screen):
     def _show_report(self, report: dict[str, Any], position: int, tracked: dict[str, Any]) -> None:
         self.report, self.position = report, position
         self.query_one("#updates-report", Static).update(report_text(report, position))
+        self._show_tracked(tracked)
+        sel = self.query_one("#updates-network", Select)
+        if sel.value != report["network"] and report["network"] in self._networks:
+            sel.value = report["network"]
+
+    def _show_tracked(self, tracked: dict[str, Any]) -> None:
         names = [t["params"] for t in tracked["tracked"]]
         self.query_one("#updates-tracked", Static).update(
             Text(f"\n{tracked['network']} tracks: " + (", ".join(names) or "nothing now"), style=MUTED))
+
+    # --- tracked sets of the chosen network ----------------------------------------------------------
+
+    _networks: list[str] = []
+
+    @work(thread=True, exclusive=True, group="updates-networks", exit_on_error=False)
+    def load_networks(self) -> None:
+        from workspace.services.browse import outline
+
+        try:
+            nets = [n["ref"] for p in outline(self.app.store) for n in p["networks"]]
+        except Exception as exc:  # noqa: BLE001
+            self.app.call_from_thread(self.app.report, exc)
+            return
+        self.app.call_from_thread(self._set_networks, nets)
+
+    def _set_networks(self, nets: list[str]) -> None:
+        self._networks = nets
+        sel = self.query_one("#updates-network", Select)
+        current = sel.value
+        sel.set_options([(n, n) for n in nets])
+        if current in nets:
+            sel.value = current
+        elif self.report is not None and self.report["network"] in nets:
+            sel.value = self.report["network"]
+        elif len(nets) == 1:
+            sel.value = nets[0]
+
+    @on(Select.Changed, "#updates-network")
+    def _network_chosen(self, event: Select.Changed) -> None:
+        if isinstance(event.value, str):
+            self.change_tracked(event.value, None, None)
+
+    @on(Input.Submitted, "#updates-params")
+    def _submitted(self, event: Input.Submitted) -> None:
+        self.action_track()
+
+    def _target(self) -> tuple[str, str] | None:
+        net = self.query_one("#updates-network", Select).value
+        params = self.query_one("#updates-params", Input).value.strip()
+        if not isinstance(net, str):
+            self.notify("choose a network first", severity="error")
+            return None
+        if not params:
+            self.notify("type a parameter set: PROJECT/NAME or PROJECT/NAME@V", severity="error")
+            self.query_one("#updates-params", Input).focus()
+            return None
+        return net, params
+
+    def action_set_box(self) -> None:
+        self.query_one("#updates-params", Input).focus()
+
+    def action_track(self) -> None:
+        target = self._target()
+        if target is not None:
+            self.change_tracked(*target, "add")
+
+    def action_untrack(self) -> None:
+        target = self._target()
+        if target is not None:
+            self.change_tracked(*target, "remove")
+
+    @work(thread=True, exclusive=True, group="updates-track", exit_on_error=False)
+    def change_tracked(self, network: str, params: str | None, how: str | None) -> None:
+        """Add or remove a tracked set (``how``), or only read the list (``how`` None)."""
+        from workspace.services import tracking
+
+        try:
+            if how == "add":
+                res = tracking.add_tracked(self.app.store, network, params)
+                note = f"tracking {res['added']['params']} on {network}: each new version runs it"
+            elif how == "remove":
+                res = tracking.remove_tracked(self.app.store, network, params)
+                note = f"no longer tracking {', '.join(res['removed'])} on {network} (its runs are kept)"
+            else:
+                res, note = tracking.list_tracked(self.app.store, network), None
+        except Exception as exc:  # noqa: BLE001
+            self.app.call_from_thread(self.app.report, exc)
+            return
+        self.app.call_from_thread(self._show_tracked, res)
+        if note:
+            self.app.call_from_thread(self.notify, note)
 
     def action_open_diff(self) -> None:
         if self.report is None:
