@@ -235,3 +235,23 @@ def test_deleting_a_tracked_run_or_the_network_leaves_nothing_dangling(store, tm
     assert tracking.list_updates(store) == []
     with pytest.raises(NotFoundError):
         tracking.list_tracked(store, "city/roads")
+
+
+def test_an_update_whose_process_vanished_is_shown_interrupted(store, tracked):
+    """An update left ``running`` by a process that is gone reads as ``interrupted`` (process identity as for
+    runs: pid plus its start time from /proc, common practice on Linux)."""
+    import socket
+    import subprocess
+    import sys
+
+    from workspace.store.schema import NetworkVersion, TrackedUpdate
+    from workspace.store import repo
+
+    child = subprocess.run([sys.executable, "-c", "import os; print(os.getpid())"], capture_output=True, text=True)
+    dead_pid = int(child.stdout)
+    with store.write() as s:
+        v = s.query(NetworkVersion).first()
+        s.add(TrackedUpdate(network_id=v.network_id, version_id=v.id, trigger="request", status="running",
+                            started_at=repo.utcnow(), host=socket.gethostname(), pid=dead_pid,
+                            process_token=f"{dead_pid}:0"))
+    assert tracking.list_updates(store)[0]["status"] == "interrupted"

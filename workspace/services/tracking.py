@@ -19,12 +19,15 @@ before along that chain. The renumbering of a tracked run is stored with its upd
 from __future__ import annotations
 
 import json
+import os
+import socket
 from typing import TYPE_CHECKING, Any, Callable
 
 from sqlalchemy import select
 
 from workspace.domain import VersionRef
 from workspace.errors import Cancelled, ConflictError, CutbookError, NotFoundError, UsageError
+from workspace.services.liveness import _process_alive, _process_token
 from workspace.store.db import Store
 from workspace.store.schema import (
     Network, NetworkVersion, ParamSet, ParamSetVersion, Project, Run, TrackedSet, TrackedUpdate,
@@ -257,8 +260,10 @@ def run_update(store: Store, ref: str, *, trigger: str = "request", progress: Pr
         parent = s.get(NetworkVersion, v.parent_id) if v.parent_id else None
         previous_version_id = max(prev_versions, default=None) or (parent.id if parent else None)
     with store.write() as s:
+        pid = os.getpid()
         upd = TrackedUpdate(network_id=net_id, version_id=version_id, previous_version_id=previous_version_id,
-                            trigger=trigger, status="running", started_at=repo.utcnow())
+                            trigger=trigger, status="running", started_at=repo.utcnow(),
+                            host=socket.gethostname(), pid=pid, process_token=_process_token(pid))
         s.add(upd)
         s.flush()
         update_id = upd.id
@@ -362,8 +367,12 @@ def _update_head(s, u: TrackedUpdate) -> dict[str, Any]:
     name = f"{proj.name}/{net.name}"
     v = s.get(NetworkVersion, u.version_id)
     prev = s.get(NetworkVersion, u.previous_version_id) if u.previous_version_id else None
+    status = u.status
+    if status == "running" and u.host == socket.gethostname() and u.pid is not None \
+            and not _process_alive(u.pid, u.process_token):
+        status = "interrupted"  # its process is gone (as for runs; read-only: the record is not rewritten)
     return {"update": u.id, "network": name, "ref": f"{name}@{v.number}", "version": v.number,
-            "previous": f"{name}@{prev.number}" if prev else None, "trigger": u.trigger, "status": u.status,
+            "previous": f"{name}@{prev.number}" if prev else None, "trigger": u.trigger, "status": status,
             "started": u.started_at.isoformat(timespec="seconds"),
             "finished": u.finished_at.isoformat(timespec="seconds") if u.finished_at else None,
             "by": u.created_by}

@@ -328,7 +328,7 @@ class Embedding(Base):
 
 # --- tracked parameter sets and updates (revision 0007) ------------------------------------------
 
-UPDATE_STATUSES = ("running", "done", "failed", "cancelled")
+UPDATE_STATUSES = ("running", "done", "failed", "cancelled", "interrupted")
 UPDATE_TRIGGERS = ("import", "request")
 
 
@@ -352,12 +352,13 @@ class TrackedSet(Base):
 class TrackedUpdate(Base):
     """One update: every tracked set run on one version (after an import, or on request).
 
-    Written as ``running`` before the first run, then moved once to its outcome.
+    Written as ``running`` before the first run, then moved once to its outcome. An update whose
+    process vanished (``host``/``pid``/``process_token`` as for runs) is shown as ``interrupted``.
     """
 
     __tablename__ = "tracked_updates"
     __table_args__ = (
-        CheckConstraint("status IN ('running', 'done', 'failed', 'cancelled')", name="status_known"),
+        CheckConstraint("status IN ('running', 'done', 'failed', 'cancelled', 'interrupted')", name="status_known"),
         CheckConstraint("trigger IN ('import', 'request')", name="trigger_known"),
     )
 
@@ -371,6 +372,9 @@ class TrackedUpdate(Base):
     started_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
     finished_at: Mapped[datetime | None] = mapped_column(DateTime(timezone=True), nullable=True)
     created_by: Mapped[str | None] = mapped_column(String(200), nullable=True)
+    host: Mapped[str | None] = mapped_column(String(255), nullable=True)
+    pid: Mapped[int | None] = mapped_column(Integer, nullable=True)
+    process_token: Mapped[str | None] = mapped_column(String(64), nullable=True)
 
 
 class TrackedUpdateRun(Base):
