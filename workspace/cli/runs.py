@@ -201,6 +201,7 @@ def cmd_where(args) -> int:
         out.table(cols,
                   [[r["run"]] + ([r["network"]] if several else [])
                    + [r["version"], r["method"] if r["kind"] == "computed" else f"attached:{r['label']}",
-                      r["community"] if r["present"] else "(absent)", r["community_size"], r["stability"]]
+                      r.get("shown_community", r["community"]) if r["present"] else "(absent)", r["community_size"],
+                      r["stability"]]
                    for r in res["runs"]], right=["run", "version", "community", "size", "stability"])
     return 0

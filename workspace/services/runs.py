@@ -686,6 +686,7 @@ def where_node(store: Store, node: str, network: str | None = None) -> dict[str,
     import numpy as np
 
     from workspace.services.suggest import MAX_SUGGESTIONS, close_node_ids, hint
+    from workspace.services.tracking import shown_map
 
     vref = None
     if network is not None:
@@ -721,11 +722,14 @@ def where_node(store: Store, node: str, network: str | None = None) -> dict[str,
                 for run in runs:
                     entry = {"run": run.id, "network": name, "version": v.number, "method": run.method,
                              "kind": run.kind, "label": run.label, "k": run.k, "present": found,
-                             "community": None, "community_size": None, "stability": None}
+                             "community": None, "shown_community": None, "community_size": None, "stability": None}
                     if found:
                         labels = repo.get_array(s, run.membership_blob)
                         c = int(labels[pos])
                         entry["community"] = c if c >= 0 else None
+                        shown = shown_map(s, run.id) if c >= 0 else None  # a tracked run's label as people see it
+                        entry["shown_community"] = shown["map"][c] if shown and c < len(shown["map"]) else \
+                            entry["community"]
                         if c >= 0:
                             entry["community_size"] = int((labels == c).sum())
                         if run.stability_blob:
