@@ -7,7 +7,7 @@ from pathlib import Path
 from typing import Callable
 
 from workspace.domain import ImportPolicy
-from workspace.services import networks, params, runs, sweeps
+from workspace.services import networks, params, runs, sweeps, tracking
 from workspace.store.db import Store
 
 from . import scenario
@@ -92,4 +92,24 @@ def build_demo(store: Store, *, say: Callable[[str], None] = lambda s: None) -> 
                 ids[f"riding-areas k={point['k']} repeat {repeat}@4"] = run_id
         say(f"sweep {sw['sweep']}: njw k=2..10 x 5 seeds on {sw['ref']} ({sw['tasks']['done']} runs) -> "
             f"recommended k={sw['recommended_k']}")
+
+        # the update loop: the eigengap districts are tracked, so importing July's trips re-runs them on
+        # the new version and reports what changed since June (Cinder Bridge reopens)
+        tracking.add_tracked(store, f"{CITY}/stations", f"{CITY}/districts@1")
+        say(f"tracking {CITY}/districts@1 on {CITY}/stations")
+        f = tmp / f"trips-{scenario.UPDATE_MONTH}.csv"
+        scenario.bike_trips(scenario.UPDATE_MONTH).to_csv(f)
+        note = "July trips: Cinder Bridge reopens, two more Lantern Wharf stations"
+        res = networks.import_network(store, f, project=CITY, network="stations", policy=policy, message=note,
+                                      source_label=f.name)
+        say(f"imported {res.ref}: {res.nodes} stations, {res.edges} station pairs — {note}")
+        upd = tracking.update_after_import(store, res, say=say)
+        summary["updates"] = {"july": upd["update"]}
+        for st in upd["sets"]:
+            ids[f"districts@{res.version}"] = st["run"]
+            sm = st["summary"] or {}
+            say(f"update {upd['update']}: {st['params']} run {st['run']} against run {st['previous_run']}: "
+                f"ARI {sm.get('ari', float('nan')):.4g}, moved {sm.get('moved')}, "
+                f"+{sm.get('nodes_added')}/-{sm.get('nodes_removed')} stations, events "
+                + ", ".join(f"{n} {k}" for k, n in (sm.get("events") or {}).items()))
     return summary

@@ -5,7 +5,8 @@ Velmora bike share
     Monthly trip counts between stations form a weighted network, one version
     per month: March (baseline), April (more riders), May (the new Lantern
     Wharf district opens with its stations), June (Cinder Bridge closes for
-    repairs, so trips across the river there collapse).
+    repairs, so trips across the river there collapse). July (``UPDATE_MONTH``) is the month the
+    demo imports through the update loop: the bridge reopens and Lantern Wharf gets two more stations.
 
 Orrin Hollow lab
     Co-working ties (shared projects) between coded staff ("S-014") of an
@@ -38,6 +39,8 @@ NEIGHBOURS = {("Old Quay", "Millbrook"), ("Millbrook", "Quarry Hill"), ("Quarry 
               ("Lantern Wharf", "Eastgate"), ("Lantern Wharf", "Saltmarsh")}
 CINDER_BRIDGE = ("Tannery Row", "Ferrow Park")
 MONTHS = ("2026-03", "2026-04", "2026-05", "2026-06")
+#: the month imported last, through the update loop (tracked sets re-run, change report)
+UPDATE_MONTH = "2026-07"
 
 
 @dataclass(frozen=True)
@@ -70,6 +73,8 @@ def stations(month: str) -> dict[str, str]:
     if month >= "2026-05":
         districts[NEW_DISTRICT[0]] = NEW_DISTRICT[1:]
     for name, (_bank, count) in districts.items():
+        if name == NEW_DISTRICT[0] and month >= UPDATE_MONTH:
+            count += 2  # two more Lantern Wharf stations open in July
         for i in range(1, count + 1):
             out[f"{_code(name)}-{i:02d}"] = name
     return out
@@ -77,19 +82,19 @@ def stations(month: str) -> dict[str, str]:
 
 def bike_trips(month: str) -> EdgeTable:
     """Trips between stations during ``month`` (deterministic)."""
-    rng = np.random.default_rng([SEED, MONTHS.index(month)])
+    rng = np.random.default_rng([SEED, (*MONTHS, UPDATE_MONTH).index(month)])
     st = stations(month)
     ids = sorted(st)
     district = np.array([st[s] for s in ids])
     n = len(ids)
-    growth = {"2026-03": 1.0, "2026-04": 1.25, "2026-05": 1.3, "2026-06": 1.3}[month]
+    growth = {"2026-03": 1.0, "2026-04": 1.25, "2026-05": 1.3, "2026-06": 1.3, UPDATE_MONTH: 1.35}[month]
     i, j = np.triu_indices(n, k=1)
     same = district[i] == district[j]
     pair = [tuple(sorted((district[a], district[b]))) for a, b in zip(i, j)]
     near = np.array([p in NEIGHBOURS or (p[1], p[0]) in NEIGHBOURS for p in pair])
     bridge = np.array([set(p) == set(CINDER_BRIDGE) for p in pair])
-    # riders treat Tannery Row and Ferrow Park as one area while Cinder Bridge is open
-    open_bridge = bridge & (month < "2026-06")
+    # riders treat Tannery Row and Ferrow Park as one area while Cinder Bridge is open (closed in June only)
+    open_bridge = bridge & (month != "2026-06")
     rate = np.where(same | open_bridge, 9.0, np.where(near, 0.9, 0.08)) * growth
     # a station pair gets a trip count only if riders use it at all this month
     used = rng.random(i.shape[0]) < np.where(same, 0.75, np.where(open_bridge, 0.6, np.where(near, 0.22, 0.03)))

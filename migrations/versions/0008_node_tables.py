@@ -1,11 +1,10 @@
 """node attribute tables: typed columns of node data stored with a network version
 
 Self-contained: creates two new tables (node_tables, node_table_columns) and their indexes; no existing
-table changes. The columns' arrays are ordinary blobs. Follows 0005 on this branch; other revisions
-(0006, 0007) may be merged before it, in which case ``down_revision`` is renumbered at merge.
+table changes. The columns' arrays are ordinary blobs.
 
 Revision ID: 0008
-Revises: 0006
+Revises: 0007
 Create Date: 2026-12-02 14:50:00
 """
 from __future__ import annotations
@@ -15,7 +14,7 @@ import sqlalchemy as sa
 
 
 revision = '0008'
-down_revision = '0006'
+down_revision = '0007'
 branch_labels = None
 depends_on = None
 

@@ -90,7 +90,7 @@ def test_members_list_unassigned_nodes_of_an_attached_file(ring, tmp_path):
                                                         [f"v{i:06d}" for i in range(5, 10)]]
     assert doc["unassigned"] == ["v000010", "v000011"]
     assert run_members(ring, run, limit=0)["communities"][0] == {
-        "community": 0, "size": 5, "offset": 0, "nodes": [], "truncated": True}
+        "community": 0, "shown": 0, "size": 5, "offset": 0, "nodes": [], "truncated": True}  # no update: shown = stored
 
 
 def test_compare_matrix_is_symmetric_and_agrees_with_pairwise(ring):

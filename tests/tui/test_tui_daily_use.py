@@ -852,3 +852,95 @@ def test_tui_palette_is_readable_and_in_one_place():
     offenders = [str(p.relative_to(root)) for p in root.rglob("*") if p.suffix in (".py", ".tcss")
                  and p.name != "palette.py" and re.search(r"#[0-9a-fA-F]{6}\b", p.read_text(encoding="utf-8"))]
     assert offenders == []
+
+
+# --- the update loop: the Updates screen ---------------------------------------------------------------------
+
+@pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
+def test_tui_updates_fits_and_shows_the_report(demo_path, size):
+    """Updates (key 7): the list (latest first) and the change report of the row under the cursor, usable at
+    80×24 and 120×36; the report's moved nodes are the diff's, with both sides in one numbering."""
+    from workspace.services import diffs, tracking
+    from workspace.tui.widgets.paged_table import PagedTable
+
+    store = open_workspace(demo_path)
+    try:
+        latest = tracking.list_updates(store)[0]
+        st = latest["sets"][0]
+        d = diffs.diff_runs(store, st["previous_run"], st["run"])
+    finally:
+        store.dispose()
+
+    async def go():
+        async with workspace(demo_path, size) as (app, pilot):
+            await pilot.press("7")
+            await settle(app, pilot)
+            screen = app.screen
+            assert screen.id == "updates"
+            table = screen.query_one("#updates-table", PagedTable)
+            on_screen(app, table, min_width=size[0] - 6, min_height=3)
+            assert table.shown_columns()[:6] == ["upd", "version", "tracked set", "status", "ARI", "moved"]
+            assert table.current_row["update_id"] == latest["update"]
+            await settle(app, pilot)
+            report = screen.query_one("#updates-report")
+            on_screen(app, screen.query_one("#updates-report-pane"), min_width=size[0] - 2, min_height=8)
+            text = static_text(report)
+            assert f"run {st['run']} against run {st['previous_run']}" in text
+            assert "merged" in text  # Cinder Bridge reopens: the two riding areas merge again
+            shown_a = dict(map(tuple, d["shown_labels"]["a"]))
+            shown_b = dict(map(tuple, d["shown_labels"]["b"]))
+            for m in d["moved_nodes"]:
+                assert re.search(rf"{m['node']}\s+{shown_a[m['from']]} → {shown_b[m['to']]}", text)
+                assert shown_a[m["from"]] != shown_b[m["to"]]
+            assert "^r" in footer_keys(app)
+
+    asyncio.run(go())
+
+
+def test_tui_updates_opens_the_diff_of_the_set(demo_path):
+    """ctrl+d on an update opens the Diff screen on the previous run (A) and the new run (B)."""
+    from textual.widgets import Input
+
+    async def go():
+        async with workspace(demo_path, (80, 24)) as (app, pilot):
+            await pilot.press("7")
+            await settle(app, pilot)
+            st = app.screen.report["sets"][0]
+            await pilot.press("ctrl+d")
+            await settle(app, pilot)
+            assert app.screen.id == "diff"
+            assert app.screen.query_one("#diff-a", Input).value == str(st["previous_run"])
+            assert app.screen.query_one("#diff-b", Input).value == str(st["run"])
+
+    asyncio.run(go())
+
+
+def test_tui_updates_tracks_and_untracks_a_set(demo_copy):
+    """The Updates screen's top row: a parameter set typed in the box is tracked on the chosen network
+    (enter), and ctrl+o stops tracking it; the store's list says the same."""
+    from textual.widgets import Input, Select
+
+    from workspace.services import tracking
+
+    async def go():
+        async with workspace(demo_copy, (80, 24)) as (app, pilot):
+            await pilot.press("7")
+            await settle(app, pilot)
+            screen = app.screen
+            on_screen(app, screen.query_one("#updates-network"), min_width=20)
+            on_screen(app, screen.query_one("#updates-params"), min_width=20)
+            assert screen.query_one("#updates-network", Select).value == "velmora-bikes/stations"
+            await pilot.press("ctrl+f")  # the set box, from the table
+            assert app.focused is screen.query_one("#updates-params", Input)
+            await pilot.press(*"velmora-bikes/two-banks", "enter")
+            await settle(app, pilot)
+            names = [t["params"] for t in tracking.list_tracked(app.store, "velmora-bikes/stations")["tracked"]]
+            assert names == ["velmora-bikes/districts@1", "velmora-bikes/two-banks@1"]
+            assert "two-banks@1" in static_text(screen.query_one("#updates-tracked"))
+            await pilot.press("ctrl+o")
+            await settle(app, pilot)
+            names = [t["params"] for t in tracking.list_tracked(app.store, "velmora-bikes/stations")["tracked"]]
+            assert names == ["velmora-bikes/districts@1"]
+            on_screen(app, screen.query_one("#updates-network"), min_width=20)
+
+    asyncio.run(go())

@@ -86,3 +86,14 @@ def test_tui_paged_table_reads_only_visible_pages():
             assert table.cursor == 0
 
     asyncio.run(go())
+
+
+def test_size_histogram_names_a_tracked_run_s_communities_by_their_shown_label():
+    """A run made by an update carries ``shown`` on each community (its label matched to the previous
+    version's run); the size bars name and colour it by that label (common practice: one numbering)."""
+    from workspace.tui.widgets.charts import SizeHistogram
+
+    h = SizeHistogram()
+    h.refresh = lambda *a, **k: None  # not mounted
+    h.show([{"community": 0, "shown": 5, "size": 3}, {"community": 1, "size": 7}])
+    assert h.sizes == [("c1", 7), ("c5", 3)]

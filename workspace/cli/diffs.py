@@ -137,14 +137,35 @@ def print_diff(out, d: dict, limit: int = 20) -> None:
         _more(out, len(cells), int(c.get("nnz", len(c.get("cells") or []))), "non-zero cells")
     moved = d.get("moved_nodes") or []
     if moved and limit:
-        if d.get("moved_labels") is not None:
-            out.table(["node", d["label_by"], "A community", "B community"],
-                      [(m["node"], label, m["from"], m["to"]) for m, label in zip(moved[:limit], d["moved_labels"])],
-                      title="moved nodes (ascending id)")
-        else:
-            out.table(["node", "A community", "B community"], [(m["node"], m["from"], m["to"]) for m in moved[:limit]],
-                      title="moved nodes (ascending id)")
-        _more(out, min(limit, len(moved)), int(d.get("moved") or len(moved)), "moved nodes")
+        print_moved(out, d, limit)
+
+
+def shown_moved(d: dict, limit: int) -> list[tuple[Any, Any, Any, Any]]:
+    """The first ``limit`` moved nodes as ``(node, A shown, B shown, B stored)``: both sides in one
+    numbering (B's communities by their match in A, unmatched ones by fresh numbers; see the diff's
+    ``shown_labels``), so a node never seems to move from 3 to 3; the last column is B's own number."""
+    shown = d.get("shown_labels") or {}
+    sa = {c: v for c, v in shown.get("a") or []}
+    sb = {c: v for c, v in shown.get("b") or []}
+    rows = []
+    for m in (d.get("moved_nodes") or [])[:limit]:
+        node, f, t = (m["node"], m["from"], m["to"]) if isinstance(m, dict) else (m[0], m[1], m[2])
+        rows.append((node, sa.get(f, f), sb.get(t, t), t))
+    return rows
+
+
+def print_moved(out, d: dict, limit: int, title: str = "moved nodes (ascending id)") -> None:
+    rows = shown_moved(d, limit)
+    if not rows:
+        return
+    if d.get("moved_labels") is not None:  # --label-by: each moved node's name beside its id
+        rows = [(r[0], label, *r[1:]) for r, label in zip(rows, d["moved_labels"])]
+        out.table(["node", d["label_by"], "A community", "B community", "B stored as"], rows,
+                  title=title + "; B numbered by its match in A")
+    else:
+        out.table(["node", "A community", "B community", "B stored as"], rows,
+                  title=title + "; B numbered by its match in A")
+    _more(out, len(rows), int(d.get("moved") or len(d.get("moved_nodes") or [])), "moved nodes")
 
 
 def top_cells(contingency: dict, limit: int) -> list[tuple[Any, Any, int, float, float]]:

@@ -56,7 +56,8 @@ def cmd_members(args) -> int:
         for c in res["communities"]:
             first, last = c["offset"] + 1, c["offset"] + len(c["nodes"])
             span = f" (nodes {first}-{last} of {c['size']}; --limit/--offset for more)" if c["truncated"] else ""
-            out.line(f"community {c['community']}  size {c['size']}{span}")
+            stored = f" (stored as {c['community']})" if res.get("shown_labels") else ""
+            out.line(f"community {c['shown']}{stored}  size {c['size']}{span}")
             if "stability" in c:
                 out.line("  " + "  ".join(f"{shown(n)} ({fmt(s)})" for n, s in zip(c["nodes"], c["stability"])))
             elif c["nodes"]:

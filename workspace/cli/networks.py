@@ -66,7 +66,35 @@ def cmd_import(args) -> int:
             res = import_network(store, args.file, project=args.project, network=args.network,
                                  message=args.message, progress=bar, prepared=prepared)
             bar.close()
-            return _print_import(args, out, res)
+            if not args.json:
+                _print_import(args, out, res)
+            return _after_import(args, store, out, bar, res)
+
+
+def _after_import(args, store, out, bar, res) -> int:
+    """Run the network's tracked parameter sets on the new version and print the change report
+    (``--no-track`` opts out). With --json the import's document gains ``update``: the change report,
+    or null when nothing ran. A failed tracked run keeps the import: exit 1, the report says which."""
+    from workspace.services.tracking import change_report, update_after_import
+
+    update = update_after_import(store, res, track=getattr(args, "track", True), progress=bar,
+                                 say=None if args.json else (lambda line: (bar.close(), out.line(line))))
+    bar.close()
+    report = None if update is None else change_report(store, update["update"], moved_rows=bool(args.json))
+    if args.json:
+        from workspace.cli.tracking import report_json_doc
+
+        doc = res.to_dict()
+        doc["update"] = None if report is None else report_json_doc(report)
+        emit_json(doc)
+        for n in res.report.get("notes") or []:
+            if n.startswith("warning: "):
+                out.note(f"cutbook: {n}")
+    elif report is not None:
+        from workspace.cli.tracking import print_report
+
+        print_report(out, report)
+    return 1 if report is not None and report["status"] == "failed" else 0
 
 
 def _print_import(args, out, res) -> int:

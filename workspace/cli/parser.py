@@ -78,6 +78,9 @@ def build_parser() -> argparse.ArgumentParser:
     g.add_argument("--coords", metavar="X,Y", help="two number columns holding node positions: x,y or lat,lon "
                                                   "(drawn by `cutbook report`)")
 
+    p.add_argument("--no-track", dest="track", action="store_false",
+                   help="do not run the network's tracked parameter sets on the new version")
+
     add("projects", "list projects", "networks", "cmd_projects")
     p = add("networks", "list networks", "networks", "cmd_networks")
     p.add_argument("--project", help="only this project")
@@ -177,6 +180,9 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=["csv", "json", "graphml"], default="csv",
                    help="csv: node,community; json/graphml: nodes, edges, weights and each node's community")
     p.add_argument("-o", "--output", required=True, metavar="FILE", help="output file; '-' for standard output")
+    p.add_argument("--align-to", type=int, metavar="RUN",
+                   help="number the communities by their match in RUN (its shown labels; unmatched ones get fresh "
+                        "numbers)")
 
     p = add("where", "a node's community in every run of every version (of every network unless --network)",
             "runs", "cmd_where")
@@ -277,6 +283,31 @@ def build_parser() -> argparse.ArgumentParser:
                    help="with --json: add the contingency as a dense 'counts' table (small tables only)")
     p.add_argument("--label-by", metavar="ATTRIBUTE",
                    help="name moved nodes by this node attribute (--json: a 'moved_labels' list beside 'moved_nodes')")
+
+    # --- tracked sets and updates (workspace/cli/tracking.py) ----------------------------
+    p = add("track", "the parameter sets a network re-runs on each new version: add, remove, list",
+            "tracking", "cmd_track")
+    tsub = p.add_subparsers(dest="track_action", metavar="ACTION", required=True)
+    for name, help_ in (("add", "track a parameter set (PROJECT/NAME tracks its latest version)"),
+                        ("remove", "stop tracking (PROJECT/NAME without @V: every version of it); runs are kept")):
+        q = tsub.add_parser(name, help=help_, description=help_, parents=[common])
+        q.add_argument("network", metavar="PROJECT/NETWORK")
+        q.add_argument("params", metavar="PROJECT/NAME[@V]")
+    q = tsub.add_parser("list", help="the tracked parameter sets of a network", parents=[common])
+    q.add_argument("network", metavar="PROJECT/NETWORK")
+    p = add("update", "run every tracked parameter set on a version (latest by default) and report what "
+            "changed since the previous version", "tracking", "cmd_update")
+    p.add_argument("ref", metavar="PROJECT/NETWORK[@V]")
+    p.add_argument("--limit", type=int, default=10, help="events and moved nodes listed per set in text (default 10)")
+    p = add("updates", "list updates (latest first) or show one update's change report", "tracking", "cmd_updates")
+    usub = p.add_subparsers(dest="updates_action", metavar="ACTION", required=True)
+    q = usub.add_parser("list", help="updates, latest first", parents=[common])
+    q.add_argument("network", nargs="?", metavar="PROJECT/NETWORK")
+    q.add_argument("--limit", type=int, default=None)
+    q = usub.add_parser("show", help="the change report of an update (default: the latest)", parents=[common])
+    q.add_argument("update", nargs="?", type=int)
+    q.add_argument("--network", metavar="PROJECT/NETWORK", help="without UPDATE: the latest update of this network")
+    q.add_argument("--limit", type=int, default=10, help="events and moved nodes listed per set in text (default 10)")
 
     # --- upkeep -------------------------------------------------------------------------
     add("verify", "check every stored array against its hash, and the database's integrity", "upkeep",

@@ -63,7 +63,15 @@ def _print_communities(out, r: dict, limit: int = 30) -> None:
     cols = ["community", "size", "volume", "cut", "conductance"]
     if any(c.get("stability") is not None for c in rows):
         cols.append("stability")
-    out.table(cols, [[c.get(k) for k in cols] for c in rows[:limit]], right=cols)
+    shown = r.get("shown_labels")
+    if shown:  # numbered as matched to the previous version's run; the stored number beside it
+        out.line(f"  communities numbered by their match in run {shown['aligned_to']} (stored number in 'stored')")
+        rows = sorted(rows, key=lambda c: c.get("shown", c["community"]))
+        head = ["community", "stored", *cols[1:]]
+        out.table(head, [[c.get("shown"), c["community"], *[c.get(k) for k in cols[1:]]] for c in rows[:limit]],
+                  right=head)
+    else:
+        out.table(cols, [[c.get(k) for k in cols] for c in rows[:limit]], right=cols)
     if len(rows) > limit:
         out.line(f"  … {len(rows) - limit} more communities (--json lists all)")
 
@@ -177,7 +185,7 @@ def cmd_export(args) -> int:
         raise UsageError("-o - writes the file to standard output; leave out --json")
     with session(args) as (store, out):
         res = svc.export_run(store, args.run, args.output, format=args.format,
-                             stream=sys.stdout if to_stdout else None)
+                             stream=sys.stdout if to_stdout else None, align_to=getattr(args, "align_to", None))
         if args.json:
             emit_json(res)
         else:
@@ -227,6 +235,7 @@ def cmd_where(args) -> int:
                   [[r["run"]] + ([r["network"]] if several else []) + [r["version"]]
                    + ([r["node_label"] or "-"] if label_by else [])
                    + [r["method"] if r["kind"] == "computed" else f"attached:{r['label']}",
-                      r["community"] if r["present"] else "(absent)", r["community_size"], r["stability"]]
+                      r.get("shown_community", r["community"]) if r["present"] else "(absent)", r["community_size"],
+                      r["stability"]]
                    for r in res["runs"]], right=["run", "version", "community", "size", "stability"])
     return 0

@@ -40,9 +40,21 @@ def diff_runs(store: Store, run_a: int, run_b: int, *, nodes: str = "common",
                                 nmi_normalization=nmi_normalization, moved_limit=moved_limit)
         out = {"a": _brief(sa), "b": _brief(sb), "nodes": nodes,
                **d.to_dict(dense=dense_table, moved_rows=moved_rows)}
+    out["shown_labels"] = _shown_labels(store, run_a, run_b, labels_a, labels_b, d)
     if note:
         out.setdefault("notes", []).append(note)
     return out
+
+
+def _shown_labels(store: Store, run_a: int, run_b: int, labels_a, labels_b, d) -> dict[str, Any]:
+    """The labels people see on each side (see :func:`workspace.services.tracking.shown_for_diff`):
+    moved-node listings show both sides in one numbering, so a node never seems to move from 3 to 3."""
+    from workspace.services.tracking import shown_for_diff
+
+    k_a = int(labels_a.max()) + 1 if labels_a.size and labels_a.max() >= 0 else 0
+    k_b = int(labels_b.max()) + 1 if labels_b.size and labels_b.max() >= 0 else 0
+    with store.read() as s:
+        return shown_for_diff(s, run_a, run_b, k_a, k_b, [(m.a, m.b) for m in d.matches])
 
 
 @contextmanager

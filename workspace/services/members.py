@@ -19,6 +19,10 @@ def run_members(store: Store, run_id: int, *, community: int | None = None, limi
                 offset: int = 0) -> dict[str, Any]:
     """The nodes of each community of a finished run (or of one community), in canonical node order.
 
+    A run made by an update shows its communities by their match in the previous version's run
+    (``shown``; ``community`` stays the stored number) and ``community`` as an argument is then a shown
+    label.
+
     ``limit``/``offset`` page each community's node list (``None``: all nodes);
     ``size`` is always the full count and ``truncated`` says whether nodes were
     left out. Nodes the run left unassigned (label -1, e.g. nodes missing from an
@@ -36,7 +40,16 @@ def run_members(store: Store, run_id: int, *, community: int | None = None, limi
         if run.stability_blob:
             stability = repo.get_array(s, run.stability_blob) / max(run.repeats, 1)
     k = int(labels.max()) + 1 if labels.size and labels.max() >= 0 else 0
-    if community is not None and not 0 <= community < k:
+    from workspace.services.tracking import shown_labels_of
+
+    stored_map = shown_labels_of(store, run_id)  # a tracked run: labels matched to the previous version's run
+    shown_of = [int(x) for x in stored_map["map"]] if stored_map and len(stored_map["map"]) == k else list(range(k))
+    if community is not None and stored_map is not None:
+        if community not in shown_of:
+            raise NotFoundError(f"run {run_id} shows no community {community} (its communities are numbered "
+                                f"{', '.join(map(str, sorted(shown_of)))})")
+        community = shown_of.index(community)
+    elif community is not None and not 0 <= community < k:
         raise NotFoundError(f"run {run_id} has no community {community} (its communities are 0 to {k - 1})")
     order = np.argsort(labels, kind="stable")  # node order kept within each community
     bounds = np.searchsorted(labels[order], np.arange(-1, k + 1))
@@ -46,7 +59,7 @@ def run_members(store: Store, run_id: int, *, community: int | None = None, limi
         members = order[bounds[c + 1]:bounds[c + 2]]
         shown = members[offset:] if limit is None else members[offset:offset + limit]
         nodes = node_ids[shown].tolist()
-        entry = {"community": c, "size": int(members.shape[0]), "offset": offset, "nodes": nodes,
+        entry = {"community": c, "shown": shown_of[c], "size": int(members.shape[0]), "offset": offset, "nodes": nodes,
                  "truncated": bool(offset > 0 or offset + len(nodes) < members.shape[0])}
         if stability is not None:
             entry["stability"] = [float(x) for x in stability[shown]]
@@ -54,7 +67,8 @@ def run_members(store: Store, run_id: int, *, community: int | None = None, limi
     unassigned = node_ids[order[bounds[0]:bounds[1]]].tolist()
     return {"run": run_id, "ref": summary["ref"], "method": summary["method"], "kind": summary["kind"],
             "label": summary["label"], "k": k, "nodes": int(labels.shape[0]), "communities": out_comms,
-            "unassigned": unassigned if community is None else []}
+            "unassigned": unassigned if community is None else [],
+            "shown_labels": stored_map}
 
 
 def compare_matrix(store: Store, run_ids: list[int], *, nodes: str = "common",

@@ -584,8 +584,15 @@ def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict
             "host": run.host, "pid": run.pid,
         })
         from workspace.services.annotations import current_for
+        from workspace.services.tracking import shown_map
 
         out.update(current_for(s, "run", [run.id]).get(run.id, {"tags": [], "notes": []}))
+        # what people see: the labels matched to the previous version's run (tracked runs), else the stored ones
+        out["shown_labels"] = shown_map(s, run.id)
+        shown = out["shown_labels"]["map"] if out["shown_labels"] else None
+        for row in out["communities"]:
+            c = row["community"]
+            row["shown"] = shown[c] if shown is not None and 0 <= c < len(shown) else c
         if run.started_at and run.finished_at:
             out["wall_time_s"] = (run.finished_at - run.started_at).total_seconds()
         if include_labels and run.membership_blob:
@@ -622,16 +629,22 @@ def write_atomically(target: str, body: bytes) -> None:
 
 
 def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: str = "csv",
-               stream=None) -> dict[str, Any]:
+               stream=None, align_to: int | None = None) -> dict[str, Any]:
     """Write a run's membership as CSV ``node,community``, or the network with it (node-link JSON, GraphML).
 
     JSON and GraphML carry every node of the run's network version, its edges with their
-    weights, each node's community and the version's node attributes (its node table). ``stream`` (a text file object) receives the text
-    instead of ``path`` (the CLI's ``-o -``).
+    weights, each node's community and the version's node attributes (its node table). ``stream`` (a
+    text file object) receives the text instead of ``path`` (the CLI's ``-o -``). ``align_to`` (a run
+    id) numbers the communities by their match in that run (see
+    :func:`workspace.services.tracking.aligned_labels`).
     """
     from workspace.io import membership_text
 
     node_ids, labels, summary = load_membership(store, run_id)
+    if align_to is not None:
+        from workspace.services.tracking import aligned_labels
+
+        labels = aligned_labels(store, run_id, align_to)
     graph = None
     attributes = None
     if format in ("json", "graphml"):
@@ -650,7 +663,8 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
     else:
         write_atomically(target, text.encode("utf-8"))
     return {"run": run_id, "path": target, "format": format, "nodes": int(labels.shape[0]),
-            "with_community": count, "edges": edges, "membership_hash": summary["membership_hash"]}
+            "with_community": count, "edges": edges, "membership_hash": summary["membership_hash"],
+            "aligned_to": align_to}
 
 
 def _networks_holding(store: Store, node: str, *, exclude: str) -> list[str]:
@@ -682,6 +696,7 @@ def where_node(store: Store, node: str, network: str | None = None) -> dict[str,
     import numpy as np
 
     from workspace.services.suggest import MAX_SUGGESTIONS, close_node_ids, hint
+    from workspace.services.tracking import shown_map
 
     vref = None
     if network is not None:
@@ -717,11 +732,14 @@ def where_node(store: Store, node: str, network: str | None = None) -> dict[str,
                 for run in runs:
                     entry = {"run": run.id, "network": name, "version": v.number, "method": run.method,
                              "kind": run.kind, "label": run.label, "k": run.k, "present": found,
-                             "community": None, "community_size": None, "stability": None}
+                             "community": None, "shown_community": None, "community_size": None, "stability": None}
                     if found:
                         labels = repo.get_array(s, run.membership_blob)
                         c = int(labels[pos])
                         entry["community"] = c if c >= 0 else None
+                        shown = shown_map(s, run.id) if c >= 0 else None  # a tracked run's label as people see it
+                        entry["shown_community"] = shown["map"][c] if shown and c < len(shown["map"]) else \
+                            entry["community"]
                         if c >= 0:
                             entry["community_size"] = int((labels == c).sum())
                         if run.stability_blob:

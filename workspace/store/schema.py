@@ -346,6 +346,80 @@ class Embedding(Base):
     created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
 
 
+# --- tracked parameter sets and updates (revision 0007) ------------------------------------------
+
+UPDATE_STATUSES = ("running", "done", "failed", "cancelled", "interrupted")
+UPDATE_TRIGGERS = ("import", "request")
+
+
+class TrackedSet(Base):
+    """A parameter-set version a network keeps re-running on each new version (see services/tracking.py).
+
+    A configuration row, not a record: it is added and removed by the user; what was run is kept in
+    ``tracked_updates`` / ``tracked_update_runs`` and in the runs themselves.
+    """
+
+    __tablename__ = "tracked_sets"
+    __table_args__ = (UniqueConstraint("network_id", "param_set_version_id"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    network_id: Mapped[int] = mapped_column(ForeignKey("networks.id", ondelete="CASCADE"), index=True)
+    param_set_version_id: Mapped[int] = mapped_column(ForeignKey("param_set_versions.id", ondelete="CASCADE"))
+    created_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    created_by: Mapped[str | None] = mapped_column(String(200), nullable=True)
+
+
+class TrackedUpdate(Base):
+    """One update: every tracked set run on one version (after an import, or on request).
+
+    Written as ``running`` before the first run, then moved once to its outcome. An update whose
+    process vanished (``host``/``pid``/``process_token`` as for runs) is shown as ``interrupted``.
+    """
+
+    __tablename__ = "tracked_updates"
+    __table_args__ = (
+        CheckConstraint("status IN ('running', 'done', 'failed', 'cancelled', 'interrupted')", name="status_known"),
+        CheckConstraint("trigger IN ('import', 'request')", name="trigger_known"),
+    )
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    network_id: Mapped[int] = mapped_column(ForeignKey("networks.id", ondelete="CASCADE"), index=True)
+    version_id: Mapped[int] = mapped_column(ForeignKey("network_versions.id", ondelete="CASCADE"), index=True)
+    previous_version_id: Mapped[int | None] = mapped_column(
+        ForeignKey("network_versions.id", ondelete="SET NULL"), nullable=True)
+    trigger: Mapped[str] = mapped_column(String(16))
+    status: Mapped[str] = mapped_column(String(16))
+    started_at: Mapped[datetime] = mapped_column(DateTime(timezone=True))
+    finished_at: Mapped[datetime | None] = mapped_column(DateTime(timezone=True), nullable=True)
+    created_by: Mapped[str | None] = mapped_column(String(200), nullable=True)
+    host: Mapped[str | None] = mapped_column(String(255), nullable=True)
+    pid: Mapped[int | None] = mapped_column(Integer, nullable=True)
+    process_token: Mapped[str | None] = mapped_column(String(64), nullable=True)
+
+
+class TrackedUpdateRun(Base):
+    """One tracked set within an update: its new run, the previous version's run it is compared with,
+    a short summary of that comparison, and the community labels shown for the new run.
+
+    ``labels_json``: ``{"aligned_to": RUN, "map": [shown label of community 0, 1, …], "next": N}``
+    (the stored membership keeps its canonical numbering; only what people see is renumbered).
+    """
+
+    __tablename__ = "tracked_update_runs"
+
+    update_id: Mapped[int] = mapped_column(ForeignKey("tracked_updates.id", ondelete="CASCADE"), primary_key=True)
+    position: Mapped[int] = mapped_column(Integer, primary_key=True)
+    params_ref: Mapped[str] = mapped_column(String(420))
+    param_set_version_id: Mapped[int | None] = mapped_column(
+        ForeignKey("param_set_versions.id", ondelete="SET NULL"), nullable=True)
+    run_id: Mapped[int | None] = mapped_column(ForeignKey("runs.id", ondelete="SET NULL"), nullable=True, index=True)
+    previous_run_id: Mapped[int | None] = mapped_column(ForeignKey("runs.id", ondelete="SET NULL"), nullable=True)
+    status: Mapped[str] = mapped_column(String(16))
+    error: Mapped[str | None] = mapped_column(Text, nullable=True)
+    summary_json: Mapped[str] = mapped_column(Text, default="{}")
+    labels_json: Mapped[str | None] = mapped_column(Text, nullable=True)
+
+
 # --- node attribute tables (revision 0008) -------------------------------------------
 
 NODE_ATTRIBUTE_TYPES = ("boolean", "number", "text")

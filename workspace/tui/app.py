@@ -1,7 +1,7 @@
-"""The cutbook terminal workspace: five screens over one store.
+"""The cutbook terminal workspace: seven screens over one store.
 
-Screens (switch with 1–5, the command palette, or the keys each screen shows):
-Ledger (browse), Launch, Spectrum, Diff, Node lookup. The app owns the store,
+Screens (switch with 1–7, the command palette, or the keys each screen shows):
+Ledger (browse), Launch, Spectrum, Diff, Node lookup, Sweep, Updates. The app owns the store,
 the one run job at a time, and the cross-screen picks (current run, diff
 sides). Long work never runs on the event loop: the solver runs in a spawned
 process polled by a timer; store reads that can be slow run in worker threads.
@@ -22,10 +22,11 @@ from workspace.tui.messages import RunEnded, RunProgress, RunStarted, StoreChang
 from workspace.tui.screens.ledger import LedgerScreen  # the first screen; the others load on first use
 
 SCREEN_NAMES = {"ledger": "Ledger", "launch": "Launch", "spectrum": "Spectrum", "diff": "Diff",
-                "lookup": "Node lookup", "sweep": "Sweep"}
+                "lookup": "Node lookup", "sweep": "Sweep", "updates": "Updates"}
 SCREEN_CLASSES = {"ledger": ("ledger", "LedgerScreen"), "launch": ("launch", "LaunchScreen"),
                   "spectrum": ("spectrum", "SpectrumScreen"), "diff": ("diff", "DiffScreen"),
-                  "lookup": ("lookup", "LookupScreen"), "sweep": ("sweep", "SweepScreen")}
+                  "lookup": ("lookup", "LookupScreen"), "sweep": ("sweep", "SweepScreen"),
+                  "updates": ("updates", "UpdatesScreen")}
 SCREEN_HELP = {
     "ledger": "browse projects, networks, versions and runs",
     "launch": "start a run from a parameter set or the method's form",
@@ -33,6 +34,7 @@ SCREEN_HELP = {
     "diff": "compare two runs: scores, matches, events, moved nodes",
     "lookup": "where a node sits across runs and versions",
     "sweep": "quality and stability against k, recommended k, how communities split",
+    "updates": "what changed when tracked parameter sets re-ran on a new version, latest first",
 }
 
 
@@ -104,6 +106,7 @@ class CutbookApp(App):
         Binding("4", "goto('diff')", "Diff", show=False, tooltip="compare two runs"),
         Binding("5", "goto('lookup')", "Lookup", show=False, tooltip="where a node sits across runs"),
         Binding("6", "goto('sweep')", "Sweep", show=False, tooltip="quality and stability across a range of k"),
+        Binding("7", "goto('updates')", "Updates", show=False, tooltip="change reports of tracked parameter sets"),
         Binding("question_mark,f1", "keys_help", "Keys", tooltip="this list of keys"),
         Binding("m", "maximise", "Max", tooltip="the pane holding the focus fills the screen; m again restores"),
         Binding("ctrl+p", "command_palette", "Palette", show=False, tooltip="every command by name; 'run N' opens a run"),

@@ -27,7 +27,18 @@ MOVED_COLUMNS = [
     Column("node", "node", 0),
     Column("from", "from (A)", 9, "right", format=lambda v, r: "—" if v is None else str(v)),
     Column("to", "to (B)", 9, "right", format=lambda v, r: "—" if v is None else str(v)),
+    # the B side is shown numbered by its match in A (one numbering: never "from 3 to 3"); B's own number here
+    Column("stored", "B stored", 9, "right", format=lambda v, r: "—" if v is None else str(v), drop=1),
 ]
+
+
+def shown_moved_rows(d: dict[str, Any]) -> list[dict[str, Any]]:
+    """Moved nodes with both sides in one numbering (the diff's ``shown_labels``) and B's stored number."""
+    shown = d.get("shown_labels") or {}
+    sa = {c: v for c, v in shown.get("a") or []}
+    sb = {c: v for c, v in shown.get("b") or []}
+    return [dict(m, **{"from": sa.get(m["from"], m["from"]), "to": sb.get(m["to"], m["to"]), "stored": m["to"]})
+            for m in d.get("moved_nodes") or []]
 
 
 def _sides(value: Any, prefix: str) -> str:
@@ -248,7 +259,7 @@ class DiffScreen(Screen):
         for ev in events:
             ev_text.append("• " + _event_line(ev) + "\n")
         self.query_one("#diff-events", Static).update(ev_text)
-        self.moved = list(d.get("moved_nodes") or [])
+        self.moved = shown_moved_rows(d)
         self._filter_moved(self.query_one("#diff-search", Input).value)
         self.show_contingency(d)
         if isinstance(self.focused, Input) and self.focused.id in ("diff-a", "diff-b"):

@@ -27,7 +27,8 @@ WHERE_COLUMNS = [
     Column("method", "method / grouping", 0, format=_what),
     Column("k", "k", 4, "right"),
     Column("community", "community", 10, "right",
-           format=lambda v, r: ("absent" if not r.get("present") else "—") if v is None else f"c{v}"),
+           format=lambda v, r: ("absent" if not r.get("present") else "—") if v is None
+           else f"c{r.get('shown_community', v)}"),  # a tracked run: numbered by its match in the previous run
     Column("community_size", "its size", 9, "right", format=lambda v, r: "" if v is None else str(v)),
     Column("stability", "stability", 9, "right", format=lambda v, r: "" if v is None else f"{v:.2f}"),
 ]

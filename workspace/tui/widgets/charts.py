@@ -192,7 +192,8 @@ class SizeHistogram(Widget):
 
     def show(self, communities: Sequence[dict[str, Any]], *, max_bars: int = 24, empty: str | None = None) -> None:
         self.empty = empty or "no communities recorded"
-        rows = [(f"c{c['community']}", int(c["size"])) for c in communities]
+        # a tracked run's communities carry ``shown``: their label matched to the previous version's run
+        rows = [(f"c{c.get('shown', c['community'])}", int(c["size"])) for c in communities]
         if len(rows) > max_bars:
             self.sizes = size_bins([s for _, s in rows])
             self.binned = True

@@ -39,20 +39,21 @@ def screen_bar_text(current: str, screens: dict[str, str], store: str, width: in
     if width >= 100:
         t.append(" cutbook ", style=f"bold {palette.GROUND} on {palette.PRIMARY}")
         t.append(" ")
+    narrow = width < 100  # seven screens: below 100 columns one space between them, so the store still fits
     for i, (name, title) in enumerate(screens.items(), start=1):
         short = "Lookup" if name == "lookup" else title
         if name == current:
             t.append(f" {i} {short} ", style=f"bold {palette.GROUND} on {palette.ACCENT}")
         else:
             t.append(f" {i}", style=palette.PRIMARY)
-            t.append(f" {short} ", style=palette.DIM)
-    room = width - t.cell_len - 8
+            t.append(f" {short}" if narrow else f" {short} ", style=palette.DIM)
+    room = width - t.cell_len - (2 if narrow else 8)
     label = store
     if len(label) > room:  # the file name matters most: keep it, cut the directories
         base = store.replace("\\", "/").rsplit("/", 1)[-1]
         label = ("…/" + base) if len(base) + 2 <= room else (base[:max(room - 1, 0)] + "…" if room > 4 else "")
     if label:
-        t.append(" store ", style=palette.FAINT)
+        t.append(" " if narrow else " store ", style=palette.FAINT)
         t.append(label, style=palette.TEXT)
     return t
 
