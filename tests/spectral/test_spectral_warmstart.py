@@ -179,3 +179,16 @@ def test_small_graphs_solve_densely_and_say_the_start_was_not_needed():
     assert warm.diagnostics["warm_start"]["used"] is False
     assert "dense" in warm.diagnostics["warm_start"]["fallback"]
     assert np.array_equal(warm.labels, cold.labels)
+
+
+@pytest.mark.parametrize("method,k", [("shi-malik", 4), ("regularized", 4), ("bethe", 4), ("njw", "auto")])
+def test_every_k_way_method_takes_a_warm_start(versions, method, k):
+    # warm and cold agree on the networkx SBM (scikit-learn adjusted_rand_score >= 0.999); the start is
+    # the previous version's embedding of the method's own operator
+    G, H, A1, A2, previous = versions
+    start = compute_embedding(A1, method, 10 if k == "auto" else 4, seed=0, dense_threshold=100).vectors
+    cold = partition(A2, method, k=k, seed=0, dense_threshold=100)
+    warm = partition(A2, method, k=k, seed=0, dense_threshold=100, warm_start=start)
+    assert warm.diagnostics["warm_start"]["used"] is True
+    assert warm.k == cold.k
+    assert adjusted_rand_score(cold.labels, warm.labels) >= 0.999
