@@ -146,6 +146,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--perturb", type=float, default=None,
                    help="with --repeats: sd of the random factor (mean 1) on each edge weight per repeat (default 0.5; "
                         "0 = vary the seed only)")
+    p.add_argument("--warm", default="off", metavar="auto|off|RUN",
+                   help="start the eigensolver from the previous version's cached embedding or run of the same "
+                        "parameters (auto), from a given run's membership (RUN), or from scratch (off, default); "
+                        "njw, shi-malik, regularized and bethe only")
 
     p = add("rerun", "repeat a run from its record and check the membership is identical", "runs", "cmd_rerun")
     p.add_argument("run", type=int)

@@ -39,7 +39,7 @@ def cmd_run(args) -> int:
     with session(args, writes=True) as (store, out), progress_bar() as bar:
         spec = svc.prepare_run(store, args.ref, params_ref=args.params, method=args.method,
                                sets=psvc.parse_sets(args.set), k=args.k, seed=args.seed, repeats=args.repeats,
-                               perturb=args.perturb)
+                               perturb=args.perturb, warm=getattr(args, "warm", "off"))
         try:
             res = svc.launch(store, spec, progress=bar)
         except svc.RunFailed as exc:
@@ -155,6 +155,7 @@ def show_run(args) -> int:
                     ("started", res["created"]), ("finished", res["finished"]),
                     ("by", f"{res.get('by') or '-'} on host {res.get('host') or '-'}"),
                     ("solver", (res["diagnostics"] or {}).get("solver")),
+                    *([("warm start", _warm_text(res))] if _warm_text(res) else []),
                     ("provenance", " ".join(f"{k}={v}" for k, v in res["provenance"].items()))])
         from workspace.cli.notes import print_annotations
 
@@ -172,6 +173,20 @@ def show_run(args) -> int:
                         + (", …" if c["size"] > len(c["nodes"]) else "")] for c in members["communities"][:30]],
                       right=["community", "size"])
     return 0
+
+
+def _warm_text(r: dict) -> str | None:
+    """Where the eigensolver's start came from and whether it was used (None for a cold run)."""
+    source = (r.get("provenance") or {}).get("warm_from")
+    if not source:
+        return None
+    w = (r.get("diagnostics") or {}).get("warm_start") or {}
+    text = source + (f" ({w['from_version']})" if w.get("from_version") else "")
+    if w.get("used"):
+        text += f", used, {w.get('matvecs')} matvecs"
+    elif w.get("fallback"):
+        text += f", not used: {w['fallback']}"
+    return text
 
 
 def cmd_export(args) -> int:

@@ -53,6 +53,9 @@ class RunSpec:
     # this start-vector seed (recorded in the run's provenance; see services/sweeps.py)
     embedding_vectors: int | None = None
     embedding_seed: int | None = None
+    # the warm-start source of the eigensolver ("run:<id>" or "embedding:<key>", services/warmstart.py);
+    # recorded in the run's provenance as ``warm_from`` so that rerun rebuilds the same start block
+    warm_from: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return asdict(self)
@@ -88,8 +91,14 @@ def provenance() -> dict[str, Any]:
 
 def prepare_run(store: Store, ref: str | VersionRef, *, params_ref: str | None = None, method: str | None = None,
                 sets: dict[str, Any] | None = None, k: Any = None, seed: int = 0, repeats: int = 1,
-                perturb: float | None = None) -> RunSpec:
-    """Resolve and validate a run request. Raises before anything is recorded."""
+                perturb: float | None = None, warm: Any = "off") -> RunSpec:
+    """Resolve and validate a run request. Raises before anything is recorded.
+
+    ``warm``: ``"off"`` (default), ``"auto"`` (warm-start the eigensolver from the previous version's
+    cached embedding of the same operator, else from its newest run of the same method, parameters and k;
+    a cold run when there is none) or a run id (warm-start from that run's membership); see
+    :mod:`workspace.services.warmstart`.
+    """
     if (params_ref is None) == (method is None):
         raise UsageError("give either a saved parameter set (--params) or a method (--method)")
     if not isinstance(seed, int) or seed < 0 or seed >= 2**32:
@@ -123,9 +132,17 @@ def prepare_run(store: Store, ref: str | VersionRef, *, params_ref: str | None =
     if k_norm not in (None, "auto") and int(k_norm) >= n_nodes:
         raise ParameterError(f"k={k_norm} must be smaller than the number of nodes of {version_ref} "
                              f"(n={n_nodes}); nothing was recorded")
-    return RunSpec(version_ref=version_ref, version_id=version.id, method=method, k=k_norm, params=values,
+    spec = RunSpec(version_ref=version_ref, version_id=version.id, method=method, k=k_norm, params=values,
                    seed=seed, repeats=repeats, perturb=float(perturb), param_set_version_id=ps_id,
                    param_set_ref=ps_ref)
+    if warm not in (None, "off"):
+        from dataclasses import replace
+
+        from workspace.services import warmstart
+
+        warm_from, _ = warmstart.resolve(store, spec, warm)
+        spec = replace(spec, warm_from=warm_from)
+    return spec
 
 
 # --- computing (no store access) ------------------------------------------------------------
@@ -150,7 +167,8 @@ def _perturbed(A, spread: float, seed: int, directed: bool = False):
 
 
 def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None,
-            cancel: Callable[[], bool] | None = None, embedding=None) -> Computed:
+            cancel: Callable[[], bool] | None = None, embedding=None, warm_block=None,
+            warm_info: dict[str, Any] | None = None) -> Computed:
     """Run the method (``spec.repeats`` times with seeds seed … seed+N−1) on the graph.
 
     With repeats, each repeat multiplies edge weights by seeded random noise of
@@ -161,7 +179,9 @@ def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None
     A single run with ``perturb`` > 0 (a sweep's stability repeat) is computed on the graph perturbed
     with its own seed; its quality measures are those of its membership on the version's graph. With
     ``spec.embedding_vectors``, the eigenvectors come from a shared embedding (``embedding``, or solved
-    here from the spec exactly as the sweep solved it).
+    here from the spec exactly as the sweep solved it). ``warm_block`` (rows in the graph's node order,
+    from :func:`workspace.services.warmstart.start_block`) starts the eigensolver; ``diagnostics["warm_start"]``
+    then holds ``warm_info`` and the solver's outcome (used, fallback, matvecs).
     """
     import numpy as np
 
@@ -187,7 +207,9 @@ def compute(graph: GraphData, spec: RunSpec, *, progress: Progress | None = None
                                           progress=prog, cancel=cancel, directed=graph.directed,
                                           **spec.params)
         res = partition(Ar, spec.method, k=k, seed=spec.seed, progress=prog, cancel=cancel, embedding=embedding,
-                        directed=graph.directed, **spec.params)
+                        directed=graph.directed, warm_start=warm_block, **spec.params)
+        if warm_block is not None:
+            res.diagnostics["warm_start"] = {**(warm_info or {}), **res.diagnostics.get("warm_start", {})}
         if spec.perturb > 0:
             q = quality_measures(A, res.labels, directed=graph.directed)
             communities = q.pop("communities", None) or []
@@ -256,7 +278,8 @@ def _new_run(spec: RunSpec, *, kind: str = "computed", label: str = "",
                k_requested=spec.k, seed=spec.seed if kind == "computed" else None, repeats=spec.repeats,
                status="running", started_at=repo.utcnow(), host=socket.gethostname(), pid=pid,
                process_token=_process_token(pid),
-               provenance_json=json.dumps({**provenance(), **(provenance_extra or {})}, sort_keys=True))
+               provenance_json=json.dumps({**provenance(), **({"warm_from": spec.warm_from} if spec.warm_from else {}),
+                                           **(provenance_extra or {})}, sort_keys=True))
 
 
 def _json_floats(obj):
@@ -354,12 +377,20 @@ def _num(x):
 
 
 def execute(store: Store, run_id: int, spec: RunSpec, graph: GraphData, *, progress: Progress | None = None,
-            cancel: Callable[[], bool] | None = None, embedding=None) -> None:
-    """Compute a recorded ``running`` run and record its outcome (done / failed / cancelled)."""
+            cancel: Callable[[], bool] | None = None, embedding=None, warm_block=None,
+            warm_info: dict[str, Any] | None = None) -> None:
+    """Compute a recorded ``running`` run and record its outcome (done / failed / cancelled).
+
+    A spec with ``warm_from`` and no ``warm_block`` builds its start block here (short reads)."""
     import numpy as np
 
     try:
-        computed = compute(graph, spec, progress=progress, cancel=cancel, embedding=embedding)
+        if spec.warm_from and warm_block is None:
+            from workspace.services import warmstart
+
+            warm_block, warm_info = warmstart.start_block(store, spec.warm_from, graph, spec)
+        computed = compute(graph, spec, progress=progress, cancel=cancel, embedding=embedding,
+                           warm_block=warm_block, warm_info=warm_info)
     except (Cancelled, KeyboardInterrupt):
         _finish(store, run_id, "cancelled", error="cancelled by the user")
         raise Cancelled(f"run {run_id} cancelled") from None
@@ -381,12 +412,21 @@ def _load_version_graph(store: Store, version_id: int) -> GraphData:
 
 def launch(store: Store, spec: RunSpec, *, progress: Progress | None = None,
            cancel: Callable[[], bool] | None = None, embedding=None,
-           provenance_extra: dict[str, Any] | None = None) -> dict[str, Any]:
-    """Record, compute and store one run; returns its summary (see :func:`show_run`)."""
+           provenance_extra: dict[str, Any] | None = None, warm_block=None,
+           warm_info: dict[str, Any] | None = None) -> dict[str, Any]:
+    """Record, compute and store one run; returns its summary (see :func:`show_run`).
+
+    A spec with ``warm_from`` builds its start block before the run is recorded (a source that is gone
+    raises NotFoundError and records nothing) unless ``warm_block`` is given."""
     graph = _load_version_graph(store, spec.version_id)
+    if spec.warm_from and warm_block is None:
+        from workspace.services import warmstart
+
+        warm_block, warm_info = warmstart.start_block(store, spec.warm_from, graph, spec)
     run_id = _insert_running(store, spec, provenance_extra=provenance_extra)
     try:
-        execute(store, run_id, spec, graph, progress=progress, cancel=cancel, embedding=embedding)
+        execute(store, run_id, spec, graph, progress=progress, cancel=cancel, embedding=embedding,
+                warm_block=warm_block, warm_info=warm_info)
     except ComputeError as exc:
         raise RunFailed(run_id, str(exc)) from exc
     return show_run(store, run_id, include_labels=False)
@@ -414,19 +454,34 @@ def rerun(store: Store, run_id: int, *, progress: Progress | None = None,
         v = s.get(NetworkVersion, old.version_id)
         net = s.get(Network, v.network_id)
         proj = s.get(Project, net.project_id)
-        emb_info = json.loads(old.provenance_json or "{}").get("embedding")
+        old_prov = json.loads(old.provenance_json or "{}")
+        emb_info = old_prov.get("embedding")
+        warm_from = old_prov.get("warm_from")
+        old_warm = json.loads(old.diagnostics_json or "{}").get("warm_start") or {}
         spec = RunSpec(version_ref=f"{proj.name}/{net.name}@{v.number}", version_id=v.id, method=old.method,
                        k=old.k_requested, params=params, seed=old.seed or 0, repeats=old.repeats,
                        perturb=perturb, param_set_version_id=old.param_set_version_id, rerun_of=old.id,
                        embedding_vectors=emb_info["n_vectors"] if emb_info else None,
-                       embedding_seed=emb_info["seed"] if emb_info else None)
+                       embedding_seed=emb_info["seed"] if emb_info else None, warm_from=warm_from)
         old_hash = old.membership_hash
     embedding = extra = None
     if emb_info:  # the cached embedding when the store still holds it, else solved again from the spec
         from workspace.services import sweeps as sweeps_service
 
         embedding, extra = sweeps_service.embedding_for_rerun(store, emb_info)
-    out = launch(store, spec, progress=progress, cancel=cancel, embedding=embedding, provenance_extra=extra)
+    warm_block = warm_info = None
+    if warm_from:  # the same start block, rebuilt from the recorded source (or a clear refusal)
+        from workspace.services import warmstart
+
+        try:
+            warm_block, warm_info = warmstart.start_block(store, warm_from, _load_version_graph(store, spec.version_id), spec)
+        except NotFoundError as exc:
+            raise NotFoundError(f"run {run_id} was warm-started from {warm_from}: {exc}") from None
+        if old_warm.get("block_sha256") and warm_info["block_sha256"] != old_warm["block_sha256"]:
+            raise ComputeError(f"run {run_id}: the start block rebuilt from {warm_from} differs from the one "
+                               "recorded; the rerun could not be identical")
+    out = launch(store, spec, progress=progress, cancel=cancel, embedding=embedding, provenance_extra=extra,
+                 warm_block=warm_block, warm_info=warm_info)
     out["rerun_of"] = run_id
     out["identical"] = old_hash is not None and out["membership_hash"] == old_hash
     return out

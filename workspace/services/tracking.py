@@ -137,10 +137,15 @@ def list_tracked(store: Store, network: str) -> dict[str, Any]:
 # --- one update --------------------------------------------------------------------------------------
 
 def _tracked_spec(store: Store, version_ref: str, params_ref: str) -> RunSpec:
-    """The run spec of one tracked set on one version: the ONE place every tracked run is prepared."""
+    """The run spec of one tracked set on one version: the ONE place every tracked run is prepared.
+
+    Warm-started (``warm="auto"``): the eigensolver starts from the previous version's cached
+    embedding of the same operator, else from its run of the same parameters, mapped by node id; a
+    cold solve when there is neither (see :mod:`workspace.services.warmstart`).
+    """
     from workspace.services.runs import prepare_run
 
-    return prepare_run(store, version_ref, params_ref=params_ref)
+    return prepare_run(store, version_ref, params_ref=params_ref, warm="auto")
 
 
 def _previous_run(s, network_id: int, number: int, psv_id: int) -> tuple[int | None, int | None]:

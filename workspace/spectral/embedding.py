@@ -38,7 +38,7 @@ import scipy.sparse as sp
 from workspace.errors import ComputeError
 
 from .eigen import EigenSolution, SolverContext, SymmetricOperator, largest_eigenpairs, shifted_laplacian_operator
-from .laplacians import degrees
+from .laplacians import degrees, with_loops_doubled
 
 __all__ = ["EMBEDDING_METHODS", "Embedding", "operator_for", "solve_embedding", "embedding_fields"]
 
@@ -149,7 +149,7 @@ class Embedding:
 
 
 def solve_embedding(sub, method: str, params: dict[str, Any], m: int, ctx: SolverContext, *,
-                    extra: int = 1) -> Embedding:
+                    extra: int = 1, start: np.ndarray | None = None) -> Embedding:
     r"""Leading ``m`` eigenpairs of the operator of ``method`` on a connected graph.
 
     Builds exactly the operator :func:`workspace.spectral.kway.laplacian_embedding`
@@ -169,6 +169,10 @@ def solve_embedding(sub, method: str, params: dict[str, Any], m: int, ctx: Solve
     ctx : SolverContext
     extra : int, default 1
         Eigenvalues beyond ``m`` (the eigengap at the largest k needs one).
+    start : ndarray, shape (n, b), optional
+        Warm-start block in ``sub``'s node order (see
+        :func:`workspace.spectral.eigen.warm_start_vector`); its outcome is in
+        ``info["warm_start"]``.
 
     Returns
     -------
@@ -193,12 +197,13 @@ def solve_embedding(sub, method: str, params: dict[str, Any], m: int, ctx: Solve
     info: dict[str, Any] = {}
     if operator == "bethe":
         if params["weights"] == "ignore":
-            A = sp.csr_array((np.ones_like(A.data), A.indices, A.indptr), shape=A.shape)
+            # as partition does: unit weights, then the loop convention (a loop counts 2)
+            A = with_loops_doubled(sp.csr_array((np.ones_like(A.data), A.indices, A.indptr), shape=A.shape))
         d = degrees(A)
         r = params["r"] if params["r"] > 0 else bethe_default_r(d)
         c = r * r - 1.0 + (1.0 + r) * float(d.max())
         op = SymmetricOperator(A, diagonal=(c - r * r + 1.0) - d, scale=r)
-        sol = largest_eigenpairs(op, m, ctx, stage="bethe", bound=abs(c) + 1.0, extra=extra)
+        sol = largest_eigenpairs(op, m, ctx, stage="bethe", bound=abs(c) + 1.0, extra=extra, start=start)
         info["r"] = float(r)
         info["shift"] = float(c)
     else:
@@ -208,8 +213,10 @@ def solve_embedding(sub, method: str, params: dict[str, Any], m: int, ctx: Solve
             tau = params["tau"] if params["tau"] >= 0 else float(d.mean())
             info["tau"] = float(tau)
         op, shift, _ = shifted_laplacian_operator(A, "sym", d, regularizer=tau)
-        sol = largest_eigenpairs(op, m, ctx, stage=method, bound=shift, extra=extra)
+        sol = largest_eigenpairs(op, m, ctx, stage=method, bound=shift, extra=extra, start=start)
         info["shift"] = float(shift)
+    if start is not None and ctx.warm_start is not None:
+        info["warm_start"] = dict(ctx.warm_start)
     return Embedding(operator=operator, operator_params=op_params, values=np.asarray(sol.values, np.float64),
                      vectors=sol.vectors, solver=sol.solver, residual_norms=list(sol.residual_norms),
                      seed=int(ctx.seed), extra_accuracy=ctx.extra_accuracy, info=info)

@@ -15,7 +15,7 @@ from .baselines import run_baseline
 from .bisection import fiedler_bisection, recursive_bisection
 from .directed import directed_embedding, symmetrised
 from .eigen import SolverContext, laplacian_eigenpairs
-from .embedding import EMBEDDING_METHODS, Embedding
+from .embedding import EMBEDDING_METHODS, Embedding, solve_embedding
 from .kway import assign_rows, bethe_embedding, eigengap_k, laplacian_embedding
 from .laplacians import degrees, with_loops_doubled
 from .methods import METHODS, MethodInfo, validate_params
@@ -132,7 +132,8 @@ def _union_eigenvalues(chunks: list[np.ndarray]) -> np.ndarray:
 def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
               progress: Callable[[str, int], None] | None = None,
               cancel: Callable[[], bool] | None = None, directed: bool = False,
-              embedding: Embedding | None = None, **params) -> PartitionResult:
+              embedding: Embedding | None = None, warm_start: np.ndarray | None = None,
+              **params) -> PartitionResult:
     r"""Partition the nodes of a weighted graph into communities.
 
     Parameters
@@ -176,6 +177,18 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
         parameters; the eigensolve is skipped and the first k vectors are used,
         so only the assignment runs. Only for graphs partitioned as one
         component; ``diagnostics["embedding_reused"]`` is then True.
+    warm_start : ndarray of float64, shape (n, b), optional
+        Start block for the eigensolver of the k-way methods (``njw``,
+        ``shi-malik``, ``regularized``, ``bethe``), rows in the node order of
+        ``A`` (for example the previous version's eigenvectors mapped onto
+        these nodes); the rows of the partitioned component are used. The
+        chain starts ARPACK from one combination of its columns
+        (:func:`workspace.spectral.eigen.warm_start_vector`) under the cold
+        solve's convergence test and
+        solves cold when that fails; ``diagnostics["warm_start"]`` is
+        ``{"used": bool, "fallback": reason or None, "matvecs": int}``.
+        Ignored (with the reason there) when several components are
+        partitioned.
     **params
         Method parameters, validated by
         :func:`workspace.spectral.methods.validate_params` (strings such as
@@ -243,6 +256,16 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
     k_req = _resolve_k(info, k, n)
     if embedding is not None and method not in EMBEDDING_METHODS:
         raise ParameterError(f"{method} cannot use a shared embedding (only {', '.join(EMBEDDING_METHODS)})")
+    if warm_start is not None:
+        if method not in EMBEDDING_METHODS:
+            raise ParameterError(f"{method} takes no warm start (only {', '.join(EMBEDDING_METHODS)})")
+        if embedding is not None:
+            raise ParameterError("give either a shared embedding or a warm start, not both")
+        warm_start = np.asarray(warm_start)
+        if warm_start.ndim != 2 or warm_start.shape[0] != n or warm_start.shape[1] < 1:
+            raise ParameterError(f"warm_start must have shape (n, b) with n={n} rows (got {warm_start.shape})")
+        if warm_start.dtype.kind not in "biuf" or not np.all(np.isfinite(warm_start)):
+            raise ParameterError("warm_start must hold finite real numbers")
     offdiag = S.nnz - int(np.count_nonzero(S.diagonal()))
     if offdiag == 0 or not np.any(S.data > 0):
         raise ComputeError("the graph has no edges between distinct nodes; nothing to partition")
@@ -324,6 +347,19 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
                 ctx.extra_accuracy = embedding.extra_accuracy
                 diag_extra["embedding_reused"] = True
             alloc = _allocate(S, comp_nodes, k_req, method, ctx, p, warnings)
+            if warm_start is not None and len(comp_nodes) != 1:
+                diag_extra["warm_start"] = {"used": False, "matvecs": 0, "fallback":
+                                            f"{len(comp_nodes)} components partitioned; warm start applies to one"}
+            elif warm_start is not None and alloc[0] != 1:
+                nodes = comp_nodes[0]
+                sub = _induced(A_loops, nodes) if kept_mask is not None else A_loops
+                m = min(sub.shape[0], alloc[0] if alloc[0] is not None else p["k_max"])
+                solved, records = len(ctx.solvers), len(ctx.residual_norms)
+                embedding = solve_embedding(sub, method, p, m, ctx, extra=p["extra_eigenvalues"],
+                                            start=np.asarray(warm_start[nodes], dtype=np.float64))
+                del ctx.solvers[solved:], ctx.residual_norms[records:]   # recorded again when reused below
+                diag_extra["warm_start"] = dict(ctx.warm_start or {"used": False, "matvecs": 0,
+                                                                   "fallback": "no iterative solve"})
             two_m = float(degrees(A_loops).sum())
             next_label = 0
             for nodes, k_i in zip(comp_nodes, alloc):
@@ -362,7 +398,7 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
         lo, hi = float(eigenvalues[k_for_ties - 1]), float(eigenvalues[k_for_ties])
         scale = max(abs(lo), abs(hi))
         slack = 10.0 * ctx.eig_tol * (2.0 if method != "bethe" else scale + 1.0) \
-            if "arpack-eigsh" in ctx.solvers or "lobpcg" in ctx.solvers else 1e-12 * max(scale, 1.0)
+            if {"arpack-eigsh", "lobpcg", "arpack-eigsh-warm"} & set(ctx.solvers) else 1e-12 * max(scale, 1.0)
         if hi - lo <= p["tie_tol"] * scale + slack:
             warnings.append(f"eigenvalues {k_for_ties} and {k_for_ties + 1} are (nearly) equal "
                             f"({lo:.10g}, {hi:.10g}): the partition is not unique")

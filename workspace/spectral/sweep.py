@@ -25,14 +25,14 @@ from .laplacians import with_loops_doubled
 from .methods import validate_params
 from .result import PartitionResult
 
-__all__ = ["compute_embedding", "k_path", "ascending_spectrum", "eigengaps", "perturbed_adjacency",
+__all__ = ["compute_embedding", "embedded_nodes", "k_path", "ascending_spectrum", "eigengaps", "perturbed_adjacency",
            "parse_k_range"]
 
 
 def compute_embedding(A, method: str, n_vectors: int, *, seed: int = 0,
                       progress: Callable[[str, int], None] | None = None,
                       cancel: Callable[[], bool] | None = None, directed: bool = False,
-                      **params) -> Embedding | None:
+                      warm_start: np.ndarray | None = None, **params) -> Embedding | None:
     r"""The eigenpairs that every k up to ``n_vectors`` of a k-way method needs, solved once.
 
     The graph is prepared exactly as :func:`workspace.spectral.partition` does
@@ -57,6 +57,10 @@ def compute_embedding(A, method: str, n_vectors: int, *, seed: int = 0,
     directed : bool, default False
         ``A`` holds arcs; the k-way methods run on the symmetrised graph
         :math:`A + A^T` exactly as :func:`workspace.spectral.partition` does.
+    warm_start : ndarray, shape (n, b), optional
+        Start block in the node order of ``A`` (all ``n`` rows; the
+        component's rows are used), as in :func:`workspace.spectral.partition`;
+        the outcome is in ``info["warm_start"]`` of the embedding.
     **params
         Method parameters (validated here).
 
@@ -105,7 +109,38 @@ def compute_embedding(A, method: str, n_vectors: int, *, seed: int = 0,
                         max_matvecs=p["max_matvecs"], time_limit_s=p["time_limit_s"], progress=progress,
                         cancel=cancel, threads=p["threads"])
     m = min(int(n_vectors), sub.shape[0])
-    return solve_embedding(sub, method, p, m, ctx, extra=p["extra_eigenvalues"])
+    start = None
+    if warm_start is not None:
+        warm_start = np.asarray(warm_start)
+        if warm_start.ndim != 2 or warm_start.shape[0] != A.shape[0]:
+            raise ParameterError(f"warm_start must have shape (n, b) with n={A.shape[0]} rows "
+                                 f"(got {warm_start.shape})")
+        start = np.asarray(warm_start[nodes], dtype=np.float64)
+    return solve_embedding(sub, method, p, m, ctx, extra=p["extra_eigenvalues"], start=start)
+
+
+def embedded_nodes(A, components: str = "each", directed: bool = False) -> np.ndarray | None:
+    """Indices of the nodes an embedding of ``A`` has rows for (ascending), or None.
+
+    The nodes of the one component :func:`compute_embedding` and
+    :func:`workspace.spectral.partition` embed under the ``components``
+    policy (isolated nodes are never embedded); None when several components
+    would be partitioned. Row ``i`` of such an embedding is node
+    ``embedded_nodes(A)[i]``.
+    """
+    A = _prepare_adjacency(A, check_symmetry=False)
+    if directed:
+        A = symmetrised(A)
+    ncomp, comp = _components(A)
+    sizes = np.bincount(comp, minlength=ncomp)
+    nontrivial = np.flatnonzero(sizes >= 2)
+    if components == "largest" and nontrivial.shape[0] > 1:
+        first = np.full(ncomp, A.shape[0], dtype=np.int64)
+        np.minimum.at(first, comp, np.arange(A.shape[0]))
+        nontrivial = nontrivial[np.lexsort((first[nontrivial], -sizes[nontrivial]))][:1]
+    if nontrivial.shape[0] != 1:
+        return None
+    return _component_node_lists(comp, nontrivial)[0]
 
 
 def ascending_spectrum(embedding: Embedding) -> np.ndarray:
