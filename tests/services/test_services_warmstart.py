@@ -10,7 +10,6 @@ from __future__ import annotations
 import networkx as nx
 import numpy as np
 import pytest
-import scipy.sparse as sp
 from sklearn.metrics import adjusted_rand_score
 
 from graphs import import_adjacency
