@@ -268,6 +268,9 @@ def show_run(store, run_id: int, *, include_labels: bool = False) -> dict[str, A
         comms = con.execute("SELECT community, size, volume, cut, conductance, stability FROM run_communities "
                             "WHERE run_id = ? ORDER BY community", (run_id,)).fetchall()
         annotations = _run_annotations(con, [run_id])
+        # a tracked run's labels as people see them (services.tracking.shown_map)
+        labels = con.execute("SELECT labels_json FROM tracked_update_runs WHERE run_id = ? AND labels_json IS NOT NULL "
+                             "ORDER BY update_id DESC LIMIT 1", (run_id,)).fetchone()
     out.update({
         "params": json.loads(params_json), "param_set": psv_ref, "rerun_of": rerun_of,
         "error": error, "quality": json.loads(quality_json),
@@ -278,6 +281,11 @@ def show_run(store, run_id: int, *, include_labels: bool = False) -> dict[str, A
         "host": out["host"], "pid": pid,
     })
     out.update(annotations.get(run_id, {"tags": [], "notes": []}))
+    out["shown_labels"] = json.loads(labels[0]) if labels else None
+    shown = out["shown_labels"]["map"] if out["shown_labels"] else None
+    for row in out["communities"]:
+        c = row["community"]
+        row["shown"] = shown[c] if shown is not None and 0 <= c < len(shown) else c
     started, finished = r[13], r[14]
     if started and finished:
         out["wall_time_s"] = (_time(finished) - _time(started)).total_seconds()
