@@ -100,8 +100,12 @@ def build_demo(store: Store, *, say: Callable[[str], None] = lambda s: None) -> 
         f = tmp / f"trips-{scenario.UPDATE_MONTH}.csv"
         scenario.bike_trips(scenario.UPDATE_MONTH).to_csv(f)
         note = "July trips: Cinder Bridge reopens, two more Lantern Wharf stations"
+        table = tmp / f"stations-{scenario.UPDATE_MONTH}.csv"
+        scenario.station_table_csv(scenario.UPDATE_MONTH, table)  # July's own table: the two new stations named
+        prepared = networks.prepare_import(f, policy=policy, source_label=f.name, nodes=table,
+                                           coords=("east_km", "north_km"))
         res = networks.import_network(store, f, project=CITY, network="stations", policy=policy, message=note,
-                                      source_label=f.name)
+                                      source_label=f.name, prepared=prepared)
         say(f"imported {res.ref}: {res.nodes} stations, {res.edges} station pairs — {note}")
         upd = tracking.update_after_import(store, res, say=say)
         summary["updates"] = {"july": upd["update"]}
