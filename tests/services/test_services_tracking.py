@@ -113,12 +113,18 @@ def test_a_failing_tracked_run_keeps_the_version_and_is_reported(store, tmp_path
     names, _ = tracked
     params.save_params(store, "city/too-many", method="njw", k=90)  # more communities than the 80 nodes
     tracking.add_tracked(store, "city/roads", "city/too-many")
+    # an eigensolver budget too small to converge: the run is recorded and fails in the computation
+    params.save_params(store, "city/starved", method="njw", k=4, values={"max_matvecs": "10", "dense_threshold": "2"})
+    tracking.add_tracked(store, "city/roads", "city/starved")
     outcome = _import(store, tmp_path, _planted(3), names, "v2")
     upd = tracking.update_after_import(store, outcome)
     assert upd["status"] == "failed"
     by = {s["params"]: s for s in upd["sets"]}
+    # k=90 cannot be prepared on 80 nodes: reported failed, no run recorded
     assert by["city/too-many@1"]["status"] == "failed" and "k=90" in by["city/too-many@1"]["error"]
-    assert runs.show_run(store, by["city/too-many@1"]["run"])["status"] == "failed"
+    assert by["city/too-many@1"]["run"] is None
+    assert by["city/starved@1"]["status"] == "failed" and "max_matvecs" in by["city/starved@1"]["error"]
+    assert runs.show_run(store, by["city/starved@1"]["run"])["status"] == "failed"
     assert by["city/four@1"]["status"] == "done" and by["city/auto@1"]["status"] == "done"
     assert networks.list_versions(store, "city/roads")[-1]["version"] == 2
 
