@@ -20,6 +20,7 @@ from .kway import assign_rows, bethe_embedding, eigengap_k, laplacian_embedding
 from .laplacians import degrees, with_loops_doubled
 from .methods import METHODS, MethodInfo, validate_params
 from .modularity import leading_eigenvector
+from . import ordering
 from .ordering import computation_order
 from .quality import quality_measures
 from .result import PartitionResult, canonical_labels
@@ -553,7 +554,7 @@ def _order_for(sub, solution, ctx: SolverContext):
     changes the speed of the products, not the labels (the start vector is drawn in the
     original order and permuted, the eigenvectors are permuted back).
     """
-    if solution is not None or sub.shape[0] <= ctx.dense_threshold:
+    if solution is not None or sub.shape[0] < ordering.ORDER_MIN_NODES:
         return None
     ctx.report("order")
     return computation_order(sub)
