@@ -29,6 +29,7 @@ def _graph(name):
 @pytest.fixture
 def always_ordered(monkeypatch):
     monkeypatch.setattr(ordering, "ORDER_MIN_NODES", 0)
+    monkeypatch.setattr(ordering, "ORDER_MIN_GAIN", 0.0)
 
 
 @pytest.fixture
@@ -38,7 +39,7 @@ def never_ordered(monkeypatch):
 
 def test_breadth_first_order_is_a_permutation_with_locality():
     A = _graph("planted")
-    order = computation_order(A, min_nodes=0)
+    order = computation_order(A, min_nodes=0, min_gain=0)
     n = A.shape[0]
     assert np.array_equal(np.sort(order), np.arange(n))
     # the first node is the search's root and every later node has a neighbour placed before it
@@ -58,11 +59,15 @@ def test_breadth_first_order_is_a_permutation_with_locality():
     shuffle = np.random.default_rng(1).permutation(3600)
     grid = nx.to_scipy_sparse_array(G, nodelist=shuffle.tolist(), format="csr")
     g_rows = np.repeat(np.arange(3600), np.diff(grid.indptr))
-    g_inv = inverse_order(computation_order(grid, min_nodes=0))
+    g_order = computation_order(grid, min_nodes=0)          # default gain rule: the grid gains
+    g_inv = inverse_order(g_order)
     assert np.max(np.abs(g_inv[g_rows] - g_inv[grid.indices])) <= 2 * 60
     assert np.max(np.abs(g_rows - grid.indices)) > 3000
+    # a random graph (an expander) has no short-span order: the gain rule declines it
+    assert ordering.span_reduction(A, order) < ordering.ORDER_MIN_GAIN
+    assert computation_order(A, min_nodes=0) is None
     # reverse Cuthill-McKee is scipy's own (scipy.sparse.csgraph.reverse_cuthill_mckee)
-    rcm = computation_order(A, kind="rcm", min_nodes=0)
+    rcm = computation_order(A, kind="rcm", min_nodes=0, min_gain=0)
     assert np.array_equal(np.sort(rcm), np.arange(n))
     assert computation_order(A) is None  # small graph: no reordering by default
 
@@ -72,7 +77,7 @@ def test_disconnected_pattern_keeps_every_node():
     G = nx.Graph([(0, 1), (1, 2), (2, 0), (4, 5), (5, 6), (6, 4)])
     G.add_node(3)
     A = nx.to_scipy_sparse_array(G, nodelist=range(7), format="csr")
-    order = computation_order(A, min_nodes=0)
+    order = computation_order(A, min_nodes=0, min_gain=0)
     assert sorted(order.tolist()) == list(range(7))
     assert set(order[:3].tolist()) == {0, 1, 2}
 
@@ -97,7 +102,7 @@ def test_eigenpairs_come_back_in_the_original_order(name):
     keep = np.flatnonzero(comp == np.argmax(np.bincount(comp)))   # one component: distinct eigenvalues
     A = sp.csr_array(A[keep][:, keep])
     n = A.shape[0]
-    order = computation_order(A, min_nodes=0)
+    order = computation_order(A, min_nodes=0, min_gain=0)
     plain, _, _ = shifted_laplacian_operator(A, "sym")
     permuted, _, _ = shifted_laplacian_operator(A, "sym", order=order)
     for dense_threshold in ((10 ** 9, 10) if n < 1000 else (10,)):   # the dense path and ARPACK
@@ -122,6 +127,7 @@ def test_memberships_identical_with_and_without_the_order(method, monkeypatch):
         monkeypatch.setattr(ordering, "ORDER_MIN_NODES", 10 ** 12)
         before = partition(A, method, k=k, seed=7, dense_threshold=10)
         monkeypatch.setattr(ordering, "ORDER_MIN_NODES", 0)
+        monkeypatch.setattr(ordering, "ORDER_MIN_GAIN", 0.0)
         after = partition(A, method, k=k, seed=7, dense_threshold=10)
         assert np.array_equal(before.labels, after.labels), (name, method)
         assert adjusted_rand_score(before.labels, after.labels) == 1.0  # sklearn's ARI
@@ -148,6 +154,7 @@ def test_demo_store_unchanged_by_the_order(tmp_path, monkeypatch):
     hashes = []
     for threshold, name in ((10 ** 12, "plain"), (0, "ordered")):
         monkeypatch.setattr(ordering, "ORDER_MIN_NODES", threshold)
+        monkeypatch.setattr(ordering, "ORDER_MIN_GAIN", 0.0)
         path = tmp_path / f"{name}.sqlite"
         build_demo_store(str(path))
         store = open_workspace(path)
