@@ -110,7 +110,9 @@ def laplacian_embedding(A, k: int | None, method: str, ctx: SolverContext, *, ex
     if method == "shi-malik":
         U = V * inverse_sqrt_degrees(d + tau)[:, None]
     else:
-        U = np.array(V)
+        # the solver's own vectors are normalised in place (no second n x k copy); a shared
+        # embedding's are copied first
+        U = V if solution is None and V.base is None and V.flags.c_contiguous else np.array(V)
         norms = np.sqrt(np.einsum("ij,ij->i", U, U))
         norms[norms == 0] = 1.0
         U /= norms[:, None]
