@@ -112,7 +112,8 @@ def laplacian_embedding(A, k: int | None, method: str, ctx: SolverContext, *, ex
     else:
         # the solver's own vectors are normalised in place (no second n x k copy); a shared
         # embedding's are copied first
-        U = V if solution is None and V.base is None and V.flags.c_contiguous else np.array(V)
+        own = solution is None and sol.vectors.shape[1] == k and sol.vectors.flags.c_contiguous
+        U = sol.vectors if own else np.array(V)
         norms = np.sqrt(np.einsum("ij,ij->i", U, U))
         norms[norms == 0] = 1.0
         U /= norms[:, None]
