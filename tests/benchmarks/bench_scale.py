@@ -200,8 +200,8 @@ def main() -> None:
     base_n = sizes[0]
     print(f"\nsummary: per-1M figures relative to n={base_n:,} with the same ids (target <= 1.2), "
           "and long ids relative to short ids at the same n (target <= 1.2)")
-    print(f"{'n':>11} {'ids':>4} {'step':>11} {'s/1M':>8} {'GB/1M':>6} {'time ratio':>10} "
-          f"{'mem ratio':>9} {'long/short':>10}")
+    print(f"{'n':>11} {'ids':>4} {'step':>11} {'s/1M':>8} {'cpu s/1M':>8} {'GB/1M':>6} {'time ratio':>10} "
+          f"{'cpu ratio':>9} {'mem ratio':>9} {'long/short':>10} {'cpu l/s':>7}")
     for (n, length), res in results.items():
         base = results.get((base_n, length))
         short = results.get((n, lengths[0]))
@@ -211,9 +211,13 @@ def main() -> None:
             b = base[name]
             ratio_t = per / (b["wall"] / (base_n / 1e6))
             ratio_m = mem / (b["peak_kb"] / 2**20 / (base_n / 1e6))
-            ls = (f"{r['wall'] / short[name]['wall']:10.2f}" if length != lengths[0] and short
-                  else f"{'-':>10}")
-            print(f"{n:>11,} {length:>4} {name:>11} {per:8.2f} {mem:6.2f} {ratio_t:10.2f} {ratio_m:9.2f} {ls}")
+            cpu = r["cpu"] / (n / 1e6)
+            ratio_c = cpu / max(b["cpu"] / (base_n / 1e6), 1e-9)
+            long_ = length != lengths[0] and short
+            ls = f"{r['wall'] / short[name]['wall']:10.2f}" if long_ else f"{'-':>10}"
+            lc = f"{r['cpu'] / max(short[name]['cpu'], 1e-9):7.2f}" if long_ else f"{'-':>7}"
+            print(f"{n:>11,} {length:>4} {name:>11} {per:8.2f} {cpu:8.2f} {mem:6.2f} {ratio_t:10.2f} "
+                  f"{ratio_c:9.2f} {ratio_m:9.2f} {ls} {lc}")
     print(f"\nload average at the end {os.getloadavg()}; targets: peak <= 0.6 GB per 1M nodes for import "
           "and run at 3M")
 
