@@ -192,3 +192,23 @@ def test_every_k_way_method_takes_a_warm_start(versions, method, k):
     assert warm.diagnostics["warm_start"]["used"] is True
     assert warm.k == cold.k
     assert adjusted_rand_score(cold.labels, warm.labels) >= 0.999
+
+
+
+def test_warm_start_under_the_computation_order(versions, monkeypatch):
+    # forcing the breadth-first computation order on (workspace/spectral/ordering.py) changes nothing
+    # for a warm-started run: the same products as the unordered warm solve, the same labels, and
+    # agreement with the cold solve (scikit-learn adjusted_rand_score). (A start block that reaches an
+    # ordered operator is moved into its order with the random draws: eigen._iterative.)
+    from workspace.spectral import ordering
+
+    G, H, A1, A2, previous = versions
+    plain = partition(A2, "njw", k=4, seed=0, dense_threshold=100, warm_start=previous.vectors)
+    monkeypatch.setattr(ordering, "ORDER_MIN_NODES", 0)
+    monkeypatch.setattr(ordering, "ORDER_MIN_GAIN", 0.0)
+    cold = partition(A2, "njw", k=4, seed=0, dense_threshold=100)
+    warm = partition(A2, "njw", k=4, seed=0, dense_threshold=100, warm_start=previous.vectors)
+    assert warm.diagnostics["warm_start"]["used"] is True, warm.diagnostics["warm_start"]
+    assert warm.diagnostics["warm_start"]["matvecs"] == plain.diagnostics["warm_start"]["matvecs"]
+    assert adjusted_rand_score(cold.labels, warm.labels) >= 0.999
+    assert adjusted_rand_score(plain.labels, warm.labels) == 1.0

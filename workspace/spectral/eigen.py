@@ -28,6 +28,7 @@ from scipy.sparse.linalg import ArpackError, ArpackNoConvergence, LinearOperator
 from workspace.errors import Cancelled, ComputeError
 
 from .laplacians import degrees, inverse_sqrt_degrees, normalized_adjacency, with_loops_doubled
+from .ordering import permuted_scaled
 
 __all__ = ["SolverContext", "SymmetricOperator", "EigenSolution", "largest_eigenpairs",
            "laplacian_eigenpairs", "fix_signs", "warm_start_vector"]
@@ -178,11 +179,19 @@ class SymmetricOperator:
     rank_one : ndarray, shape (n,), optional
         Vector ``u``; the term ``- u (u^T x) / rank_one_denominator`` is added.
     rank_one_denominator : float, default 1
+    order : ndarray of int, shape (n,), optional
+        The operator is stored in a computation order
+        (:mod:`workspace.spectral.ordering`): ``S``, ``diagonal`` and
+        ``rank_one`` are :math:`P S P^T`, :math:`P c`, :math:`P u` with
+        ``order[i]`` the original node at position ``i``. The eigensolver
+        then permutes its seeded start vector in and the eigenvectors out,
+        so callers see the original order.
     """
 
     def __init__(self, S, diagonal=0.0, scale: float = 1.0, rank_one=None,
-                 rank_one_denominator: float = 1.0) -> None:
+                 rank_one_denominator: float = 1.0, order=None) -> None:
         self.S = S
+        self.order = order
         self.n = S.shape[0]
         self.diagonal = diagonal
         self.scale = float(scale)
@@ -211,7 +220,7 @@ class SymmetricOperator:
             return self
         S = self.S if isinstance(self.S, sp.csr_array) else sp.csr_array(self.S)
         return SymmetricOperator(RowBlockMatrix(S, executor, parts), self.diagonal, self.scale,
-                                 self.rank_one, self.rank_one_denominator)
+                                 self.rank_one, self.rank_one_denominator, self.order)
 
     def to_dense(self) -> np.ndarray:
         """The dense ``n × n`` matrix (only for small ``n``)."""
@@ -370,6 +379,8 @@ def largest_eigenpairs(op: SymmetricOperator, m: int, ctx: SolverContext, *,
         fix_signs(V)
         V = V[:, :m]
         res = np.linalg.norm(M @ V - V * w[:m], axis=0)
+        if op.order is not None:
+            V = _to_original_order(V, op.order)
         sol = EigenSolution(w, V, "dense-eigh", 0, [float(r) for r in res])
         _record(ctx, sol)
         ctx.check_cancel()
@@ -378,8 +389,24 @@ def largest_eigenpairs(op: SymmetricOperator, m: int, ctx: SolverContext, *,
     threads = ctx.threads if ctx.threads > 0 else available_cpus()
     if threads > 1 and sp.issparse(op.S) and op.S.nnz >= PARALLEL_MIN_NNZ:
         with ThreadPoolExecutor(max_workers=threads - 1) as executor:
-            return _iterative(op.parallel(executor, threads), m, ctx, stage, bound, extra, start)
-    return _iterative(op, m, ctx, stage, bound, extra, start)
+            sol = _iterative(op.parallel(executor, threads), m, ctx, stage, bound, extra, start)
+    else:
+        sol = _iterative(op, m, ctx, stage, bound, extra, start)
+    if op.order is not None:
+        sol.vectors = _to_original_order(sol.vectors, op.order)
+    return sol
+
+
+def _to_original_order(V: np.ndarray, order: np.ndarray) -> np.ndarray:
+    """Rows of ``V`` (computation order) back in the original node order, signs fixed there."""
+    out = np.empty_like(V)
+    out[order] = V
+    return fix_signs(out)
+
+
+def _in_order(x: np.ndarray, order) -> np.ndarray:
+    """A vector or block drawn in the original node order, in the operator's order."""
+    return x if order is None else x[order]
 
 
 def _iterative(op: SymmetricOperator, m: int, ctx: SolverContext, stage: str,
@@ -397,11 +424,13 @@ def _iterative(op: SymmetricOperator, m: int, ctx: SolverContext, stage: str,
 
     lin = LinearOperator((n, n), matvec=mv, matmat=mm, rmatvec=mv, dtype=np.float64)
     rng = np.random.default_rng(ctx.seed)
-    v0 = rng.uniform(-1.0, 1.0, n)
+    v0 = _in_order(rng.uniform(-1.0, 1.0, n), op.order)
     ncv = min(n, max(2 * m + 1, 20))
     maxiter = max(1, ctx.max_matvecs // max(1, ncv - m))
     if start is not None:
-        sol = _warm_arpack(op, lin, m, ctx, stage, extra, start, v0, ncv, maxiter)
+        # the block comes in the original node order, like the random draws: move it to the operator's
+        # the block comes in the original node order, like the random draws: move it to the operator's
+        sol = _warm_arpack(op, lin, m, ctx, stage, extra, _in_order(np.asarray(start), op.order), v0, ncv, maxiter)
         if sol is not None:
             return sol
     start = ctx.matvecs
@@ -422,7 +451,7 @@ def _iterative(op: SymmetricOperator, m: int, ctx: SolverContext, stage: str,
                            f"(n={n}, {m} eigenpairs); raise the limit or eig_tol") from None
     if not solver:
         ctx.warnings.append(f"{why}; falling back to LOBPCG")
-        X = rng.standard_normal((n, m))
+        X = _in_order(rng.standard_normal((n, m)), op.order)
         if X0 is not None:
             X[:, :X0.shape[1]] = X0
         lob_tol = max(ctx.eig_tol, 1e-9) * (bound if bound else 1.0) * 10
@@ -594,7 +623,7 @@ ho` (Saad 2011, Numerical Methods for Large Eigenvalue
 
 
 def _quick_deflated(lin: LinearOperator, v0: np.ndarray, w: np.ndarray, extra: int,
-                    ctx: SolverContext, iterations: int = 8) -> np.ndarray | None:
+                    ctx: SolverContext, iterations: int = 8, order=None) -> np.ndarray | None:
     r"""A few LOBPCG steps (Knyazev 2001) for the next eigenvalues, kept only when decisive.
 
     The Rayleigh–Ritz values :math:`\theta` lie below the eigenvalues they
@@ -613,7 +642,8 @@ def _quick_deflated(lin: LinearOperator, v0: np.ndarray, w: np.ndarray, extra: i
     X = np.empty((lin.shape[0], extra))
     X[:, 0] = v0
     if extra > 1:
-        X[:, 1:] = np.random.default_rng([ctx.seed, extra]).uniform(-1.0, 1.0, (lin.shape[0], extra - 1))
+        X[:, 1:] = _in_order(np.random.default_rng([ctx.seed, extra]).uniform(
+            -1.0, 1.0, (lin.shape[0], extra - 1)), order)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -656,8 +686,8 @@ def _deflated_values(op: SymmetricOperator, V: np.ndarray, w: np.ndarray, extra:
         return project(op.apply(X))
 
     lin = LinearOperator((n, n), matvec=mv, matmat=mm, rmatvec=mv, dtype=np.float64)
-    v0 = project(rng.uniform(-1.0, 1.0, n))
-    quick = _quick_deflated(lin, v0, w, extra, ctx)
+    v0 = project(_in_order(rng.uniform(-1.0, 1.0, n), op.order))
+    quick = _quick_deflated(lin, v0, w, extra, ctx, order=op.order)
     if quick is not None:
         return quick
     est = None
@@ -687,7 +717,7 @@ def _record(ctx: SolverContext, sol: EigenSolution) -> None:
 
 
 def shifted_laplacian_operator(A, laplacian: str, d: np.ndarray | None = None,
-                               regularizer: float = 0.0):
+                               regularizer: float = 0.0, order: np.ndarray | None = None):
     r"""Operator whose largest eigenpairs are the smallest of a Laplacian.
 
     Returns ``(op, shift, post)`` with :math:`\lambda(L) = \mathrm{shift} - \mu(M)`:
@@ -708,6 +738,11 @@ def shifted_laplacian_operator(A, laplacian: str, d: np.ndarray | None = None,
         Degrees.
     regularizer : float, default 0
         :math:`\tau` of :math:`D_\tau = D + \tau I` (normalised kinds only).
+    order : ndarray of int, shape (n,), optional
+        A computation order (:func:`workspace.spectral.ordering.computation_order`):
+        the operator is built permuted, :math:`P M P^T`, in one copy of ``A``
+        (see :class:`SymmetricOperator`); eigenvectors still come out in the
+        original order.
 
     Returns
     -------
@@ -729,10 +764,14 @@ def shifted_laplacian_operator(A, laplacian: str, d: np.ndarray | None = None,
     if d is None:
         d = degrees(A)
     if laplacian in ("sym", "rw"):
-        N = normalized_adjacency(A, d, regularizer=regularizer)
         isolated = d + regularizer <= 0
         diag = 1.0 + isolated.astype(np.float64) if isolated.any() else 1.0
-        op = SymmetricOperator(N, diagonal=diag)
+        if order is None:
+            op = SymmetricOperator(normalized_adjacency(A, d, regularizer=regularizer), diagonal=diag)
+        else:
+            N = permuted_scaled(A, order, inverse_sqrt_degrees(d + regularizer))
+            op = SymmetricOperator(N, diagonal=diag if np.ndim(diag) == 0 else diag[order],
+                                   order=order)
         if laplacian == "rw":
             s = inverse_sqrt_degrees(d)
 
@@ -744,7 +783,10 @@ def shifted_laplacian_operator(A, laplacian: str, d: np.ndarray | None = None,
     if laplacian == "unnormalized":
         c = 2.0 * float(d.max()) if d.size else 0.0
         c = c if c > 0 else 1.0
-        op = SymmetricOperator(A, diagonal=c - d)
+        if order is None:
+            op = SymmetricOperator(A, diagonal=c - d)
+        else:
+            op = SymmetricOperator(permuted_scaled(A, order), diagonal=(c - d)[order], order=order)
         return op, c, None
     raise ValueError(f"unknown Laplacian {laplacian!r}")
 

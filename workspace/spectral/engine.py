@@ -20,6 +20,8 @@ from .kway import assign_rows, bethe_embedding, eigengap_k, laplacian_embedding
 from .laplacians import degrees, with_loops_doubled
 from .methods import METHODS, MethodInfo, validate_params
 from .modularity import leading_eigenvector
+from . import ordering
+from .ordering import computation_order
 from .quality import quality_measures
 from .result import PartitionResult, canonical_labels
 
@@ -581,6 +583,19 @@ def _allocate(A, comp_nodes: list[np.ndarray], k: int | None, method: str, ctx: 
     return alloc
 
 
+def _order_for(sub, solution, ctx: SolverContext):
+    """Computation order of one component's products (None: small graph or no solve to run).
+
+    A pure function of the component's pattern (see :mod:`workspace.spectral.ordering`); it
+    changes the speed of the products, not the labels (the start vector is drawn in the
+    original order and permuted, the eigenvectors are permuted back).
+    """
+    if solution is not None or sub.shape[0] < ordering.ORDER_MIN_NODES:
+        return None
+    ctx.report("order")
+    return computation_order(sub)
+
+
 def _run_spectral(sub, method: str, k: int | None, ctx: SolverContext, p: dict,
                   two_m: float, solution=None) -> tuple[np.ndarray, np.ndarray, dict]:
     """One connected component; returns (labels 0.., eigenvalues, extra diagnostics)."""
@@ -598,7 +613,8 @@ def _run_spectral(sub, method: str, k: int | None, ctx: SolverContext, p: dict,
             tau = p["tau"] if p["tau"] >= 0 else float(degrees(sub).mean())
             extra["tau"] = tau
         U, vals, k_used = laplacian_embedding(sub, k, method, ctx, extra=p["extra_eigenvalues"],
-                                              k_max=p["k_max"], tau=tau, solution=solution)
+                                              k_max=p["k_max"], tau=tau, solution=solution,
+                                              order=_order_for(sub, solution, ctx))
         lab, info = assign_rows(U, k_used, ctx, assign=p["assign"], n_init=p["n_init"],
                                 max_iter=p["kmeans_max_iter"])
         extra.update(info)
@@ -610,7 +626,8 @@ def _run_spectral(sub, method: str, k: int | None, ctx: SolverContext, p: dict,
             sub = with_loops_doubled(sp.csr_array((np.ones_like(sub.data), sub.indices, sub.indptr),
                                                   shape=sub.shape))
         U, vals, k_used, extra = bethe_embedding(sub, k, ctx, r=p["r"], extra=p["extra_eigenvalues"],
-                                                 k_max=p["k_max"], solution=solution)
+                                                 k_max=p["k_max"], solution=solution,
+                                                 order=_order_for(sub, solution, ctx))
         extra["weights"] = p["weights"]
         lab, info = assign_rows(U, k_used, ctx, assign=p["assign"], n_init=p["n_init"],
                                 max_iter=p["kmeans_max_iter"])

@@ -10,6 +10,7 @@ from workspace.errors import ComputeError
 from .assign import discretize, kmeans
 from .eigen import EigenSolution, SolverContext, SymmetricOperator, largest_eigenpairs, shifted_laplacian_operator
 from .laplacians import degrees, inverse_sqrt_degrees
+from .ordering import permuted_scaled
 
 __all__ = ["laplacian_embedding", "bethe_embedding", "assign_rows", "eigengap_k",
            "bethe_default_r"]
@@ -42,8 +43,8 @@ def eigengap_k(values: np.ndarray, k_max: int | None = None) -> int | None:
 
 
 def laplacian_embedding(A, k: int | None, method: str, ctx: SolverContext, *, extra: int = 1,
-                        k_max: int = 10, tau: float = 0.0,
-                        solution: EigenSolution | None = None) -> tuple[np.ndarray, np.ndarray, int]:
+                        k_max: int = 10, tau: float = 0.0, solution: EigenSolution | None = None,
+                        order: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray, int]:
     r"""Spectral embedding of a connected graph for the k-way methods.
 
     Solve for the leading eigenvectors :math:`v_1..v_m` of
@@ -72,6 +73,10 @@ def laplacian_embedding(A, k: int | None, method: str, ctx: SolverContext, *, ex
         Precomputed eigenpairs of the same operator (at least ``k`` of them,
         from a shared :class:`workspace.spectral.embedding.Embedding`); the
         solve is skipped and its first ``k`` vectors are used.
+    order : ndarray of int, shape (n,), optional
+        Computation order for the eigensolver's products
+        (:mod:`workspace.spectral.ordering`); the embedding is returned in
+        the original node order either way.
 
     Returns
     -------
@@ -93,7 +98,8 @@ def laplacian_embedding(A, k: int | None, method: str, ctx: SolverContext, *, ex
     A = sp.csr_array(A)
     n = A.shape[0]
     d = degrees(A)
-    op, shift, _ = shifted_laplacian_operator(A, "sym", d, regularizer=tau)
+    op, shift, _ = shifted_laplacian_operator(A, "sym", d, regularizer=tau,
+                                              order=None if solution is not None else order)
     m = min(n, k if k is not None else k_max)
     sol = _reuse(solution, m, extra, ctx) if solution is not None else \
         largest_eigenpairs(op, m, ctx, stage=method, bound=shift, extra=extra)
@@ -104,7 +110,10 @@ def laplacian_embedding(A, k: int | None, method: str, ctx: SolverContext, *, ex
     if method == "shi-malik":
         U = V * inverse_sqrt_degrees(d + tau)[:, None]
     else:
-        U = np.array(V)
+        # the solver's own vectors are normalised in place (no second n x k copy); a shared
+        # embedding's are copied first
+        own = solution is None and sol.vectors.shape[1] == k and sol.vectors.flags.c_contiguous
+        U = sol.vectors if own else np.array(V)
         norms = np.sqrt(np.einsum("ij,ij->i", U, U))
         norms[norms == 0] = 1.0
         U /= norms[:, None]
@@ -147,8 +156,8 @@ def bethe_default_r(d: np.ndarray) -> float:
 
 
 def bethe_embedding(A, k: int | None, ctx: SolverContext, *, r: float = 0.0, extra: int = 1,
-                    k_max: int = 10, solution: EigenSolution | None = None
-                    ) -> tuple[np.ndarray, np.ndarray, int, dict]:
+                    k_max: int = 10, solution: EigenSolution | None = None,
+                    order: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray, int, dict]:
     r"""Eigenvectors of the Bethe Hessian :math:`H(r) = (r^2-1)I - rA + D`.
 
     The smallest eigenpairs of :math:`H` are the largest of
@@ -168,6 +177,8 @@ def bethe_embedding(A, k: int | None, ctx: SolverContext, *, r: float = 0.0, ext
     k_max : int, default 10
     solution : EigenSolution, optional
         Precomputed eigenpairs of the same operator (see :func:`laplacian_embedding`).
+    order : ndarray of int, shape (n,), optional
+        Computation order for the products (see :func:`laplacian_embedding`).
 
     Returns
     -------
@@ -189,7 +200,11 @@ def bethe_embedding(A, k: int | None, ctx: SolverContext, *, r: float = 0.0, ext
     if r <= 0:
         r = bethe_default_r(d)
     c = r * r - 1.0 + (1.0 + r) * float(d.max())
-    op = SymmetricOperator(A, diagonal=(c - r * r + 1.0) - d, scale=r)
+    diag = (c - r * r + 1.0) - d
+    if order is None or solution is not None:
+        op = SymmetricOperator(A, diagonal=diag, scale=r)
+    else:
+        op = SymmetricOperator(permuted_scaled(A, order), diagonal=diag[order], scale=r, order=order)
     m = min(n, k if k is not None else k_max)
     sol = _reuse(solution, m, extra, ctx) if solution is not None else \
         largest_eigenpairs(op, m, ctx, stage="bethe", bound=abs(c) + 1.0, extra=extra)

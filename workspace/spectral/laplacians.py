@@ -139,11 +139,15 @@ def normalized_adjacency(A, d: np.ndarray | None = None, *, regularizer: float =
     if d is None:
         d = degrees(A)
     s = inverse_sqrt_degrees(d + regularizer)
-    row_scale = np.repeat(s, np.diff(A.indptr))
     data = A.data.astype(np.float64, copy=True)
-    data *= row_scale
-    del row_scale
-    data *= s[A.indices]
+    indptr, n = A.indptr, A.shape[0]
+    step = 1 << 16                         # row chunks: temporaries of bounded size, not 2 x nnz
+    for a in range(0, n, step):
+        b = min(n, a + step)
+        p0, p1 = int(indptr[a]), int(indptr[b])
+        seg = data[p0:p1]
+        seg *= np.repeat(s[a:b], np.diff(indptr[a:b + 1]))
+        seg *= s[A.indices[p0:p1]]
     N = sp.csr_array((data, A.indices, A.indptr), shape=A.shape)
     N.has_sorted_indices = A.has_sorted_indices
     return N

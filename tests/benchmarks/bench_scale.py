@@ -1,0 +1,226 @@
+"""Benchmark: how import, run, diff and export scale with the number of nodes, end to end via the CLI.
+
+Run: ``python tests/benchmarks/bench_scale.py [--sizes 1000000,3000000] [--big]
+[--id-length 8,40] [--keep DIR]``
+
+For every size (1M and 3M nodes by default; ``--big`` adds 10M) and every id length (short ids
+``n00000123`` and 40-character ids ``station-0000…0123``), a planted partition is sampled with
+``workspace.spectral.planted_partition`` (k = 8 equal blocks, mean degree 15 = about 7.5 edges
+per node, c_in - c_out = 2 k sqrt(c), twice the detectability threshold of Decelle et al. 2011;
+seeded, so every run of the script writes the same files) and written as a ``source,target``
+CSV edge list by numpy (fixed-width byte rows, edges in a seeded random order). Each step is then
+a separate ``cutbook`` command in a fresh process, as a user runs it:
+
+* ``import``: ``cutbook import FILE --project bench --network …`` into a new SQLite store;
+* ``run``: ``cutbook run … --method njw --k 8 --seed 0``, then again with ``--seed 1`` (the second
+  run is the other side of the diff, and shows the speed of a second seed);
+* ``diff``: ``cutbook diff RUN0 RUN1 --json``;
+* ``export``: ``cutbook export RUN0 -o membership.csv``.
+
+Wall time per step and the step's peak resident memory (``resource.getrusage(RUSAGE_CHILDREN)``
+of a small wrapper process around the command, so each step's peak is its own, children of the
+command included) are printed, both per 1M nodes, with the ratio per-1M(size) / per-1M(1M)
+(issue target: <= 1.2 for every step) and, for the long ids, the ratio to the short-id time at
+the same size (target <= 1.2: no decoding cliff). The diff's ARI between the two seeds and the
+run's own ``matvecs`` are printed as sanity figures; ``os.getloadavg()`` before and after every
+step, since a shared machine changes the figures (the CPU time of the step is printed beside
+its wall time as the steadier view).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT))
+
+K = 8
+DEGREE = 15.0
+SEED = 1
+
+_WRAPPER = r"""
+import json, resource, subprocess, sys, time
+t = time.perf_counter()
+p = subprocess.run(sys.argv[1:], stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+wall = time.perf_counter() - t
+ru = resource.getrusage(resource.RUSAGE_CHILDREN)
+sys.stderr.buffer.write(p.stderr)
+sys.stdout.buffer.write(p.stdout)
+sys.stdout.write("\n@@BENCH@@" + json.dumps({"rc": p.returncode, "wall": wall,
+                 "cpu": ru.ru_utime + ru.ru_stime, "peak_kb": ru.ru_maxrss}) + "\n")
+"""
+
+
+def _ids_table(n: int, length: int):
+    """Fixed-width node ids as an (n, length) uint8 table: ``n`` + digits, or ``station-`` + digits."""
+    import numpy as np
+
+    prefix = b"n" if length <= 12 else b"station-"
+    digits = length - len(prefix)
+    if 10 ** digits < n:
+        raise SystemExit(f"{length}-character ids cannot number {n} nodes")
+    table = np.empty((n, length), dtype=np.uint8)
+    table[:, :len(prefix)] = np.frombuffer(prefix, dtype=np.uint8)
+    value = np.arange(n, dtype=np.int64)
+    for pos in range(length - 1, len(prefix) - 1, -1):
+        table[:, pos] = 48 + value % 10
+        value //= 10
+    return table
+
+
+def write_graph(path: Path, n: int, id_length: int) -> dict:
+    """Sample the planted partition and write it as a CSV edge list; returns its shape."""
+    import numpy as np
+
+    from workspace.spectral import planted_partition
+
+    gap = 2.0 * K * DEGREE ** 0.5
+    c_out = (K * DEGREE - gap) / K
+    A, _ = planted_partition(n, K, c_out + gap, c_out, seed=SEED)
+    rows = np.repeat(np.arange(n, dtype=np.int32), np.diff(A.indptr))
+    upper = rows < A.indices
+    u, v = rows[upper], A.indices[upper]
+    del rows, upper, A
+    order = np.random.default_rng(SEED).permutation(u.shape[0])
+    u, v = u[order], v[order]
+    del order
+    ids = _ids_table(n, id_length)
+    width = 2 * id_length + 2
+    with open(path, "wb") as fh:
+        fh.write(b"source,target\n")
+        for a in range(0, u.shape[0], 1 << 20):
+            b = min(u.shape[0], a + (1 << 20))
+            block = np.empty((b - a, width), dtype=np.uint8)
+            block[:, :id_length] = ids[u[a:b]]
+            block[:, id_length] = ord(",")
+            block[:, id_length + 1:2 * id_length + 1] = ids[v[a:b]]
+            block[:, -1] = ord("\n")
+            fh.write(block.tobytes())
+    return {"nodes": n, "edges": int(u.shape[0]), "bytes": path.stat().st_size}
+
+
+def _cutbook() -> list[str]:
+    script = Path(sys.executable).with_name("cutbook")
+    return [str(script)] if script.exists() else [sys.executable, "-m", "workspace.cli"]
+
+
+def step(store: Path, *argv: str) -> dict:
+    """One CLI command in a wrapper process: wall, CPU, peak RSS (KiB) and parsed JSON stdout."""
+    env = {**os.environ, "PYTHONPATH": str(ROOT)}
+    env.pop("CUTBOOK_STORE", None)
+    load0 = os.getloadavg()[0]
+    out = subprocess.run([sys.executable, "-c", _WRAPPER, *_cutbook(), "--store", str(store), *argv],
+                         capture_output=True, text=True, env=env, check=False)
+    body, _, tail = out.stdout.rpartition("@@BENCH@@")
+    stats = json.loads(tail)
+    if stats["rc"] != 0:
+        raise SystemExit(f"cutbook {' '.join(argv)} failed: {out.stderr.strip()[-400:]}")
+    try:
+        stats["json"] = json.loads(body) if body.strip().startswith("{") else None
+    except json.JSONDecodeError:
+        stats["json"] = None
+    stats["load"] = (load0, os.getloadavg()[0])
+    return stats
+
+
+def measure(tmp: Path, n: int, id_length: int) -> dict:
+    src = tmp / f"g{n}_{id_length}.csv"
+    t = time.perf_counter()
+    shape = write_graph(src, n, id_length)
+    print(f"\nn={n:,} ids of {id_length} chars: {shape['edges']:,} edges, "
+          f"{shape['bytes'] / 1e6:.0f} MB CSV written in {time.perf_counter() - t:.1f} s", flush=True)
+    store = tmp / f"s{n}_{id_length}.db"
+    res = {}
+    res["import"] = step(store, "import", str(src), "--project", "bench", "--network", "g", "--json")
+    src.unlink()
+    res["run"] = step(store, "run", "bench/g", "--method", "njw", "--k", str(K), "--seed", "0", "--json")
+    res["run seed 1"] = step(store, "run", "bench/g", "--method", "njw", "--k", str(K), "--seed", "1",
+                             "--json")
+    r0, r1 = res["run"]["json"]["run"], res["run seed 1"]["json"]["run"]
+    res["diff"] = step(store, "diff", str(r0), str(r1), "--json")
+    res["export"] = step(store, "export", str(r0), "-o", str(tmp / "membership.csv"))
+    (tmp / "membership.csv").unlink()
+    store.unlink()
+    scale = n / 1e6
+    for name, r in res.items():
+        extra = ""
+        if name.startswith("run"):
+            d = r["json"]["diagnostics"]
+            extra = f"   matvecs {d['matvecs']}"
+        if name == "diff" and r["json"]:
+            ari = _find(r["json"], "ari")
+            extra = f"   ARI(seed 0, seed 1) {ari:.4f}" if ari is not None else ""
+        print(f"  {name:11s} {r['wall']:8.1f} s  cpu {r['cpu']:8.1f} s  peak {r['peak_kb'] / 2**20:6.2f} GB"
+              f"   per 1M nodes: {r['wall'] / scale:7.2f} s  {r['peak_kb'] / 2**20 / scale:5.2f} GB"
+              f"   load {r['load'][0]:.1f}->{r['load'][1]:.1f}{extra}", flush=True)
+    return res
+
+
+def _find(doc, key):
+    """First value of ``key`` in a nested JSON document (depth first)."""
+    if isinstance(doc, dict):
+        if key in doc and isinstance(doc[key], (int, float)):
+            return doc[key]
+        for val in doc.values():
+            got = _find(val, key)
+            if got is not None:
+                return got
+    elif isinstance(doc, list):
+        for val in doc:
+            got = _find(val, key)
+            if got is not None:
+                return got
+    return None
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    ap.add_argument("--sizes", default="1000000,3000000", help="node counts (default 1000000,3000000)")
+    ap.add_argument("--big", action="store_true", help="add 10,000,000 nodes")
+    ap.add_argument("--id-length", default="9,40",
+                    help="id lengths to run (default 9,40: n00000123 and 40-character ids)")
+    ap.add_argument("--keep", help="work directory (default: a temporary one)")
+    args = ap.parse_args()
+    sizes = [int(x) for x in args.sizes.split(",") if x] + ([10_000_000] if args.big else [])
+    lengths = [int(x) for x in args.id_length.split(",") if x]
+    print(f"cutbook scaling: planted partition k={K}, mean degree {DEGREE}, seed {SEED}; "
+          f"cpu count {os.cpu_count()}; load {os.getloadavg()}")
+    results = {}
+    with tempfile.TemporaryDirectory(dir=args.keep) as tmp:
+        for length in lengths:
+            for n in sizes:
+                results[(n, length)] = measure(Path(tmp), n, length)
+    base_n = sizes[0]
+    print(f"\nsummary: per-1M figures relative to n={base_n:,} with the same ids (target <= 1.2), "
+          "and long ids relative to short ids at the same n (target <= 1.2)")
+    print(f"{'n':>11} {'ids':>4} {'step':>11} {'s/1M':>8} {'cpu s/1M':>8} {'GB/1M':>6} {'time ratio':>10} "
+          f"{'cpu ratio':>9} {'mem ratio':>9} {'long/short':>10} {'cpu l/s':>7}")
+    for (n, length), res in results.items():
+        base = results.get((base_n, length))
+        short = results.get((n, lengths[0]))
+        for name, r in res.items():
+            per = r["wall"] / (n / 1e6)
+            mem = r["peak_kb"] / 2**20 / (n / 1e6)
+            b = base[name]
+            ratio_t = per / (b["wall"] / (base_n / 1e6))
+            ratio_m = mem / (b["peak_kb"] / 2**20 / (base_n / 1e6))
+            cpu = r["cpu"] / (n / 1e6)
+            ratio_c = cpu / max(b["cpu"] / (base_n / 1e6), 1e-9)
+            long_ = length != lengths[0] and short
+            ls = f"{r['wall'] / short[name]['wall']:10.2f}" if long_ else f"{'-':>10}"
+            lc = f"{r['cpu'] / max(short[name]['cpu'], 1e-9):7.2f}" if long_ else f"{'-':>7}"
+            print(f"{n:>11,} {length:>4} {name:>11} {per:8.2f} {cpu:8.2f} {mem:6.2f} {ratio_t:10.2f} "
+                  f"{ratio_c:9.2f} {ratio_m:9.2f} {ls} {lc}")
+    print(f"\nload average at the end {os.getloadavg()}; targets: peak <= 0.6 GB per 1M nodes for import "
+          "and run at 3M")
+
+
+if __name__ == "__main__":
+    main()
