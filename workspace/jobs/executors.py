@@ -13,7 +13,8 @@ credentials, node ids, files. Workers return memberships, eigenvalues, measures 
 versions; only the client writes to the store (short transactions as tasks finish).
 
 The functions :func:`embedding_task`, :func:`embedding_summary` and :func:`partition_task` run
-on the workers; they are top-level so a worker imports them from the installed package.
+on the workers; they are top-level so a worker imports them from the installed package. The graph
+reaches each worker once, as a worker plugin (:mod:`workspace.jobs.dask_worker`).
 """
 
 from __future__ import annotations
@@ -132,6 +133,7 @@ class DaskCluster:
         self.spec = spec
         self.client = None
         self.cluster = None
+        self._graph_tokens: list[str] = []
 
     def __enter__(self) -> "DaskCluster":
         from workspace.errors import ComputeError
@@ -153,6 +155,12 @@ class DaskCluster:
         return self
 
     def __exit__(self, *exc) -> None:
+        for token in self._graph_tokens:     # the workers let go of the graph
+            try:
+                self.client.unregister_worker_plugin(token)
+            except Exception:  # noqa: BLE001 - a cluster that is going away drops it anyway
+                pass
+        self._graph_tokens = []
         for thing in (self.client, self.cluster):
             if thing is not None:
                 try:
@@ -171,6 +179,17 @@ class DaskCluster:
     def threads(self) -> int:
         info = self.client.scheduler_info(n_workers=-1).get("workers", {})
         return max(1, sum(int(w.get("nthreads", 1)) for w in info.values()))
+
+    def install_graph(self, graph) -> str:
+        """Send the graph (node ids left out) to every worker once, present and future; returns its token."""
+        import uuid
+
+        from workspace.jobs.dask_worker import GraphOnWorkers
+
+        token = f"cutbook-graph-{uuid.uuid4().hex}"
+        self.client.register_plugin(GraphOnWorkers(token, graph_for_workers(graph)), name=token)
+        self._graph_tokens.append(token)
+        return token
 
     def describe(self) -> dict[str, Any]:
         """The executor as recorded in each run's provenance (the address without credentials)."""
@@ -216,14 +235,15 @@ def worker_provenance() -> dict[str, Any]:
     return dict(_WORKER_INFO)
 
 
-def embedding_task(graph, method: str, n_vectors: int, seed: int, params: dict[str, Any], perturb: float = 0.0,
-                   perturb_seed: int | None = None):
+def embedding_task(graph_token: str, method: str, n_vectors: int, seed: int, params: dict[str, Any],
+                   perturb: float = 0.0, perturb_seed: int | None = None):
     """The shared embedding of one (value, repeat): exactly what the local executor solves
     (:func:`workspace.spectral.sweep.compute_embedding`, on the graph perturbed with ``perturb_seed``
     when ``perturb`` > 0). Returns the Embedding or None (several components: each k solves alone)."""
+    from workspace.jobs.dask_worker import graph
     from workspace.spectral.sweep import compute_embedding, perturbed_adjacency
 
-    A = graph.adjacency()
+    A = graph(graph_token).adjacency()
     if perturb > 0:
         A = perturbed_adjacency(A, perturb, perturb_seed)
     return compute_embedding(A, method, n_vectors, seed=seed, **params)
@@ -236,7 +256,7 @@ def embedding_summary(embedding) -> dict[str, Any] | None:
     return {"n_vectors": int(embedding.n_vectors), "operator": embedding.operator}
 
 
-def partition_task(graph, spec: dict[str, Any], embedding=None) -> dict[str, Any]:
+def partition_task(graph_token: str, spec: dict[str, Any], embedding=None) -> dict[str, Any]:
     """One partition computation (:func:`workspace.services.runs.compute`), as the local executor does it.
 
     Returns ``{"computed": Computed, "worker": {...}}``, or ``{"error": message, "worker": {...}}`` for the
@@ -246,11 +266,12 @@ def partition_task(graph, spec: dict[str, Any], embedding=None) -> dict[str, Any
     import numpy as np
 
     from workspace.errors import CutbookError
+    from workspace.jobs.dask_worker import graph
     from workspace.services.runs import RunSpec, compute
 
     info = worker_provenance()
     try:
-        return {"computed": compute(graph, RunSpec(**spec), embedding=embedding), "worker": info}
+        return {"computed": compute(graph(graph_token), RunSpec(**spec), embedding=embedding), "worker": info}
     except CutbookError as exc:
         return {"error": str(exc), "worker": info}
     except (ArithmeticError, ValueError, RuntimeError, MemoryError, np.linalg.LinAlgError) as exc:

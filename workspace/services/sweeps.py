@@ -322,7 +322,7 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
               executor=None) -> dict[str, Any]:
     """Compute every task of a recorded sweep that has no finished run yet; returns :func:`show_sweep`.
 
-    ``progress`` receives ``{"done", "total", "elapsed_s", "task", "stage"}`` dicts. Cancellation
+    ``progress`` receives ``{"done", "total", "failed", "elapsed_s", "task", "stage"}`` dicts. Cancellation
     (``cancel()`` True, or Ctrl-C) keeps the finished runs, marks the sweep ``cancelled`` and raises
     :class:`workspace.errors.Cancelled`.
 
@@ -360,8 +360,8 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
     def report(stage: str) -> None:
         if progress is not None:
             state["stage"] = stage
-            progress({"done": state["done"], "total": total, "elapsed_s": time.monotonic() - t0,
-                      "task": state["task"], "stage": stage})
+            progress({"done": state["done"], "total": total, "failed": len(failures),
+                      "elapsed_s": time.monotonic() - t0, "task": state["task"], "stage": stage})
 
     def run_progress(stage: str, matvecs: int, total_: int | None = None) -> None:
         report(stage)
@@ -515,7 +515,7 @@ def _run_on_dask(store: Store, sweep_id: int, spec: SweepSpec, graph, groups: di
                  stopped: Callable[[], bool]) -> None:
     """Compute the sweep's tasks on a Dask cluster; this process records every run.
 
-    The graph is scattered once to every worker (``broadcast``). For each (value, repeat) of a k-way
+    The graph is sent once to every worker (a worker plugin; tasks name it by a token). For each (value, repeat) of a k-way
     method one task solves the shared embedding (unless the store's cache holds it: then the client
     sends the cached one), and the k tasks of that group take it as their input, so Dask moves it to a
     worker at most once. A task's run is inserted ``running`` just before it is submitted (at most
@@ -537,7 +537,7 @@ def _run_on_dask(store: Store, sweep_id: int, spec: SweepSpec, graph, groups: di
         provenance_exec = cluster.describe()
         threads = cluster.threads()
         window = max(2, 2 * threads)
-        graph_ref = client.scatter(ex.graph_for_workers(graph), broadcast=True, hash=False)
+        graph_ref = cluster.install_graph(graph)     # once per worker (a worker plugin), not once per task
         with store.read() as s:
             version_hash = s.get(NetworkVersion, spec.version_id).content_hash
         todo = deque(groups.items())
@@ -578,7 +578,7 @@ def _run_on_dask(store: Store, sweep_id: int, spec: SweepSpec, graph, groups: di
                     emb = cached_embedding(store, cached_key)
                     entry = {"key": cached_key, "cached": True, "reused_from_cache": True,
                              "n_vectors": emb.n_vectors, "seed": int(emb_seed), "operator": emb.operator}
-                    emb_ref = client.scatter(emb, hash=False)
+                    emb_ref = client.scatter(emb, broadcast=True, hash=False)   # survives a worker's loss
                     ready.extend((value, r, k, params, seed_r, perturb, emb_ref, (emb.n_vectors, emb_seed), entry)
                                  for _, _, k in items)
                     return
