@@ -37,6 +37,7 @@ from sqlalchemy import delete, func, select, text, update
 from workspace.domain import VersionRef
 from workspace.errors import Cancelled, ComputeError, CutbookError, NotFoundError, ParameterError, UsageError
 from workspace.services import params as params_service
+from workspace.services.liveness import _process_alive
 from workspace.services import runs as runs_service
 from workspace.store import repo
 from workspace.store.db import Store
@@ -759,7 +760,7 @@ def extend_sweep(store: Store, sweep_id: int, *, ks: Any = None, seeds: int | No
 
 def _effective_status(sw: Sweep) -> str:
     if sw.status == "running" and sw.host == socket.gethostname() and sw.pid is not None and \
-            not runs_service._process_alive(sw.pid, sw.process_token):
+            not _process_alive(sw.pid, sw.process_token):
         return "interrupted"
     return sw.status
 
