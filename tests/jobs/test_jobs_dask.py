@@ -73,10 +73,12 @@ class DaskProcesses:
         self.tmp = tmp
         self.scheduler = None
         self.workers: list[subprocess.Popen] = []
+        self.logs: list = []
         self.dask = str(Path(sys.executable).with_name("dask"))
 
     def _spawn(self, name: str, *argv: str) -> subprocess.Popen:
         log = open(self.tmp / f"{name}.log", "wb")
+        self.logs.append(log)
         return subprocess.Popen([self.dask, *argv], stdout=log, stderr=subprocess.STDOUT, cwd=self.tmp,
                                 start_new_session=True)
 
@@ -142,6 +144,8 @@ class DaskProcesses:
             except subprocess.TimeoutExpired:
                 os.killpg(p.pid, signal.SIGKILL)
                 p.wait(timeout=10)
+        for log in self.logs:
+            log.close()
 
 
 @pytest.fixture
@@ -199,6 +203,18 @@ def test_sweep_cli_refuses_bad_executor_options_before_recording(cli, karate):
               "tcp://127.0.0.1:1")
     assert res.code == 2 and "--scheduler" in res.err
     assert cli("sweeps", "list", "--json").json == []
+
+
+def test_an_unreachable_scheduler_records_nothing(store, karate, monkeypatch):
+    from workspace.errors import ComputeError
+    from workspace.jobs import executors
+
+    monkeypatch.setattr(executors, "CONNECT_TIMEOUT_S", 1)
+    spec = sweeps.prepare_sweep(store, "club/karate", method="njw", ks="2..3")
+    with pytest.raises(ComputeError) as err:   # nothing listens on the port just freed
+        sweeps.sweep(store, spec, executor=ExecutorSpec("dask", scheduler=f"tcp://127.0.0.1:{_free_port()}"))
+    assert "cannot reach the Dask scheduler" in str(err.value)
+    assert sweeps.list_sweeps(store) == [] and runs.list_runs(store) == []
 
 
 # --- LocalCluster(processes=True) -----------------------------------------------------------------------

@@ -129,6 +129,8 @@ def _distributed():
 class DaskCluster:
     """A connected Dask client (and the LocalCluster it started, if any) for the length of a sweep."""
 
+    kind = "dask"
+
     def __init__(self, spec: ExecutorSpec) -> None:
         self.spec = spec
         self.client = None
@@ -168,6 +170,10 @@ class DaskCluster:
                 except Exception:  # noqa: BLE001 - closing must not hide the sweep's own outcome
                     pass
         self.client = self.cluster = None
+
+    @property
+    def label(self) -> str:
+        return self.spec.label
 
     @property
     def address(self) -> str:

@@ -31,18 +31,19 @@ def _child(store_url: str, payload: dict[str, Any], events, stop) -> None:
     try:
         store = open_workspace(store_url)
         spec, executor = payload["spec"], payload.get("executor")
-        sweep_id = sweeps.create_sweep(store, sweeps.SweepSpec(**spec))
-        events.put({"type": "started", "sweep": sweep_id})
-        last = [0.0]
+        with sweeps._connected(executor) as executor:   # a Dask cluster is reached before the sweep is recorded
+            sweep_id = sweeps.create_sweep(store, sweeps.SweepSpec(**spec))
+            events.put({"type": "started", "sweep": sweep_id})
+            last = [0.0]
 
-        def progress(ev: dict[str, Any]) -> None:
-            now = time.monotonic()
-            if ev["stage"] == "stored" or now - last[0] >= 0.1:
-                last[0] = now
-                events.put({"type": "progress", **{k: ev[k] for k in ("done", "total", "failed", "elapsed_s",
-                                                                      "task", "stage")}})
+            def progress(ev: dict[str, Any]) -> None:
+                now = time.monotonic()
+                if ev["stage"] == "stored" or now - last[0] >= 0.1:
+                    last[0] = now
+                    events.put({"type": "progress", **{k: ev[k] for k in ("done", "total", "failed", "elapsed_s",
+                                                                          "task", "stage")}})
 
-        res = sweeps.run_sweep(store, sweep_id, progress=progress, cancel=stop.is_set, executor=executor)
+            res = sweeps.run_sweep(store, sweep_id, progress=progress, cancel=stop.is_set, executor=executor)
         events.put({"type": "finished", "sweep": sweep_id, "status": res["status"], "message": res["error"]})
     except Cancelled as exc:
         events.put({"type": "finished", "sweep": sweep_id, "status": "cancelled", "message": str(exc)})

@@ -22,6 +22,7 @@ No write transaction is held while computing: every task inserts its run
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
 import os
@@ -376,7 +377,7 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
         executor = ExecutorSpec(**executor)
     if executor is None:
         executor = ExecutorSpec(kind="local", workers=workers)
-    if executor.kind == "local":
+    if executor.kind == "local":   # (an open DaskCluster has kind "dask" too)
         workers = executor.workers if executor.workers is not None else workers
         if workers is None:
             from workspace.spectral.eigen import available_cpus
@@ -533,7 +534,8 @@ def _run_on_dask(store: Store, sweep_id: int, spec: SweepSpec, graph, groups: di
 
     state["task"] = executor.label
     report("connecting")
-    with ex.DaskCluster(executor) as cluster:
+    with (contextlib.nullcontext(executor) if isinstance(executor, ex.DaskCluster)
+          else ex.DaskCluster(executor)) as cluster:
         client = cluster.client
         provenance_exec = cluster.describe()
         threads = cluster.threads()
@@ -716,9 +718,25 @@ def _set_status(store: Store, sweep_id: int, status: str, error: str | None) -> 
 
 def sweep(store: Store, spec: SweepSpec, *, progress: SweepProgress | None = None,
           cancel: Callable[[], bool] | None = None, workers: int | None = None, executor=None) -> dict[str, Any]:
-    """Record and compute a sweep; returns :func:`show_sweep`."""
-    sweep_id = create_sweep(store, spec)
-    return run_sweep(store, sweep_id, progress=progress, cancel=cancel, workers=workers, executor=executor)
+    """Record and compute a sweep; returns :func:`show_sweep`. A Dask cluster is reached (or started)
+    before anything is recorded, so an unreachable scheduler leaves the store as it was."""
+    with _connected(executor) as executor:
+        sweep_id = create_sweep(store, spec)
+        return run_sweep(store, sweep_id, progress=progress, cancel=cancel, workers=workers, executor=executor)
+
+
+@contextlib.contextmanager
+def _connected(executor):
+    """``executor`` as given, or (Dask) an open :class:`workspace.jobs.executors.DaskCluster` for the block."""
+    from workspace.jobs.executors import DaskCluster, ExecutorSpec
+
+    if isinstance(executor, dict):
+        executor = ExecutorSpec(**executor)
+    if executor is None or isinstance(executor, DaskCluster) or executor.kind != "dask":
+        yield executor
+        return
+    with DaskCluster(executor) as cluster:
+        yield cluster
 
 
 def extend_sweep(store: Store, sweep_id: int, *, ks: Any = None, seeds: int | None = None,
@@ -751,9 +769,10 @@ def extend_sweep(store: Store, sweep_id: int, *, ks: Any = None, seeds: int | No
         new_seeds = seeds
     if len(new_ks) * n_values * new_seeds > MAX_TASKS:
         raise ParameterError(f"the sweep would make more than {MAX_TASKS} runs")
-    with store.write() as s:
-        s.execute(update(Sweep).where(Sweep.id == sweep_id).values(ks_json=json.dumps(new_ks), seeds=new_seeds))
-    return run_sweep(store, sweep_id, progress=progress, cancel=cancel, workers=workers, executor=executor)
+    with _connected(executor) as executor:
+        with store.write() as s:
+            s.execute(update(Sweep).where(Sweep.id == sweep_id).values(ks_json=json.dumps(new_ks), seeds=new_seeds))
+        return run_sweep(store, sweep_id, progress=progress, cancel=cancel, workers=workers, executor=executor)
 
 
 # --- reading ---------------------------------------------------------------------------------------
