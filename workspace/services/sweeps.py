@@ -517,8 +517,8 @@ def _run_on_dask(store: Store, sweep_id: int, spec: SweepSpec, graph, groups: di
                  stopped: Callable[[], bool]) -> None:
     """Compute the sweep's tasks on a Dask cluster; this process records every run.
 
-    The graph is sent once to every worker (a worker plugin; tasks name it by a token). For each (value, repeat) of a k-way
-    method one task solves the shared embedding (unless the store's cache holds it: then the client
+    The graph is sent once to every worker (a worker plugin; tasks name it by a token). For each
+    (value, repeat) of a k-way method one task solves the shared embedding (unless the store's cache holds it: then the client
     sends the cached one), and the k tasks of that group take it as their input, so Dask moves it to a
     worker at most once. A task's run is inserted ``running`` just before it is submitted (at most
     about two tasks per worker thread are outstanding) and its outcome recorded in one short
@@ -652,7 +652,7 @@ def _run_on_dask(store: Store, sweep_id: int, spec: SweepSpec, graph, groups: di
             while True:
                 if stopped():
                     raise Cancelled("sweep cancelled")
-                while todo and len(ready) < window and len(emb_pending) < threads:
+                while todo and len(ready) < window and len(emb_pending) <= threads:   # one queued beyond the busy
                     start_group(todo.popleft()[1])
                 while ready and len(inflight) < window:
                     submit_next()
