@@ -518,13 +518,14 @@ def _run_on_dask(store: Store, sweep_id: int, spec: SweepSpec, graph, groups: di
     """Compute the sweep's tasks on a Dask cluster; this process records every run.
 
     The graph is sent once to every worker (a worker plugin; tasks name it by a token). For each
-    (value, repeat) of a k-way method one task solves the shared embedding (unless the store's cache holds it: then the client
-    sends the cached one), and the k tasks of that group take it as their input, so Dask moves it to a
-    worker at most once. A task's run is inserted ``running`` just before it is submitted (at most
-    about two tasks per worker thread are outstanding) and its outcome recorded in one short
-    transaction when it finishes. A worker that dies is replaced by Dask (its tasks computed again
-    elsewhere; each future still yields one result, so each run is recorded once); a task that raises
-    records its run ``failed`` and the sweep goes on; cancelling cancels the outstanding futures and
+    (value, repeat) of a k-way method one task solves the shared embedding (unless the store's cache
+    holds it: then the client sends the cached one), and the k tasks of that group take it as their
+    input: it is solved once, and Dask moves it to the workers that run those k tasks. A task's run is
+    inserted ``running`` just before it is submitted (about two tasks per worker thread outstanding)
+    and its outcome recorded in one short transaction when it finishes. When a worker dies, Dask
+    computes its tasks again on the others (each future still yields one result, so each run is
+    recorded once); a task that raises records its run ``failed`` and the sweep goes on; cancelling
+    cancels the outstanding futures and
     records their runs ``cancelled``.
     """
     from collections import deque
