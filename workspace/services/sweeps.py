@@ -525,8 +525,7 @@ def _run_on_dask(store: Store, sweep_id: int, spec: SweepSpec, graph, groups: di
     and its outcome recorded in one short transaction when it finishes. When a worker dies, Dask
     computes its tasks again on the others (each future still yields one result, so each run is
     recorded once); a task that raises records its run ``failed`` and the sweep goes on; cancelling
-    cancels the outstanding futures and
-    records their runs ``cancelled``.
+    cancels the outstanding futures and records their runs ``cancelled``.
     """
     from collections import deque
 
