@@ -146,3 +146,61 @@ def test_launch_a_sweep_and_stop_it_mid_way(tmp_path):
             assert screen.sweep_id == screen.job.sweep_id and len(screen.points) >= 2
 
     asyncio.run(go())
+
+
+@pytest.mark.slow
+def test_launch_a_sweep_on_a_dask_cluster_of_two_worker_processes(tmp_path):
+    """'sweep on' = 2: the sweep's own process starts a Dask LocalCluster of two worker processes."""
+    from textual.widgets import Input, Select
+
+    from workspace.services import runs
+    from workspace.services.sweeps import show_sweep
+
+    path = tmp_path / "karate.sqlite"
+    store = open_workspace(path)
+    # Zachary (1977) karate club as shipped by networkx
+    G = nx.karate_club_graph()
+    import_adjacency(store, nx.to_scipy_sparse_array(G, nodelist=range(34), weight="weight"), tmp_path,
+                     project="club", network="karate")
+    store.dispose()
+
+    async def go():
+        async with workspace(path) as (app, pilot):
+            await pilot.press("2")
+            await pilot.pause()
+            launch = app.screen
+            launch.query_one("#launch-version", Select).value = "club/karate@1"
+            await pilot.pause()
+            launch.query_one("#launch-method", Select).value = "njw"
+            await pilot.pause()
+            await app.workers.wait_for_complete()
+            await pilot.pause()
+            launch.query_one("#launch-sweep-k", Input).value = "2..4"
+            launch.query_one("#launch-repeats", Input).value = "2"
+            launch.query_one("#launch-sweep-on", Input).value = "2"
+            await pilot.press("ctrl+w")
+            await wait_until(pilot, lambda: app.screen.id == "sweep" and app.screen.job is not None, 20,
+                             "the sweep screen to start the job")
+            screen = app.screen
+            assert "Dask on this machine (2 worker processes)" in str(screen.query_one("#sweep-state").render())
+            await wait_until(pilot, lambda: screen.job.finished, 180, "the sweep to finish")
+            await pilot.pause()
+            assert screen.job.status == "done", screen.job.message
+            sw = show_sweep(app.store, screen.job.sweep_id)
+            assert sw["tasks"]["done"] == 6
+            for p in sw["points"]:
+                prov = runs.show_run(app.store, p["run"])["provenance"]
+                assert prov["executor"]["kind"] == "dask" and prov["executor"]["workers"] == 2
+            return sw
+
+    on_dask = asyncio.run(go())
+    # the same sweep on the local executor gives the same memberships (membership hashes)
+    from workspace.services import sweeps
+
+    store = open_workspace(path)
+    try:
+        local = sweeps.sweep(store, sweeps.prepare_sweep(store, "club/karate@1", method="njw", ks="2..4", seeds=2))
+        hashes = lambda out: [runs.show_run(store, r)["membership_hash"] for p in out["points"] for r in p["runs"]]  # noqa: E731
+        assert hashes(local) == hashes(on_dask)
+    finally:
+        store.dispose()

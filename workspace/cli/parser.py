@@ -12,6 +12,16 @@ exit codes: 0 ok, 1 failure, 2 usage, 3 not found, 4 conflict or lock (store bus
 Every command takes --json: one JSON document on stdout, human text on stderr."""
 
 
+def _executor_options(p) -> None:
+    """Where a sweep's tasks compute (workspace/jobs/executors.py)."""
+    p.add_argument("--executor", choices=["local", "dask"], default=None,
+                   help="local: threads of this process (default); dask: a Dask cluster (--scheduler, "
+                        "$CUTBOOK_SCHEDULER, or --workers N processes started on this machine)")
+    p.add_argument("--scheduler", metavar="ADDRESS", default=None,
+                   help="an existing Dask scheduler, e.g. tcp://host:8786 (default: $CUTBOOK_SCHEDULER); "
+                        "implies --executor dask")
+
+
 def _common() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(add_help=False)
     p.add_argument("--store", default=argparse.SUPPRESS, metavar="PATH|URL",
@@ -210,7 +220,9 @@ def build_parser() -> argparse.ArgumentParser:
                    help="with --seeds N>1: sd of the random factor (mean 1) on each edge weight in repeats "
                         "after the first (default 0.5; 0 = vary the seed only)")
     p.add_argument("--workers", type=int, default=None,
-                   help="k assigned at a time from one embedding (default: CPUs, at most 4); results do not depend on it")
+                   help="k assigned at a time from one embedding (default: CPUs, at most 4); with --executor dask "
+                        "the worker processes of a Dask cluster started on this machine; results do not depend on it")
+    _executor_options(p)
     p = add("sweeps", "list, show, extend, diff and delete sweeps", "sweeps", "cmd_sweeps")
     ssub = p.add_subparsers(dest="sweeps_action", metavar="ACTION", required=True)
     q = ssub.add_parser("list", help="list sweeps, newest first", parents=[common])
@@ -223,7 +235,9 @@ def build_parser() -> argparse.ArgumentParser:
     q.add_argument("sweep", type=int)
     q.add_argument("--k", metavar="RANGE", help="further k values")
     q.add_argument("--seeds", type=int, help="new total number of seeds (not fewer than now)")
-    q.add_argument("--workers", type=int, default=None, help="k assigned at a time (default: CPUs, at most 4)")
+    q.add_argument("--workers", type=int, default=None, help="k assigned at a time (default: CPUs, at most 4); "
+                   "with --executor dask the worker processes of a Dask cluster started on this machine")
+    _executor_options(q)
     q = ssub.add_parser("diff", help="two sweeps side by side", parents=[common])
     q.add_argument("a", type=int)
     q.add_argument("b", type=int)

@@ -19,7 +19,9 @@ class TaskProgress:
 
     def __call__(self, ev: dict) -> None:
         text = f"sweep: {ev['done']}/{ev['total']} tasks  {ev['elapsed_s']:.1f}s  {ev['task']}"
-        if ev["stage"] not in ("stored", "start", "embedding"):
+        if ev.get("failed"):
+            text += f"  ({ev['failed']} failed)"
+        if ev["stage"] not in ("stored", "start", "embedding", "connecting"):
             text += f"  ({ev['stage']})"
         if self.tty:
             now = time.monotonic()
@@ -29,7 +31,7 @@ class TaskProgress:
                 sys.stderr.write("\r" + text + " " * pad)
                 sys.stderr.flush()
                 self._width = len(text)
-        elif ev["stage"] in ("stored", "embedding"):
+        elif ev["stage"] in ("stored", "embedding", "connecting"):
             sys.stderr.write(text + ("" if ev["stage"] == "stored" else " ...") + "\n")
             sys.stderr.flush()
 
@@ -56,6 +58,13 @@ def _run_and_render(args, store, out, call) -> int:
     return 0 if res["status"] == "done" else 1
 
 
+def _executor(args):
+    """The executor asked for (checked before anything is recorded)."""
+    from workspace.jobs.executors import executor_from_options
+
+    return executor_from_options(args.executor, workers=args.workers, scheduler=args.scheduler)
+
+
 def cmd_sweep(args) -> int:
     from workspace.services import params as psvc
     from workspace.services import sweeps as svc
@@ -64,8 +73,9 @@ def cmd_sweep(args) -> int:
         spec = svc.prepare_sweep(store, args.ref, params_ref=args.params, method=args.method,
                                  sets=psvc.parse_sets(args.set), ks=args.k, vary=args.vary, seeds=args.seeds,
                                  seed=args.seed, perturb=args.perturb)
+        executor = _executor(args)
         return _run_and_render(args, store, out, lambda bar: svc.sweep(store, spec, progress=bar,
-                                                                      workers=args.workers))
+                                                                      workers=args.workers, executor=executor))
 
 
 def cmd_sweeps(args) -> int:
@@ -106,8 +116,10 @@ def cmd_sweeps(args) -> int:
                 _print_sweep(out, res)
             return 0
         if action == "extend":
+            executor = _executor(args)
             return _run_and_render(args, store, out, lambda bar: svc.extend_sweep(
-                store, args.sweep, ks=args.k, seeds=args.seeds, progress=bar, workers=args.workers))
+                store, args.sweep, ks=args.k, seeds=args.seeds, progress=bar, workers=args.workers,
+                executor=executor))
         if action == "diff":
             res = svc.diff_sweeps(store, args.a, args.b)
             if args.json:

@@ -66,13 +66,17 @@ class ChildJob:
     KEY = "run"
     WHAT = "run"
 
-    def __init__(self, store_url: str, spec, target, name: str) -> None:
+    def __init__(self, store_url: str, spec, target, name: str, *, payload: dict[str, Any] | None = None,
+                 daemon: bool = True) -> None:
+        """``payload`` (default ``spec.to_dict()``) is what the child receives; ``daemon=False`` lets the child
+        start processes of its own (a Dask LocalCluster)."""
         ctx = mp.get_context("spawn")
         self.spec = spec
         self._events = ctx.Queue()
         self._stop = ctx.Event()
-        self._process = ctx.Process(target=target, args=(store_url, spec.to_dict(), self._events, self._stop),
-                                    daemon=True, name=name)
+        self._process = ctx.Process(target=target, args=(store_url, spec.to_dict() if payload is None else payload,
+                                                         self._events, self._stop),
+                                    daemon=daemon, name=name)
         self.record_id: int | None = None
         self.status: str | None = None
         self.message: str | None = None

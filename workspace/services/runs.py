@@ -337,6 +337,9 @@ def _finish(store: Store, run_id: int | None, status: str, *, computed: Computed
             run.quality_json = json.dumps(_json_floats(computed.quality), sort_keys=True)
             run.diagnostics_json = json.dumps(_json_floats(computed.diagnostics), sort_keys=True)
             run.warnings_json = json.dumps(computed.warnings)
+            if computed.extra.get("provenance"):   # e.g. the Dask worker that computed it (services/sweeps.py)
+                run.provenance_json = json.dumps({**json.loads(run.provenance_json),
+                                                  **computed.extra["provenance"]}, sort_keys=True)
             for row in computed.communities:
                 s.add(RunCommunity(run_id=run_id, community=int(row["community"]), size=int(row["size"]),
                                    volume=_num(row.get("volume")), cut=_num(row.get("cut")),

@@ -22,6 +22,7 @@ No write transaction is held while computing: every task inserts its run
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
 import os
@@ -37,6 +38,7 @@ from sqlalchemy import delete, func, select, text, update
 from workspace.domain import VersionRef
 from workspace.errors import Cancelled, ComputeError, CutbookError, NotFoundError, ParameterError, UsageError
 from workspace.services import params as params_service
+from workspace.services.liveness import _process_alive
 from workspace.services import runs as runs_service
 from workspace.store import repo
 from workspace.store.db import Store
@@ -316,17 +318,24 @@ def _done_tasks(s, sweep_id: int) -> set[tuple]:
 
 
 def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = None,
-              cancel: Callable[[], bool] | None = None, workers: int | None = None) -> dict[str, Any]:
+              cancel: Callable[[], bool] | None = None, workers: int | None = None,
+              executor=None) -> dict[str, Any]:
     """Compute every task of a recorded sweep that has no finished run yet; returns :func:`show_sweep`.
 
-    ``progress`` receives ``{"done", "total", "elapsed_s", "task", "stage"}`` dicts. Cancellation
+    ``progress`` receives ``{"done", "total", "failed", "elapsed_s", "task", "stage"}`` dicts. Cancellation
     (``cancel()`` True, or Ctrl-C) keeps the finished runs, marks the sweep ``cancelled`` and raises
     :class:`workspace.errors.Cancelled`.
 
     ``workers`` (default: the CPUs available, at most 4) k of one embedding are assigned at a time in
     threads (numpy releases the GIL); every run is the same as computed alone, and all store writes stay
     in this thread.
+
+    ``executor`` (:class:`workspace.jobs.executors.ExecutorSpec`, or its dict; default local) with kind
+    ``dask`` hands each task to a Dask cluster instead (:func:`_run_on_dask`); the runs are the same
+    bits, and only this process writes to the store. Each run's provenance records the executor and
+    (Dask) the host and package versions of the worker that computed it.
     """
+    from workspace.jobs.executors import ExecutorSpec, local_description
     from workspace.spectral.embedding import EMBEDDING_METHODS
     from workspace.spectral.sweep import compute_embedding, perturbed_adjacency
 
@@ -351,8 +360,8 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
     def report(stage: str) -> None:
         if progress is not None:
             state["stage"] = stage
-            progress({"done": state["done"], "total": total, "elapsed_s": time.monotonic() - t0,
-                      "task": state["task"], "stage": stage})
+            progress({"done": state["done"], "total": total, "failed": len(failures),
+                      "elapsed_s": time.monotonic() - t0, "task": state["task"], "stage": stage})
 
     def run_progress(stage: str, matvecs: int, total_: int | None = None) -> None:
         report(stage)
@@ -362,11 +371,17 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
     def stopped() -> bool:
         return halt[0] or (cancel is not None and bool(cancel()))
 
-    if workers is None:
-        from workspace.spectral.eigen import available_cpus
+    if isinstance(executor, dict):
+        executor = ExecutorSpec(**executor)
+    if executor is None:
+        executor = ExecutorSpec(kind="local", workers=workers)
+    if executor.kind == "local":   # (an open DaskCluster has kind "dask" too)
+        workers = executor.workers if executor.workers is not None else workers
+        if workers is None:
+            from workspace.spectral.eigen import available_cpus
 
-        workers = min(available_cpus(), 4)
-    workers = max(1, int(workers))
+            workers = min(available_cpus(), 4)
+        workers = max(1, int(workers))
     # a directed version runs each task through partition (which symmetrises it) rather than a shared embedding
     use_embedding = (spec.method in EMBEDDING_METHODS and all(k is not None for k in spec.ks)
                      and not graph.directed)
@@ -375,6 +390,11 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
         groups: dict[tuple, list] = {}
         for value, r, k in tasks:
             groups.setdefault((_value_key(value), r), []).append((value, r, k))
+        if executor.kind == "dask":
+            _run_on_dask(store, sweep_id, spec, graph, groups, use_embedding, m, executor, state=state,
+                         report=report, failures=failures, stopped=stopped)
+            groups = {}
+        local_exec = {"executor": local_description(workers)} if executor.kind == "local" else {}
         for (_, r), items in groups.items():
             value = items[0][0]
             params = dict(spec.params)
@@ -417,7 +437,7 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
                                 perturb=perturb, param_set_version_id=spec.param_set_version_id,
                                 embedding_vectors=emb.n_vectors if emb is not None else None,
                                 embedding_seed=emb_seed if emb is not None else None)
-                            extra = {"sweep": sweep_id}
+                            extra = {"sweep": sweep_id, **local_exec}
                             if entry is not None:
                                 extra["embedding"] = entry
                             run_id = runs_service._insert_running(
@@ -485,6 +505,200 @@ def _record_task(store: Store, run_id: int, fut, label: str, failures: list[str]
     runs_service._finish(store, run_id, "done", computed=computed)
 
 
+def _task_label(spec: SweepSpec, k, value, r: int) -> str:
+    return (f"k={k}" if k is not None else "k chosen by the method") \
+        + (f" {spec.vary_name}={value}" if spec.vary_name else "") + (f" repeat {r}" if spec.seeds > 1 else "")
+
+
+def _run_on_dask(store: Store, sweep_id: int, spec: SweepSpec, graph, groups: dict[tuple, list],
+                 use_embedding: bool, m: int | None, executor, *, state: dict[str, Any], report, failures: list[str],
+                 stopped: Callable[[], bool]) -> None:
+    """Compute the sweep's tasks on a Dask cluster; this process records every run.
+
+    The graph is sent once to every worker (a worker plugin; tasks name it by a token). For each
+    (value, repeat) of a k-way method one task solves the shared embedding (unless the store's cache
+    holds it: then the client sends the cached one), and the k tasks of that group take it as their
+    input: it is solved once, and Dask moves it to the workers that run those k tasks. A task's run is
+    inserted ``running`` just before it is submitted (about two tasks per worker thread outstanding)
+    and its outcome recorded in one short transaction when it finishes. When a worker dies, Dask
+    computes its tasks again on the others (each future still yields one result, so each run is
+    recorded once); a task that raises records its run ``failed`` and the sweep goes on; cancelling
+    cancels the outstanding futures and records their runs ``cancelled``.
+    """
+    from collections import deque
+
+    from workspace.jobs import executors as ex
+    from workspace.spectral.embedding import embedding_fields
+
+    state["task"] = executor.label
+    report("connecting")
+    with (contextlib.nullcontext(executor) if isinstance(executor, ex.DaskCluster)
+          else ex.DaskCluster(executor)) as cluster:
+        client = cluster.client
+        provenance_exec = cluster.describe()
+        threads = cluster.threads()
+        window = max(2, 2 * threads)
+        graph_ref = cluster.install_graph(graph)     # once per worker (a worker plugin), not once per task
+        with store.read() as s:
+            version_hash = s.get(NetworkVersion, spec.version_id).content_hash
+        todo = deque(groups.items())
+        ready: deque = deque()        # (value, r, k, params, seed_r, perturb, emb_ref, emb_info, entry)
+        emb_pending: dict = {}        # summary future -> (items, params, seed_r, perturb, emb future, key, fields)
+        inflight: dict = {}           # task future -> (run id, label)
+
+        def fail_group(items, params, seed_r, perturb, message: str) -> None:
+            for value, r, k in items:
+                run_spec = _run_spec(spec, k, params, seed_r, perturb, None, None)
+                run_id = _insert_task_run(store, sweep_id, run_spec, k, value, r,
+                                          {"sweep": sweep_id, "executor": provenance_exec})
+                runs_service._finish(store, run_id, "failed", error=message)
+                label = _task_label(spec, k, value, r)
+                failures.append(f"{label}: {message}")
+                state["done"] += 1
+                state["task"] = label
+                report("stored")
+
+        def start_group(items) -> None:
+            value, r = items[0][0], items[0][1]
+            params = dict(spec.params)
+            if spec.vary_name is not None:
+                params[spec.vary_name] = value
+            seed_r = spec.seed + r
+            perturb = spec.perturb if r > 0 else 0.0
+            if not use_embedding:
+                ready.extend((value, r, k, params, seed_r, perturb, None, None, None) for _, _, k in items)
+                return
+            emb_seed = seed_r if perturb > 0 else spec.seed
+            key = fields = None
+            if perturb == 0:
+                fields = embedding_fields(spec.method, params, m, emb_seed)
+                key = embedding_key(version_hash, fields)
+                cached_key = key if cached_embedding_exists(store, key) else _wider_cached(store, spec.version_id,
+                                                                                            fields)
+                if cached_key is not None:
+                    emb = cached_embedding(store, cached_key)
+                    entry = {"key": cached_key, "cached": True, "reused_from_cache": True,
+                             "n_vectors": emb.n_vectors, "seed": int(emb_seed), "operator": emb.operator}
+                    emb_ref = client.scatter(emb, broadcast=True, hash=False)   # survives a worker's loss
+                    ready.extend((value, r, k, params, seed_r, perturb, emb_ref, (emb.n_vectors, emb_seed), entry)
+                                 for _, _, k in items)
+                    return
+            emb_future = client.submit(ex.embedding_task, graph_ref, spec.method, m, emb_seed, params, perturb,
+                                       seed_r if perturb > 0 else None, pure=False)
+            summary = client.submit(ex.embedding_summary, emb_future, pure=False)
+            emb_pending[summary] = (items, params, seed_r, perturb, emb_future, emb_seed, key, fields)
+
+        def group_embedded(fut) -> None:
+            items, params, seed_r, perturb, emb_future, emb_seed, key, fields = emb_pending.pop(fut)
+            if fut.status != "finished":
+                exc = fut.exception() if fut.status == "error" else None
+                message = f"the shared embedding failed: {type(exc).__name__}: {exc}" if exc is not None \
+                    else "the shared embedding was lost"
+                fail_group(items, params, seed_r, perturb, message)
+                return
+            summary = fut.result()
+            value, r = items[0][0], items[0][1]
+            if summary is None:   # several components: each k is solved on its own
+                ready.extend((value, r, k, params, seed_r, perturb, None, None, None) for _, _, k in items)
+                return
+            if perturb > 0:
+                entry = {"cached": False, "n_vectors": summary["n_vectors"], "seed": emb_seed,
+                         "operator": summary["operator"], "perturbed_seed": seed_r}
+            else:   # the version's own graph: cache it, as the local executor does
+                _store_embedding(store, spec.version_id, key, fields, emb_future.result())
+                entry = {"key": key, "cached": True, "reused_from_cache": False, "n_vectors": summary["n_vectors"],
+                         "seed": int(emb_seed), "operator": summary["operator"]}
+            ready.extend((value, r, k, params, seed_r, perturb, emb_future, (summary["n_vectors"], emb_seed), entry)
+                         for _, _, k in items)
+
+        def submit_next() -> None:
+            value, r, k, params, seed_r, perturb, emb_ref, emb_info, entry = ready.popleft()
+            label = _task_label(spec, k, value, r)
+            state["task"] = label
+            report("start")
+            run_spec = _run_spec(spec, k, params, seed_r, perturb, *(emb_info or (None, None)))
+            extra = {"sweep": sweep_id, "executor": provenance_exec}
+            if entry is not None:
+                extra["embedding"] = entry
+            run_id = _insert_task_run(store, sweep_id, run_spec, k, value, r, extra)
+            fut = client.submit(ex.partition_task, graph_ref, run_spec.to_dict(), emb_ref, pure=False)
+            inflight[fut] = (run_id, label)
+
+        def record(fut) -> None:
+            run_id, label = inflight.pop(fut)
+            if fut.status == "finished":
+                res = fut.result()
+                if "error" in res:
+                    runs_service._finish(store, run_id, "failed", error=res["error"])
+                    failures.append(f"{label}: {res['error']}")
+                else:
+                    computed = res["computed"]
+                    computed.extra["provenance"] = {"computed_on": res["worker"]}
+                    runs_service._finish(store, run_id, "done", computed=computed)
+            elif fut.status == "cancelled":
+                runs_service._finish(store, run_id, "cancelled", error="cancelled")
+            else:
+                exc = fut.exception()
+                message = f"{type(exc).__name__}: {exc}"
+                runs_service._finish(store, run_id, "failed", error=message)
+                failures.append(f"{label}: {message}")
+            state["done"] += 1
+            state["task"] = label
+            report("stored")
+
+        try:
+            while True:
+                if stopped():
+                    raise Cancelled("sweep cancelled")
+                while todo and len(ready) < window and len(emb_pending) <= threads:   # one queued beyond the busy
+                    start_group(todo.popleft()[1])
+                while ready and len(inflight) < window:
+                    submit_next()
+                if not inflight and not emb_pending and not ready and not todo:
+                    break
+                finished = [f for f in list(emb_pending) + list(inflight) if f.done()]
+                if not finished:
+                    time.sleep(0.02)
+                    continue
+                for fut in finished:
+                    if fut in emb_pending:
+                        group_embedded(fut)
+                    else:
+                        record(fut)
+        except BaseException:
+            outstanding = list(inflight) + list(emb_pending) + [entry[4] for entry in emb_pending.values()]
+            try:
+                client.cancel(outstanding)
+            except Exception:  # noqa: BLE001 - the runs are recorded as cancelled below either way
+                pass
+            for run_id, _ in inflight.values():
+                try:
+                    runs_service._finish(store, run_id, "cancelled", error="cancelled by the user")
+                except ComputeError:
+                    pass
+            inflight.clear()
+            raise
+
+
+def cached_embedding_exists(store: Store, key: str) -> bool:
+    with store.read() as s:
+        return s.get(EmbeddingRow, key) is not None
+
+
+def _run_spec(spec: SweepSpec, k, params: dict[str, Any], seed_r: int, perturb: float, emb_vectors, emb_seed):
+    return runs_service.RunSpec(version_ref=spec.version_ref, version_id=spec.version_id, method=spec.method,
+                                k=None if k is None else str(k), params=params, seed=seed_r, repeats=1,
+                                perturb=perturb, param_set_version_id=spec.param_set_version_id,
+                                embedding_vectors=emb_vectors, embedding_seed=emb_seed)
+
+
+def _insert_task_run(store: Store, sweep_id: int, run_spec, k, value, r: int, extra: dict[str, Any]) -> int:
+    return runs_service._insert_running(
+        store, run_spec, provenance_extra=extra,
+        after_insert=lambda s, rid: s.add(SweepRun(sweep_id=sweep_id, run_id=rid, k=k, value_json=_value_key(value),
+                                                   repeat=r)))
+
+
 def _close_running_runs(store: Store, sweep_id: int, status: str, error: str) -> None:
     """Runs of this sweep still ``running`` in this process (an interrupt while one was being recorded)
     get their outcome, so no run is left looking alive."""
@@ -501,15 +715,31 @@ def _set_status(store: Store, sweep_id: int, status: str, error: str | None) -> 
 
 
 def sweep(store: Store, spec: SweepSpec, *, progress: SweepProgress | None = None,
-          cancel: Callable[[], bool] | None = None, workers: int | None = None) -> dict[str, Any]:
-    """Record and compute a sweep; returns :func:`show_sweep`."""
-    sweep_id = create_sweep(store, spec)
-    return run_sweep(store, sweep_id, progress=progress, cancel=cancel, workers=workers)
+          cancel: Callable[[], bool] | None = None, workers: int | None = None, executor=None) -> dict[str, Any]:
+    """Record and compute a sweep; returns :func:`show_sweep`. A Dask cluster is reached (or started)
+    before anything is recorded, so an unreachable scheduler leaves the store as it was."""
+    with _connected(executor) as executor:
+        sweep_id = create_sweep(store, spec)
+        return run_sweep(store, sweep_id, progress=progress, cancel=cancel, workers=workers, executor=executor)
+
+
+@contextlib.contextmanager
+def _connected(executor):
+    """``executor`` as given, or (Dask) an open :class:`workspace.jobs.executors.DaskCluster` for the block."""
+    from workspace.jobs.executors import DaskCluster, ExecutorSpec
+
+    if isinstance(executor, dict):
+        executor = ExecutorSpec(**executor)
+    if executor is None or isinstance(executor, DaskCluster) or executor.kind != "dask":
+        yield executor
+        return
+    with DaskCluster(executor) as cluster:
+        yield cluster
 
 
 def extend_sweep(store: Store, sweep_id: int, *, ks: Any = None, seeds: int | None = None,
                  progress: SweepProgress | None = None, cancel: Callable[[], bool] | None = None,
-                 workers: int | None = None) -> dict[str, Any]:
+                 workers: int | None = None, executor=None) -> dict[str, Any]:
     """Add k values and/or seeds (never fewer) and compute only the tasks without a finished run.
 
     Also resumes a cancelled or failed sweep when called without ``ks``/``seeds``.
@@ -537,16 +767,17 @@ def extend_sweep(store: Store, sweep_id: int, *, ks: Any = None, seeds: int | No
         new_seeds = seeds
     if len(new_ks) * n_values * new_seeds > MAX_TASKS:
         raise ParameterError(f"the sweep would make more than {MAX_TASKS} runs")
-    with store.write() as s:
-        s.execute(update(Sweep).where(Sweep.id == sweep_id).values(ks_json=json.dumps(new_ks), seeds=new_seeds))
-    return run_sweep(store, sweep_id, progress=progress, cancel=cancel, workers=workers)
+    with _connected(executor) as executor:
+        with store.write() as s:
+            s.execute(update(Sweep).where(Sweep.id == sweep_id).values(ks_json=json.dumps(new_ks), seeds=new_seeds))
+        return run_sweep(store, sweep_id, progress=progress, cancel=cancel, workers=workers, executor=executor)
 
 
 # --- reading ---------------------------------------------------------------------------------------
 
 def _effective_status(sw: Sweep) -> str:
     if sw.status == "running" and sw.host == socket.gethostname() and sw.pid is not None and \
-            not runs_service._process_alive(sw.pid, sw.process_token):
+            not _process_alive(sw.pid, sw.process_token):
         return "interrupted"
     return sw.status
 

@@ -71,6 +71,10 @@ class LaunchScreen(Screen):
                     yield Label("sweep k", classes="name")
                     yield Input("", id="launch-sweep-k", placeholder="e.g. 2..10 (ctrl+w; repeats = seeds)")
                 with Horizontal(classes="field-row"):
+                    yield Label("sweep on", classes="name")
+                    yield Input("", id="launch-sweep-on", compact=True,
+                                placeholder="this process · N Dask workers · tcp://host:port")
+                with Horizontal(classes="field-row"):
                     yield Label("save as", classes="name")
                     yield Input("", id="launch-save-name", placeholder="name for a new parameter set", compact=True)
                     yield Button("Save ^s", id="launch-save", variant="default", compact=True)

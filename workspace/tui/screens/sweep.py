@@ -1,8 +1,10 @@
 """Sweep: quality and stability against k with the recommended k marked, the measures per k, the split
 view, and a sweep computing in its own process (progress per task, stop keeps the finished runs).
 
-A sweep is launched from the Launch screen (``ctrl+w``, with the k range typed in its "sweep k" box
-and the repeats box as the number of seeds) or with ``cutbook sweep``; this screen shows any recorded
+A sweep is launched from the Launch screen (``ctrl+w``, with the k range typed in its "sweep k" box,
+the repeats box as the number of seeds and its "sweep on" box naming the executor: empty for this
+machine's threads (or ``$CUTBOOK_SCHEDULER`` when set), a number N for a Dask cluster of N worker
+processes started here, or a Dask scheduler's address) or with ``cutbook sweep``; this screen shows any recorded
 sweep by id. Enter on a row of the table opens that k's run on the Spectrum screen.
 """
 
@@ -155,8 +157,8 @@ class SweepScreen(Screen):
         table.add_columns("k", "value", "run", "modularity", "ncut", "conductance", "coverage", "eigengap",
                           "ARI mean", "ARI sd", "VI mean", "VI sd", "")
         if self._pending is not None:
-            spec, self._pending = self._pending, None
-            self.start(spec)
+            (spec, executor), self._pending = self._pending, None
+            self.start(spec, executor)
             return
         if self.sweep_id is None:
             from workspace.services.sweeps import list_sweeps
@@ -253,23 +255,26 @@ class SweepScreen(Screen):
 
     # --- a sweep computing ----------------------------------------------------------------------------
 
-    def start(self, spec) -> None:
-        """Start a validated :class:`workspace.services.sweeps.SweepSpec` in its own process."""
+    def start(self, spec, executor=None) -> None:
+        """Start a validated :class:`workspace.services.sweeps.SweepSpec` in its own process (its tasks on
+        ``executor``, a :class:`workspace.jobs.executors.ExecutorSpec`; default this machine's threads)."""
         from workspace.jobs.sweeps import SweepJob
 
         if self.job is not None and not self.job.finished:
             self.notify("a sweep is already computing; stop it first (ctrl+t)", severity="warning")
             return
         if not self._ready:
-            self._pending = spec
+            self._pending = (spec, executor)
             return
         try:
-            self.job = SweepJob(self.app.store.url, spec).start()
+            self.job = SweepJob(self.app.store.url, spec, executor).start()
         except Exception as exc:  # noqa: BLE001
             self.job = None
             self.app.report(exc)
             return
-        self.query_one("#sweep-state", Static).update(f"starting a process for the sweep on {spec.version_ref} …")
+        where = "" if executor is None or executor.kind == "local" else f" (tasks on {executor.label})"
+        self.query_one("#sweep-state", Static).update(
+            f"starting a process for the sweep on {spec.version_ref}{where} …")
         bar = self.query_one("#sweep-bar", ProgressBar)
         bar.display = True
         bar.update(total=None, progress=0)
@@ -298,8 +303,9 @@ class SweepScreen(Screen):
                 self.query_one("#sweep-state", Static).update(f"sweep {ev['sweep']} computing (its own process)")
             elif ev["type"] == "progress":
                 self.query_one("#sweep-bar", ProgressBar).update(total=ev["total"], progress=ev["done"])
+                failed = f" · {ev['failed']} failed" if ev.get("failed") else ""
                 self.query_one("#sweep-state", Static).update(
-                    f"sweep {job.sweep_id}: {ev['done']}/{ev['total']} tasks · {ev['elapsed_s']:.1f} s · "
+                    f"sweep {job.sweep_id}: {ev['done']}/{ev['total']} tasks{failed} · {ev['elapsed_s']:.1f} s · "
                     f"{ev['task']} ({ev['stage']})")
                 if ev["stage"] == "stored" and job.sweep_id is not None and self.is_mounted:
                     self.show_sweep(job.sweep_id)
@@ -329,6 +335,7 @@ def launch_sweep_from(launch) -> None:
     from textual.widgets import Select
 
     from workspace.errors import UsageError
+    from workspace.jobs.executors import executor_from_text
     from workspace.services.sweeps import prepare_sweep
     from workspace.tui.widgets.param_form import ParamForm
 
@@ -339,6 +346,7 @@ def launch_sweep_from(launch) -> None:
         form = launch.query_one(ParamForm)
         _, values = form.validated()
         ks = launch.query_one("#launch-sweep-k", Input).value.strip() or None
+        executor = executor_from_text(launch.query_one("#launch-sweep-on", Input).value)
         seeds = launch._int("#launch-repeats", "repeats")
         seed = launch._int("#launch-seed", "seed")
         set_ref = launch.query_one("#launch-set", Select).value
@@ -352,7 +360,7 @@ def launch_sweep_from(launch) -> None:
         launch.app.report(exc)
         return
     screen = launch.app.workspace_screen("sweep")
-    screen.start(spec)          # started at once, or as soon as the screen is composed
+    screen.start(spec, executor)   # started at once, or as soon as the screen is composed
     launch.app.action_goto("sweep")
 
 
