@@ -455,6 +455,11 @@ def test_tui_node_lookup_across_versions(demo_path):
             summary = static_text(screen.query_one("#lookup-summary"))
             # the scenario opens the Lantern Wharf district (LW-*) in the third monthly version
             assert "present in versions @3, @4" in summary
+            # what the node is: its row of the newest version's node table (the demo's July station file)
+            from workspace.demo.scenario import UPDATE_MONTH, station_table
+
+            row = next(r for r in station_table(UPDATE_MONTH) if r["station"] == "LW-01")
+            assert f"node data of @5: name {row['name']}  district {row['district']}" in " ".join(summary.split("\n"))
             rows = screen.query_one("#lookup-runs", PagedTable)
             all_rows = rows._source.fetch(0, rows.row_count)
             assert {r["version"] for r in all_rows if not r["present"]} == {1, 2}

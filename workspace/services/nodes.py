@@ -524,3 +524,32 @@ def stored_attributes(s, version_id: int) -> list[tuple[str, str, list]] | None:
     if row is None:
         return None
     return [(col.name, *_decode_column(s, col)) for col in _column_rows(s, row.id)]
+
+
+def node_attributes(store: Store, network: str, node: str) -> dict[str, Any] | None:
+    """One node's attributes from the newest version of ``network`` whose node table has the node.
+
+    Returns ``{"ref": "P/N@V", "version": V, "attributes": [[name, type, value], ...]}`` (``value`` None
+    where the node has none), or None when no version's table holds the node.
+    """
+    import numpy as np
+
+    from workspace.services.networks import network_not_found
+    from workspace.store import repo
+
+    ref = VersionRef.parse(network)
+    with store.read() as s:
+        net = repo.find_network(s, ref.project, ref.network)
+        if net is None:
+            raise network_not_found(s, ref.project, ref.network)
+        for v in reversed(repo.list_versions(s, net.id)):
+            if table_row(s, v.id) is None:
+                continue
+            ids = repo.load_node_ids(s, v)
+            p = int(np.searchsorted(ids, node))
+            if p >= ids.shape[0] or ids[p] != node:
+                continue
+            columns = stored_attributes(s, v.id) or []
+            return {"ref": f"{ref.project}/{ref.network}@{v.number}", "version": v.number,
+                    "attributes": [[name, kind, values[p]] for name, kind, values in columns]}
+    return None

@@ -13,7 +13,7 @@ from textual.screen import Screen
 from textual.widgets import Input, Label, Select, Static
 
 from workspace.tui.widgets.chrome import Pane, ScreenBar, ScreenFooter
-from workspace.tui.widgets.detail import BAD, MUTED
+from workspace.tui.widgets.detail import BAD, MUTED, fmt_value
 from workspace.tui.widgets.paged_table import Column, ListSource, PagedTable
 
 
@@ -122,10 +122,13 @@ class LookupScreen(Screen):
 
     @work(thread=True, exclusive=True, group="lookup", exit_on_error=False)
     def lookup(self, node: str, network: str) -> None:
+        from workspace.services.nodes import node_attributes
         from workspace.services.runs import where_node
 
         try:
             result = where_node(self.app.store, node, network)
+            # what the node is (its node table row), shown above where it sat
+            result = dict(result, node_data=node_attributes(self.app.store, network, node))
         except Exception as exc:  # noqa: BLE001
             self.app.call_from_thread(self.app.report, exc)
             self.app.call_from_thread(self.query_one("#lookup-summary", Static).update,
@@ -143,6 +146,11 @@ class LookupScreen(Screen):
         t.append(f" in {r['network']}: present in version{'s' if len(present) != 1 else ''} "
                  f"{', '.join('@' + str(v) for v in present)}; "
                  f"{len(runs)} finished run{'s' if len(runs) != 1 else ''}")
+        data = r.get("node_data")
+        if data:
+            t.append(f"\nnode data of @{data['version']}: ", style=MUTED)
+            t.append("  ".join(f"{name} {fmt_value(value) if value is not None else '—'}"
+                               for name, _kind, value in data["attributes"]))
         # community labels belong to one run each, so they are never pooled across runs (the table has them)
         per_version: dict[int, int] = {}
         for row in runs:
