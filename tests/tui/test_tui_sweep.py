@@ -182,7 +182,9 @@ def test_launch_a_sweep_on_a_dask_cluster_of_two_worker_processes(tmp_path):
             await wait_until(pilot, lambda: app.screen.id == "sweep" and app.screen.job is not None, 20,
                              "the sweep screen to start the job")
             screen = app.screen
-            assert "Dask on this machine (2 worker processes)" in str(screen.query_one("#sweep-state").render())
+            await wait_until(pilot, lambda: "Dask on this machine (2 worker processes)"
+                             in str(screen.query_one("#sweep-state").render()), 20,
+                             "the sweep screen to say where the tasks run")
             await wait_until(pilot, lambda: screen.job.finished, 180, "the sweep to finish")
             await pilot.pause()
             assert screen.job.status == "done", screen.job.message
