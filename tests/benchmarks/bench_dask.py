@@ -101,6 +101,11 @@ def main() -> None:
               f"BLAS threads {'1' if limit is not None else 'as set'})")
         sweeps.prune_embeddings(store)   # each executor solves its own shared embeddings
 
+        # the workers of the clusters cutbook starts keep glibc's adaptive malloc (no MALLOC_TRIM_THRESHOLD_);
+        # this benchmark starts its own LocalCluster, so it asks for the same
+        from workspace.jobs.executors import keep_malloc_adaptive
+
+        keep_malloc_adaptive()
         timings = {}
         for workers in (1, 2):
             with distributed.LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",

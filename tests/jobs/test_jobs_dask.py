@@ -253,6 +253,21 @@ def test_local_cluster_sweep_equals_local_executor(store, karate):
                                                                                             "threads": 1}
 
 
+def _trim_and_threads():
+    return os.environ.get("MALLOC_TRIM_THRESHOLD_"), os.environ.get("OPENBLAS_NUM_THREADS")
+
+
+def test_local_cluster_workers_keep_adaptive_malloc():
+    # glibc manual, "Memory Allocation Tunables": setting M_TRIM_THRESHOLD (MALLOC_TRIM_THRESHOLD_, which
+    # Dask's nanny sets to 65536 by default) turns off the dynamic mmap threshold; the workers cutbook
+    # starts leave it unset (one BLAS thread each is kept, as Dask sets it)
+    from workspace.jobs.executors import DaskCluster
+
+    with DaskCluster(ExecutorSpec("dask", workers=1)) as cluster:
+        seen = list(cluster.client.run(_trim_and_threads).values())
+    assert seen == [(None, "1")]
+
+
 # --- a scheduler and two workers as separate processes ------------------------------------------------
 
 @pytest.mark.slow
