@@ -96,6 +96,29 @@ def test_four_clients_opening_a_new_database_migrate_it_once(pg_url):
 
 
 @pytest.mark.postgres
+def test_a_migration_committed_between_the_probes_reads_as_a_store(store_url, monkeypatch):
+    """The race the four-client test can hit: the first probe finds no schema revision, another client's
+    migration commits, the table listing then finds tables. The probe reads the revision again instead
+    of calling the database foreign (common practice: read-committed isolation shows each statement the
+    latest commit; PostgreSQL manual, "Transaction Isolation")."""
+    from workspace.services import store as store_service
+    from workspace.store.db import head_revision
+
+    open_workspace_ = store_service.open_workspace
+    open_workspace_(store_url).dispose()          # the other client's migration, committed
+    real = store_service._current_revision
+    calls = []
+
+    def first_read_before_the_commit(conn):
+        calls.append(1)
+        return None if len(calls) == 1 else real(conn)
+
+    monkeypatch.setattr(store_service, "_current_revision", first_read_before_the_commit)
+    st = open_workspace_(store_url)
+    st.dispose()
+    assert len(calls) >= 2 and _revision_rows(store_url) == [head_revision()]
+
+
 def test_password_is_never_printed(pg_server, pg_url):
     """Wrong password, missing database, and an ordinary bad input: one line each, no password."""
     wrong = pg_server.url(pg_url.rsplit("/", 1)[1], user="cutbook_admin", password="not-the-Secret-42")

@@ -108,6 +108,11 @@ def _probe(engine, name: str) -> tuple[str | None, bool]:
         with engine.connect() as conn:
             current = _current_revision(conn)
             tables = bool(inspect(conn).get_table_names()) if current is None else True
+            if current is None and tables:
+                # another client's first migration may have committed between the two reads (each
+                # statement sees the latest commit on a server): read the revision again before
+                # calling the database foreign
+                current = _current_revision(conn)
             conn.rollback()
     return current, tables
 
