@@ -22,18 +22,18 @@ def cmd_copy(args) -> int:
             emit_json(res)
             return 0
         added, matched = res["added"], res["matched"]
-        kinds = ("projects", "networks", "versions", "param_set_versions", "runs", "annotations")
+        kinds = ("projects", "networks", "versions", "node_tables", "param_set_versions", "runs", "annotations")
 
         def count(n: int, kind: str) -> str:
             words = kind.replace("_", " ")
             return f"{n} {words if n != 1 else words.replace('versions', 'version').rstrip('s')}"
 
-        got = ", ".join(count(added[k], k) for k in kinds if added[k])
+        got = ", ".join(count(added[k], k) for k in kinds if added.get(k))
         out.line(f"copied to {res['destination']}: {got or 'nothing new (everything was already there)'}")
         if added["arrays"]:
             chunks = f" in {added['chunks']} chunks" if added["chunks"] else ""
             out.line(f"  arrays   {added['arrays']} new{chunks}, {added['bytes']:,} bytes")
-        there = ", ".join(count(matched[k], k) for k in kinds if matched[k])
+        there = ", ".join(count(matched[k], k) for k in kinds if matched.get(k))
         if there:
             out.line(f"  already there: {there}")
         for r in res["renumbered"]:
