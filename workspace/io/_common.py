@@ -18,7 +18,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from workspace.errors import InputError
+from workspace.errors import InputError, ParameterError
 
 Progress = Callable[[str, int, "int | None"], None] | None
 
@@ -264,3 +264,22 @@ def check_weights(weight: np.ndarray, fail: Callable[[int, str], InputError]) ->
 def string_array(values: list[str]) -> pa.Array:
     """A pyarrow string array from a list of Python strings."""
     return pa.array(values, type=pa.string())
+
+
+def format_by_name(path: str, format: str | None, suffixes: tuple[tuple[str, str], ...], what: str,
+                   option: str) -> str:
+    """The format of a side file (a membership, a node table): ``format`` when given (checked against
+    the formats named in ``suffixes``), else the first ``(suffix, format)`` whose suffix ends the file
+    name (``.gz`` ignored). ``what`` and ``option`` word the errors."""
+    known = tuple(dict.fromkeys(fmt for _, fmt in suffixes))
+    if format is not None:
+        if format not in known:
+            raise ParameterError(f"{what} format must be one of {', '.join(known)}, not {format!r}")
+        return format
+    name = path.lower().removesuffix(".gz")
+    for suffix, fmt in suffixes:
+        if name.endswith(suffix):
+            return fmt
+    names = ", ".join(dict.fromkeys(suffix for suffix, _ in suffixes))
+    raise InputError(f"cannot tell the {what} format from the file name; use {names}, or give {option}",
+                     path=path)

@@ -25,6 +25,7 @@ import pyarrow.compute as pc
 from workspace.errors import InputError, ParameterError
 from workspace.io._common import (
     check_utf8,
+    format_by_name,
     normalise_newlines,
     read_bytes,
     string_array,
@@ -38,18 +39,8 @@ _XML_FORBIDDEN = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
 
 
 def _membership_format(path: str, format: str | None) -> str:
-    if format is not None:
-        if format not in MEMBERSHIP_FORMATS:
-            raise ParameterError(f"membership format must be one of "
-                                 f"{', '.join(MEMBERSHIP_FORMATS)}, not {format!r}")
-        return format
-    name = path.lower().removesuffix(".gz")
-    for suffix, fmt in ((".csv", "csv"), (".tsv", "csv"), (".txt", "csv"), (".json", "json"),
-                        (".graphml", "graphml"), (".xml", "graphml")):
-        if name.endswith(suffix):
-            return fmt
-    raise InputError("cannot tell the membership format from the file name; use .csv, "
-                     ".json or .graphml, or give --format", path=path)
+    return format_by_name(path, format, ((".csv", "csv"), (".tsv", "csv"), (".txt", "csv"), (".json", "json"),
+                                         (".graphml", "graphml"), (".xml", "graphml")), "membership", "--format")
 
 
 def _labels(path: str, node_ids: np.ndarray, nodes: pa.Array, communities: pa.Array,

@@ -19,8 +19,8 @@ from xml.etree.ElementTree import ParseError
 import defusedxml
 import defusedxml.ElementTree as safe_etree
 
-from workspace.errors import InputError, ParameterError
-from workspace.io._common import check_utf8, normalise_newlines, read_bytes, strip_bom
+from workspace.errors import InputError
+from workspace.io._common import check_utf8, format_by_name, normalise_newlines, read_bytes, strip_bom
 from workspace.io.node_link import _id_text
 
 NODE_TABLE_FORMATS = ("csv", "graphml", "json")
@@ -92,17 +92,8 @@ def infer_type(texts: list[str | None]) -> tuple[str, list]:
 
 
 def _format(path: str, format: str | None) -> str:
-    if format is not None:
-        if format not in NODE_TABLE_FORMATS:
-            raise ParameterError(f"node table format must be one of {', '.join(NODE_TABLE_FORMATS)}, "
-                                 f"not {format!r}")
-        return format
-    name = path.lower().removesuffix(".gz")
-    for suffix, fmt in ((".csv", "csv"), (".graphml", "graphml"), (".xml", "graphml"), (".json", "json")):
-        if name.endswith(suffix):
-            return fmt
-    raise InputError("cannot tell the node table format from the file name; use .csv, .graphml or "
-                     ".json, or give --nodes-format", path=path)
+    return format_by_name(path, format, ((".csv", "csv"), (".graphml", "graphml"), (".xml", "graphml"),
+                                         (".json", "json")), "node table", "--nodes-format")
 
 
 def read_node_table(path: str | os.PathLike, *, format: str | None = None) -> NodeTable:
