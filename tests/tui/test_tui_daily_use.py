@@ -464,6 +464,55 @@ def test_tui_failed_diff_clears_the_panels(demo_path):
 # --- item 4: palette pick while on the diff screen ----------------------------------------------------------
 
 
+@pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
+def test_tui_diff_names_moved_nodes_by_the_node_table(demo_path, size):
+    """Moved nodes carry the first text attribute of the node table beside the id (the demo's
+    station names); ctrl+l steps through the text attributes and back to ids only; the search
+    box matches names too. Expected names are read from the demo scenario's own node table."""
+    from textual.widgets import Input
+
+    from workspace.services import nodes
+    from workspace.tui.widgets.paged_table import PagedTable
+
+    async def go():
+        async with workspace(demo_path, size) as (app, pilot):
+            a = demo_run(app.store, "njw", "velmora-bikes/stations@3")
+            b = demo_run(app.store, "njw", "velmora-bikes/stations@4")
+            app.diff_pick.update(a=a, b=b)
+            await pilot.press("4")
+            await settle(app, pilot)
+            screen = app.screen
+            moved = screen.query_one("#diff-moved", PagedTable)
+            text_attrs = [c["name"] for c in nodes.show_node_table(app.store, "velmora-bikes/stations@4")
+                          ["table"]["columns"] if c["type"] == "text"]
+            assert screen.label_attrs[: len(text_attrs)] == text_attrs and screen.label_by == text_attrs[0]
+            names = dict(nodes.node_values(app.store, "velmora-bikes/stations@4", text_attrs[0])["nodes"])
+            rows = [moved.row_at(i) for i in range(moved.row_count)]
+            assert rows and all(r["label"] == names.get(r["node"], r["node"]) for r in rows)
+            assert moved.shown_columns()[:2] == ["node", text_attrs[0]]
+            moved.scroll_visible(animate=False, top=True)
+            await pilot.pause()
+            on_screen(app, moved, min_width=30)
+            # searching a station name finds its row
+            target = rows[0]
+            screen.query_one("#diff-search", Input).value = target["label"]
+            await settle(app, pilot)
+            assert moved.row_count >= 1 and all(target["label"].lower() in moved.row_at(i)["label"].lower()
+                                                for i in range(moved.row_count))
+            screen.query_one("#diff-search", Input).value = ""
+            await settle(app, pilot)
+            # ctrl+l: every text attribute in turn, then ids only
+            for expected in [*screen.label_attrs[1:], None]:
+                screen.query_one("#diff-moved", PagedTable).focus()
+                await pilot.press("ctrl+l")
+                await settle(app, pilot)
+                assert screen.label_by == expected
+            assert "label" not in [c.key for c in moved.columns]
+            assert moved.shown_columns()[0] == "node"
+
+    asyncio.run(go())
+
+
 def test_tui_palette_pick_applies_on_the_diff_screen(demo_path):
     from textual.widgets import Input
 

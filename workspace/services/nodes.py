@@ -494,6 +494,24 @@ def labels_of(store: Store, run_ids: list[int], attribute: str, nodes: list[str]
     return {node: found.get(node, node) for node in nodes}
 
 
+def label_attributes(store: Store, run_ids: list[int]) -> list[str]:
+    """Text attributes that can name the nodes of some runs: the text columns of their versions'
+    node tables, later runs' tables first, each name once, in table order (empty without tables)."""
+    from workspace.store.schema import Run
+
+    names: list[str] = []
+    with store.read() as s:
+        for run_id in reversed(run_ids):
+            run = s.get(Run, run_id)
+            if run is None:
+                raise NotFoundError(f"no run {run_id}")
+            row = table_row(s, run.version_id)
+            if row is None:
+                continue
+            names += [c.name for c in _column_rows(s, row.id) if c.type == "text" and c.name not in names]
+    return names
+
+
 def labels_in_versions(store: Store, version_ids: list[int], attribute: str, node: str) -> dict[int, str | None]:
     """The label of one node in each version (None where the version has no such attribute or node)."""
     import numpy as np

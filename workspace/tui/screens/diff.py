@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 from typing import Any
 
 from rich.text import Text
@@ -30,6 +31,16 @@ MOVED_COLUMNS = [
     # the B side is shown numbered by its match in A (one numbering: never "from 3 to 3"); B's own number here
     Column("stored", "B stored", 9, "right", format=lambda v, r: "—" if v is None else str(v), drop=1),
 ]
+
+
+def moved_columns(label_by: str | None, rows: list[dict[str, Any]]) -> list[Column]:
+    """The moved-node columns; with ``label_by`` a column of that node attribute beside the id."""
+    if label_by is None:
+        return MOVED_COLUMNS
+    id_width = min(max([len(str(r.get("node", ""))) for r in rows] + [4]), 14)
+    # narrow: B's stored number goes first, then the id; the name stays
+    return [Column("node", "node", id_width, drop=1), Column("label", label_by, 0, min_width=8),
+            *MOVED_COLUMNS[1:3], dataclasses.replace(MOVED_COLUMNS[3], drop=2)]
 
 
 def shown_moved_rows(d: dict[str, Any]) -> list[dict[str, Any]]:
@@ -123,12 +134,18 @@ class DiffScreen(Screen):
         Binding("ctrl+r", "compare", "Compare", priority=True, tooltip="compare the runs in the A and B boxes"),
         Binding("ctrl+f", "find", "Find node", priority=True, tooltip="search the moved nodes"),
         Binding("ctrl+o", "swap", "Swap", priority=True, tooltip="swap sides A and B"),
+        Binding("ctrl+l", "label_by", "Label by", priority=True,
+                tooltip="name the moved nodes by the next text attribute of the node table, or by id only"),
     ]
 
     def __init__(self) -> None:
         super().__init__(id="diff")
         self.result: dict[str, Any] | None = None
         self.moved: list[dict[str, Any]] = []
+        self.label_attrs: list[str] = []        # text attributes of the compared versions' node tables
+        self.label_by: str | None = None        # the one naming the moved nodes (None: ids only)
+        self.labels_off = False                 # the user stepped to "ids only"
+        self.labels: dict[str, str] = {}
 
     def compose(self) -> ComposeResult:
         yield ScreenBar("diff")
@@ -209,7 +226,58 @@ class DiffScreen(Screen):
             self.app.call_from_thread(self.app.report, exc)
             self.app.call_from_thread(self.clear_result, f"could not compare run {a} with run {b}: {exc}")
             return
-        self.app.call_from_thread(self.show_result, result)
+        try:
+            attrs, label_by, labels = self._labels_for(result, a, b)
+        except Exception as exc:  # noqa: BLE001  (names are a convenience: the diff still shows)
+            self.app.call_from_thread(self.app.report, exc)
+            attrs, label_by, labels = [], None, {}
+        self.app.call_from_thread(self.show_result, result, attrs, label_by, labels)
+
+    def _labels_for(self, result: dict[str, Any], a: int, b: int, label_by: str | None = ...
+                    ) -> tuple[list[str], str | None, dict[str, str]]:
+        """(text attributes, the one in use, node -> label of the listed moved nodes); worker thread."""
+        from workspace.services.nodes import label_attributes, labels_of
+
+        attrs = label_attributes(self.app.store, [a, b])
+        if label_by is ...:
+            label_by = self.label_by if self.label_by in attrs else (
+                None if self.labels_off or not attrs else attrs[0])
+        nodes = [str(m["node"]) for m in result.get("moved_nodes") or []]
+        labels = labels_of(self.app.store, [a, b], label_by, nodes) if label_by and nodes else {}
+        return attrs, label_by, labels
+
+    def action_label_by(self) -> None:
+        if self.result is None:
+            self.notify("compare two runs first", severity="warning")
+            return
+        if not self.label_attrs:
+            self.notify("the compared versions have no node table with text attributes "
+                        "(add one: cutbook nodes add REF FILE)", severity="warning")
+            return
+        cycle = [*self.label_attrs, None]
+        nxt = cycle[(cycle.index(self.label_by) + 1) % len(cycle)] if self.label_by in cycle else cycle[0]
+        self.labels_off = nxt is None
+        self.relabel(self.result, nxt)
+
+    @work(thread=True, exclusive=True, group="diff-labels", exit_on_error=False)
+    def relabel(self, result: dict[str, Any], label_by: str | None) -> None:
+        a, b = (result.get("a") or {}).get("run"), (result.get("b") or {}).get("run")
+        try:
+            attrs, label_by, labels = self._labels_for(result, a, b, label_by)
+        except Exception as exc:  # noqa: BLE001
+            self.app.call_from_thread(self.app.report, exc)
+            return
+        self.app.call_from_thread(self._apply_labels, attrs, label_by, labels)
+
+    def _apply_labels(self, attrs: list[str], label_by: str | None, labels: dict[str, str]) -> None:
+        self.label_attrs, self.label_by, self.labels = attrs, label_by, labels
+        self.moved = [dict(r, label=labels.get(str(r.get("node")), "")) for r in self.moved]
+        self.query_one("#diff-moved", PagedTable).columns = moved_columns(label_by, self.moved)
+        self.query_one("#diff-moved-pane", Pane).set_class(label_by is not None, "-named")
+        self.query_one("#diff-search", Input).placeholder = (
+            f"search a node id or {label_by} (ctrl+f)" if label_by else "search a node id (ctrl+f)")
+        self._filter_moved(self.query_one("#diff-search", Input).value)
+        self.query_one("#diff-moved", PagedTable).refresh()
 
     def clear_result(self, message: str) -> None:
         """A failed comparison: say why, and leave nothing of the previous one on screen."""
@@ -221,7 +289,8 @@ class DiffScreen(Screen):
         self._filter_moved(self.query_one("#diff-search", Input).value)
         self.show_contingency(None)
 
-    def show_result(self, d: dict[str, Any]) -> None:
+    def show_result(self, d: dict[str, Any], attrs: list[str] | None = None, label_by: str | None = None,
+                    labels: dict[str, str] | None = None) -> None:
         self.result = d
         t = Text()
         for side in ("a", "b"):
@@ -260,7 +329,7 @@ class DiffScreen(Screen):
             ev_text.append("• " + _event_line(ev) + "\n")
         self.query_one("#diff-events", Static).update(ev_text)
         self.moved = shown_moved_rows(d)
-        self._filter_moved(self.query_one("#diff-search", Input).value)
+        self._apply_labels(attrs or [], label_by, labels or {})
         self.show_contingency(d)
         if isinstance(self.focused, Input) and self.focused.id in ("diff-a", "diff-b"):
             self.query_one("#diff-moved", PagedTable).focus(scroll_visible=False)
@@ -285,7 +354,8 @@ class DiffScreen(Screen):
 
     def _filter_moved(self, query: str) -> None:
         q = query.strip().lower()
-        rows = self.moved if not q else [r for r in self.moved if q in str(r.get("node", "")).lower()]
+        rows = self.moved if not q else [r for r in self.moved if q in str(r.get("node", "")).lower()
+                                         or q in str(r.get("label", "")).lower()]
         self.query_one("#diff-moved", PagedTable).set_source(ListSource(rows))
         if self.result is None:
             self.query_one("#diff-moved-pane", Pane).border_title = "Moved nodes"
