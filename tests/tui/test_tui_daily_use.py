@@ -472,6 +472,7 @@ def test_tui_diff_names_moved_nodes_by_the_node_table(demo_path, size):
     from textual.widgets import Input
 
     from workspace.services import nodes
+    from workspace.tui.widgets.charts import HeatTable
     from workspace.tui.widgets.paged_table import PagedTable
 
     async def go():
@@ -493,6 +494,10 @@ def test_tui_diff_names_moved_nodes_by_the_node_table(demo_path, size):
             moved.scroll_visible(animate=False, top=True)
             await pilot.pause()
             on_screen(app, moved, min_width=30)
+            # the contingency beside the wider moved pane keeps whole lines (columns left out, not wrapped)
+            heat = screen.query_one(HeatTable)
+            lines = heat.render().plain.splitlines()
+            assert lines[0].rstrip().endswith("size") and all(len(ln) <= heat.size.width for ln in lines[:-1])
             # searching a station name finds its row
             target = rows[0]
             screen.query_one("#diff-search", Input).value = target["label"]

@@ -297,6 +297,10 @@ class HeatTable(Widget):
             return Text("no contingency table", style=INK_MUTED)
         rows, cols, counts, row_sizes, col_sizes, r_order, c_order = self._layout()
         cell_w = max(6, max((len(str(counts[i][j])) for i in r_order for j in c_order), default=1) + 2)
+        width = self.size.width
+        if width:  # as many B columns as fit beside the row labels and the size column: never wrapped
+            size_w = 3 + max((len(str(row_sizes[i])) for i in r_order), default=1)
+            c_order = c_order[:max(1, (width - 8 - size_w) // cell_w)]
         text = Text()
         text.append("A \\ B".ljust(8), style=INK_MUTED)
         for j in c_order:
