@@ -158,3 +158,21 @@ def test_kill_9_leaves_interrupted_run(tmp_path):
     ver = subprocess.run([sys.executable, "-m", "workspace.cli", "--store", str(store), "verify", "--json"],
                          capture_output=True, text=True, env=env, timeout=60)
     assert ver.returncode == 0, ver.stdout
+
+
+def test_show_names_the_run_conductance_as_the_worst_community(cli, karate_csv, tmp_path):
+    """The run's conductance is its worst community's: the text says so, and the value equals the
+    largest networkx ``algorithms.cuts.conductance`` over the stored communities (Zachary 1977 karate
+    club as shipped by networkx, unweighted)."""
+    assert cli("import", karate_csv, "--project", "club", "--network", "karate").code == 0
+    run = cli("run", "club/karate", "--method", "njw", "--k", "3", "--json").json["run"]
+    members = cli("members", run, "--json")
+    assert members.code == 0, members.err
+    G = nx.relabel_nodes(nx.karate_club_graph(), {i: f"m{i:02d}" for i in range(34)})
+    groups = {c["community"]: set(c["nodes"]) for c in members.json["communities"]}
+    assert sum(len(g) for g in groups.values()) == 34
+    worst = max(nx.conductance(G, c) for c in groups.values())
+    text = cli("show", run).out
+    line = next(ln for ln in text.splitlines() if "conductance (worst)" in ln)
+    value = float(line.split("conductance (worst)")[1].split()[0])
+    assert value == pytest.approx(worst, rel=1e-3)

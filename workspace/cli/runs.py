@@ -7,6 +7,7 @@ from workspace.cli.common import emit_json, progress_bar, read_session, session
 from workspace.cli.output import fmt, fmt_spectrum
 
 SCALAR_MEASURES = ("modularity", "normalized_cut", "conductance", "ratio_cut", "cut", "coverage")
+MEASURE_WORDS = {"conductance": "conductance (worst)"}
 
 
 def _print_run(out, r: dict) -> None:
@@ -19,7 +20,8 @@ def _print_run(out, r: dict) -> None:
     q = r.get("quality") or {}
     shown = [(name, q[name]) for name in SCALAR_MEASURES if isinstance(q.get(name), (int, float))]
     if shown:
-        out.line("  " + "   ".join(f"{n.replace('_', ' ')} {fmt(v)}" for n, v in shown))
+        # the run's conductance is its worst community's (the per-community table has each one)
+        out.line("  " + "   ".join(f"{MEASURE_WORDS.get(n, n.replace('_', ' '))} {fmt(v)}" for n, v in shown))
     eig = r.get("eigenvalues") or []
     if eig:
         out.line("  eigenvalues " + fmt_spectrum(eig))
