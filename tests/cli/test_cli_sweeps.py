@@ -85,6 +85,7 @@ def test_list_show_extend_diff_delete_and_embeddings(cli, karate):
     gone = cli("sweeps", "delete", "2", "--json").json
     assert gone == {"sweep": 2, "deleted": True, "runs_kept": 2}
     assert [r["sweep"] for r in cli("sweeps", "list", "--json").json] == [1]
+    assert cli("sweeps", "--json").json == cli("sweeps", "list", "--json").json  # no action: the list
 
 
 def test_bad_input_one_line_errors_and_nothing_recorded(cli, karate, store_path):

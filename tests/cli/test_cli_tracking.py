@@ -62,6 +62,7 @@ def test_import_runs_the_tracked_set_and_the_report_equals_diff(cli, tmp_path):
     assert st["summary"]["ari"] == adjusted_rand_score([la[v] for v in NAMES], [lb[v] for v in NAMES])
     # stored, latest first, and shown again on request
     assert cli("updates", "list", "p/g", "--json").json[0]["update"] == upd["update"]
+    assert cli("updates", "--json").json == cli("updates", "list", "--json").json  # no action: the list
     again = cli("updates", "show", "--json")
     assert again.code == 0 and again.json["sets"][0]["diff"] == same.json
     text = cli("updates", "show", str(upd["update"]))

@@ -223,8 +223,10 @@ def build_parser() -> argparse.ArgumentParser:
                    help="k assigned at a time from one embedding (default: CPUs, at most 4); with --executor dask "
                         "the worker processes of a Dask cluster started on this machine; results do not depend on it")
     _executor_options(p)
-    p = add("sweeps", "list, show, extend, diff and delete sweeps", "sweeps", "cmd_sweeps")
-    ssub = p.add_subparsers(dest="sweeps_action", metavar="ACTION", required=True)
+    p = add("sweeps", "list (the default), show, extend, diff and delete sweeps", "sweeps", "cmd_sweeps")
+    # no ACTION lists them, as `runs` and `projects` do
+    ssub = p.add_subparsers(dest="sweeps_action", metavar="ACTION", required=False)
+    p.set_defaults(ref=None)
     q = ssub.add_parser("list", help="list sweeps, newest first", parents=[common])
     q.add_argument("ref", nargs="?", metavar="PROJECT[/NETWORK[@V]]")
     q = ssub.add_parser("show", help="a sweep's measures per k, recommendation and split view", parents=[common])
@@ -317,8 +319,10 @@ def build_parser() -> argparse.ArgumentParser:
             "changed since the previous version", "tracking", "cmd_update")
     p.add_argument("ref", metavar="PROJECT/NETWORK[@V]")
     p.add_argument("--limit", type=int, default=10, help="events and moved nodes listed per set in text (default 10)")
-    p = add("updates", "list updates (latest first) or show one update's change report", "tracking", "cmd_updates")
-    usub = p.add_subparsers(dest="updates_action", metavar="ACTION", required=True)
+    p = add("updates", "list updates (latest first; the default) or show one update's change report", "tracking",
+            "cmd_updates")
+    usub = p.add_subparsers(dest="updates_action", metavar="ACTION", required=False)  # no ACTION: list
+    p.set_defaults(network=None, limit=None)
     q = usub.add_parser("list", help="updates, latest first", parents=[common])
     q.add_argument("network", nargs="?", metavar="PROJECT/NETWORK")
     q.add_argument("--limit", type=int, default=None)

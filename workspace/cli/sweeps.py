@@ -81,7 +81,7 @@ def cmd_sweep(args) -> int:
 def cmd_sweeps(args) -> int:
     from workspace.services import sweeps as svc
 
-    action = args.sweeps_action
+    action = args.sweeps_action or "list"
     with session(args) as (store, out):
         if action == "list":
             rows = svc.list_sweeps(store, args.ref)

@@ -58,7 +58,7 @@ def cmd_updates(args) -> int:
     from workspace.services import tracking
 
     with session(args) as (store, out):
-        if args.updates_action == "list":
+        if (args.updates_action or "list") == "list":
             rows = tracking.list_updates(store, args.network, limit=args.limit)
             if args.json:
                 emit_json(rows)
