@@ -272,3 +272,116 @@ def test_node_tables_travel_with_their_versions(tmp_path):
     with _open(a) as src, _open(b) as dst:
         again = copy_work(src, dst)
     assert dump_any(str(b)) == before and again["added"]["node_tables"] == 0
+
+
+# --- sweeps, tracked sets, updates and warm starts travel too ------------------------------------------
+
+@pytest.fixture(scope="module")
+def demo_store(tmp_path_factory) -> Path:
+    """The demo store: a sweep with a cached embedding, a tracked set, an update after the July import
+    whose run is warm-started from that embedding."""
+    from workspace.demo.build import build_demo
+
+    path = tmp_path_factory.mktemp("copy-demo") / "demo.sqlite"
+    with _open(path) as st:
+        build_demo(st)
+    return path
+
+
+def _without_ids(doc):
+    """A service document with run and sweep ids taken out (they differ between stores)."""
+    if isinstance(doc, dict):
+        return {k: _without_ids(v) for k, v in doc.items()
+                if k not in ("run", "sweep", "update", "previous_run", "run_a", "run_b", "aligned_to", "id")}
+    if isinstance(doc, list):
+        return [_without_ids(v) for v in doc]
+    return doc
+
+
+def _copy_demo_and_compare(demo_store: Path, dest: str) -> dict:
+    from workspace.services import runs, sweeps, tracking
+    from workspace.services.copy import copy_work
+
+    with _open(demo_store) as src, _open(dest) as dst:
+        res = copy_work(src, dst)
+        assert res["added"]["sweeps"] == 1 and res["added"]["tracked_sets"] == 1 and res["added"]["updates"] == 1
+        ids = {int(k): v for k, v in res["run_ids"].items()}
+        # the sweep: same measures per k and the same recommendation, its links to the copied runs
+        (sw_src,), (sw_dst,) = sweeps.list_sweeps(src), sweeps.list_sweeps(dst)
+        shown_src, shown_dst = sweeps.show_sweep(src, sw_src["sweep"]), sweeps.show_sweep(dst, sw_dst["sweep"])
+        assert _without_ids(shown_dst) == _without_ids(shown_src)
+        assert sorted(ids[p["run"]] for p in shown_src["points"]) == sorted(p["run"] for p in shown_dst["points"])
+        # the tracked set and the update's change report, with the new run's shown labels
+        assert (_without_ids(tracking.list_tracked(dst, "velmora-bikes/stations"))
+                == _without_ids(tracking.list_tracked(src, "velmora-bikes/stations")))
+        up_src = tracking.change_report(src, tracking.latest_update_id(src))
+        up_dst = tracking.change_report(dst, tracking.latest_update_id(dst))
+        assert up_src["sets"][0]["diff"]["ari"] is not None
+        assert _without_ids(up_dst) == _without_ids(up_src)
+        new_src = up_src["sets"][0]["run"]
+        assert up_dst["sets"][0]["run"] == ids[new_src]
+        assert up_dst["sets"][0]["previous_run"] == ids[up_src["sets"][0]["previous_run"]]
+        shown_a, shown_b = runs.show_run(src, new_src), runs.show_run(dst, ids[new_src])
+        assert [c["shown"] for c in shown_b["communities"]] == [c["shown"] for c in shown_a["communities"]]
+        assert shown_b["shown_labels"]["aligned_to"] == ids[shown_a["shown_labels"]["aligned_to"]]
+        # the warm-started run names a source the destination has, and reruns bit for bit there
+        warm = runs.show_run(dst, ids[new_src])["provenance"]["warm_from"]
+        assert warm == runs.show_run(src, new_src)["provenance"]["warm_from"]  # an embedding: same key
+        assert runs.rerun(dst, ids[new_src])["identical"] is True
+    return res
+
+
+def test_sweeps_tracking_and_warm_sources_travel(demo_store, tmp_path):
+    from workspace.services.copy import copy_work
+
+    dest = tmp_path / "team.sqlite"
+    _copy_demo_and_compare(demo_store, str(dest))
+    before = dump_any(str(dest))
+    with _open(demo_store) as src, _open(dest) as dst:
+        again = copy_work(src, dst)
+    assert all(v == 0 for v in again["added"].values()), again["added"]
+    assert again["matched"]["sweeps"] == 1 and again["matched"]["updates"] == 1
+    # the rerun made on the destination above is the only difference a second copy must not undo
+    assert dump_any(str(dest)) == before
+
+
+@pytest.mark.postgres
+@pytest.mark.slow
+def test_sweeps_tracking_and_warm_sources_travel_to_postgres(demo_store, pg_url):
+    _copy_demo_and_compare(demo_store, pg_url)
+
+
+def test_a_lineage_copy_brings_the_warm_start_source_run(tmp_path):
+    """A run warm-started from an earlier run: copying its lineage copies the source run, and the copy's
+    ``warm_from`` names the source by its destination id, so rerun there rebuilds the same start block."""
+    from workspace.services import runs
+    from workspace.services.copy import copy_work
+    from workspace.services.networks import import_network
+
+    a, b = tmp_path / "a.sqlite", tmp_path / "b.sqlite"
+    # a 1200-node planted partition (networkx.planted_partition_graph, seeded), large enough for the
+    # iterative solver that uses the start block, and a second version with a few ties removed
+    G = nx.planted_partition_graph(4, 300, 0.05, 0.002, seed=3)
+    edges = sorted(G.edges())
+    v1 = write_edges(tmp_path / "v1.csv", [(f"n{u}", f"n{v}") for u, v in edges], header="source,target")
+    v2 = write_edges(tmp_path / "v2.csv", [(f"n{u}", f"n{v}") for i, (u, v) in enumerate(edges) if i % 50],
+                     header="source,target")
+    with _open(a) as st:
+        import_network(st, v1, project="p", network="g")
+        first = runs.launch(st, runs.prepare_run(st, "p/g@1", method="njw", k=4))["run"]
+        import_network(st, v2, project="p", network="g")
+        runs.launch(st, runs.prepare_run(st, "p/g@2", method="njw", k=4))   # a cold run in between
+        warm = runs.launch(st, runs.prepare_run(st, "p/g@2", method="njw", k=4, warm=str(first)))["run"]
+        assert runs.show_run(st, warm)["provenance"]["warm_from"] == f"run:{first}"
+    with _open(a) as src, _open(b) as dst:
+        res = copy_work(src, dst, run=warm)
+        assert res["added"]["runs"] == 2 and res["added"]["versions"] == 2
+        moved = {int(k): v for k, v in res["run_ids"].items()}
+        shown = runs.show_run(dst, moved[warm])
+        assert shown["provenance"]["warm_from"] == f"run:{moved[first]}"
+        assert shown["diagnostics"]["warm_start"]["source"] == f"run:{moved[first]}"
+        again = runs.rerun(dst, moved[warm])
+        assert again["identical"] is True
+        _, m_src, _ = runs.load_membership(src, warm)
+        _, m_dst, _ = runs.load_membership(dst, again["run"])
+        assert adjusted_rand_score(m_src, m_dst) == 1.0   # sklearn.metrics.adjusted_rand_score

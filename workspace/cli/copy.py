@@ -22,11 +22,14 @@ def cmd_copy(args) -> int:
             emit_json(res)
             return 0
         added, matched = res["added"], res["matched"]
-        kinds = ("projects", "networks", "versions", "node_tables", "param_set_versions", "runs", "annotations")
+        kinds = ("projects", "networks", "versions", "node_tables", "param_set_versions", "runs", "sweeps",
+                 "tracked_sets", "updates", "embeddings", "annotations")
 
         def count(n: int, kind: str) -> str:
             words = kind.replace("_", " ")
-            return f"{n} {words if n != 1 else words.replace('versions', 'version').rstrip('s')}"
+            if n == 1:
+                words = words.replace("versions", "version").replace("sets", "set").rstrip("s")
+            return f"{n} {words}"
 
         got = ", ".join(count(added[k], k) for k in kinds if added.get(k))
         out.line(f"copied to {res['destination']}: {got or 'nothing new (everything was already there)'}")
@@ -43,8 +46,10 @@ def cmd_copy(args) -> int:
         if moved:
             out.line("  run ids  " + ", ".join(f"{k} -> {v}" for k, v in moved[:20])
                      + (f" (and {len(moved) - 20} more; --json lists all)" if len(moved) > 20 else ""))
-        if res["skipped_running"]:
-            out.line(f"  not copied (still running): runs {', '.join(map(str, res['skipped_running']))}")
+        for key, what in (("skipped_running", "runs"), ("skipped_running_sweeps", "sweeps"),
+                          ("skipped_running_updates", "updates")):
+            if res.get(key):
+                out.line(f"  not copied (still running): {what} {', '.join(map(str, res[key]))}")
         v = res["verified"]
         out.line(f"  verified on arrival: {v['arrays']} arrays" + (f", {v['chunks']} chunks" if v["chunks"] else "")
                  + " match their hashes")

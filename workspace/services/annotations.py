@@ -82,8 +82,10 @@ def _event(a: Annotation) -> dict[str, Any]:
 
 
 def _iso(t) -> str:
-    """UTC time as the other listings print it (SQLite hands the value back without its zone)."""
-    return t.replace(tzinfo=None).isoformat(timespec="seconds")
+    """UTC time as the other listings print it (:func:`workspace.services.iso_time`)."""
+    from workspace.services import iso_time
+
+    return iso_time(t)
 
 
 def _state(s, kind: str, row_id: int, ref: str, added: list[Annotation] | None = None) -> dict[str, Any]:

@@ -13,8 +13,15 @@ What is copied, by scope:
 A copied version brings its node attribute table (columns and their arrays).
 Records keep what they are: content hashes, arrays (copied as stored, chunked or not), messages,
 import reports and policies, run records and provenance, ``created_at`` and ``created_by``.
-Runs still ``running`` are not copied (their outcome is not known yet); sweeps and cached
-embeddings are not copied (the runs of a sweep are; embeddings are recomputed when needed).
+Runs still ``running`` are not copied (their outcome is not known yet).
+
+With projects and networks come their sweeps (the record, widened to what the source has now, and
+its links to the copied runs; a sweep still ``running`` stays behind), their tracked parameter sets
+and their updates (each set's new and previous run and the shown community labels, so that tables
+and exports number communities alike in both stores). A warm-started run keeps a source that
+rerun can rebuild: a source run is copied with it (a lineage copy follows warm sources as it
+follows reruns) and its id in ``warm_from`` becomes the destination's; a cached embedding that is a
+source is copied with it. Other cached embeddings are not copied (they are recomputed when needed).
 
 Matching, so that copying twice adds nothing (ids differ between stores and are never compared):
 projects, networks and parameter sets by name; a network version by its content hash (the n-th
@@ -36,6 +43,7 @@ re-hashed, each chunk included (the check ``verify`` makes); a mismatch rolls ev
 
 from __future__ import annotations
 
+import json
 import os
 from datetime import datetime, timezone
 from typing import Any
@@ -47,14 +55,18 @@ from workspace.domain import VersionRef
 from workspace.errors import NotFoundError, StoreDamaged, UsageError
 from workspace.store import faults, repo
 from workspace.store.db import Store, sqlite_file
-from workspace.store.schema import (Annotation, Blob, BlobChunk, Network, NetworkVersion, NodeTable, NodeTableColumn,
-                                    ParamSet, ParamSetVersion, Project, Run, RunCommunity, RunMeasure)
+from workspace.store.schema import (Annotation, Blob, BlobChunk, Embedding, Network, NetworkVersion, NodeTable,
+                                    NodeTableColumn, ParamSet, ParamSetVersion, Project, Run, RunCommunity,
+                                    RunMeasure, Sweep, SweepRun, TrackedSet, TrackedUpdate, TrackedUpdateRun)
 
 _VERSION_BLOBS = ("node_offsets_blob", "node_bytes_blob", "edge_u_blob", "edge_v_blob", "weight_blob")
 _NODE_TABLE_BLOBS = ("values_blob", "present_blob", "dictionary_offsets_blob", "dictionary_bytes_blob")
 _RUN_BLOBS = ("membership_blob", "stability_blob", "eigenvalues_blob")
 _RUN_KEY = ("kind", "method", "label", "params_json", "k_requested", "seed", "repeats", "status", "host",
             "membership_hash")
+# a sweep is one exploration (matched by these); extending it widens the rest, which a copy brings along
+_SWEEP_KEY = ("method", "params_json", "vary_name", "seed", "perturb", "host")
+_SWEEP_GROWS = ("ks_json", "vary_values_json", "seeds", "status", "error", "finished_at")
 
 
 def _utc(dt: datetime | None) -> datetime | None:
@@ -129,10 +141,12 @@ class _Copier:
     def __init__(self, s, d) -> None:
         self.s, self.d = s, d
         self.added = dict.fromkeys(("projects", "networks", "versions", "node_tables", "param_sets",
-                                    "param_set_versions", "runs", "annotations", "arrays", "chunks"), 0)
+                                    "param_set_versions", "runs", "sweeps", "tracked_sets", "updates",
+                                    "embeddings", "annotations", "arrays", "chunks"), 0)
         self.added["bytes"] = 0
         self.matched = dict.fromkeys(("projects", "networks", "versions", "param_sets", "param_set_versions",
-                                      "runs", "annotations", "arrays"), 0)
+                                      "runs", "sweeps", "tracked_sets", "updates", "embeddings", "annotations",
+                                      "arrays"), 0)
         self.projects: dict[int, int] = {}
         self.networks: dict[int, int] = {}
         self.version_ids: dict[int, int] = {}
@@ -143,6 +157,8 @@ class _Copier:
         self.used_blobs: set[str] = set()  # every array the copied records use
         self.renumbered: list[dict[str, Any]] = []
         self.skipped_running: list[int] = []
+        self.skipped_running_sweeps: list[int] = []
+        self.skipped_running_updates: list[int] = []
 
     def _insert(self, model, values: dict[str, Any]) -> int:
         return self.d.execute(insert(model).values(**values).returning(model.id)).scalar_one()
@@ -307,6 +323,7 @@ class _Copier:
         values = {**_columns(r), "version_id": vid,
                   "param_set_version_id": self.psvs.get(r.param_set_version_id),
                   "rerun_of": self.runs.get(r.rerun_of)}
+        values.update(self._warm_fields(r))
         new_id = self._insert(Run, values)
         self.runs[r.id] = new_id
         self.added["runs"] += 1
@@ -314,6 +331,124 @@ class _Copier:
             self.d.execute(insert(RunCommunity).values(**{**_columns(c, skip=()), "run_id": new_id}))
         for m in self.s.scalars(select(RunMeasure).where(RunMeasure.run_id == r.id)).all():
             self.d.execute(insert(RunMeasure).values(**{**_columns(m, skip=()), "run_id": new_id}))
+
+    def _warm_fields(self, r: Run) -> dict[str, str]:
+        """The run's provenance and diagnostics with its warm-start source named as on the destination:
+        a copied source run by its new id; a cached embedding source copied along (same key)."""
+        prov = json.loads(r.provenance_json or "{}")
+        source = prov.get("warm_from")
+        if not source:
+            return {}
+        kind, _, ident = source.partition(":")
+        if kind == "embedding":
+            self.embedding(ident)
+            return {}
+        if kind != "run" or int(ident) not in self.runs:
+            return {}
+        renamed = f"run:{self.runs[int(ident)]}"
+        prov["warm_from"] = renamed
+        out = {"provenance_json": json.dumps(prov)}
+        diag = json.loads(r.diagnostics_json or "{}")
+        if isinstance(diag.get("warm_start"), dict) and diag["warm_start"].get("source") == source:
+            diag["warm_start"]["source"] = renamed
+            out["diagnostics_json"] = json.dumps(diag)
+        return out
+
+    def embedding(self, key: str) -> None:
+        """Copy a cached embedding (content-keyed, so the key is the same on both stores)."""
+        if self.d.scalar(select(Embedding.key).where(Embedding.key == key)) is not None:
+            self.matched["embeddings"] += 1
+            return
+        e = self.s.get(Embedding, key)
+        if e is None or e.version_id not in self.version_ids:
+            return   # pruned on the source, or of a version outside the copy: rerun says so
+        for col in ("values_blob", "vectors_blob"):
+            self.blob(getattr(e, col))
+        self.d.execute(insert(Embedding).values(**{**_columns(e, skip=()),
+                                                   "version_id": self.version_ids[e.version_id]}))
+        self.added["embeddings"] += 1
+
+    def _psv(self, source_psv: int | None) -> int | None:
+        """The destination id of a parameter-set version, copying it (and the earlier ones) when needed."""
+        if source_psv is None:
+            return None
+        if source_psv not in self.psvs:
+            pv = self.s.get(ParamSetVersion, source_psv)
+            self.param_set(self.s.get(ParamSet, pv.param_set_id), pv.number)
+        return self.psvs[source_psv]
+
+    # --- sweeps, tracked sets and updates -------------------------------------------------------
+    def sweeps(self) -> None:
+        """The sweeps of the copied versions: new ones inserted, matched ones widened to the source's
+        k, values, seeds and outcome; links to every copied run of theirs."""
+        ids = sorted(self.version_ids)
+        for i in range(0, len(ids), 500):
+            for sw in self.s.scalars(select(Sweep).where(Sweep.version_id.in_(ids[i:i + 500]))
+                                     .order_by(Sweep.id)).all():
+                if sw.status == "running":
+                    self.skipped_running_sweeps.append(sw.id)
+                    continue
+                vid = self.version_ids[sw.version_id]
+                key = tuple(getattr(sw, k) for k in _SWEEP_KEY) + (_stamp(sw.started_at),)
+                found = next((d.id for d in self.d.scalars(select(Sweep).where(Sweep.version_id == vid)).all()
+                              if tuple(getattr(d, k) for k in _SWEEP_KEY) + (_stamp(d.started_at),) == key), None)
+                if found is None:
+                    found = self._insert(Sweep, {**_columns(sw), "version_id": vid,
+                                                 "param_set_version_id": self._psv(sw.param_set_version_id)})
+                    self.added["sweeps"] += 1
+                else:
+                    self.d.execute(Sweep.__table__.update().where(Sweep.id == found)
+                                   .values(**{k: getattr(sw, k) for k in _SWEEP_GROWS}))
+                    self.matched["sweeps"] += 1
+                have = set(self.d.scalars(select(SweepRun.run_id).where(SweepRun.sweep_id == found)).all())
+                for link in self.s.scalars(select(SweepRun).where(SweepRun.sweep_id == sw.id)
+                                           .order_by(SweepRun.run_id)).all():
+                    run = self.runs.get(link.run_id)
+                    if run is not None and run not in have:
+                        self.d.execute(insert(SweepRun).values(**{**_columns(link, skip=()), "sweep_id": found,
+                                                                  "run_id": run}))
+
+    def tracking(self, network_ids: list[int]) -> None:
+        """Tracked sets and updates of the copied networks (updates of copied versions only)."""
+        for nid in network_ids:
+            dnid = self.networks[nid]
+            for t in self.s.scalars(select(TrackedSet).where(TrackedSet.network_id == nid)
+                                    .order_by(TrackedSet.id)).all():
+                psv = self._psv(t.param_set_version_id)
+                if self.d.scalar(select(TrackedSet.id).where(TrackedSet.network_id == dnid,
+                                                             TrackedSet.param_set_version_id == psv)) is not None:
+                    self.matched["tracked_sets"] += 1
+                    continue
+                self._insert(TrackedSet, {**_columns(t), "network_id": dnid, "param_set_version_id": psv})
+                self.added["tracked_sets"] += 1
+            have = {(u.version_id, u.trigger, _stamp(u.started_at), u.host) for u in
+                    self.d.scalars(select(TrackedUpdate).where(TrackedUpdate.network_id == dnid)).all()}
+            for u in self.s.scalars(select(TrackedUpdate).where(TrackedUpdate.network_id == nid)
+                                    .order_by(TrackedUpdate.id)).all():
+                if u.version_id not in self.version_ids:
+                    continue
+                if u.status == "running":
+                    self.skipped_running_updates.append(u.id)
+                    continue
+                vid = self.version_ids[u.version_id]
+                if (vid, u.trigger, _stamp(u.started_at), u.host) in have:
+                    self.matched["updates"] += 1
+                    continue
+                uid = self._insert(TrackedUpdate, {**_columns(u), "network_id": dnid, "version_id": vid,
+                                                   "previous_version_id": self.version_ids.get(u.previous_version_id)})
+                self.added["updates"] += 1
+                for row in self.s.scalars(select(TrackedUpdateRun).where(TrackedUpdateRun.update_id == u.id)
+                                          .order_by(TrackedUpdateRun.position)).all():
+                    labels = json.loads(row.labels_json) if row.labels_json else None
+                    if labels is not None:
+                        labels["aligned_to"] = self.runs.get(labels.get("aligned_to"))
+                        if labels["aligned_to"] is None:
+                            labels = None   # the run it was aligned to stayed behind
+                    self.d.execute(insert(TrackedUpdateRun).values(**{
+                        **_columns(row, skip=()), "update_id": uid,
+                        "param_set_version_id": self._psv(row.param_set_version_id),
+                        "run_id": self.runs.get(row.run_id), "previous_run_id": self.runs.get(row.previous_run_id),
+                        "labels_json": None if labels is None else json.dumps(labels)}))
 
     # --- annotations -------------------------------------------------------------------------
     def annotations(self) -> None:
@@ -363,17 +498,24 @@ def _copy_runs(c: _Copier, runs: list[Run]) -> None:
 
 
 def _lineage(s, run_id: int) -> tuple[list[Run], dict[int, set[int]]]:
-    """The run and the runs it reruns (oldest first), and per network the versions they need with all
-    their ancestors."""
+    """The run, the runs it reruns and the runs it was warm-started from (transitively; oldest first),
+    and per network the versions they need with all their ancestors."""
     runs: list[Run] = []
     seen: set[int] = set()
-    current = s.get(Run, run_id)
-    if current is None:
+    if s.get(Run, run_id) is None:
         raise NotFoundError(f"no run {run_id} in the source store")
-    while current is not None and current.id not in seen:
+    todo = [run_id]
+    while todo:
+        current = s.get(Run, todo.pop())
+        if current is None or current.id in seen:
+            continue
         seen.add(current.id)
         runs.append(current)
-        current = s.get(Run, current.rerun_of) if current.rerun_of is not None else None
+        if current.rerun_of is not None:
+            todo.append(current.rerun_of)
+        kind, _, ident = (json.loads(current.provenance_json or "{}").get("warm_from") or "").partition(":")
+        if kind == "run" and ident.isdigit():
+            todo.append(int(ident))   # its warm-start source: rerun rebuilds the start block from it
     wanted: dict[int, set[int]] = {}
     for r in runs:
         v = s.get(NetworkVersion, r.version_id)
@@ -437,6 +579,8 @@ def copy_work(source: Store, dest: Store, *, projects: list[str] | None = None, 
             elif network is not None:
                 c.copy_versions(net)
                 _copy_runs(c, _scope_runs(src, sorted(c.version_ids)))
+                c.sweeps()
+                c.tracking([net.id])
             else:
                 for p in found:
                     c.project(p)
@@ -447,11 +591,15 @@ def copy_work(source: Store, dest: Store, *, projects: list[str] | None = None, 
                                           .order_by(ParamSet.name)).all():
                         c.param_set(ps)
                 _copy_runs(c, _scope_runs(src, sorted(c.version_ids)))
+                c.sweeps()
+                c.tracking(sorted(c.networks))
             c.annotations()
             verified = _verify_arrival(d, c.used_blobs, source.name)
     return {"source": source.name, "destination": dest.name, "scope": scope, "added": c.added,
             "matched": c.matched, "run_ids": {str(k): v for k, v in sorted(c.runs.items())},
-            "renumbered": c.renumbered, "skipped_running": c.skipped_running, "verified": verified}
+            "renumbered": c.renumbered, "skipped_running": c.skipped_running,
+            "skipped_running_sweeps": c.skipped_running_sweeps,
+            "skipped_running_updates": c.skipped_running_updates, "verified": verified}
 
 
 def _verify_arrival(d, hashes: set[str], source_name: str) -> dict[str, Any]:

@@ -15,6 +15,7 @@ from typing import TYPE_CHECKING, Any, Callable
 
 from workspace.domain import ImportPolicy, VersionRef
 from workspace.errors import NotFoundError, UsageError
+from workspace.services import iso_time
 
 if TYPE_CHECKING:
     from workspace.domain import GraphData
@@ -59,7 +60,7 @@ def version_summary(v: NetworkVersion, project: str, network: str) -> dict[str, 
         "ref": f"{project}/{network}@{v.number}", "project": project, "network": network,
         "version": v.number, "nodes": v.n_nodes, "edges": v.n_edges, "total_weight": v.total_weight,
         "content_hash": v.content_hash, "message": v.message, "source": v.source_name,
-        "format": v.source_format, "created": v.created_at.isoformat(timespec="seconds"),
+        "format": v.source_format, "created": iso_time(v.created_at),
         "by": v.created_by,
     }
 
@@ -271,7 +272,7 @@ def list_projects(store: Store) -> list[dict[str, Any]]:
     from workspace.store import repo
 
     with store.read() as s:
-        return [{"project": r.name, "networks": r.networks, "created": r.created_at.isoformat(timespec="seconds")}
+        return [{"project": r.name, "networks": r.networks, "created": iso_time(r.created_at)}
                 for r in repo.list_projects(s)]
 
 
@@ -282,7 +283,7 @@ def list_networks(store: Store, project: str | None = None) -> list[dict[str, An
         if project is not None and repo.find_project(s, project) is None:
             raise project_not_found(s, project)
         return [{"project": r.project, "network": r.network, "latest_version": r.latest,
-                 "created": r.created_at.isoformat(timespec="seconds")} for r in repo.list_networks(s, project)]
+                 "created": iso_time(r.created_at)} for r in repo.list_networks(s, project)]
 
 
 def _network(s, ref: VersionRef) -> Network:

@@ -19,6 +19,7 @@ from typing import TYPE_CHECKING, Any
 
 from workspace.domain import VersionRef
 from workspace.errors import InputError, NotFoundError, UsageError
+from workspace.services import iso_time
 
 if TYPE_CHECKING:
     import numpy as np
@@ -327,7 +328,7 @@ def describe_table(s, version_id: int, *, examples: int = 3) -> dict[str, Any] |
         columns.append(entry)
     return {"source": row.source_name, "rows": row.n_rows, "attributes_hash": row.attributes_hash,
             "coords": json.loads(row.coords_json or "null"), "columns": columns,
-            "created": row.created_at.isoformat(timespec="seconds")}
+            "created": iso_time(row.created_at)}
 
 
 def show_node_table(store: Store, ref: str | VersionRef) -> dict[str, Any]:

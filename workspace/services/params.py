@@ -10,6 +10,7 @@ from typing import Any
 from sqlalchemy import select
 
 from workspace.errors import NotFoundError, ParameterError, UsageError
+from workspace.services import iso_time
 from workspace.store import repo
 from workspace.store.db import Store
 from workspace.store.schema import ParamSet, ParamSetVersion, Project
@@ -81,7 +82,7 @@ def _values_hash(method: str, k: str | None, params: dict[str, Any]) -> str:
 def _row_dict(project: str, name: str, v: ParamSetVersion) -> dict[str, Any]:
     return {"project": project, "name": name, "version": v.number, "ref": f"{project}/{name}@{v.number}",
             "method": v.method, "k": v.k, "params": json.loads(v.values_json),
-            "created": v.created_at.isoformat(timespec="seconds"), "by": v.created_by}
+            "created": iso_time(v.created_at), "by": v.created_by}
 
 
 def save_params(store: Store, ref: str, *, method: str, k: Any = None,

@@ -19,6 +19,7 @@ from sqlalchemy import delete, select
 
 from workspace.domain import GraphData, VersionRef, canonical_labels, compact_label_dtype, membership_hash
 from workspace.errors import Cancelled, ComputeError, CutbookError, NotFoundError, ParameterError, UsageError
+from workspace.services import iso_time
 from workspace.services.liveness import _process_token, mark_interrupted  # noqa: F401 (mark_interrupted: public here too)
 from workspace.services import params as params_service
 from workspace.services.networks import resolve_version
@@ -543,8 +544,8 @@ def _run_row_dict(run: Run, project: str, network: str, number: int) -> dict[str
             "network": f"{project}/{network}", "version": number, "ref": f"{project}/{network}@{number}",
             "k": run.k, "k_requested": run.k_requested, "seed": run.seed, "repeats": run.repeats,
             "membership_hash": run.membership_hash,
-            "created": run.started_at.isoformat(timespec="seconds"),
-            "finished": run.finished_at.isoformat(timespec="seconds") if run.finished_at else None,
+            "created": iso_time(run.started_at),
+            "finished": iso_time(run.finished_at) if run.finished_at else None,
             "by": run.created_by, "host": run.host}
 
 

@@ -37,6 +37,7 @@ from sqlalchemy import delete, func, select, text, update
 
 from workspace.domain import VersionRef
 from workspace.errors import Cancelled, ComputeError, CutbookError, NotFoundError, ParameterError, UsageError
+from workspace.services import iso_time
 from workspace.services import params as params_service
 from workspace.services.liveness import _process_alive
 from workspace.services import runs as runs_service
@@ -252,7 +253,7 @@ def embedding_cache(store: Store) -> dict[str, Any]:
             rows.append({"key": e.key, "ref": f"{p}/{n}@{v}", "operator": e.operator,
                          "operator_params": fields["operator_params"], "n_rows": e.n_rows,
                          "n_vectors": e.n_vectors, "seed": fields["seed"], "solver": e.solver,
-                         "stored_bytes": int(size or 0), "created": e.created_at.isoformat(timespec="seconds")})
+                         "stored_bytes": int(size or 0), "created": iso_time(e.created_at)})
     return {"embeddings": rows, "count": len(rows), "stored_bytes": sum(r["stored_bytes"] for r in rows)}
 
 
@@ -786,8 +787,8 @@ def _sweep_row(sw: Sweep, ref: str, counts: dict[str, int]) -> dict[str, Any]:
     return {"sweep": sw.id, "ref": ref, "method": sw.method, "ks": json.loads(sw.ks_json),
             "vary": ({"name": sw.vary_name, "values": json.loads(sw.vary_values_json)} if sw.vary_name else None),
             "seed": sw.seed, "seeds": sw.seeds, "perturb": sw.perturb, "status": _effective_status(sw),
-            "error": sw.error, "created": sw.started_at.isoformat(timespec="seconds"),
-            "finished": sw.finished_at.isoformat(timespec="seconds") if sw.finished_at else None,
+            "error": sw.error, "created": iso_time(sw.started_at),
+            "finished": iso_time(sw.finished_at) if sw.finished_at else None,
             "tasks": {"total": len(json.loads(sw.ks_json)) * len(json.loads(sw.vary_values_json)) * sw.seeds,
                       **counts}}
 

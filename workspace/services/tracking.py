@@ -27,6 +27,7 @@ from sqlalchemy import select
 
 from workspace.domain import VersionRef
 from workspace.errors import Cancelled, ConflictError, CutbookError, NotFoundError, UsageError
+from workspace.services import iso_time
 from workspace.services.liveness import _process_alive, _process_token
 from workspace.store.db import Store
 from workspace.store.schema import (
@@ -69,7 +70,7 @@ def _params_ref(s, psv_id: int) -> str:
 def _tracked_row(s, t: TrackedSet) -> dict[str, Any]:
     psv = s.get(ParamSetVersion, t.param_set_version_id)
     return {"params": _params_ref(s, t.param_set_version_id), "method": psv.method, "k": psv.k,
-            "values": json.loads(psv.values_json), "added": t.created_at.isoformat(timespec="seconds"),
+            "values": json.loads(psv.values_json), "added": iso_time(t.created_at),
             "by": t.created_by}
 
 
@@ -378,8 +379,8 @@ def _update_head(s, u: TrackedUpdate) -> dict[str, Any]:
         status = "interrupted"  # its process is gone (as for runs; read-only: the record is not rewritten)
     return {"update": u.id, "network": name, "ref": f"{name}@{v.number}", "version": v.number,
             "previous": f"{name}@{prev.number}" if prev else None, "trigger": u.trigger, "status": status,
-            "started": u.started_at.isoformat(timespec="seconds"),
-            "finished": u.finished_at.isoformat(timespec="seconds") if u.finished_at else None,
+            "started": iso_time(u.started_at),
+            "finished": iso_time(u.finished_at) if u.finished_at else None,
             "by": u.created_by}
 
 
