@@ -112,6 +112,16 @@ def demo_run(store, method: str, ref: str) -> int:
     return min(r["run"] for r in list_runs(store, ref) if r["method"] == method)
 
 
+async def open_diff_of_may_and_june(app, pilot):
+    """The Diff screen comparing the demo's first njw runs on versions 3 and 4, once it has settled."""
+    a = demo_run(app.store, "njw", "velmora-bikes/stations@3")
+    b = demo_run(app.store, "njw", "velmora-bikes/stations@4")
+    app.diff_pick.update(a=a, b=b)
+    await pilot.press("4")
+    await settle(app, pilot)
+    return app.screen
+
+
 # --- every screen at 80x24 and 120x36 ------------------------------------------------------------------
 
 
@@ -224,12 +234,7 @@ def test_tui_diff_fits(demo_path, size):
 
     async def go():
         async with workspace(demo_path, size) as (app, pilot):
-            a = demo_run(app.store, "njw", "velmora-bikes/stations@3")
-            b = demo_run(app.store, "njw", "velmora-bikes/stations@4")
-            app.diff_pick.update(a=a, b=b)
-            await pilot.press("4")
-            await settle(app, pilot)
-            screen = app.screen
+            screen = await open_diff_of_may_and_june(app, pilot)
             assert screen.result is not None
             for wid in ("#diff-a", "#diff-b", "#diff-nodes"):
                 on_screen(app, screen.query_one(wid, ), min_width=8)
@@ -477,12 +482,7 @@ def test_tui_diff_names_moved_nodes_by_the_node_table(demo_path, size):
 
     async def go():
         async with workspace(demo_path, size) as (app, pilot):
-            a = demo_run(app.store, "njw", "velmora-bikes/stations@3")
-            b = demo_run(app.store, "njw", "velmora-bikes/stations@4")
-            app.diff_pick.update(a=a, b=b)
-            await pilot.press("4")
-            await settle(app, pilot)
-            screen = app.screen
+            screen = await open_diff_of_may_and_june(app, pilot)
             moved = screen.query_one("#diff-moved", PagedTable)
             text_attrs = [c["name"] for c in nodes.show_node_table(app.store, "velmora-bikes/stations@4")
                           ["table"]["columns"] if c["type"] == "text"]
