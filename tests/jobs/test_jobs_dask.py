@@ -350,3 +350,45 @@ def test_cancel_on_dask_keeps_finished_runs(store, planted, dask_processes):
     # extending on the same cluster computes only what is missing
     out = sweeps.extend_sweep(store, row["sweep"], executor=ex)
     assert out["status"] == "done" and out["tasks"]["done"] == 24
+
+
+def _spawned_children() -> set[int]:
+    """Live child processes of this test process started by multiprocessing (Dask's worker processes)."""
+    me, out = os.getpid(), set()
+    for entry in Path("/proc").iterdir():
+        if not entry.name.isdigit():
+            continue
+        try:
+            stat = (entry / "stat").read_text()
+            cmd = (entry / "cmdline").read_bytes()
+        except OSError:
+            continue
+        fields = stat.rsplit(")", 1)[1].split()
+        # worker processes run multiprocessing's spawn entry point; its resource tracker (also a
+        # child, for the life of this process) is not a worker
+        if int(fields[1]) == me and fields[0] not in ("Z", "X") and b"multiprocessing" in cmd \
+                and b"resource_tracker" not in cmd:
+            out.add(int(entry.name))
+    return out
+
+
+def test_cancel_on_an_own_local_cluster_stops_its_workers(store, planted):
+    """A sweep cancelled on the LocalCluster it started leaves no worker process behind (they are
+    stopped at once rather than waited out inside a task)."""
+    before = _spawned_children()
+    seen = []
+
+    def progress(ev):
+        if ev["stage"] == "stored":
+            seen.append(ev["done"])
+
+    spec = sweeps.prepare_sweep(store, "lab/sbm", method="njw", ks="2..9", seeds=3)
+    with pytest.raises(Cancelled):
+        sweeps.sweep(store, spec, executor=ExecutorSpec("dask", workers=2), progress=progress,
+                     cancel=lambda: len(seen) >= 1)
+    deadline = time.monotonic() + 10
+    while _spawned_children() - before and time.monotonic() < deadline:
+        time.sleep(0.1)
+    assert not (_spawned_children() - before)
+    row = sweeps.list_sweeps(store)[0]
+    assert row["status"] == "cancelled" and row["tasks"]["running"] == 0 and row["tasks"]["done"] >= 1

@@ -178,6 +178,10 @@ class DaskCluster:
         return self
 
     def __exit__(self, *exc) -> None:
+        if exc and exc[0] is not None and self.cluster is not None:
+            # cancelled or failed: the LocalCluster's workers may be inside a long task that a graceful
+            # close waits out (about 4 s before the nanny gives up); they are ours and go at once
+            self._stop_own_workers()
         for token in self._graph_tokens:     # the workers let go of the graph
             try:
                 self.client.unregister_worker_plugin(token)
@@ -191,6 +195,20 @@ class DaskCluster:
                 except Exception:  # noqa: BLE001 - closing must not hide the sweep's own outcome
                     pass
         self.client = self.cluster = None
+
+    def _stop_own_workers(self) -> None:
+        """SIGKILL the worker processes of the LocalCluster this object started (never a remote one)."""
+        import signal
+
+        self._graph_tokens = []          # nothing left to unregister from
+        for nanny in list(getattr(self.cluster, "workers", {}).values()):
+            proc = getattr(getattr(nanny, "process", None), "process", None)
+            pid = getattr(proc, "pid", None)
+            if pid:
+                try:
+                    os.kill(pid, signal.SIGKILL)
+                except OSError:
+                    pass
 
     @property
     def label(self) -> str:
