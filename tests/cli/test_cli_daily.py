@@ -484,3 +484,23 @@ def test_runs_of_a_mistyped_scope_is_not_found_not_empty(cli, club):
     r = cli("runs", "club/karate", "--status", "cancelled")
     assert r.code == 0 and "no runs" in r.out
     assert cli("runs", "club", "--json").json  # the runs of an existing project are listed
+
+
+def test_help_and_mistyped_commands(capsys, tmp_path):
+    """`cutbook help COMMAND` prints that command's help; a mistyped command names the nearest ones
+    (difflib close matches; "did you mean" is common practice) and exits 2 without touching a store."""
+    from workspace.cli import main
+
+    store = tmp_path / "never.sqlite"
+    assert main(["help", "run"]) == 0
+    out = capsys.readouterr().out
+    assert out.startswith("usage: cutbook run") and "--method" in out
+    assert main(["help"]) == 0 and "commands:" in capsys.readouterr().out
+    assert main(["--store", str(store), "rnu", "club/karate"]) == 2
+    assert "no command 'rnu'; did you mean run?" in capsys.readouterr().err
+    assert main(["--store", str(store), "sweps"]) == 2
+    err = capsys.readouterr().err
+    assert "did you mean" in err and "sweeps" in err
+    assert main(["xyzzy"]) == 2 and "cutbook --help lists them" in capsys.readouterr().err
+    assert main(["help", "rnu"]) == 2 and "did you mean run?" in capsys.readouterr().err
+    assert not store.exists()

@@ -27,8 +27,50 @@ def main(argv: list[str] | None = None) -> int:
     return code
 
 
+def _command_word(argv: list[str]) -> int | None:
+    """Position of the command in ``argv`` (after the global ``--store X``), or None."""
+    i = 0
+    while i < len(argv):
+        word = argv[i]
+        if word == "--store":
+            i += 2
+        elif word.startswith("-"):
+            i += 1
+        else:
+            return i
+    return None
+
+
+def _unknown_command(parser, argv: list[str]) -> int | None:
+    """``help [COMMAND]`` prints that help; a mistyped command gets the nearest ones. None: parse as usual."""
+    import argparse
+    import difflib
+
+    pos = _command_word(argv)
+    sub = next((a for a in parser._actions if isinstance(a, argparse._SubParsersAction)), None)
+    if pos is None or sub is None or argv[pos] in sub.choices:
+        return None
+    word = argv[pos]
+    if word == "help":
+        target = argv[pos + 1] if pos + 1 < len(argv) else None
+        if target in sub.choices:
+            sub.choices[target].print_help()
+            return 0
+        parser.print_help()
+        if target is None:
+            return 0
+        word = target
+    near = difflib.get_close_matches(word, list(sub.choices), n=3, cutoff=0.6)
+    hint = f"; did you mean {' or '.join(near)}?" if near else " (cutbook --help lists them)"
+    sys.stderr.write(f"cutbook: error: no command {word!r}{hint}\n")
+    return 2
+
+
 def _run(argv: list[str] | None) -> int:
     parser = build_parser()
+    early = _unknown_command(parser, sys.argv[1:] if argv is None else list(argv))
+    if early is not None:
+        return early
     args = parser.parse_args(argv)
     if getattr(args, "handler", None) is None:
         parser.print_help(sys.stderr)
