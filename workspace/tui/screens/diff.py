@@ -227,19 +227,21 @@ class DiffScreen(Screen):
             self.app.call_from_thread(self.clear_result, f"could not compare run {a} with run {b}: {exc}")
             return
         try:
-            attrs, label_by, labels = self._labels_for(result, a, b)
+            attrs, label_by, labels = self._labels_for(result, a, b, None, choose=True)
         except Exception as exc:  # noqa: BLE001  (names are a convenience: the diff still shows)
             self.app.call_from_thread(self.app.report, exc)
             attrs, label_by, labels = [], None, {}
         self.app.call_from_thread(self.show_result, result, attrs, label_by, labels)
 
-    def _labels_for(self, result: dict[str, Any], a: int, b: int, label_by: str | None = ...
+    def _labels_for(self, result: dict[str, Any], a: int, b: int, label_by: str | None, *, choose: bool = False
                     ) -> tuple[list[str], str | None, dict[str, str]]:
-        """(text attributes, the one in use, node -> label of the listed moved nodes); worker thread."""
+        """(text attributes, the one in use, node -> label of the listed moved nodes); worker thread.
+        ``choose``: keep the attribute in use when the new runs have it, else take the first one
+        (unless the user stepped to ids only)."""
         from workspace.services.nodes import label_attributes, labels_of
 
         attrs = label_attributes(self.app.store, [a, b])
-        if label_by is ...:
+        if choose:
             label_by = self.label_by if self.label_by in attrs else (
                 None if self.labels_off or not attrs else attrs[0])
         nodes = [str(m["node"]) for m in result.get("moved_nodes") or []]
@@ -267,9 +269,12 @@ class DiffScreen(Screen):
         except Exception as exc:  # noqa: BLE001
             self.app.call_from_thread(self.app.report, exc)
             return
-        self.app.call_from_thread(self._apply_labels, attrs, label_by, labels)
+        self.app.call_from_thread(self._apply_labels, attrs, label_by, labels, result)
 
-    def _apply_labels(self, attrs: list[str], label_by: str | None, labels: dict[str, str]) -> None:
+    def _apply_labels(self, attrs: list[str], label_by: str | None, labels: dict[str, str],
+                      result: dict[str, Any] | None = None) -> None:
+        if result is not None and result is not self.result:
+            return  # another comparison came in while these names were read
         self.label_attrs, self.label_by, self.labels = attrs, label_by, labels
         self.moved = [dict(r, label=labels.get(str(r.get("node")), "")) for r in self.moved]
         self.query_one("#diff-moved", PagedTable).columns = moved_columns(label_by, self.moved)
