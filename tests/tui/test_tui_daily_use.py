@@ -225,6 +225,54 @@ def test_tui_spectrum_fits(demo_path, size):
 
 
 @pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
+def test_tui_spectrum_lists_a_communitys_members(demo_path, size):
+    """Spectrum: the Members pane lists the largest community first, every node the stored membership
+    puts there (numpy over the stored labels), named by the node table's first text attribute;
+    choosing another community and ctrl+l (next attribute, then ids only) follow."""
+    import numpy as np
+    from textual.widgets import Select
+
+    from workspace.services import nodes, runs
+    from workspace.tui.widgets.paged_table import PagedTable
+
+    async def go():
+        async with workspace(demo_path, size) as (app, pilot):
+            run = demo_run(app.store, "njw", "velmora-bikes/stations@4")
+            app.current_run = run
+            await pilot.press("3")
+            await settle(app, pilot)
+            screen = app.screen
+            table = screen.query_one("#members-table", PagedTable)
+            table.scroll_visible(animate=False, top=True)
+            await pilot.pause()
+            on_screen(app, table, min_width=30, min_height=5)
+            on_screen(app, screen.query_one("#members-community", Select), min_width=20)
+            ids, labels, _ = runs.load_membership(app.store, run)
+            sizes = np.bincount(labels)
+            biggest = int(np.argmax(sizes))   # the demo's largest community is unique
+            assert sorted(np.bincount(labels))[-1] > sorted(np.bincount(labels))[-2]
+            rows = [table.row_at(i) for i in range(table.row_count)]
+            assert [r["node"] for r in rows] == ids[labels == biggest].tolist()
+            names = dict(nodes.node_values(app.store, "velmora-bikes/stations@4", screen.label_attrs[0])["nodes"])
+            assert all(r["label"] == names[r["node"]] for r in rows)
+            assert table.shown_columns()[:2] == ["node", screen.label_attrs[0]]
+            # another community
+            other = int(np.argmin(sizes))
+            screen.query_one("#members-community", Select).value = other
+            await settle(app, pilot)
+            assert [table.row_at(i)["node"] for i in range(table.row_count)] == ids[labels == other].tolist()
+            # ctrl+l steps through the text attributes, then ids only
+            for expected in [*screen.label_attrs[1:], None]:
+                table.focus()
+                await pilot.press("ctrl+l")
+                await settle(app, pilot)
+                assert screen.label_by == expected
+            assert table.shown_columns() == ["node"]
+
+    asyncio.run(go())
+
+
+@pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
 def test_tui_diff_fits(demo_path, size):
     """Diff: matches with all columns, events, moved nodes and contingency each usable (stacked at 80)."""
     from textual.widgets import Input
