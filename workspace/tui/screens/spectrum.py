@@ -28,6 +28,8 @@ def member_columns(label_by: str | None, stability: bool) -> list[Column]:
                            format=lambda v, r: "" if v is None else f"{v:.2f}"))
     return cols
 
+MAX_CHOICES = 1000   # communities offered in the Members chooser, largest first
+
 # diagnostics keys under which a method may report the k it derived from the spectrum itself
 SUGGESTED_KEYS = ("eigengap_suggestion", "suggested_k", "k_suggested", "eigengap_k", "auto_k", "k_auto")
 
@@ -160,7 +162,9 @@ class SpectrumScreen(Screen):
         table = self.query_one("#members-table", PagedTable)
         self.members = None
         table.set_source(ListSource([]))
+        # the largest MAX_CHOICES (a run may have thousands of communities; `cutbook members` lists any)
         rows = sorted(communities, key=lambda c: (-(c.get("size") or 0), c.get("shown", c["community"])))
+        rows = rows[:MAX_CHOICES]
         select.set_options([(f"c{c.get('shown', c['community'])} · {c.get('size')} nodes",
                              c.get("shown", c["community"])) for c in rows])
         self.query_one("#spectrum-members-pane", Pane).border_title = "Members"
