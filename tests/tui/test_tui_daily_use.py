@@ -962,7 +962,7 @@ def test_tui_palette_is_readable_and_in_one_place():
 def test_tui_updates_fits_and_shows_the_report(demo_path, size):
     """Updates (key 7): the list (latest first) and the change report of the row under the cursor, usable at
     80×24 and 120×36; the report's moved nodes are the diff's, with both sides in one numbering."""
-    from workspace.services import diffs, tracking
+    from workspace.services import diffs, nodes, tracking
     from workspace.tui.widgets.paged_table import PagedTable
 
     store = open_workspace(demo_path)
@@ -970,6 +970,9 @@ def test_tui_updates_fits_and_shows_the_report(demo_path, size):
         latest = tracking.list_updates(store)[0]
         st = latest["sets"][0]
         d = diffs.diff_runs(store, st["previous_run"], st["run"])
+        first_text = next(c["name"] for c in nodes.show_node_table(store, latest["ref"])["table"]["columns"]
+                          if c["type"] == "text")
+        names = dict(nodes.node_values(store, latest["ref"], first_text)["nodes"])
     finally:
         store.dispose()
 
@@ -991,8 +994,10 @@ def test_tui_updates_fits_and_shows_the_report(demo_path, size):
             assert "merged" in text  # Cinder Bridge reopens: the two riding areas merge again
             shown_a = dict(map(tuple, d["shown_labels"]["a"]))
             shown_b = dict(map(tuple, d["shown_labels"]["b"]))
+            # each moved node with its name from the node table (first text attribute) and both sides
             for m in d["moved_nodes"]:
-                assert re.search(rf"{m['node']}\s+{shown_a[m['from']]} → {shown_b[m['to']]}", text)
+                name = re.escape(names[m["node"]])
+                assert re.search(rf"{m['node']}\s+{name}\s+{shown_a[m['from']]} → {shown_b[m['to']]}", text)
                 assert shown_a[m["from"]] != shown_b[m["to"]]
             assert "^r" in footer_keys(app)
 

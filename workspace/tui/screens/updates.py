@@ -67,8 +67,9 @@ def _shown_label(text: Text, label, shown: dict) -> None:
     text.append(str(value), style=style)
 
 
-def report_text(report: dict[str, Any], position: int) -> Text:
-    """The change report of one tracked set of an update, as the lower pane shows it."""
+def report_text(report: dict[str, Any], position: int, names: dict[str, str] | None = None) -> Text:
+    """The change report of one tracked set of an update, as the lower pane shows it; ``names``
+    (node -> name from the node table) are printed beside the moved nodes' ids."""
     t = Text()
     st = report["sets"][position]
     t.append(f"update {report['update']}", style="bold")
@@ -113,6 +114,8 @@ def report_text(report: dict[str, Any], position: int) -> Text:
         for m in moved[:MAX_MOVED_SHOWN]:
             node, f, to = (m["node"], m["from"], m["to"]) if isinstance(m, dict) else m[:3]
             t.append(f"  {node:<12} ")
+            if names and names.get(str(node), str(node)) != str(node):
+                t.append(f"{names[str(node)]:<20} ", style=MUTED)
             _shown_label(t, f, sa)
             t.append(" → ")
             _shown_label(t, to, sb)
@@ -121,6 +124,20 @@ def report_text(report: dict[str, Any], position: int) -> Text:
             t.append(f"  … and {d['moved'] - MAX_MOVED_SHOWN} more (cutbook updates show {report['update']} "
                      "--json lists all)\n", style=MUTED)
     return t
+
+
+def _moved_names(store, d: dict[str, Any] | None) -> dict[str, str]:
+    """Names of the listed moved nodes by the first text attribute of the runs' node tables ({} without)."""
+    from workspace.services.nodes import label_attributes, labels_of
+
+    if not d or not d.get("moved_nodes"):
+        return {}
+    runs = [d["a"]["run"], d["b"]["run"]]
+    attrs = label_attributes(store, runs)
+    if not attrs:
+        return {}
+    nodes = [str(m["node"] if isinstance(m, dict) else m[0]) for m in d["moved_nodes"][:MAX_MOVED_SHOWN]]
+    return labels_of(store, runs, attrs[0], nodes)
 
 
 class UpdatesScreen(Screen):
@@ -196,14 +213,16 @@ class UpdatesScreen(Screen):
         try:
             report = change_report(self.app.store, update_id, moved_limit=MAX_MOVED_SHOWN + 1)
             tracked = list_tracked(self.app.store, report["network"])
+            names = _moved_names(self.app.store, report["sets"][position].get("diff"))
         except Exception as exc:  # noqa: BLE001
             self.app.call_from_thread(self.app.report, exc)
             return
-        self.app.call_from_thread(self._show_report, report, position, tracked)
+        self.app.call_from_thread(self._show_report, report, position, tracked, names)
 
-    def _show_report(self, report: dict[str, Any], position: int, tracked: dict[str, Any]) -> None:
+    def _show_report(self, report: dict[str, Any], position: int, tracked: dict[str, Any],
+                     names: dict[str, str] | None = None) -> None:
         self.report, self.position = report, position
-        self.query_one("#updates-report", Static).update(report_text(report, position))
+        self.query_one("#updates-report", Static).update(report_text(report, position, names))
         self._show_tracked(tracked)
         sel = self.query_one("#updates-network", Select)
         if sel.value != report["network"] and report["network"] in self._networks:
