@@ -111,6 +111,31 @@ def test_where_searches_every_network_and_suggests_near_ids(cli, club, tmp_path,
     assert dump_store(store_target) == before
 
 
+def test_where_takes_a_node_by_its_name_in_the_node_table(cli, club, tmp_path, store_target):
+    """A node can be named as people know it: the one node whose text attribute reads the text
+    (ignoring case) is looked up; a name several nodes share lists them; the club attribute is
+    Zachary's (1977) recorded split as shipped by networkx (``club``)."""
+    G = nx.karate_club_graph()
+    table = tmp_path / "members.csv"
+    table.write_text("node,name,club\n" + "".join(f"{NAMES[i]},Member {i},{G.nodes[i]['club']}\n"
+                                                    for i in range(34)), encoding="utf-8")
+    assert cli("nodes", "add", "club/karate", table).code == 0
+    by_name = cli("where", "member 7", "--json")
+    assert by_name.code == 0, by_name.err
+    assert by_name.json["node"] == "m07"
+    assert by_name.json["found_by"] == {"attribute": "name", "value": "Member 7", "typed": "member 7"}
+    assert by_name.json["runs"] == cli("where", "m07", "--json").json["runs"]
+    assert "node m07 has name 'Member 7'" in cli("where", "Member 7", "--network", "club/karate").out
+    before = dump_store(store_target)
+    r = cli("where", "Officer")   # 17 members of the recorded split share this value
+    _one_line_error(r, 3)
+    assert "several are named so" in r.err and "(club 'Officer')" in r.err
+    r = cli("where", "Member 99")
+    _one_line_error(r, 3)
+    assert "several" not in r.err
+    assert dump_store(store_target) == before
+
+
 def test_attach_help_names_every_membership_format(cli, capsys):
     from workspace.cli import main
 

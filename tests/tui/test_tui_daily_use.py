@@ -613,6 +613,35 @@ def test_tui_lookup_focus_and_network_choice(demo_path):
     asyncio.run(go())
 
 
+def test_tui_lookup_takes_a_station_name(demo_path):
+    """Lookup by the name people know (the demo's node table names each station): the node found, its
+    node data row, and the same runs as a lookup by its id."""
+    from textual.widgets import Input, Select
+
+    from workspace.services import runs as runs_service
+    from workspace.tui.widgets.paged_table import PagedTable
+
+    async def go():
+        async with workspace(demo_path) as (app, pilot):
+            await pilot.press("5")
+            await pilot.pause()
+            screen = app.screen
+            screen.query_one("#lookup-network", Select).value = "velmora-bikes/stations"
+            await settle(app, pilot)
+            box = screen.query_one("#lookup-node", Input)
+            box.focus()
+            box.value = "lantern wharf 1"
+            await pilot.press("enter")
+            await settle(app, pilot)
+            assert screen.result["node"] == "LW-01" and screen.result["found_by"]["value"] == "Lantern Wharf 1"
+            summary = static_text(screen.query_one("#lookup-summary"))
+            assert "found by name 'Lantern Wharf 1'" in summary and "district Lantern Wharf" in summary
+            by_id = runs_service.where_node(app.store, "LW-01", "velmora-bikes/stations")
+            assert screen.query_one("#lookup-runs", PagedTable).row_count == len(by_id["runs"])
+
+    asyncio.run(go())
+
+
 # --- item 6: header, current screen, enter, keys help, text filter, newest run ------------------------------
 
 

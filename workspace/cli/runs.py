@@ -229,11 +229,11 @@ def cmd_where(args) -> int:
             label_at: dict[tuple, str | None] = {}
             for key, run_id in first_run.items():
                 try:
-                    label_at[key] = labels_of(store, [run_id], label_by, [args.node])[args.node]
+                    label_at[key] = labels_of(store, [run_id], label_by, [res["node"]])[res["node"]]
                 except NotFoundError:  # this version has no such attribute
                     label_at[key] = None
             if first_run and not any(v is not None for v in label_at.values()):
-                raise NotFoundError(f"--label-by: no version holding node {args.node!r} has a node attribute "
+                raise NotFoundError(f"--label-by: no version holding node {res['node']!r} has a node attribute "
                                     f"{label_by!r}")
             res["label_by"] = label_by
             for r in res["runs"]:
@@ -241,6 +241,9 @@ def cmd_where(args) -> int:
         if args.json:
             emit_json(res)
             return 0
+        if res.get("found_by"):
+            fb = res["found_by"]
+            out.line(f"no node has the id {fb['typed']!r}; node {res['node']} has {fb['attribute']} {fb['value']!r}")
         for held in res["networks_with_node"]:
             out.line(f"node {res['node']} in {held['network']}: present in versions "
                      + ", ".join(map(str, held["versions"])))

@@ -572,3 +572,46 @@ def node_attributes(store: Store, network: str, node: str) -> dict[str, Any] | N
             return {"ref": f"{ref.project}/{ref.network}@{v.number}", "version": v.number,
                     "attributes": [[name, kind, values[p]] for name, kind, values in columns]}
     return None
+
+
+def nodes_named(store: Store, text: str, network: str | None = None, *, limit: int = 10) -> list[dict[str, Any]]:
+    """Nodes whose value of a text attribute equals ``text`` (ignoring case and outer spaces), in the
+    newest node table of ``network`` (``P/N``) or of every network: ``[{"network", "node",
+    "attribute", "value"}, ...]``, at most ``limit``. Lets people name a node as they know it (a
+    station's name) where an id is asked for.
+    """
+    from sqlalchemy import select
+
+    from workspace.store import repo
+    from workspace.store.schema import Network, Project
+
+    wanted = text.strip().casefold()
+    out: list[dict[str, Any]] = []
+    if not wanted:
+        return out
+    with store.read() as s:
+        q = select(Project.name, Network).select_from(Network).join(Network.project).order_by(Project.name,
+                                                                                               Network.name)
+        if network is not None:
+            ref = VersionRef.parse(network)
+            q = q.where(Project.name == ref.project, Network.name == ref.network)
+        for project_name, net in s.execute(q).all():
+            for v in reversed(repo.list_versions(s, net.id)):
+                row = table_row(s, v.id)
+                if row is None:
+                    continue
+                ids = None
+                for col in _column_rows(s, row.id):
+                    if col.type != "text":
+                        continue
+                    _, values = _decode_column(s, col)
+                    hits = [i for i, value in enumerate(values) if value is not None and value.strip().casefold() == wanted]
+                    if hits and ids is None:
+                        ids = repo.load_node_ids(s, v)
+                    for i in hits:
+                        out.append({"network": f"{project_name}/{net.name}", "node": str(ids[i]),
+                                    "attribute": col.name, "value": values[i]})
+                        if len(out) >= limit:
+                            return out
+                break   # the newest table of each network
+    return out

@@ -746,11 +746,32 @@ def _networks_holding(store: Store, node: str, *, exclude: str) -> list[str]:
     return held
 
 
+def _named_node(store: Store, text: str, network: str | None) -> dict[str, Any] | None:
+    """:func:`where_node` of the one node whose text attribute reads ``text`` (``found_by`` says which),
+    None when no node is named so; NotFoundError listing them when several are."""
+    from workspace.services.nodes import nodes_named
+
+    hits = nodes_named(store, text, network)
+    distinct = {(h["network"], h["node"]) for h in hits}
+    if not distinct:
+        return None
+    if len(distinct) > 1:
+        listed = "; ".join(f"{h['node']} in {h['network']} ({h['attribute']} {h['value']!r})" for h in hits[:6])
+        raise NotFoundError(f"no node has the id {text!r}, and several are named so: {listed}"
+                            f"{' …' if len(hits) > 6 else ''}; give one of their ids")
+    hit = hits[0]
+    out = where_node(store, hit["node"], hit["network"] if network is not None else None)
+    out["found_by"] = {"attribute": hit["attribute"], "value": hit["value"], "typed": text}
+    return out
+
+
 def where_node(store: Store, node: str, network: str | None = None) -> dict[str, Any]:
     """That node's community (and its size) in every finished run of every version of a network.
 
     With ``network`` None every network of the store is searched. A node found
-    nowhere raises NotFoundError with case-insensitive and prefix suggestions.
+    nowhere by id may be named by a text attribute of a node table (a station's name): the one node so
+    named is looked up (``found_by`` gives the attribute and value). Otherwise NotFoundError with
+    case-insensitive and prefix suggestions, or with the nodes named so when there are several.
     """
     import numpy as np
 
@@ -805,6 +826,9 @@ def where_node(store: Store, node: str, network: str | None = None) -> dict[str,
                             entry["stability"] = float(repo.get_array(s, run.stability_blob)[pos]) / run.repeats
                     rows.append(entry)
     if not found_in:
+        named = _named_node(store, node, network)
+        if named is not None:
+            return named
         if vref is not None:
             elsewhere = _networks_holding(store, node, exclude=f"{vref.project}/{vref.network}")
             if elsewhere:

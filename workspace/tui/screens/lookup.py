@@ -38,7 +38,7 @@ class LookupScreen(Screen):
     """Follow a node across runs and versions."""
 
     TITLE = "Node lookup"
-    BINDINGS = [Binding("ctrl+f", "find", "Node box", priority=True, tooltip="type a node id"),
+    BINDINGS = [Binding("ctrl+f", "find", "Node box", priority=True, tooltip="type a node id or name"),
                 Binding("ctrl+n", "network", "Network", priority=True, tooltip="choose the network")]
 
     def __init__(self) -> None:
@@ -51,9 +51,9 @@ class LookupScreen(Screen):
             yield Label("network", classes="name short")
             yield Select([], prompt="network", id="lookup-network", compact=True)
             yield Label("node", classes="name short")
-            yield Input("", id="lookup-node", placeholder="node id, then enter", compact=True)
+            yield Input("", id="lookup-node", placeholder="node id or name, then enter", compact=True)
         with Pane(title="Where the node sits", id="lookup-pane"):
-            yield Static(Text("choose a network, type a node id and press enter", style=MUTED),
+            yield Static(Text("choose a network, type a node id (or its name) and press enter", style=MUTED),
                          id="lookup-summary")
             yield PagedTable(WHERE_COLUMNS, id="lookup-runs", empty_text="no runs to show")
         yield ScreenFooter("lookup")
@@ -116,7 +116,7 @@ class LookupScreen(Screen):
             self.query_one("#lookup-network", Select).focus()
             return
         if not node:
-            self.notify("type a node id", severity="error")
+            self.notify("type a node id or name", severity="error")
             return
         self.lookup(node, net)
 
@@ -128,7 +128,7 @@ class LookupScreen(Screen):
         try:
             result = where_node(self.app.store, node, network)
             # what the node is (its node table row), shown above where it sat
-            result = dict(result, node_data=node_attributes(self.app.store, network, node))
+            result = dict(result, node_data=node_attributes(self.app.store, network, result["node"]))
         except Exception as exc:  # noqa: BLE001
             self.app.call_from_thread(self.app.report, exc)
             self.app.call_from_thread(self.query_one("#lookup-summary", Static).update,
@@ -141,6 +141,9 @@ class LookupScreen(Screen):
         self.result = r
         runs = r.get("runs") or []
         t = Text()
+        if r.get("found_by"):
+            fb = r["found_by"]
+            t.append(f"found by {fb['attribute']} {fb['value']!r}: ", style=MUTED)
         t.append(f"{r['node']}", style="bold")
         present = r["versions_with_node"]
         t.append(f" in {r['network']}: present in version{'s' if len(present) != 1 else ''} "
