@@ -173,7 +173,7 @@ class SpectrumScreen(Screen):
 
     @on(Select.Changed, "#members-community")
     def _community_chosen(self, event: Select.Changed) -> None:
-        if self.run_id is not None and event.value is not Select.BLANK:
+        if self.run_id is not None and isinstance(event.value, int):   # not the blank choice
             self.load_members(self.run_id, int(event.value), None, choose=True)
 
     def action_label_by(self) -> None:
