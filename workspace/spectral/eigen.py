@@ -31,7 +31,7 @@ from .laplacians import degrees, inverse_sqrt_degrees, normalized_adjacency, wit
 from .ordering import permuted_scaled
 
 __all__ = ["SolverContext", "SymmetricOperator", "EigenSolution", "largest_eigenpairs",
-           "laplacian_eigenpairs", "fix_signs", "warm_start_vector"]
+           "laplacian_eigenpairs", "fix_signs", "warm_start_vector", "start_distance"]
 
 
 class _BudgetExceeded(Exception):
@@ -550,6 +550,48 @@ def warm_start_vector(start: np.ndarray, m: int, seed: int, noise: np.ndarray) -
     v0 = Q.sum(axis=1) / np.sqrt(Q.shape[1])
     v0 += WARM_NOISE * noise / max(float(np.linalg.norm(noise)), 1e-300)
     return v0
+
+
+def start_distance(W: np.ndarray, V: np.ndarray) -> float:
+    r"""How far a start block is from an invariant subspace: :math:`\delta = \|(I - VV^T)\,Q\|_2`.
+
+    :math:`Q` is an orthonormal basis of the columns of ``W`` (thin QR) and
+    ``V`` has orthonormal columns (e.g. converged eigenvectors). For
+    ``W`` and ``V`` of the same width, :math:`\delta = \sin\theta_{max}`, the
+    sine of the largest principal angle between the two column spaces
+    (Björck & Golub 1973); 0 when ``range(W)`` lies in ``range(V)``, 1 when
+    some direction of ``W`` is orthogonal to ``range(V)``. It is the
+    :math:`\delta` of the warm-start cost estimate in :func:`_warm_arpack`.
+
+    Parameters
+    ----------
+    W : ndarray, shape (n, b)
+        Start block (any scaling; full column rank).
+    V : ndarray, shape (n, m)
+        Orthonormal columns.
+
+    Returns
+    -------
+    float
+        :math:`\delta \in [0, 1]`, computed as :math:`\sqrt{\lambda_{max}(R^T R)}`
+        of the explicit :math:`R = Q - V(V^TQ)` (accurate for small
+        :math:`\delta`, unlike :math:`\sqrt{1 - \sigma_{min}(V^TQ)^2}`).
+
+    References
+    ----------
+    Björck & Golub (1973), Numerical methods for computing angles between
+    linear subspaces, Math. Comp. 27(123).
+    """
+    W = np.asarray(W, dtype=np.float64)
+    W = W[:, None] if W.ndim == 1 else W
+    V = np.asarray(V, dtype=np.float64)
+    V = V[:, None] if V.ndim == 1 else V
+    if W.shape[0] != V.shape[0]:
+        raise ValueError(f"W has {W.shape[0]} rows and V {V.shape[0]}")
+    Q, _ = np.linalg.qr(W)
+    R = Q - V @ (V.T @ Q)
+    top = float(np.linalg.eigvalsh(R.T @ R)[-1])
+    return float(min(1.0, np.sqrt(max(top, 0.0))))
 
 
 def _warm_arpack(op: SymmetricOperator, lin: LinearOperator, m: int, ctx: SolverContext, stage: str,
