@@ -217,6 +217,7 @@ def explain(args) -> None:
     from workspace.services.store import open_workspace
     from workspace.spectral.eigen import start_distance, warm_start_vector
     from workspace.spectral.laplacians import with_loops_doubled
+    from workspace.spectral.embedding import embedding_fields
     from workspace.spectral.methods import validate_params
     from workspace.spectral.sweep import compute_embedding, embedded_nodes
     from workspace.store import repo
@@ -252,7 +253,20 @@ def explain(args) -> None:
             _, lc, _ = runs.load_membership(store, cold["run"])
             A2 = g2.adjacency()
             rows = embedded_nodes(A2)
-            V = compute_embedding(A2, "njw", k, seed=0).vectors      # the cold run's eigenvectors (same solve)
+            emb2 = compute_embedding(A2, "njw", k, seed=0)     # the cold run's eigenpairs (the same solve)
+            V = emb2.vectors
+            # what keeping a run's embedding for the next version's warm start would cost: the cache write
+            with store.read() as s:
+                v2 = s.get(NetworkVersion, cold_spec.version_id)
+                v2_id, v2_hash = v2.id, v2.content_hash
+            fields = embedding_fields("njw", params, k, 0)
+            t = time.perf_counter()
+            sweeps._store_embedding(store, v2_id, sweeps.embedding_key(v2_hash, fields), fields, emb2)
+            keep_s = time.perf_counter() - t
+            kept = [e for e in sweeps.embedding_cache(store)["embeddings"] if e["ref"].endswith("@2")]
+            print(f"  {fraction:.1%}: keeping version 2's embedding ({V.shape[0]:,} x {V.shape[1]} float64) in the "
+                  f"cache: {kept[0]['stored_bytes'] / 1e6:.1f} MB stored, {keep_s:.2f} s (cold run {cold_s:.1f} s)",
+                  flush=True)
             z = np.random.default_rng(0).uniform(-1.0, 1.0, rows.shape[0])    # the cold solve's start vector
             delta_cold = _tan_angle(z, V)
             lin, count = _counting_operator(with_loops_doubled(A2)[rows][:, rows])
