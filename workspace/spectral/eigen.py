@@ -625,19 +625,20 @@ def _warm_arpack(op: SymmetricOperator, lin: LinearOperator, m: int, ctx: Solver
     ``m`` products per step. Measured on the planted network of
     ``tests/benchmarks/bench_warmstart.py --explain`` (``k = 8``, degree 15,
     c_in/c_out = 6; bare solver products, warm/cold, starts ``V + \delta E``
-    around the exact eigenvectors): ARPACK 0.79 / 0.70 / 0.60 / 0.55 at
-    :math:`\delta` = 1e-1 / 1e-3 / 1e-6 / 1e-8; LOBPCG (Knyazev 2001) from the
-    block 1.40 / 0.68 / 0.12 / 0.12. One percent of edges rewired gives
-    :math:`\delta \approx 0.15` (previous eigenvectors) to 0.65 (previous
-    membership), where ARPACK saves 13–20% of its own products and LOBPCG
-    needs 1.4–2.4× the cold products; a ratio of 0.5 needs
-    :math:`\delta \lesssim 10^{-4}` (LOBPCG) or below the tolerance (ARPACK).
+    around the exact eigenvectors, 200k nodes): ARPACK 0.85 / 0.73 / 0.65 / 0.59
+    at :math:`\delta` = 1e-1 / 1e-3 / 1e-6 / 1e-8; LOBPCG (Knyazev 2001) from
+    the block 1.22 / 0.61 / 0.11 / 0.11. One percent of edges rewired gives
+    :math:`\delta \approx 0.14` (previous eigenvectors) to 0.63 (previous
+    membership), where ARPACK from this start vector needs 0.90× its cold
+    products from either source (0.92× at 1M nodes) and LOBPCG from the block
+    1.2–2.4×; a ratio of 0.5 needs :math:`\delta \lesssim 10^{-4}` (LOBPCG)
+    and is out of ARPACK's reach even from the exact eigenvectors.
     About half of a run's products go to the extra eigenvalue
     (:func:`_deflated_values`), which a warm start does not shorten; its cost
     varies by ±20% with the random start.
 
     Tried and not kept (100k nodes, 1% rewired, bare ARPACK products
-    warm/cold): weights of the block's columns in :math:`v_0` — equal 0.86
+    warm/cold; one-off variants of the ``--explain`` solve): weights of the block's columns in :math:`v_0` — equal 0.86
     (previous eigenvectors) / 0.91 (membership), alternating or seeded random
     signs 0.86–0.91, Rayleigh–Ritz of the block first with equal weights
     (+ ``m`` products) 0.92 / 1.01, Ritz vectors weighted by inverse
