@@ -630,7 +630,7 @@ def _warm_arpack(op: SymmetricOperator, lin: LinearOperator, m: int, ctx: Solver
     the block 1.22 / 0.61 / 0.11 / 0.11. One percent of edges rewired gives
     :math:`\delta \approx 0.14` (previous eigenvectors) to 0.63 (previous
     membership), where ARPACK from this start vector needs 0.90× its cold
-    products from either source (0.92× at 1M nodes) and LOBPCG from the block
+    products from either source (0.87–0.92× at 1M nodes) and LOBPCG from the block
     1.2–2.4×; a ratio of 0.5 needs :math:`\delta \lesssim 10^{-4}` (LOBPCG)
     and is out of ARPACK's reach even from the exact eigenvectors.
     About half of a run's products go to the extra eigenvalue
