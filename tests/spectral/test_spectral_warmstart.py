@@ -74,7 +74,7 @@ def test_warm_eigenpairs_pass_the_cold_residual_test(versions):
         # ARPACK's test, ‖M x − μ x‖ <= tol·|μ| (Lehoucq, Sorensen & Yang 1998), recomputed here on
         # networkx's normalised Laplacian (‖L x − λ x‖ = ‖M x − μ x‖); 1e-12 for rounding
         assert np.all(res <= tol * np.abs(mu) + 1e-12)
-    # fewer products than the cold solve on this graph (measured, not a timing)
+    # the warm solve counts its own products (what bench_warmstart.py compares with the cold solve's)
     assert warm.info["warm_start"]["matvecs"] > 0
 
 
@@ -212,3 +212,38 @@ def test_warm_start_under_the_computation_order(versions, monkeypatch):
     assert warm.diagnostics["warm_start"]["matvecs"] == plain.diagnostics["warm_start"]["matvecs"]
     assert adjusted_rand_score(cold.labels, warm.labels) >= 0.999
     assert adjusted_rand_score(plain.labels, warm.labels) == 1.0
+
+
+def test_start_distance_is_the_sine_of_the_largest_principal_angle():
+    # reference: scipy.linalg.subspace_angles (Björck & Golub 1973); delta = sin(theta_max)
+    rng = np.random.default_rng(4)
+    V, _ = np.linalg.qr(rng.standard_normal((600, 5)))
+    for size in (1e-1, 1e-3, 1e-7):
+        W = (V + size * rng.standard_normal((600, 5))) * rng.uniform(0.5, 3.0, 5)   # any column scaling
+        expected = np.sin(np.max(sla.subspace_angles(W, V)))
+        assert eigen.start_distance(W, V) == pytest.approx(expected, rel=1e-6)
+    # a rotated basis of the same space is at distance 0, a block with an orthogonal column at 1
+    # (definition of principal angles; common practice)
+    rotation, _ = np.linalg.qr(rng.standard_normal((5, 5)))
+    assert eigen.start_distance(V @ rotation, V) < 1e-12
+    outside = rng.standard_normal(600)
+    outside -= V @ (V.T @ outside)
+    assert eigen.start_distance(np.column_stack([V[:, :4], outside]), V) == pytest.approx(1.0, abs=1e-12)
+
+
+def test_start_distance_of_the_previous_eigenvectors_obeys_davis_kahan(versions):
+    # the previous version's eigenvectors as a start for the next version: their distance to the new
+    # invariant subspace is at most ||R||_2 / gap with R = L2 V1 - V1 diag(lambda1) (sin-theta theorem,
+    # Davis & Kahan 1970); eigenpairs of networkx's normalised Laplacians from scipy.linalg.eigh
+    G, H, A1, A2, previous = versions
+    L1 = nx.normalized_laplacian_matrix(G, nodelist=sorted(G)).toarray()
+    L2 = nx.normalized_laplacian_matrix(H, nodelist=sorted(H)).toarray()
+    lam1, V1 = sla.eigh(L1, subset_by_index=[0, 3])
+    lam2, V2 = sla.eigh(L2)
+    R = L2 @ V1 - V1 * lam1
+    gap = lam2[4] - lam1.max()
+    assert gap > 0
+    delta = eigen.start_distance(V1, V2[:, :4])
+    assert 0.0 < delta <= np.linalg.norm(R, 2) / gap
+    # the package's own previous embedding spans the same space to solver accuracy
+    assert eigen.start_distance(previous.vectors, V2[:, :4]) == pytest.approx(delta, abs=1e-4)
