@@ -113,6 +113,16 @@ class SolverContext:
         self.report(stage, force=False)
 
 
+#: Operators of at least this many nodes do not store the normalised adjacency
+#: :math:`N = D^{-1/2} A D^{-1/2}` (a second copy of the nnz values, 0.36 GB at 3M nodes
+#: and 22.5M edges) but apply it as ``s * (A @ (s * x))`` with :math:`s = d^{-1/2}`. The
+#: two forms differ only by rounding (the product of three factors is grouped
+#: differently), so every smaller graph -- every test graph and the demo -- keeps the
+#: stored form and its results bit for bit; the same threshold as
+#: :data:`workspace.spectral.ordering.ORDER_MIN_NODES`, below which the vectors fit in
+#: cache and a copy of the values costs little.
+SCALED_PRODUCT_MIN_NODES = 500_000
+
 #: Sparse matrices with fewer stored entries are multiplied in one thread.
 PARALLEL_MIN_NNZ = 200_000
 
@@ -179,6 +189,10 @@ class SymmetricOperator:
     rank_one : ndarray, shape (n,), optional
         Vector ``u``; the term ``- u (u^T x) / rank_one_denominator`` is added.
     rank_one_denominator : float, default 1
+    row_scale : ndarray of float64, shape (n,), optional
+        Vector ``s``: the sparse part is :math:`\mathrm{diag}(s)\,S\,\mathrm{diag}(s)`,
+        applied as ``s * (S @ (s * x))`` without storing the scaled matrix
+        (see :data:`SCALED_PRODUCT_MIN_NODES`).
     order : ndarray of int, shape (n,), optional
         The operator is stored in a computation order
         (:mod:`workspace.spectral.ordering`): ``S``, ``diagonal`` and
@@ -189,9 +203,10 @@ class SymmetricOperator:
     """
 
     def __init__(self, S, diagonal=0.0, scale: float = 1.0, rank_one=None,
-                 rank_one_denominator: float = 1.0, order=None) -> None:
+                 rank_one_denominator: float = 1.0, order=None, row_scale=None) -> None:
         self.S = S
         self.order = order
+        self.row_scale = row_scale
         self.n = S.shape[0]
         self.diagonal = diagonal
         self.scale = float(scale)
@@ -200,7 +215,12 @@ class SymmetricOperator:
 
     def apply(self, X: np.ndarray) -> np.ndarray:
         """``M @ X`` for a vector or an ``n × b`` block."""
-        Y = self.S @ X
+        if self.row_scale is None:
+            Y = self.S @ X
+        else:
+            r = self.row_scale if X.ndim == 1 else self.row_scale[:, None]
+            Y = self.S @ (X * r)
+            Y *= r
         if self.scale != 1.0:
             Y *= self.scale
         diag = self.diagonal
@@ -220,11 +240,13 @@ class SymmetricOperator:
             return self
         S = self.S if isinstance(self.S, sp.csr_array) else sp.csr_array(self.S)
         return SymmetricOperator(RowBlockMatrix(S, executor, parts), self.diagonal, self.scale,
-                                 self.rank_one, self.rank_one_denominator, self.order)
+                                 self.rank_one, self.rank_one_denominator, self.order, self.row_scale)
 
     def to_dense(self) -> np.ndarray:
         """The dense ``n × n`` matrix (only for small ``n``)."""
         M = self.S.toarray() if sp.issparse(self.S) else np.array(self.S, dtype=np.float64)
+        if self.row_scale is not None:
+            M = M * self.row_scale[:, None] * self.row_scale[None, :]
         M = M * self.scale if self.scale != 1.0 else M.astype(np.float64, copy=False)
         M[np.diag_indices(self.n)] += self.diagonal
         if self.rank_one is not None:
@@ -723,7 +745,9 @@ def shifted_laplacian_operator(A, laplacian: str, d: np.ndarray | None = None,
     Returns ``(op, shift, post)`` with :math:`\lambda(L) = \mathrm{shift} - \mu(M)`:
 
     - ``"sym"``/``"rw"``: :math:`M = I + D^{-1/2} A D^{-1/2}` (+1 on isolated
-      nodes), shift 2, spectrum in [0, 2];
+      nodes), shift 2, spectrum in [0, 2]; from :data:`SCALED_PRODUCT_MIN_NODES`
+      nodes on (and without ``order``) the scaling is applied inside each product
+      instead of stored;
     - ``"unnormalized"``: :math:`M = cI - L = (c - D) + A` with
       :math:`c = 2 d_{max}` (Gershgorin bound on the spectrum of ``L``).
 
@@ -766,7 +790,9 @@ def shifted_laplacian_operator(A, laplacian: str, d: np.ndarray | None = None,
     if laplacian in ("sym", "rw"):
         isolated = d + regularizer <= 0
         diag = 1.0 + isolated.astype(np.float64) if isolated.any() else 1.0
-        if order is None:
+        if order is None and A.shape[0] >= SCALED_PRODUCT_MIN_NODES:
+            op = SymmetricOperator(A, diagonal=diag, row_scale=inverse_sqrt_degrees(d + regularizer))
+        elif order is None:
             op = SymmetricOperator(normalized_adjacency(A, d, regularizer=regularizer), diagonal=diag)
         else:
             N = permuted_scaled(A, order, inverse_sqrt_degrees(d + regularizer))
