@@ -409,14 +409,46 @@ def largest_eigenpairs(op: SymmetricOperator, m: int, ctx: SolverContext, *,
         return sol
 
     threads = ctx.threads if ctx.threads > 0 else available_cpus()
-    if threads > 1 and sp.issparse(op.S) and op.S.nnz >= PARALLEL_MIN_NNZ:
-        with ThreadPoolExecutor(max_workers=threads - 1) as executor:
-            sol = _iterative(op.parallel(executor, threads), m, ctx, stage, bound, extra, start)
-    else:
-        sol = _iterative(op, m, ctx, stage, bound, extra, start)
+    with _blas_threads(n):
+        if threads > 1 and sp.issparse(op.S) and op.S.nnz >= PARALLEL_MIN_NNZ:
+            with ThreadPoolExecutor(max_workers=threads - 1) as executor:
+                sol = _iterative(op.parallel(executor, threads), m, ctx, stage, bound, extra, start)
+        else:
+            sol = _iterative(op, m, ctx, stage, bound, extra, start)
     if op.order is not None:
         sol.vectors = _to_original_order(sol.vectors, op.order)
     return sol
+
+
+#: Iterative solves of operators with at least this many rows run their BLAS calls in one thread.
+#: ARPACK's own work is level-2 BLAS on the n x ncv Lanczos basis (``dgemv``), memory-bound:
+#: OpenBLAS's second thread brought no speed and its waiting burnt CPU. Measured at 1M nodes
+#: (planted partition, k = 8, 124 products, 2-core machine at load 6-7): whole run 17.0 s CPU /
+#: 44.5 s wall with the default two BLAS threads, 10.3 s / 28.3 s with one (seed 1: 16.4 / 30.9
+#: against 10.4 / 14.3) -- the seed-to-seed spread of the CPU share was this waiting. Threads split
+#: the sums of a ``dgemv``, so the thread count changes the last bits: below this size (every test
+#: graph, the demo) the BLAS setting is left as it is and results stay bit for bit.
+BLAS_SINGLE_THREAD_MIN_NODES = 500_000
+
+_blas_controller: list = []
+
+
+def _blas_threads(n: int):
+    """Context manager: BLAS in one thread for an operator of ``n`` rows (see
+    :data:`BLAS_SINGLE_THREAD_MIN_NODES`); nothing below it or without ``threadpoolctl``."""
+    from contextlib import nullcontext
+
+    if n < BLAS_SINGLE_THREAD_MIN_NODES:
+        return nullcontext()
+    if not _blas_controller:
+        try:
+            from threadpoolctl import ThreadpoolController
+        except ImportError:  # pragma: no cover - threadpoolctl comes with scikit-learn; optional here
+            _blas_controller.append(None)
+        else:
+            _blas_controller.append(ThreadpoolController())
+    controller = _blas_controller[0]
+    return nullcontext() if controller is None else controller.limit(limits=1, user_api="blas")
 
 
 def _to_original_order(V: np.ndarray, order: np.ndarray) -> np.ndarray:
