@@ -125,3 +125,27 @@ def test_default_rule_keeps_test_sized_graphs_on_the_stored_operator():
     A, _ = planted_partition(6000, 4, 24.0, 2.0, seed=5)
     op, _, _ = shifted_laplacian_operator(sp.csr_array(A, dtype=np.float64), "sym")
     assert op.row_scale is None and eigen.SCALED_PRODUCT_MIN_NODES >= 500_000
+
+
+def test_one_blas_thread_rule_leaves_small_solves_alone(monkeypatch):
+    from threadpoolctl import threadpool_info
+
+    def blas_threads():         # threadpoolctl (an outside view of the loaded BLAS libraries)
+        return [i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"]
+
+    outside = blas_threads()
+    with eigen._blas_threads(eigen.BLAS_SINGLE_THREAD_MIN_NODES - 1):
+        assert blas_threads() == outside                          # small solve: left alone
+    with eigen._blas_threads(eigen.BLAS_SINGLE_THREAD_MIN_NODES):
+        if any("openblas" in i["internal_api"] for i in threadpool_info()):
+            assert set(blas_threads()) == {1}
+    assert blas_threads() == outside                              # restored
+    assert eigen.BLAS_SINGLE_THREAD_MIN_NODES >= 100_000          # above every test graph and the demo
+    A, truth = planted_partition(6000, 4, 24.0, 2.0, seed=5)
+    before = partition(A, "njw", k=4, seed=2)
+    monkeypatch.setattr(eigen, "BLAS_SINGLE_THREAD_MIN_NODES", 0)  # one BLAS thread forced
+    after = partition(A, "njw", k=4, seed=2)
+    assert adjusted_rand_score(before.labels, after.labels) == 1.0
+    assert np.allclose(before.eigenvalues, after.eigenvalues, rtol=0, atol=1e-9)
+    # the planted groups themselves (Decelle et al. 2011: c_in - c_out well above k sqrt(c))
+    assert adjusted_rand_score(truth, after.labels) > 0.9

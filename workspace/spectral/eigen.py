@@ -428,27 +428,63 @@ def largest_eigenpairs(op: SymmetricOperator, m: int, ctx: SolverContext, *,
 #: against 10.4 / 14.3) -- the seed-to-seed spread of the CPU share was this waiting. Threads split
 #: the sums of a ``dgemv``, so the thread count changes the last bits: below this size (every test
 #: graph, the demo) the BLAS setting is left as it is and results stay bit for bit.
-BLAS_SINGLE_THREAD_MIN_NODES = 500_000
+BLAS_SINGLE_THREAD_MIN_NODES = 100_000
 
-_blas_controller: list = []
+_openblas: list = []
 
 
-def _blas_threads(n: int):
-    """Context manager: BLAS in one thread for an operator of ``n`` rows (see
-    :data:`BLAS_SINGLE_THREAD_MIN_NODES`); nothing below it or without ``threadpoolctl``."""
-    from contextlib import nullcontext
+def _openblas_thread_calls() -> list:
+    """``(get, set)`` thread-count functions of every OpenBLAS loaded in this process.
 
-    if n < BLAS_SINGLE_THREAD_MIN_NODES:
-        return nullcontext()
-    if not _blas_controller:
+    numpy and scipy wheels each bundle one (``scipy_openblas*`` symbol names); they are found
+    among the mapped files of ``/proc/self/maps`` (Linux). Empty elsewhere, or with another BLAS:
+    then nothing is changed.
+    """
+    if _openblas:
+        return _openblas[0]
+    import ctypes
+
+    calls = []
+    try:
+        with open("/proc/self/maps", encoding="utf-8", errors="replace") as fh:
+            paths = sorted({line.split()[-1] for line in fh
+                            if "openblas" in line.lower() and line.split()[-1].startswith("/")})
+    except OSError:
+        paths = []
+    for path in paths:
         try:
-            from threadpoolctl import ThreadpoolController
-        except ImportError:  # pragma: no cover - threadpoolctl comes with scikit-learn; optional here
-            _blas_controller.append(None)
-        else:
-            _blas_controller.append(ThreadpoolController())
-    controller = _blas_controller[0]
-    return nullcontext() if controller is None else controller.limit(limits=1, user_api="blas")
+            lib = ctypes.CDLL(path)
+        except OSError:
+            continue
+        for prefix in ("openblas", "scipy_openblas"):
+            for suffix in ("", "64_"):
+                get = getattr(lib, f"{prefix}_get_num_threads{suffix}", None)
+                put = getattr(lib, f"{prefix}_set_num_threads{suffix}", None)
+                if get is not None and put is not None:
+                    get.restype = ctypes.c_int
+                    put.argtypes = [ctypes.c_int]
+                    calls.append((get, put))
+    _openblas.append(calls)
+    return calls
+
+
+class _blas_threads:
+    """Context manager: OpenBLAS in one thread while an operator of ``n`` rows is solved (see
+    :data:`BLAS_SINGLE_THREAD_MIN_NODES`), the previous counts restored after; nothing below it."""
+
+    def __init__(self, n: int) -> None:
+        self.calls = _openblas_thread_calls() if n >= BLAS_SINGLE_THREAD_MIN_NODES else []
+        self.before: list = []
+
+    def __enter__(self) -> "_blas_threads":
+        self.before = [int(get()) for get, _ in self.calls]
+        for _, put in self.calls:
+            put(1)
+        return self
+
+    def __exit__(self, *exc) -> None:
+        for (_, put), count in zip(self.calls, self.before):
+            put(count)
 
 
 def _to_original_order(V: np.ndarray, order: np.ndarray) -> np.ndarray:
