@@ -149,3 +149,18 @@ def test_one_blas_thread_rule_leaves_small_solves_alone(monkeypatch):
     assert np.allclose(before.eigenvalues, after.eigenvalues, rtol=0, atol=1e-9)
     # the planted groups themselves (Decelle et al. 2011: c_in - c_out well above k sqrt(c))
     assert adjusted_rand_score(truth, after.labels) > 0.9
+
+
+def test_symmetry_test_with_one_vector_finds_every_asymmetry():
+    """The Freivalds-style check (one random vector) against scipy's explicit (A != A.T).nnz."""
+    from workspace.spectral.engine import _is_symmetric
+
+    rng = np.random.default_rng(11)
+    for trial in range(40):
+        n = int(rng.integers(3, 300))
+        A = sp.random_array((n, n), density=0.05, rng=rng, format="csr")
+        A = sp.csr_array(A + A.T)
+        if trial % 2 and A.nnz:
+            k = int(rng.integers(A.nnz))
+            A.data[k] *= 1.0 + 10 ** rng.uniform(-8, 0)        # one entry off, by as little as 1e-8
+        assert _is_symmetric(A) == ((A != A.T).nnz == 0)
