@@ -9,6 +9,10 @@ by every measurement) is partitioned by
 - ``floor``: bare ``D^-1/2 A D^-1/2`` + ``scipy.sparse.linalg.eigsh(which='LA')``
   (same tolerance and start vector) + row normalisation +
   ``sklearn.cluster.KMeans(n_init=1)`` — the least work an NJW run can do;
+- ``floor-blas1``: the same with ``eigsh`` under ``threadpoolctl.threadpool_limits(1, "blas")``
+  (the BLAS setting cutbook's solver uses from 100k nodes; see
+  ``workspace.spectral.eigen.BLAS_SINGLE_THREAD_MIN_NODES``), so that the gain of that setting
+  is not mistaken for a gain of the engine;
 - ``sklearn-<solver>``: ``sklearn.cluster.SpectralClustering(affinity=
   "precomputed")`` with eigen_solver "amg" (needs pyamg) and "lobpcg";
   the faster one is the reference. sklearn's "arpack" path uses
@@ -96,9 +100,12 @@ def worker(what: str, graph: str) -> dict:
         labels = r.labels
         extra = {"matvecs": r.diagnostics["matvecs"], "solver": r.diagnostics["solver"],
                  "warnings": r.warnings}
-    elif what == "floor":
+    elif what in ("floor", "floor-blas1"):
+        from contextlib import nullcontext
+
         from scipy.sparse.linalg import eigsh
         from sklearn.cluster import KMeans
+        from threadpoolctl import threadpool_limits
 
         d = np.asarray(A.sum(axis=1)).ravel()
         s = np.zeros(n)
@@ -106,7 +113,8 @@ def worker(what: str, graph: str) -> dict:
         N = sp.csr_array((A.data * np.repeat(s, np.diff(A.indptr)) * s[A.indices], A.indices,
                           A.indptr), shape=A.shape)
         v0 = np.random.default_rng(0).uniform(-1.0, 1.0, n)
-        _, V = eigsh(N, k=K, which="LA", tol=EIG_TOL, v0=v0)
+        with threadpool_limits(1, user_api="blas") if what == "floor-blas1" else nullcontext():
+            _, V = eigsh(N, k=K, which="LA", tol=EIG_TOL, v0=v0)
         norms = np.linalg.norm(V, axis=1, keepdims=True)
         norms[norms == 0] = 1.0
         V /= norms
@@ -186,14 +194,14 @@ def main() -> None:
             print(f"\nn={n}: m={A.nnz // 2} edges, generated in {gen:.2f} s; load {os.getloadavg()}",
                   flush=True)
             del A
-            whats = ["cutbook-njw", "floor"]
+            whats = ["cutbook-njw", "floor", "floor-blas1"]
             if n <= args.skip_sklearn_above:
                 whats += [f"sklearn-{s}" for s in sk_solvers]
                 if args.sklearn_arpack:
                     whats.append("sklearn-arpack")
             res = {}
             # ours and the floor alternate, so load changes hit both alike
-            order = [w for _ in range(max(1, args.repeat)) for w in whats[:2]] + whats[2:]
+            order = [w for _ in range(max(1, args.repeat)) for w in whats[:3]] + whats[3:]
             for what in order:
                 r = measure(what, path, args.timeout)
                 best = res.get(what)
@@ -210,7 +218,8 @@ def main() -> None:
                           + f"   load {os.getloadavg()[0]:.1f}", flush=True)
             rows.append((n, res))
     print("\nsummary")
-    print(f"{'n':>9} {'ours s':>8} {'floor s':>8} {'ours/floor':>10} {'cpu o/f':>7} {'sklearn(best) s':>16} "
+    print(f"{'n':>9} {'ours s':>8} {'floor s':>8} {'ours/floor':>10} {'cpu o/f':>7} {'o/f-blas1':>9} "
+          f"{'cpu o/f1':>8} {'sklearn(best) s':>16} "
           f"{'sklearn/ours':>12} {'ARI ours':>9} {'ARI sk':>8} {'mem ours/floor':>14}")
     for n, res in rows:
         ours, floor = res.get("cutbook-njw", {}), res.get("floor", {})
@@ -221,6 +230,9 @@ def main() -> None:
             continue
         line = (f"{n:>9} {ours['time_s']:8.2f} {floor['time_s']:8.2f} "
                 f"{ours['time_s'] / floor['time_s']:10.2f} {ours['cpu_s'] / floor['cpu_s']:7.2f} ")
+        f1 = res.get("floor-blas1", {})
+        line += (f"{ours['time_s'] / f1['time_s']:9.2f} {ours['cpu_s'] / f1['cpu_s']:8.2f} " if f1 and "error" not in f1
+                 else f"{'-':>9} {'-':>8} ")
         if skb:
             line += (f"{skb['time_s']:10.2f} ({skb['what'][8:]}) {skb['time_s'] / ours['time_s']:8.2f} "
                      f"{ours['ari']:9.4f} {skb['ari']:8.4f} ")

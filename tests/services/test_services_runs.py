@@ -12,7 +12,7 @@ from sklearn.metrics import adjusted_rand_score
 
 from graphs import import_adjacency, node_names, truth_by_node_ids
 from tests_support import dump_store, write_edges
-from workspace.domain import membership_hash
+from workspace.domain import GraphData, membership_hash
 from workspace.errors import Cancelled, NotFoundError, ParameterError, UsageError
 from workspace.services import networks, params, runs
 from workspace.spectral.generators import planted_partition
@@ -197,3 +197,24 @@ def test_where_node_across_versions(store, tmp_path):
     assert not by_run[r2["run"]]["present"]
     with pytest.raises(NotFoundError):
         runs.where_node(store, "zzz", "p/n")
+
+
+def test_launch_hands_the_solver_the_adjacency_only(store, karate):
+    """launch drops the node ids and edge arrays before the solve (memory); the result is the one
+    partition() gives on networkx's matrix of the same graph (networkx.to_scipy_sparse_array)."""
+    from workspace.spectral import partition
+
+    names, _ = karate
+    spec = runs.prepare_run(store, "club/karate", method="njw", k="3", seed=4)
+    res = runs.launch(store, spec)
+    ids, labels, _ = runs.load_membership(store, res["run"])
+    G = nx.karate_club_graph()
+    A = nx.to_scipy_sparse_array(G, nodelist=range(34), weight="weight")
+    ref = partition(A, "njw", k=3, seed=4).labels
+    by_name = dict(zip(names, ref))
+    assert adjusted_rand_score([by_name[i] for i in ids], labels) == 1.0
+    graph = GraphData(np.array(names), np.array([0]), np.array([1]), np.array([1.0]))
+    built = runs._BuiltGraph(graph)
+    assert built.adjacency().nnz == 2
+    with pytest.raises(RuntimeError):
+        built.adjacency()                      # handed over once, not kept

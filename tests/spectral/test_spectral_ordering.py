@@ -163,3 +163,26 @@ def test_demo_store_unchanged_by_the_order(tmp_path, monkeypatch):
         finally:
             store.dispose()
     assert hashes[0] == hashes[1] and len(hashes[0]) > 3
+
+
+def test_component_search_is_the_computation_order():
+    """The engine reuses its component search as the order: it must be the breadth-first order of
+    scipy.sparse.csgraph.breadth_first_order from the first node with an edge, the one
+    computation_order computes itself."""
+    from scipy.sparse.csgraph import breadth_first_order
+
+    from workspace.spectral.engine import _components
+
+    A = _graph("les-miserables")                 # connected, no isolated node
+    A = sp.csr_array(A)
+    found: list = []
+    ncomp, _ = _components(A, found)
+    assert ncomp == 1 and len(found) == 1
+    ref = breadth_first_order(A, 0, directed=False, return_predecessors=False)   # scipy, undirected
+    assert np.array_equal(found[0], ref)
+    assert np.array_equal(computation_order(A, min_nodes=0, min_gain=0.0, search=found[0]),
+                          computation_order(A, min_nodes=0, min_gain=0.0))
+    lonely = sp.block_diag([A, sp.csr_array((1, 1))], format="csr")   # an isolated node: no reuse
+    found = []
+    _components(lonely, found)
+    assert found == []

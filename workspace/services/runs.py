@@ -389,7 +389,7 @@ def execute(store: Store, run_id: int, spec: RunSpec, graph: GraphData, *, progr
     import numpy as np
 
     try:
-        if spec.warm_from and warm_block is None:
+        if spec.warm_from and warm_block is None and not isinstance(graph, _BuiltGraph):
             from workspace.services import warmstart
 
             warm_block, warm_info = warmstart.start_block(store, spec.warm_from, graph, spec)
@@ -414,6 +414,26 @@ def _load_version_graph(store: Store, version_id: int) -> GraphData:
         return repo.load_graph(s, s.get(NetworkVersion, version_id))
 
 
+class _BuiltGraph:
+    """What :func:`compute` reads of a version's graph: its adjacency, built once, and its direction.
+
+    Holding this instead of the :class:`GraphData` lets the node ids and the edge arrays go before
+    the solver starts (at 3M nodes and 22.5M edges: 0.54 GB of edges, 0.1-0.5 GB of ids).
+    :meth:`adjacency` hands the matrix over and keeps no reference to it, so the matrix goes too as
+    soon as the computation is done with it.
+    """
+
+    def __init__(self, graph: GraphData) -> None:
+        self.directed = graph.directed
+        self._adjacency = graph.adjacency()
+
+    def adjacency(self):
+        A, self._adjacency = self._adjacency, None
+        if A is None:
+            raise RuntimeError("the adjacency of a built graph is handed over once")
+        return A
+
+
 def launch(store: Store, spec: RunSpec, *, progress: Progress | None = None,
            cancel: Callable[[], bool] | None = None, embedding=None,
            provenance_extra: dict[str, Any] | None = None, warm_block=None,
@@ -427,9 +447,11 @@ def launch(store: Store, spec: RunSpec, *, progress: Progress | None = None,
         from workspace.services import warmstart
 
         warm_block, warm_info = warmstart.start_block(store, spec.warm_from, graph, spec)
+    built = _BuiltGraph(graph)
+    del graph          # node ids and edge arrays are not read again: the solver gets their memory
     run_id = _insert_running(store, spec, provenance_extra=provenance_extra)
     try:
-        execute(store, run_id, spec, graph, progress=progress, cancel=cancel, embedding=embedding,
+        execute(store, run_id, spec, built, progress=progress, cancel=cancel, embedding=embedding,
                 warm_block=warm_block, warm_info=warm_info)
     except ComputeError as exc:
         raise RunFailed(run_id, str(exc)) from exc

@@ -113,6 +113,16 @@ class SolverContext:
         self.report(stage, force=False)
 
 
+#: Operators of at least this many nodes do not store the normalised adjacency
+#: :math:`N = D^{-1/2} A D^{-1/2}` (a second copy of the nnz values, 0.36 GB at 3M nodes
+#: and 22.5M edges) but apply it as ``s * (A @ (s * x))`` with :math:`s = d^{-1/2}`. The
+#: two forms differ only by rounding (the product of three factors is grouped
+#: differently), so every smaller graph -- every test graph and the demo -- keeps the
+#: stored form and its results bit for bit; the same threshold as
+#: :data:`workspace.spectral.ordering.ORDER_MIN_NODES`, below which the vectors fit in
+#: cache and a copy of the values costs little.
+SCALED_PRODUCT_MIN_NODES = 500_000
+
 #: Sparse matrices with fewer stored entries are multiplied in one thread.
 PARALLEL_MIN_NNZ = 200_000
 
@@ -179,6 +189,10 @@ class SymmetricOperator:
     rank_one : ndarray, shape (n,), optional
         Vector ``u``; the term ``- u (u^T x) / rank_one_denominator`` is added.
     rank_one_denominator : float, default 1
+    row_scale : ndarray of float64, shape (n,), optional
+        Vector ``s``: the sparse part is :math:`\mathrm{diag}(s)\,S\,\mathrm{diag}(s)`,
+        applied as ``s * (S @ (s * x))`` without storing the scaled matrix
+        (see :data:`SCALED_PRODUCT_MIN_NODES`).
     order : ndarray of int, shape (n,), optional
         The operator is stored in a computation order
         (:mod:`workspace.spectral.ordering`): ``S``, ``diagonal`` and
@@ -189,9 +203,10 @@ class SymmetricOperator:
     """
 
     def __init__(self, S, diagonal=0.0, scale: float = 1.0, rank_one=None,
-                 rank_one_denominator: float = 1.0, order=None) -> None:
+                 rank_one_denominator: float = 1.0, order=None, row_scale=None) -> None:
         self.S = S
         self.order = order
+        self.row_scale = row_scale
         self.n = S.shape[0]
         self.diagonal = diagonal
         self.scale = float(scale)
@@ -200,7 +215,12 @@ class SymmetricOperator:
 
     def apply(self, X: np.ndarray) -> np.ndarray:
         """``M @ X`` for a vector or an ``n × b`` block."""
-        Y = self.S @ X
+        if self.row_scale is None:
+            Y = self.S @ X
+        else:
+            r = self.row_scale if X.ndim == 1 else self.row_scale[:, None]
+            Y = self.S @ (X * r)
+            Y *= r
         if self.scale != 1.0:
             Y *= self.scale
         diag = self.diagonal
@@ -220,11 +240,13 @@ class SymmetricOperator:
             return self
         S = self.S if isinstance(self.S, sp.csr_array) else sp.csr_array(self.S)
         return SymmetricOperator(RowBlockMatrix(S, executor, parts), self.diagonal, self.scale,
-                                 self.rank_one, self.rank_one_denominator, self.order)
+                                 self.rank_one, self.rank_one_denominator, self.order, self.row_scale)
 
     def to_dense(self) -> np.ndarray:
         """The dense ``n × n`` matrix (only for small ``n``)."""
         M = self.S.toarray() if sp.issparse(self.S) else np.array(self.S, dtype=np.float64)
+        if self.row_scale is not None:
+            M = M * self.row_scale[:, None] * self.row_scale[None, :]
         M = M * self.scale if self.scale != 1.0 else M.astype(np.float64, copy=False)
         M[np.diag_indices(self.n)] += self.diagonal
         if self.rank_one is not None:
@@ -387,14 +409,82 @@ def largest_eigenpairs(op: SymmetricOperator, m: int, ctx: SolverContext, *,
         return sol
 
     threads = ctx.threads if ctx.threads > 0 else available_cpus()
-    if threads > 1 and sp.issparse(op.S) and op.S.nnz >= PARALLEL_MIN_NNZ:
-        with ThreadPoolExecutor(max_workers=threads - 1) as executor:
-            sol = _iterative(op.parallel(executor, threads), m, ctx, stage, bound, extra, start)
-    else:
-        sol = _iterative(op, m, ctx, stage, bound, extra, start)
+    with _blas_threads(n):
+        if threads > 1 and sp.issparse(op.S) and op.S.nnz >= PARALLEL_MIN_NNZ:
+            with ThreadPoolExecutor(max_workers=threads - 1) as executor:
+                sol = _iterative(op.parallel(executor, threads), m, ctx, stage, bound, extra, start)
+        else:
+            sol = _iterative(op, m, ctx, stage, bound, extra, start)
     if op.order is not None:
         sol.vectors = _to_original_order(sol.vectors, op.order)
     return sol
+
+
+#: Iterative solves of operators with at least this many rows run their BLAS calls in one thread.
+#: ARPACK's own work is level-2 BLAS on the n x ncv Lanczos basis (``dgemv``), memory-bound:
+#: OpenBLAS's second thread brought no speed and its waiting burnt CPU. Measured at 1M nodes
+#: (planted partition, k = 8, 124 products, 2-core machine at load 6-7): whole run 17.0 s CPU /
+#: 44.5 s wall with the default two BLAS threads, 10.3 s / 28.3 s with one (seed 1: 16.4 / 30.9
+#: against 10.4 / 14.3) -- the seed-to-seed spread of the CPU share was this waiting. Threads split
+#: the sums of a ``dgemv``, so the thread count changes the last bits: below this size (every test
+#: graph, the demo) the BLAS setting is left as it is and results stay bit for bit.
+BLAS_SINGLE_THREAD_MIN_NODES = 100_000
+
+_openblas: list = []
+
+
+def _openblas_thread_calls() -> list:
+    """``(get, set)`` thread-count functions of every OpenBLAS loaded in this process.
+
+    numpy and scipy wheels each bundle one (``scipy_openblas*`` symbol names); they are found
+    among the mapped files of ``/proc/self/maps`` (Linux). Empty elsewhere, or with another BLAS:
+    then nothing is changed.
+    """
+    if _openblas:
+        return _openblas[0]
+    import ctypes
+
+    calls = []
+    try:
+        with open("/proc/self/maps", encoding="utf-8", errors="replace") as fh:
+            paths = sorted({line.split()[-1] for line in fh
+                            if "openblas" in line.lower() and line.split()[-1].startswith("/")})
+    except OSError:
+        paths = []
+    for path in paths:
+        try:
+            lib = ctypes.CDLL(path)
+        except OSError:
+            continue
+        for prefix in ("openblas", "scipy_openblas"):
+            for suffix in ("", "64_"):
+                get = getattr(lib, f"{prefix}_get_num_threads{suffix}", None)
+                put = getattr(lib, f"{prefix}_set_num_threads{suffix}", None)
+                if get is not None and put is not None:
+                    get.restype = ctypes.c_int
+                    put.argtypes = [ctypes.c_int]
+                    calls.append((get, put))
+    _openblas.append(calls)
+    return calls
+
+
+class _blas_threads:
+    """Context manager: OpenBLAS in one thread while an operator of ``n`` rows is solved (see
+    :data:`BLAS_SINGLE_THREAD_MIN_NODES`), the previous counts restored after; nothing below it."""
+
+    def __init__(self, n: int) -> None:
+        self.calls = _openblas_thread_calls() if n >= BLAS_SINGLE_THREAD_MIN_NODES else []
+        self.before: list = []
+
+    def __enter__(self) -> "_blas_threads":
+        self.before = [int(get()) for get, _ in self.calls]
+        for _, put in self.calls:
+            put(1)
+        return self
+
+    def __exit__(self, *exc) -> None:
+        for (_, put), count in zip(self.calls, self.before):
+            put(count)
 
 
 def _to_original_order(V: np.ndarray, order: np.ndarray) -> np.ndarray:
@@ -789,7 +879,9 @@ def shifted_laplacian_operator(A, laplacian: str, d: np.ndarray | None = None,
     Returns ``(op, shift, post)`` with :math:`\lambda(L) = \mathrm{shift} - \mu(M)`:
 
     - ``"sym"``/``"rw"``: :math:`M = I + D^{-1/2} A D^{-1/2}` (+1 on isolated
-      nodes), shift 2, spectrum in [0, 2];
+      nodes), shift 2, spectrum in [0, 2]; from :data:`SCALED_PRODUCT_MIN_NODES`
+      nodes on (and without ``order``) the scaling is applied inside each product
+      instead of stored;
     - ``"unnormalized"``: :math:`M = cI - L = (c - D) + A` with
       :math:`c = 2 d_{max}` (Gershgorin bound on the spectrum of ``L``).
 
@@ -832,7 +924,9 @@ def shifted_laplacian_operator(A, laplacian: str, d: np.ndarray | None = None,
     if laplacian in ("sym", "rw"):
         isolated = d + regularizer <= 0
         diag = 1.0 + isolated.astype(np.float64) if isolated.any() else 1.0
-        if order is None:
+        if order is None and A.shape[0] >= SCALED_PRODUCT_MIN_NODES:
+            op = SymmetricOperator(A, diagonal=diag, row_scale=inverse_sqrt_degrees(d + regularizer))
+        elif order is None:
             op = SymmetricOperator(normalized_adjacency(A, d, regularizer=regularizer), diagonal=diag)
         else:
             N = permuted_scaled(A, order, inverse_sqrt_degrees(d + regularizer))

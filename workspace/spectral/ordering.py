@@ -49,7 +49,7 @@ _CHUNK_ROWS = 1 << 16
 
 
 def computation_order(A, *, kind: str = "bfs", min_nodes: int | None = None,
-                      min_gain: float | None = None) -> np.ndarray | None:
+                      min_gain: float | None = None, search: np.ndarray | None = None) -> np.ndarray | None:
     r"""A node order with locality, or None when the graph would not gain from one.
 
     Parameters
@@ -68,6 +68,10 @@ def computation_order(A, *, kind: str = "bfs", min_nodes: int | None = None,
     min_gain : float, optional
         Return None when the order shortens the mean edge span less than
         this many times (:func:`span_reduction`); default :data:`ORDER_MIN_GAIN`.
+    search : ndarray of int, shape (n,), optional
+        For ``kind="bfs"``: the breadth-first order from the first node with
+        an edge when the caller has it already (the engine's component search
+        is that search); used as it is instead of searching again.
 
     Returns
     -------
@@ -83,7 +87,7 @@ def computation_order(A, *, kind: str = "bfs", min_nodes: int | None = None,
     n = A.shape[0]
     if n < (ORDER_MIN_NODES if min_nodes is None else min_nodes) or n < 2:
         return None
-    order = _search_order(A, kind)
+    order = search if search is not None and kind == "bfs" and search.shape[0] == n else _search_order(A, kind)
     if order is None:
         return None
     gain = ORDER_MIN_GAIN if min_gain is None else min_gain

@@ -1,0 +1,166 @@
+"""The memory-lean paths for large graphs give the same matrices and partitions as the plain ones.
+
+* ``GraphData.adjacency`` builds the symmetric CSR matrix in place from the canonical pair list;
+  it must equal, bit for bit, the matrix networkx builds (``networkx.to_scipy_sparse_array``);
+* ``quality_measures`` sums internal weights in row chunks; the sums must be bit-identical to one
+  ``numpy.bincount`` over the whole matrix, and the measures equal networkx's;
+* from ``SCALED_PRODUCT_MIN_NODES`` nodes on, the normalised adjacency is applied as
+  ``s * (A @ (s * x))`` instead of stored; forced on small graphs it must give the same
+  memberships (ARI = 1) and eigenvalues to rounding, while the default rule leaves every graph
+  below the threshold (the test graphs, the demo) on the stored path.
+"""
+
+from __future__ import annotations
+
+import networkx as nx
+import numpy as np
+import pytest
+import scipy.sparse as sp
+from sklearn.metrics import adjusted_rand_score
+
+import workspace.domain as domain
+import workspace.spectral.eigen as eigen
+import workspace.spectral.quality as quality
+from workspace.domain import GraphData
+from workspace.spectral import partition, planted_partition
+from workspace.spectral.eigen import shifted_laplacian_operator
+from workspace.spectral.laplacians import normalized_adjacency
+
+
+def _random_pairs(rng, n, m, loops=0.1):
+    u = rng.integers(0, n, m)
+    v = rng.integers(0, n, m)
+    v = np.where(rng.random(m) < loops, u, v)
+    pairs = np.unique(np.stack([np.minimum(u, v), np.maximum(u, v)], axis=1), axis=0)
+    return pairs[:, 0].astype(np.int64), pairs[:, 1].astype(np.int64)
+
+
+@pytest.mark.parametrize("chunk", [1, 7, 1 << 20])
+def test_adjacency_is_networkx_matrix_bit_for_bit(chunk, monkeypatch):
+    monkeypatch.setattr(domain, "_EDGE_CHUNK", chunk)
+    rng = np.random.default_rng(18)
+    for n, m in ((1, 0), (5, 3), (60, 200), (400, 3000)):
+        u, v = _random_pairs(rng, n, m)
+        w = rng.uniform(0.1, 10.0, u.shape[0])
+        G = nx.Graph()
+        G.add_nodes_from(range(n))
+        G.add_weighted_edges_from(zip(u.tolist(), v.tolist(), w.tolist()))
+        # networkx writes an undirected self-loop of weight w as A_ii = w (networkx.to_scipy_sparse_array)
+        ref = nx.to_scipy_sparse_array(G, nodelist=range(n), weight="weight", format="csr")
+        ref.sort_indices()
+        A = GraphData(np.array([f"v{i}" for i in range(n)]), u, v, w).adjacency()
+        assert A.shape == ref.shape and A.has_sorted_indices
+        assert A.indices.dtype == np.int32                    # int32 where it fits, as scipy chooses
+        assert np.array_equal(A.indptr, ref.indptr) and np.array_equal(A.indices, ref.indices)
+        assert np.array_equal(A.data, ref.data)
+
+
+def test_adjacency_of_pairs_out_of_order_takes_the_general_path():
+    # not canonical (unsorted, u > v): built through scipy's COO conversion, still the same matrix
+    g = GraphData(np.array(["a", "b", "c"]), np.array([2, 0]), np.array([1, 1]), np.array([2.0, 3.0]))
+    assert not domain._canonical_pairs(g.edge_u, g.edge_v, 3)
+    ref = np.array([[0, 3, 0], [3, 0, 2], [0, 2, 0]], dtype=float)       # by hand
+    assert np.array_equal(g.adjacency().toarray(), ref)
+
+
+def test_chunked_internal_weights_equal_one_bincount(monkeypatch):
+    rng = np.random.default_rng(7)
+    A, _ = planted_partition(3000, 5, 20.0, 3.0, seed=3)
+    A = sp.csr_array(A, dtype=np.float64)
+    A.data = rng.uniform(0.001, 1000.0, A.nnz)
+    A = sp.csr_array((A + A.T) / 2)
+    labels = rng.integers(0, 9, A.shape[0])
+    row_of = np.repeat(labels, np.diff(A.indptr))
+    same = row_of == labels[A.indices]
+    ref = np.bincount(row_of[same], weights=A.data[same], minlength=9)   # numpy.bincount over all entries
+    for rows in (1, 13, 1000, 1 << 18):
+        monkeypatch.setattr(quality, "_QUALITY_CHUNK_ROWS", rows)
+        got = quality._internal_weights(A, A.data, labels, 9)
+        assert np.array_equal(got, ref)
+    # and the measure itself against networkx.community.modularity (Newman & Girvan 2004)
+    G = nx.from_scipy_sparse_array(A)
+    comms = [set(np.flatnonzero(labels == c).tolist()) for c in range(9)]
+    q = quality.quality_measures(A, labels)
+    assert q["modularity"] == pytest.approx(nx.community.modularity(G, comms, weight="weight"), abs=1e-12)
+
+
+def test_scaled_products_apply_the_normalised_adjacency(monkeypatch):
+    A, _ = planted_partition(4000, 4, 20.0, 2.0, seed=2)
+    A = sp.csr_array(A, dtype=np.float64)
+    x = np.random.default_rng(1).standard_normal((A.shape[0], 3))
+    stored, _, _ = shifted_laplacian_operator(A, "sym")
+    monkeypatch.setattr(eigen, "SCALED_PRODUCT_MIN_NODES", 0)
+    scaled, shift, _ = shifted_laplacian_operator(A, "sym")
+    assert scaled.S is A and scaled.row_scale is not None          # no copy of the values
+    # M = I' + D^-1/2 A D^-1/2 with I' = I + 1 on isolated nodes (the shift 2 - L_sym, Chung 1997);
+    # the explicit product as the reference
+    N = normalized_adjacency(A)
+    isolated = np.diff(A.indptr) == 0
+    assert isolated.any()                      # the convention for degree-0 nodes is exercised
+    ref = (1.0 + isolated)[:, None] * x + N @ x
+    assert np.allclose(scaled.apply(x), ref, rtol=1e-12, atol=1e-13)
+    assert np.allclose(scaled.apply(x[:, 0]), ref[:, 0], rtol=1e-12, atol=1e-13)
+    assert np.allclose(stored.apply(x), ref, rtol=1e-12, atol=1e-13)
+    small = sp.csr_array(nx.to_scipy_sparse_array(nx.karate_club_graph(), format="csr"), dtype=np.float64)
+    op, _, _ = shifted_laplacian_operator(small, "sym")
+    dense = np.eye(34) + normalized_adjacency(small).toarray()
+    assert np.allclose(op.to_dense(), dense, rtol=1e-12, atol=1e-13)
+
+
+@pytest.mark.parametrize("method", ["njw", "shi-malik", "regularized"])
+def test_scaled_products_give_the_same_memberships(method, monkeypatch):
+    graphs = [planted_partition(6000, 4, 24.0, 2.0, seed=5)[0],
+              nx.to_scipy_sparse_array(nx.les_miserables_graph(), format="csr")]   # networkx dataset, weighted
+    for A in graphs:
+        params = {"dense_threshold": 10} if A.shape[0] < 1000 else {}
+        before = partition(A, method, k=4, seed=3, **params)
+        monkeypatch.setattr(eigen, "SCALED_PRODUCT_MIN_NODES", 0)
+        after = partition(A, method, k=4, seed=3, **params)
+        monkeypatch.setattr(eigen, "SCALED_PRODUCT_MIN_NODES", 500_000)
+        assert adjusted_rand_score(before.labels, after.labels) == 1.0
+        assert np.allclose(before.eigenvalues, after.eigenvalues, rtol=0, atol=1e-9)
+
+
+def test_default_rule_keeps_test_sized_graphs_on_the_stored_operator():
+    A, _ = planted_partition(6000, 4, 24.0, 2.0, seed=5)
+    op, _, _ = shifted_laplacian_operator(sp.csr_array(A, dtype=np.float64), "sym")
+    assert op.row_scale is None and eigen.SCALED_PRODUCT_MIN_NODES >= 500_000
+
+
+def test_one_blas_thread_rule_leaves_small_solves_alone(monkeypatch):
+    from threadpoolctl import threadpool_info
+
+    def blas_threads():         # threadpoolctl (an outside view of the loaded BLAS libraries)
+        return [i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"]
+
+    outside = blas_threads()
+    with eigen._blas_threads(eigen.BLAS_SINGLE_THREAD_MIN_NODES - 1):
+        assert blas_threads() == outside                          # small solve: left alone
+    with eigen._blas_threads(eigen.BLAS_SINGLE_THREAD_MIN_NODES):
+        if any("openblas" in i["internal_api"] for i in threadpool_info()):
+            assert set(blas_threads()) == {1}
+    assert blas_threads() == outside                              # restored
+    assert eigen.BLAS_SINGLE_THREAD_MIN_NODES >= 100_000          # above every test graph and the demo
+    A, truth = planted_partition(6000, 4, 24.0, 2.0, seed=5)
+    before = partition(A, "njw", k=4, seed=2)
+    monkeypatch.setattr(eigen, "BLAS_SINGLE_THREAD_MIN_NODES", 0)  # one BLAS thread forced
+    after = partition(A, "njw", k=4, seed=2)
+    assert adjusted_rand_score(before.labels, after.labels) == 1.0
+    assert np.allclose(before.eigenvalues, after.eigenvalues, rtol=0, atol=1e-9)
+    # the planted groups themselves (Decelle et al. 2011: c_in - c_out well above k sqrt(c))
+    assert adjusted_rand_score(truth, after.labels) > 0.9
+
+
+def test_symmetry_test_with_one_vector_finds_every_asymmetry():
+    """The Freivalds-style check (one random vector) against scipy's explicit (A != A.T).nnz."""
+    from workspace.spectral.engine import _is_symmetric
+
+    rng = np.random.default_rng(11)
+    for trial in range(40):
+        n = int(rng.integers(3, 300))
+        A = sp.random_array((n, n), density=0.05, rng=rng, format="csr")
+        A = sp.csr_array(A + A.T)
+        if trial % 2 and A.nnz:
+            k = int(rng.integers(A.nnz))
+            A.data[k] *= 1.0 + 10 ** rng.uniform(-8, 0)        # one entry off, by as little as 1e-8
+        assert _is_symmetric(A) == ((A != A.T).nnz == 0)
