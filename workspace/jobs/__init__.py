@@ -32,7 +32,7 @@ def _child(store_url: str, spec: dict[str, Any], events, stop) -> None:
     try:
         store = open_workspace(store_url, create=False, require_write=True)
         spec_obj = RunSpec(**spec)
-        graph = runs._load_version_graph(store, spec_obj.version_id)
+        built, warm_block, warm_info = runs.solver_input(store, spec_obj)   # as launch prepares it
         run_id = runs._insert_running(store, spec_obj)
         events.put({"type": "started", "run": run_id})
         last = [0.0]
@@ -43,7 +43,8 @@ def _child(store_url: str, spec: dict[str, Any], events, stop) -> None:
                 last[0] = now
                 events.put({"type": "progress", "stage": stage, "done": int(done), "total": total})
 
-        runs.execute(store, run_id, spec_obj, graph, progress=progress, cancel=stop.is_set)
+        runs.execute(store, run_id, spec_obj, built, progress=progress, cancel=stop.is_set,
+                     warm_block=warm_block, warm_info=warm_info)
         events.put({"type": "finished", "run": run_id, "status": "done", "message": None})
     except Cancelled as exc:
         events.put({"type": "finished", "run": run_id, "status": "cancelled", "message": str(exc)})

@@ -434,6 +434,20 @@ class _BuiltGraph:
         return A
 
 
+def solver_input(store: Store, spec: RunSpec, warm_block=None, warm_info: dict[str, Any] | None = None):
+    """``(built graph, warm block, warm info)`` for :func:`execute`: the version's adjacency alone (node
+    ids and edge arrays are let go before the solve) and, for a warm-started spec, its start block
+    (built first: a source that is gone raises NotFoundError before any run is recorded)."""
+    graph = _load_version_graph(store, spec.version_id)
+    if spec.warm_from and warm_block is None:
+        from workspace.services import warmstart
+
+        warm_block, warm_info = warmstart.start_block(store, spec.warm_from, graph, spec)
+    built = _BuiltGraph(graph)
+    del graph          # node ids and edge arrays are not read again: the solver gets their memory
+    return built, warm_block, warm_info
+
+
 def launch(store: Store, spec: RunSpec, *, progress: Progress | None = None,
            cancel: Callable[[], bool] | None = None, embedding=None,
            provenance_extra: dict[str, Any] | None = None, warm_block=None,
@@ -442,13 +456,7 @@ def launch(store: Store, spec: RunSpec, *, progress: Progress | None = None,
 
     A spec with ``warm_from`` builds its start block before the run is recorded (a source that is gone
     raises NotFoundError and records nothing) unless ``warm_block`` is given."""
-    graph = _load_version_graph(store, spec.version_id)
-    if spec.warm_from and warm_block is None:
-        from workspace.services import warmstart
-
-        warm_block, warm_info = warmstart.start_block(store, spec.warm_from, graph, spec)
-    built = _BuiltGraph(graph)
-    del graph          # node ids and edge arrays are not read again: the solver gets their memory
+    built, warm_block, warm_info = solver_input(store, spec, warm_block, warm_info)
     run_id = _insert_running(store, spec, provenance_extra=provenance_extra)
     try:
         execute(store, run_id, spec, built, progress=progress, cancel=cancel, embedding=embedding,
