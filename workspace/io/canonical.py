@@ -112,16 +112,11 @@ def _string_array_to_numpy(values: pa.Array) -> np.ndarray:
     return decode_node_ids(offsets, data)
 
 
-#: records from which the two endpoint columns are hashed on two threads (Arrow's kernels
-#: release the interpreter lock); below it one pass is quicker than the extra merge
-_PARALLEL_ENCODE_FROM = 1 << 20
-
-
-def _dictionary_encode(parts: list[pa.Array]) -> tuple[pa.Array, list[np.ndarray]]:
+def _dictionary_encode(parts: list[pa.Array]) -> tuple[pa.Array, np.ndarray]:
     """One pass of Arrow's hash kernel over ``parts``: (distinct ids in order of first
-    appearance, int32 codes of each part into them)."""
+    appearance, int32 codes of all parts, concatenated, into them)."""
     if not parts:
-        return pa.array([], pa.string()), []
+        return pa.array([], pa.string()), np.zeros(0, dtype=np.int32)
     encoded = pc.dictionary_encode(pa.chunked_array(parts, type=pa.string()))
     chunks = encoded.chunks
     dictionary = chunks[-1].dictionary if chunks else pa.array([], pa.string())
@@ -131,7 +126,130 @@ def _dictionary_encode(parts: list[pa.Array]) -> tuple[pa.Array, list[np.ndarray
             dictionary.slice(0, len(c.dictionary))) for c in chunks):
         chunks = pa.table({"id": encoded}).unify_dictionaries().column("id").chunks
         dictionary = chunks[0].dictionary
-    return dictionary, [c.indices.to_numpy(zero_copy_only=False) for c in chunks]
+    codes = [c.indices.to_numpy(zero_copy_only=False) for c in chunks]
+    return dictionary, (np.concatenate(codes) if len(codes) != 1 else codes[0])
+
+
+#: ids of at most this many 8-byte words are encoded as integer keys (:func:`_encode_by_words`);
+#: longer ones go through Arrow's string hash kernel
+_MAX_KEY_WORDS = 4
+#: ``_KEEP_BYTES[r]`` keeps the first ``r`` bytes of a big-endian 8-byte word
+_KEEP_BYTES = np.array([0] + [((1 << (8 * r)) - 1) << (64 - 8 * r) for r in range(1, 9)],
+                       dtype=np.uint64)
+
+
+def _string_buffers(values: pa.Array) -> tuple[np.ndarray, np.ndarray]:
+    """(int64 offsets of length n + 1, uint8 data) of a string or large_string array."""
+    n = len(values)
+    offset_type = np.int64 if values.type == pa.large_string() else np.int32
+    buffers = values.buffers()
+    offsets = np.frombuffer(buffers[1], dtype=offset_type, count=n + 1,
+                            offset=values.offset * np.dtype(offset_type).itemsize).astype(np.int64)
+    data = (np.frombuffer(buffers[2], dtype=np.uint8)
+            if buffers[2] is not None else np.zeros(0, dtype=np.uint8))
+    return offsets, data
+
+
+def _id_words(offsets: np.ndarray, data: np.ndarray, n_words: int,
+              out: np.ndarray) -> None:
+    """Write ids ``data[offsets[i]:offsets[i + 1]]`` as ``n_words`` big-endian uint64 words each,
+    zero-padded: ``out[k, i]`` holds bytes ``8k .. 8k + 7`` of id ``i``."""
+    first, last = int(offsets[0]), int(offsets[-1])
+    if last - first < 8:  # too short for an 8-byte window: pad a copy
+        data = np.concatenate([data[first:last], np.zeros(8, dtype=np.uint8)])
+        offsets = offsets - first
+        first, last = 0, int(offsets[-1])
+    # every 8-byte window of the data, read big-endian: window p holds bytes p .. p + 7
+    windows = np.ndarray(shape=(data.size - 7,), dtype=">u8", buffer=data, strides=(1,))
+    start = offsets[:-1]
+    length = offsets[1:] - start
+    top = data.size - 8  # the last window that lies inside the data
+    for k in range(n_words):
+        at = start + 8 * k
+        np.minimum(at, data.size - 1, out=at)  # past the id's end: masked to 0 below
+        inside = np.minimum(at, top)
+        word = out[k]
+        np.copyto(word, windows[inside], casting="unsafe")
+        if top < last:  # ids that reach into the last 7 bytes: read from an earlier window
+            shift = (at - inside).astype(np.uint64)
+            shift *= np.uint64(8)
+            word <<= shift
+        word &= _KEEP_BYTES[np.clip(length - 8 * k, 0, 8)]
+
+
+def _word_key(words: np.ndarray) -> np.ndarray:
+    """One uint64 key per column of ``words`` (shape (W, m)):
+    ``h = ((...((w_0 K) xor w_1) K ...) xor w_{W-1}) K``, then ``h ^= h >> 31``, with
+    ``K = 0x9E3779B97F4A7C15`` (2**64 over the golden ratio, rounded to odd; Knuth 1998,
+    section 6.4), arithmetic modulo 2**64. Not injective: callers check for collisions."""
+    mix = np.uint64(0x9E3779B97F4A7C15)
+    key = words[0] * mix
+    for k in range(1, words.shape[0]):
+        key ^= words[k]
+        key *= mix
+    key ^= key >> np.uint64(31)
+    return key
+
+
+def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+    """Distinct ids of short-id columns through integer keys, or None when they do not apply.
+
+    An id of at most ``8 W`` UTF-8 bytes (``W <= _MAX_KEY_WORDS``) is read as ``W``
+    big-endian 64-bit words, zero-padded (:func:`_id_words`). Without NUL bytes in the
+    data these words determine the id, and comparing them in turn compares the ids byte by
+    byte: so sorting distinct ids by their words (``numpy.lexsort``) gives UTF-8 byte
+    order, the order Arrow's ``sort_indices`` gives on the strings. Records are grouped by
+    Arrow's hash kernel on one uint64 key: the word itself for ``W = 1``, else a
+    multiply-xorshift mix of the words (:func:`_word_key`), checked afterwards: every
+    record's words must equal those of its group's representative, else (a key collision)
+    None is returned and the caller hashes the strings.
+
+    Returns ``(codes, representatives, order)``: the int32 code of every record (all parts
+    concatenated; codes number the distinct ids in order of first appearance), one record of
+    each distinct id in sorted order, and ``order`` (the code of each sorted position); or
+    None (no records, an id longer than ``8 * _MAX_KEY_WORDS`` bytes, a NUL byte, or a key
+    collision).
+
+    References
+    ----------
+    F. Yergeau, RFC 3629, "UTF-8" (2003), section 1 (byte order of UTF-8 is code point
+    order); D. E. Knuth, The Art of Computer Programming vol. 3 (1998), section 6.4
+    (multiplicative hashing); Apache Arrow compute function ``dictionary_encode``.
+    """
+    buffers = [_string_buffers(p) for p in parts]
+    m = sum(len(p) for p in parts)
+    if m == 0:
+        return None
+    longest = max(int(np.max(np.diff(off))) if off.size > 1 else 0 for off, _ in buffers)
+    n_words = max(1, -(-longest // 8))
+    if n_words > _MAX_KEY_WORDS:
+        return None
+    for offsets, data in buffers:
+        used = data[int(offsets[0]):int(offsets[-1])]
+        if used.size and not used.all():  # a NUL byte: the string path reports it
+            return None
+    words = np.empty((n_words, m), dtype=np.uint64)
+    at = 0
+    for (offsets, data), p in zip(buffers, parts):
+        _id_words(offsets, data, n_words, words[:, at:at + len(p)])
+        at += len(p)
+    del buffers
+    key = words[0] if n_words == 1 else _word_key(words)
+    encoded = pc.dictionary_encode(pa.array(key, type=pa.uint64()))
+    del key
+    codes = encoded.indices.to_numpy(zero_copy_only=False)
+    n = len(encoded.dictionary)
+    del encoded
+    representative = np.empty(n, dtype=np.int64)
+    representative[codes] = np.arange(m, dtype=np.int64)  # any record of each code
+    distinct = words[:, representative]
+    if n_words > 1:
+        for k in range(n_words):
+            if not np.array_equal(distinct[k][codes], words[k]):
+                return None  # two ids share a key
+    del words
+    order = np.lexsort(distinct[::-1])  # first word first: byte order of the ids
+    return codes, representative[order], order
 
 
 def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.ChunkedArray,
@@ -139,16 +257,14 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     """Sorted unique ids and indices of ``source`` and ``target`` into them (int32 while the
     ids number fewer than 2**31, else int64).
 
-    Arrow's hash kernel (``dictionary_encode``) gives each distinct id of the
-    source, target and declared-node columns a code (the distinct ids in order
-    of first appearance). On large inputs the source column and the rest are
-    encoded on two threads and their two dictionaries merged by one more
-    (small) encoding of their concatenation. The distinct ids are sorted
-    by Arrow's ``sort_indices``, which compares strings as UTF-8 bytes - for
-    valid UTF-8 the same as code point order, the order of numpy ``str``
-    arrays - and the codes are mapped through the inverse permutation
-    ``rank[order[i]] = i``. So ``node_ids`` is sorted by code point and
-    ``node_ids[u[k]]`` is the source id of record ``k``.
+    Each distinct id of the source, target and declared-node columns gets a code (the
+    distinct ids in order of first appearance): for ids of at most 32 UTF-8 bytes
+    through integer keys made of their bytes (:func:`_encode_by_words`, which also sorts
+    them), otherwise by Arrow's string hash kernel (``dictionary_encode``), whose distinct
+    ids are then sorted by Arrow's ``sort_indices``. Both sort by UTF-8 bytes - for valid
+    UTF-8 the same as code point order, the order of numpy ``str`` arrays - and the codes
+    are mapped through the inverse permutation ``rank[order[i]] = i``. So ``node_ids`` is
+    sorted by code point and ``node_ids[u[k]]`` is the source id of record ``k``.
 
     References
     ----------
@@ -158,56 +274,25 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     """
     parts = _chunks(source) + _chunks(target) + ([extra] if extra is not None else [])
     parts = [p.cast(pa.string()) if p.type != pa.string() else p for p in parts]
-    n_source = len(_chunks(source))
     m_source, m_target = len(source), len(target)
-    if m_source + m_target >= _PARALLEL_ENCODE_FROM and n_source and len(parts) > n_source:
-        import threading
-
-        halves: list = [None, None]
-
-        def encode_half(i: int, chunk_list: list[pa.Array]) -> None:
-            try:
-                halves[i] = _dictionary_encode(chunk_list)
-            except BaseException as exc:  # noqa: BLE001 - re-raised on the caller's thread
-                halves[i] = exc
-
-        helper = threading.Thread(target=encode_half, args=(1, parts[n_source:]),
-                                  name="cutbook-encode-ids", daemon=True)
-        helper.start()
-        encode_half(0, parts[:n_source])
-        helper.join()
-        for half in halves:
-            if isinstance(half, BaseException):
-                raise half
-        (dict_a, codes_a), (dict_b, codes_b) = halves
-        # the two dictionaries, merged: codes of each half's distinct ids in the merged one
-        dictionary, (map_a, map_b) = _dictionary_encode([dict_a, dict_b])
-        maps = [map_a] * len(codes_a) + [map_b] * len(codes_b)
-        codes = codes_a + codes_b
+    by_words = _encode_by_words(parts)
+    if by_words is not None:
+        codes, representative, order = by_words
+        distinct = pa.chunked_array(parts).take(pa.array(representative))
     else:
         dictionary, codes = _dictionary_encode(parts)
-        maps = [None] * len(codes)
-    if len(dictionary) and pc.any(pc.match_substring(dictionary, "\x00")).as_py():
-        raise InputError("a node id contains a NUL character, which is not supported")
-    order = pc.sort_indices(dictionary).to_numpy()
+        if len(dictionary) and pc.any(pc.match_substring(dictionary, "\x00")).as_py():
+            raise InputError("a node id contains a NUL character, which is not supported")
+        order = pc.sort_indices(dictionary).to_numpy()
+        distinct = dictionary.take(pa.array(order))
     # int32 indices whenever the ids fit (always, short of 2**31 distinct ids): half the memory
     # and bandwidth of int64 in every step after this; pair keys are formed in int64
     index_type = np.int32 if order.size < 2 ** 31 else np.int64
     rank = np.empty(order.size, dtype=index_type)
     rank[order] = np.arange(order.size, dtype=index_type)
-    rank_of = {}
-    all_codes = np.empty(sum(c.size for c in codes), dtype=index_type)
-    at = 0
-    for chunk_codes, mapping in zip(codes, maps):
-        if mapping is None:
-            table = rank
-        else:
-            table = rank_of.get(id(mapping))
-            if table is None:
-                table = rank_of[id(mapping)] = rank[mapping]
-        np.take(table, chunk_codes, out=all_codes[at:at + chunk_codes.size])
-        at += chunk_codes.size
-    node_ids = _string_array_to_numpy(dictionary.take(pa.array(order)))
+    all_codes = rank[codes]
+    del codes
+    node_ids = _string_array_to_numpy(_single(distinct))
     return node_ids, all_codes[:m_source], all_codes[m_source:m_source + m_target]
 
 
@@ -442,8 +527,11 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         # the string columns are done with: free them before the merge and the report (peak
         # memory); the record count stays known
         rec.release_columns()
-        # Arrow's allocator keeps freed pages for reuse: hand them back before numpy's big steps
-        pa.default_memory_pool().release_unused()
+        # Arrow's own allocators keep freed pages for their reuse: hand them back before numpy's
+        # big steps (the C library's malloc, the "system" pool, gives them to numpy as they are)
+        pool = pa.default_memory_pool()
+        if pool.backend_name != "system":
+            pool.release_unused()
     n = int(node_ids.size)
     weight = np.asarray(rec.weight, dtype=np.float64)
     # original record numbers are carried along only where an error may need a line
