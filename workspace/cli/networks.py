@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import contextlib
 import sys
 
 from workspace.cli.common import emit_json, progress_bar, session
@@ -73,6 +74,28 @@ def keep_freed_memory() -> bool:
         return False
 
 
+@contextlib.contextmanager
+def idle_blas_threads_sleep():
+    """Load numpy (and so OpenBLAS) inside this block with ``OPENBLAS_THREAD_TIMEOUT=4``.
+
+    OpenBLAS starts its worker threads when it loads and lets each busy-wait about 2**28 cycles
+    for work before it sleeps (``OPENBLAS_THREAD_TIMEOUT`` sets 2**n, n from 4 to 30): a tenth of
+    a second of CPU per library on an import that does no BLAS work at all. The variable is read
+    when the library loads; it is removed again afterwards (child processes keep the default),
+    and a value the user set is left alone.
+    """
+    import os
+
+    if "OPENBLAS_THREAD_TIMEOUT" in os.environ or "numpy" in sys.modules:
+        yield
+        return
+    os.environ["OPENBLAS_THREAD_TIMEOUT"] = "4"
+    try:
+        yield
+    finally:
+        os.environ.pop("OPENBLAS_THREAD_TIMEOUT", None)
+
+
 def use_system_allocator_for_arrow() -> None:
     """Arrow's buffers from the C library's ``malloc`` (see :func:`keep_freed_memory`): the
     pages its CSV reader and kernels free are then reused by numpy, instead of being purged by
@@ -92,7 +115,8 @@ def cmd_import(args) -> int:
 
     check_names(args.project, args.network)
     keep_freed_memory()
-    load_readers()  # the readers first (numpy, pyarrow): needed at once; imports contend for the GIL
+    with idle_blas_threads_sleep():
+        load_readers()  # the readers first (numpy, pyarrow): needed at once; imports contend for the GIL
     use_system_allocator_for_arrow()
     # the store layer then loads on the other core while the file is parsed and encoded (Arrow's
     # reader and hash kernels and numpy's sorts run without the interpreter lock)

@@ -133,9 +133,8 @@ def _dictionary_encode(parts: list[pa.Array]) -> tuple[pa.Array, np.ndarray]:
 #: ids of at most this many 8-byte words are encoded as integer keys (:func:`_encode_by_words`);
 #: longer ones go through Arrow's string hash kernel
 _MAX_KEY_WORDS = 4
-#: ``_KEEP_BYTES[r]`` keeps the first ``r`` bytes of a big-endian 8-byte word
-_KEEP_BYTES = np.array([0] + [((1 << (8 * r)) - 1) << (64 - 8 * r) for r in range(1, 9)],
-                       dtype=np.uint64)
+#: ``_KEEP_BYTES[r]`` keeps the first ``r`` bytes of a little-endian 8-byte word
+_KEEP_BYTES = np.array([(1 << (8 * r)) - 1 for r in range(9)], dtype=np.uint64)
 
 
 def _string_buffers(values: pa.Array) -> tuple[np.ndarray, np.ndarray]:
@@ -152,42 +151,37 @@ def _string_buffers(values: pa.Array) -> tuple[np.ndarray, np.ndarray]:
 
 def _id_words(offsets: np.ndarray, data: np.ndarray, n_words: int,
               out: np.ndarray) -> None:
-    """Write ids ``data[offsets[i]:offsets[i + 1]]`` as ``n_words`` big-endian uint64 words each,
-    zero-padded: ``out[k, i]`` holds bytes ``8k .. 8k + 7`` of id ``i``."""
-    first, last = int(offsets[0]), int(offsets[-1])
-    if last - first < 8:  # too short for an 8-byte window: pad a copy
-        data = np.concatenate([data[first:last], np.zeros(8, dtype=np.uint8)])
-        offsets = offsets - first
-        first, last = 0, int(offsets[-1])
-    # every 8-byte window of the data, read big-endian: window p holds bytes p .. p + 7
-    windows = np.ndarray(shape=(data.size - 7,), dtype=">u8", buffer=data, strides=(1,))
+    """Write ids ``data[offsets[i]:offsets[i + 1]]`` as ``n_words`` little-endian uint64 words
+    each, zero-padded: byte ``j`` of ``out[k, i]`` (value ``out[k, i] >> 8 j & 255``) is byte
+    ``8 k + j`` of id ``i``, or 0 past its end."""
+    # every 8-byte window of the data: window p holds bytes p .. p + 7 (none if fewer than 8)
+    inner = max(data.size - 7, 0)
+    windows = np.ndarray(shape=(inner,), dtype="<u8", buffer=data, strides=(1,))
+    # windows from the last 7 bytes on, read from a zero-padded copy of them
+    end = np.zeros(data.size - inner + 8 * n_words + 8, dtype=np.uint8)
+    end[:data.size - inner] = data[inner:]
+    end_windows = np.ndarray(shape=(end.size - 7,), dtype="<u8", buffer=end, strides=(1,))
     start = offsets[:-1]
     length = offsets[1:] - start
-    top = data.size - 8  # the last window that lies inside the data
     for k in range(n_words):
-        at = start + 8 * k
-        np.minimum(at, data.size - 1, out=at)  # past the id's end: masked to 0 below
-        inside = np.minimum(at, top)
+        at = start + 8 * k  # non-decreasing
+        tail = int(np.searchsorted(at, inner, side="left"))  # at[tail:] >= inner
+        keep = _KEEP_BYTES[np.clip(length - 8 * k, 0, 8)]
         word = out[k]
-        np.copyto(word, windows[inside], casting="unsafe")
-        if top < last:  # ids that reach into the last 7 bytes: read from an earlier window
-            shift = (at - inside).astype(np.uint64)
-            shift *= np.uint64(8)
-            word <<= shift
-        word &= _KEEP_BYTES[np.clip(length - 8 * k, 0, 8)]
+        np.bitwise_and(windows[at[:tail]], keep[:tail], out=word[:tail])
+        if tail < at.size:
+            np.bitwise_and(end_windows[at[tail:] - inner], keep[tail:], out=word[tail:])
 
 
 def _word_key(words: np.ndarray) -> np.ndarray:
     """One uint64 key per column of ``words`` (shape (W, m)):
-    ``h = ((...((w_0 K) xor w_1) K ...) xor w_{W-1}) K``, then ``h ^= h >> 31``, with
-    ``K = 0x9E3779B97F4A7C15`` (2**64 over the golden ratio, rounded to odd; Knuth 1998,
+    ``h = ((...((w_0 K) xor w_1) K ...) xor w_{W-1}) K`` with ``K = 0x9E3779B97F4A7C15`` (2**64 over the golden ratio, rounded to odd; Knuth 1998,
     section 6.4), arithmetic modulo 2**64. Not injective: callers check for collisions."""
     mix = np.uint64(0x9E3779B97F4A7C15)
     key = words[0] * mix
     for k in range(1, words.shape[0]):
         key ^= words[k]
         key *= mix
-    key ^= key >> np.uint64(31)
     return key
 
 
@@ -195,10 +189,11 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
     """Distinct ids of short-id columns through integer keys, or None when they do not apply.
 
     An id of at most ``8 W`` UTF-8 bytes (``W <= _MAX_KEY_WORDS``) is read as ``W``
-    big-endian 64-bit words, zero-padded (:func:`_id_words`). Without NUL bytes in the
-    data these words determine the id, and comparing them in turn compares the ids byte by
-    byte: so sorting distinct ids by their words (``numpy.lexsort``) gives UTF-8 byte
-    order, the order Arrow's ``sort_indices`` gives on the strings. Records are grouped by
+    64-bit words, zero-padded (:func:`_id_words`). Without NUL bytes in the data these
+    words determine the id, and comparing them in turn, each read as a big-endian number,
+    compares the ids byte by byte: so sorting distinct ids by their byte-swapped words
+    (``numpy.lexsort``) gives UTF-8 byte order, the order Arrow's ``sort_indices`` gives
+    on the strings. Records are grouped by
     Arrow's hash kernel on one uint64 key: the word itself for ``W = 1``, else a
     multiply-xorshift mix of the words (:func:`_word_key`), checked afterwards: every
     record's words must equal those of its group's representative, else (a key collision)
@@ -248,7 +243,8 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
             if not np.array_equal(distinct[k][codes], words[k]):
                 return None  # two ids share a key
     del words
-    order = np.lexsort(distinct[::-1])  # first word first: byte order of the ids
+    # as big-endian numbers the words compare as their bytes do; first word first
+    order = np.lexsort(distinct[::-1].byteswap())
     return codes, representative[order], order
 
 
