@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import gc
 import sys
 
 from workspace.cli.common import emit_json, progress_bar, session
@@ -115,29 +116,39 @@ def cmd_import(args) -> int:
 
     check_names(args.project, args.network)
     keep_freed_memory()
-    with idle_blas_threads_sleep():
-        load_readers()  # the readers first (numpy, pyarrow): needed at once; imports contend for the GIL
-    use_system_allocator_for_arrow()
-    # the store layer then loads on the other core while the file is parsed and encoded (Arrow's
-    # reader and hash kernels and numpy's sorts run without the interpreter lock)
-    warming = warm_imports(*IMPORT_LATER_MODULES)
-    with progress_bar() as bar:
-        # the file is read before the store opens: a bad file leaves no trace in any store
-        try:
-            from workspace.services.nodes import parse_coords
+    # the cyclic garbage collector would only re-walk the objects of the modules loaded here (the
+    # import's own data are a few large arrays): paused until the version is stored
+    collecting = gc.isenabled()
+    gc.disable()
+    try:
+        with idle_blas_threads_sleep():
+            load_readers()  # the readers first (numpy, pyarrow): needed at once; imports contend for the GIL
+        use_system_allocator_for_arrow()
+        # the store layer then loads on the other core while the file is parsed and encoded (Arrow's
+        # reader and hash kernels and numpy's sorts run without the interpreter lock)
+        warming = warm_imports(*IMPORT_LATER_MODULES)
+        with progress_bar() as bar:
+            # the file is read before the store opens: a bad file leaves no trace in any store
+            try:
+                from workspace.services.nodes import parse_coords
 
-            prepared = prepare_import(args.file, format=args.format, policy=_policy(args),
-                                      progress=bar, nodes=args.nodes, nodes_format=args.nodes_format,
-                                      coords=parse_coords(args.coords))
-        finally:
-            warming.join()  # never import the store layer on two threads at once
-        with session(args, writes=True) as (store, out):
-            res = import_network(store, args.file, project=args.project, network=args.network,
-                                 message=args.message, progress=bar, prepared=prepared)
-            bar.close()
-            if not args.json:
-                _print_import(args, out, res)
-            return _after_import(args, store, out, bar, res)
+                prepared = prepare_import(args.file, format=args.format, policy=_policy(args),
+                                          progress=bar, nodes=args.nodes, nodes_format=args.nodes_format,
+                                          coords=parse_coords(args.coords))
+            finally:
+                warming.join()  # never import the store layer on two threads at once
+            with session(args, writes=True) as (store, out):
+                res = import_network(store, args.file, project=args.project, network=args.network,
+                                     message=args.message, progress=bar, prepared=prepared)
+                if collecting:
+                    gc.enable()
+                bar.close()
+                if not args.json:
+                    _print_import(args, out, res)
+                return _after_import(args, store, out, bar, res)
+    finally:
+        if collecting:
+            gc.enable()
 
 
 def _after_import(args, store, out, bar, res) -> int:

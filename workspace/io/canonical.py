@@ -523,11 +523,10 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         # the string columns are done with: free them before the merge and the report (peak
         # memory); the record count stays known
         rec.release_columns()
-        # Arrow's own allocators keep freed pages for their reuse: hand them back before numpy's
-        # big steps (the C library's malloc, the "system" pool, gives them to numpy as they are)
-        pool = pa.default_memory_pool()
-        if pool.backend_name != "system":
-            pool.release_unused()
+        # hand the freed pages back before numpy's big steps (Arrow's own allocators keep them
+        # for their reuse; for the "system" pool this is glibc's malloc_trim, which returns the
+        # free pages inside the heap as well): a lower peak resident size
+        pa.default_memory_pool().release_unused()
     n = int(node_ids.size)
     weight = np.asarray(rec.weight, dtype=np.float64)
     # original record numbers are carried along only where an error may need a line
