@@ -50,19 +50,30 @@ def test_a_freed_block_is_reused_without_new_page_faults():
     assert first >= 16000 and second < 200  # kept in the heap: the second block reuses the pages
 
 
-_BLAS = """
+_SETTINGS = """
 import os, sys
-from workspace.cli.networks import idle_blas_threads_sleep
-with idle_blas_threads_sleep():
-    inside = os.environ.get("OPENBLAS_THREAD_TIMEOUT")
+from workspace.cli.networks import native_library_settings
+with native_library_settings():
+    inside = [os.environ.get(k) for k in ("OPENBLAS_THREAD_TIMEOUT", "NUMPY_MADVISE_HUGEPAGE")]
     import numpy
-print(inside, os.environ.get("OPENBLAS_THREAD_TIMEOUT"))
+after = [os.environ.get(k) for k in ("OPENBLAS_THREAD_TIMEOUT", "NUMPY_MADVISE_HUGEPAGE")]
+print(*inside, *after)
 """
 
 
-def test_openblas_timeout_is_set_only_while_numpy_loads():
-    env = {k: v for k, v in os.environ.items() if k != "OPENBLAS_THREAD_TIMEOUT"}
-    out = subprocess.run([sys.executable, "-c", _BLAS], capture_output=True, text=True, check=True,
+def test_library_settings_are_set_only_while_numpy_loads():
+    names = ("OPENBLAS_THREAD_TIMEOUT", "NUMPY_MADVISE_HUGEPAGE")
+    env = {k: v for k, v in os.environ.items() if k not in names}
+    out = subprocess.run([sys.executable, "-c", _SETTINGS], capture_output=True, text=True, check=True,
                          env={**env, "PYTHONPATH": str(ROOT)}).stdout.split()
-    assert out == ["4", "None"]  # set for the load, gone for child processes
-    assert _run(_BLAS, env={"OPENBLAS_THREAD_TIMEOUT": "20"}).split() == ["20", "20"]  # the user's
+    assert out == ["4", "0", "None", "None"]  # set for the load, gone for child processes
+    # a value the user set is kept, and stays
+    assert _run(_SETTINGS, env={"OPENBLAS_THREAD_TIMEOUT": "20"}).split() == ["20", "0", "20", "None"]
+
+
+def test_numpy_loaded_under_the_settings_gives_no_huge_page_advice():
+    # numpy's own switch reports the advice it follows (numpy reads NUMPY_MADVISE_HUGEPAGE at load)
+    code = ("from workspace.cli.networks import native_library_settings\n"
+            "with native_library_settings():\n    import numpy\n"
+            "from numpy._core.multiarray import _get_madvise_hugepage\nprint(_get_madvise_hugepage())")
+    assert _run(code) == "False"

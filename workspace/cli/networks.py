@@ -75,26 +75,37 @@ def keep_freed_memory() -> bool:
         return False
 
 
-@contextlib.contextmanager
-def idle_blas_threads_sleep():
-    """Load numpy (and so OpenBLAS) inside this block with ``OPENBLAS_THREAD_TIMEOUT=4``.
+#: set while numpy loads for the CLI import (a value the user set wins), removed afterwards
+LOAD_SETTINGS = {
+    # OpenBLAS starts its worker threads when it loads and lets each busy-wait about 2**28 cycles
+    # for work before it sleeps (2**n cycles, n from 4 to 30): a tenth of a second of CPU per
+    # library on an import that does no BLAS work at all
+    "OPENBLAS_THREAD_TIMEOUT": "4",
+    # numpy asks for transparent huge pages on large arrays; with the kernel's usual
+    # defrag=madvise each first touch may then compact memory and clears 2 MiB at a time: on a
+    # busy machine a third of the import's system time, and most of its spread
+    "NUMPY_MADVISE_HUGEPAGE": "0",
+}
 
-    OpenBLAS starts its worker threads when it loads and lets each busy-wait about 2**28 cycles
-    for work before it sleeps (``OPENBLAS_THREAD_TIMEOUT`` sets 2**n, n from 4 to 30): a tenth of
-    a second of CPU per library on an import that does no BLAS work at all. The variable is read
-    when the library loads; it is removed again afterwards (child processes keep the default),
-    and a value the user set is left alone.
-    """
+
+@contextlib.contextmanager
+def native_library_settings():
+    """Load numpy (and so OpenBLAS) inside this block with :data:`LOAD_SETTINGS` in the
+    environment. Both libraries read them when they load; they are removed again afterwards
+    (child processes keep the defaults), and values the user set are left alone. Does nothing
+    once numpy is loaded."""
     import os
 
-    if "OPENBLAS_THREAD_TIMEOUT" in os.environ or "numpy" in sys.modules:
+    if "numpy" in sys.modules:
         yield
         return
-    os.environ["OPENBLAS_THREAD_TIMEOUT"] = "4"
+    added = [name for name in LOAD_SETTINGS if name not in os.environ]
+    os.environ.update({name: LOAD_SETTINGS[name] for name in added})
     try:
         yield
     finally:
-        os.environ.pop("OPENBLAS_THREAD_TIMEOUT", None)
+        for name in added:
+            os.environ.pop(name, None)
 
 
 def use_system_allocator_for_arrow() -> None:
@@ -121,7 +132,7 @@ def cmd_import(args) -> int:
     collecting = gc.isenabled()
     gc.disable()
     try:
-        with idle_blas_threads_sleep():
+        with native_library_settings():
             load_readers()  # the readers first (numpy, pyarrow): needed at once; imports contend for the GIL
         use_system_allocator_for_arrow()
         # the store layer then loads on the other core while the file is parsed and encoded (Arrow's
