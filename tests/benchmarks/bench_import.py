@@ -15,8 +15,9 @@ side's peak resident memory:
 
 * ``cutbook import`` as a user runs it (a fresh interpreter, CLI start-up included) into an
   existing empty store, self-loops kept (networkx keeps them too, so the edge counts agree);
-  best of ``--repeat`` runs, each into a new store; the first import into a store that does not
-  exist yet (which also creates the schema) is printed once as well;
+  best of ``--repeat`` runs, each into a new store (minimum and median of wall and CPU time are
+  printed too); the first import into a store that does not exist yet (which also creates the
+  schema) is printed once as well;
 * in-process ``workspace.io.read_network`` (read + canonicalise + report), best of ``--repeat``;
 * reference: ``networkx.parse_edgelist`` on the same data lines (``delimiter=","``,
   ``nodetype=str``, ``data=(("weight", float),)``), one run, reading the file line by line.
@@ -31,6 +32,7 @@ import argparse
 import json
 import os
 import resource
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -185,6 +187,9 @@ def run_cli(path: Path, repeat: int) -> dict:
     seconds, cpu, doc = min(runs, key=lambda r: r[0])
     fresh_seconds, _, _ = once(path.with_name("cli-new.sqlite"))
     return {"seconds": seconds, "cpu_seconds": cpu, "fresh_seconds": fresh_seconds,
+            "median_seconds": statistics.median(r[0] for r in runs),
+            "min_cpu_seconds": min(r[1] for r in runs),
+            "median_cpu_seconds": statistics.median(r[1] for r in runs),
             "load_average": os.getloadavg()[0], "nodes": doc["nodes"], "edges": doc["edges"],
             "peak_rss_mib": max(peaks),
             "store_mib": sum(f.stat().st_size for f in path.parent.glob("cli-0.sqlite*")) / 2**20}
@@ -209,6 +214,8 @@ def bench_shape(shape: str, path: Path, args) -> float | None:
           f"load {cli['load_average']:.1f})  peak RSS {cli['peak_rss_mib']:7.1f} MiB  "
           f"{cli['nodes']:,} nodes {cli['edges']:,} edges  store {cli['store_mib']:.1f} MiB; "
           f"first import into a new store {cli['fresh_seconds']:.3f} s")
+    print(f"  over {args.repeat} runs: wall min {cli['seconds']:.3f} s, median {cli['median_seconds']:.3f} s; "
+          f"CPU min {cli['min_cpu_seconds']:.2f} s, median {cli['median_cpu_seconds']:.2f} s")
     ours = run_child("cutbook", path, args.repeat)
     print(f"read_network in-process {ours['seconds']:7.3f} s (CPU {ours['cpu_seconds']:.2f} s, "
           f"load {ours['load_average']:.1f})  peak RSS {ours['peak_rss_mib']:7.1f} MiB "

@@ -121,24 +121,102 @@ def test_a_line_longer_than_the_parser_block_is_read(tmp_path):
     assert graph.node_ids.tolist() == ["a", "b", "c"] and graph.n_edges == 2
 
 
-def test_two_thread_encoding_gives_the_single_pass_result(monkeypatch):
-    # the large-input path (source and target hashed on two threads, dictionaries merged) against
-    # Python's sorted(set()) of the same ids (code point order), with several chunks and declared nodes
+#: ids of at most 32 UTF-8 bytes (the integer-key path): prefixes of one another, bytes above
+#: 0x7f (which sort after ASCII as unsigned bytes), 1- to 4-byte UTF-8, lengths around the
+#: 8-byte word boundaries
+SHORT = [
+    "a", "ab", "abc", "ab c", "ab\x01", "b", "B", "z", "~", "\x7f", "é", "ée", "e\u0301",
+    "中", "中文", "\U0001F600", "\U0001F600x", "\uFF5E", "\uE000",
+    "1234567", "12345678", "123456789", "1234567\u00e9", "abcdefgh", "abcdefghi",
+    "abcdefgh" * 2, "abcdefgh" * 2 + "a", "abcdefgh" * 3 + "abcdefg", "abcdefgh" * 4,
+    "abcdefgh" * 3 + "abcdef" + "é",  # 32 bytes ending in a 2-byte character
+    "station-3f9a1c07", "station-3f9a1c08", "depot-0b7e55d1",
+]
+assert max(len(x.encode()) for x in SHORT) == 32
+
+
+def _random_short_ids(rng, count: int) -> list[str]:
+    alphabet = list("abcxyzABC019-_ ") + ["é", "ß", "中", "\U0001F600"]
+    out = set()
+    while len(out) < count:
+        word = "".join(rng.choice(alphabet, size=int(rng.integers(1, 12))))
+        if len(word.encode()) <= 32:
+            out.add(word)
+    return sorted(out)
+
+
+def _check_encoding(src, dst, extra_ids, source, target, extra):
+    node_ids, u, v = encode_ids(source, target, extra)
+    # reference: Python's sorted(set()) on str (code point order)
+    assert [str(x) for x in node_ids] == sorted(set(src) | set(dst) | set(extra_ids))
+    assert [str(node_ids[i]) for i in u] == src and [str(node_ids[i]) for i in v] == dst
+    return node_ids, u, v
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_short_ids_take_the_integer_key_path_and_sort_by_code_point(monkeypatch, seed):
     import pyarrow as pa
 
     from workspace.io import canonical
 
-    rng = np.random.default_rng(11)
-    pool = TRICKY + [f"n{i}" for i in range(300)]
-    src = [pool[i] for i in rng.integers(0, len(pool), 700)]
-    dst = [pool[i] for i in rng.integers(0, 50, 400)]  # target uses only some ids
-    extra = pa.array(["zz-only-declared", "ä"], pa.string())
-    source = pa.chunked_array([pa.array(src[:300]), pa.array(src[300:])])
-    target = pa.chunked_array([pa.array(dst[:7]), pa.array(dst[7:])])
-    monkeypatch.setattr(canonical, "_PARALLEL_ENCODE_FROM", 0)
-    node_ids, u, v = encode_ids(source, target, extra)
-    assert [str(x) for x in node_ids] == sorted(set(src) | set(dst) | {"zz-only-declared", "ä"})
-    assert [str(node_ids[i]) for i in u] == src and [str(node_ids[i]) for i in v] == dst
-    monkeypatch.setattr(canonical, "_PARALLEL_ENCODE_FROM", 1 << 62)
-    single = encode_ids(source, target, extra)
-    assert all(np.array_equal(a, b) for a, b in zip((node_ids, u, v), single))
+    taken = []
+    original = canonical._encode_by_words
+    monkeypatch.setattr(canonical, "_encode_by_words",
+                        lambda parts: taken.append(original(parts)) or taken[-1])
+    rng = np.random.default_rng(seed)
+    pool = SHORT + _random_short_ids(rng, 300)
+    src = [pool[i] for i in rng.integers(0, len(pool), 900)]
+    dst = [pool[i] for i in rng.integers(0, len(pool) // 2, 700)]
+    extra_ids = ["zz-only-declared", "é"]
+    # several chunks, one of them a slice (non-zero offset), as the CSV reader produces them
+    lead = pa.array(["header-a"] + src[:300])
+    source = pa.chunked_array([lead.slice(1), pa.array(src[300:])])
+    target = pa.chunked_array([pa.array(dst[:1]), pa.array(dst[1:500]), pa.array(dst[500:])])
+    encoded = _check_encoding(src, dst, extra_ids, source, target, pa.array(extra_ids))
+    assert taken and taken[0] is not None  # the integer keys were used
+    # the string hash path (Arrow's dictionary_encode + sort_indices) gives the same arrays
+    monkeypatch.setattr(canonical, "_MAX_KEY_WORDS", 0)
+    by_strings = encode_ids(source, target, pa.array(extra_ids))
+    assert taken[-1] is None
+    assert all(np.array_equal(a, b) for a, b in zip(encoded, by_strings))
+
+
+def test_ids_at_the_end_of_short_buffers():
+    import pyarrow as pa
+
+    # data buffers shorter than one 8-byte word, and ids that end the buffer
+    _check_encoding(["a"], ["b"], [], pa.array(["a"]), pa.array(["b"]), None)
+    _check_encoding(["ab", "c"], ["c", "abcdefgh"], [], pa.array(["ab", "c"]),
+                    pa.array(["c", "abcdefgh"]), None)
+    tail = ["x" * k for k in range(1, 17)]
+    _check_encoding(tail, tail[::-1], [], pa.array(tail), pa.array(tail[::-1]), None)
+    sliced = pa.array(["first-long-id", "é", "ab"]).slice(1)
+    _check_encoding(["é", "ab"], ["ab", "ab"], [], sliced, pa.array(["ab", "ab"]), None)
+
+
+def test_a_key_collision_falls_back_to_hashing_the_strings(monkeypatch):
+    import pyarrow as pa
+
+    from workspace.io import canonical
+
+    taken = []
+    original = canonical._encode_by_words
+    monkeypatch.setattr(canonical, "_encode_by_words",
+                        lambda parts: taken.append(original(parts)) or taken[-1])
+    # every id gets the same key: the check against each group's representative must see it
+    monkeypatch.setattr(canonical, "_word_key", lambda words: np.zeros(words.shape[1], np.uint64))
+    src = ["abcdefghij", "abcdefghik", "zz", "abcdefghij"]
+    dst = ["zz", "yy-longer-than-8", "abcdefghik", "q"]
+    _check_encoding(src, dst, [], pa.array(src), pa.array(dst), None)
+    assert taken == [None]
+
+
+def test_a_nul_byte_takes_the_string_path_and_is_refused():
+    import pyarrow as pa
+
+    from workspace.errors import InputError
+
+    with pytest.raises(InputError, match="NUL character"):
+        encode_ids(pa.array(["a", "b\x00"]), pa.array(["b", "a"]), None)
+    with pytest.raises(InputError, match="NUL character"):  # "a" and "a\0" would share words
+        encode_ids(pa.array(["a"]), pa.array(["a\x00"]), None)

@@ -2,6 +2,10 @@
 
 from __future__ import annotations
 
+import contextlib
+import gc
+import sys
+
 from workspace.cli.common import emit_json, progress_bar, session
 
 
@@ -42,33 +46,120 @@ def print_report(out, report: dict) -> None:
             out.line(f"  note: {n}")
 
 
+#: glibc ``mallopt`` parameters (malloc.h)
+_M_TRIM_THRESHOLD, _M_MMAP_MAX = -1, -4
+
+
+def keep_freed_memory() -> bool:
+    """Let this (short-lived) process reuse the memory it frees instead of handing it back.
+
+    An import allocates and frees many arrays of tens of MiB. glibc serves each from a fresh
+    ``mmap`` and unmaps it on ``free``, so the kernel zeroes every page of every such array
+    again on first touch: on a 2M-edge file about a quarter of the CPU time went to the kernel's
+    page clearing. With ``M_MMAP_MAX = 0`` large blocks come from the heap (glibc still maps
+    memory when the heap cannot grow) and with a high ``M_TRIM_THRESHOLD`` freed blocks stay in
+    it for the next array; the peak resident size stays that of the largest live set. Only for
+    commands that end after their work (the CLI import), never for the long-lived UI. False when
+    the C library is not glibc (nothing is changed then).
+    """
+    import platform
+
+    if not sys.platform.startswith("linux") or platform.libc_ver()[0] != "glibc":
+        return False
+    try:
+        import ctypes
+
+        libc = ctypes.CDLL("libc.so.6")
+        return bool(libc.mallopt(_M_MMAP_MAX, 0)) and bool(libc.mallopt(_M_TRIM_THRESHOLD, 2 ** 31 - 1))
+    except (OSError, AttributeError):
+        return False
+
+
+#: set while numpy loads for the CLI import (a value the user set wins), removed afterwards
+LOAD_SETTINGS = {
+    # OpenBLAS starts its worker threads when it loads and lets each busy-wait about 2**28 cycles
+    # for work before it sleeps (2**n cycles, n from 4 to 30): a tenth of a second of CPU per
+    # library on an import that does no BLAS work at all
+    "OPENBLAS_THREAD_TIMEOUT": "4",
+    # numpy asks for transparent huge pages on large arrays; with the kernel's usual
+    # defrag=madvise each first touch may then compact memory and clears 2 MiB at a time: on a
+    # busy machine a third of the import's system time, and most of its spread
+    "NUMPY_MADVISE_HUGEPAGE": "0",
+}
+
+
+@contextlib.contextmanager
+def native_library_settings():
+    """Load numpy (and so OpenBLAS) inside this block with :data:`LOAD_SETTINGS` in the
+    environment. Both libraries read them when they load; they are removed again afterwards
+    (child processes keep the defaults), and values the user set are left alone. Does nothing
+    once numpy is loaded."""
+    import os
+
+    if "numpy" in sys.modules:
+        yield
+        return
+    added = [name for name in LOAD_SETTINGS if name not in os.environ]
+    os.environ.update({name: LOAD_SETTINGS[name] for name in added})
+    try:
+        yield
+    finally:
+        for name in added:
+            os.environ.pop(name, None)
+
+
+def use_system_allocator_for_arrow() -> None:
+    """Arrow's buffers from the C library's ``malloc`` (see :func:`keep_freed_memory`): the
+    pages its CSV reader and kernels free are then reused by numpy, instead of being purged by
+    Arrow's own allocator and zeroed again by the kernel."""
+    import pyarrow as pa
+
+    try:
+        pa.set_memory_pool(pa.system_memory_pool())
+    except (NotImplementedError, pa.ArrowException):
+        pass
+
+
 def cmd_import(args) -> int:
     from workspace.cli.common import warm_imports
     from workspace.services.networks import (IMPORT_LATER_MODULES, check_names, import_network,
                                              load_readers, prepare_import)
 
     check_names(args.project, args.network)
-    load_readers()  # the readers first (numpy, pyarrow): needed at once; imports contend for the GIL
-    # the store layer then loads on the other core while the file is parsed and encoded (Arrow's
-    # reader and hash kernels and numpy's sorts run without the interpreter lock)
-    warming = warm_imports(*IMPORT_LATER_MODULES)
-    with progress_bar() as bar:
-        # the file is read before the store opens: a bad file leaves no trace in any store
-        try:
-            from workspace.services.nodes import parse_coords
+    keep_freed_memory()
+    # the cyclic garbage collector would only re-walk the objects of the modules loaded here (the
+    # import's own data are a few large arrays): paused until the version is stored
+    collecting = gc.isenabled()
+    gc.disable()
+    try:
+        with native_library_settings():
+            load_readers()  # the readers first (numpy, pyarrow): needed at once; imports contend for the GIL
+        use_system_allocator_for_arrow()
+        # the store layer then loads on the other core while the file is parsed and encoded (Arrow's
+        # reader and hash kernels and numpy's sorts run without the interpreter lock)
+        warming = warm_imports(*IMPORT_LATER_MODULES)
+        with progress_bar() as bar:
+            # the file is read before the store opens: a bad file leaves no trace in any store
+            try:
+                from workspace.services.nodes import parse_coords
 
-            prepared = prepare_import(args.file, format=args.format, policy=_policy(args),
-                                      progress=bar, nodes=args.nodes, nodes_format=args.nodes_format,
-                                      coords=parse_coords(args.coords))
-        finally:
-            warming.join()  # never import the store layer on two threads at once
-        with session(args, writes=True) as (store, out):
-            res = import_network(store, args.file, project=args.project, network=args.network,
-                                 message=args.message, progress=bar, prepared=prepared)
-            bar.close()
-            if not args.json:
-                _print_import(args, out, res)
-            return _after_import(args, store, out, bar, res)
+                prepared = prepare_import(args.file, format=args.format, policy=_policy(args),
+                                          progress=bar, nodes=args.nodes, nodes_format=args.nodes_format,
+                                          coords=parse_coords(args.coords))
+            finally:
+                warming.join()  # never import the store layer on two threads at once
+            with session(args, writes=True) as (store, out):
+                res = import_network(store, args.file, project=args.project, network=args.network,
+                                     message=args.message, progress=bar, prepared=prepared)
+                if collecting:
+                    gc.enable()
+                bar.close()
+                if not args.json:
+                    _print_import(args, out, res)
+                return _after_import(args, store, out, bar, res)
+    finally:
+        if collecting:
+            gc.enable()
 
 
 def _after_import(args, store, out, bar, res) -> int:

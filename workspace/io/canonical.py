@@ -2,7 +2,7 @@
 
 All steps are vectorised: pyarrow.compute dictionary encoding and sorting for ids, numpy
 sorting of int64 pair keys ``lo * n + hi`` for duplicates and symmetrisation,
-``scipy.sparse.csgraph.connected_components`` for the report.
+numpy hooking and pointer jumping for the report's connected components.
 """
 
 from __future__ import annotations
@@ -112,16 +112,11 @@ def _string_array_to_numpy(values: pa.Array) -> np.ndarray:
     return decode_node_ids(offsets, data)
 
 
-#: records from which the two endpoint columns are hashed on two threads (Arrow's kernels
-#: release the interpreter lock); below it one pass is quicker than the extra merge
-_PARALLEL_ENCODE_FROM = 1 << 20
-
-
-def _dictionary_encode(parts: list[pa.Array]) -> tuple[pa.Array, list[np.ndarray]]:
+def _dictionary_encode(parts: list[pa.Array]) -> tuple[pa.Array, np.ndarray]:
     """One pass of Arrow's hash kernel over ``parts``: (distinct ids in order of first
-    appearance, int32 codes of each part into them)."""
+    appearance, int32 codes of all parts, concatenated, into them)."""
     if not parts:
-        return pa.array([], pa.string()), []
+        return pa.array([], pa.string()), np.zeros(0, dtype=np.int32)
     encoded = pc.dictionary_encode(pa.chunked_array(parts, type=pa.string()))
     chunks = encoded.chunks
     dictionary = chunks[-1].dictionary if chunks else pa.array([], pa.string())
@@ -131,7 +126,126 @@ def _dictionary_encode(parts: list[pa.Array]) -> tuple[pa.Array, list[np.ndarray
             dictionary.slice(0, len(c.dictionary))) for c in chunks):
         chunks = pa.table({"id": encoded}).unify_dictionaries().column("id").chunks
         dictionary = chunks[0].dictionary
-    return dictionary, [c.indices.to_numpy(zero_copy_only=False) for c in chunks]
+    codes = [c.indices.to_numpy(zero_copy_only=False) for c in chunks]
+    return dictionary, (np.concatenate(codes) if len(codes) != 1 else codes[0])
+
+
+#: ids of at most this many 8-byte words are encoded as integer keys (:func:`_encode_by_words`);
+#: longer ones go through Arrow's string hash kernel
+_MAX_KEY_WORDS = 4
+#: ``_KEEP_BYTES[r]`` keeps the first ``r`` bytes of a little-endian 8-byte word
+_KEEP_BYTES = np.array([(1 << (8 * r)) - 1 for r in range(9)], dtype=np.uint64)
+
+
+def _string_buffers(values: pa.Array) -> tuple[np.ndarray, np.ndarray]:
+    """(int64 offsets of length n + 1, uint8 data) of a string or large_string array."""
+    n = len(values)
+    offset_type = np.int64 if values.type == pa.large_string() else np.int32
+    buffers = values.buffers()
+    offsets = np.frombuffer(buffers[1], dtype=offset_type, count=n + 1,
+                            offset=values.offset * np.dtype(offset_type).itemsize).astype(np.int64)
+    data = (np.frombuffer(buffers[2], dtype=np.uint8)
+            if buffers[2] is not None else np.zeros(0, dtype=np.uint8))
+    return offsets, data
+
+
+def _id_words(offsets: np.ndarray, data: np.ndarray, n_words: int,
+              out: np.ndarray) -> None:
+    """Write ids ``data[offsets[i]:offsets[i + 1]]`` as ``n_words`` little-endian uint64 words
+    each, zero-padded: byte ``j`` of ``out[k, i]`` (value ``out[k, i] >> 8 j & 255``) is byte
+    ``8 k + j`` of id ``i``, or 0 past its end."""
+    # every 8-byte window of the data: window p holds bytes p .. p + 7 (none if fewer than 8)
+    inner = max(data.size - 7, 0)
+    windows = np.ndarray(shape=(inner,), dtype="<u8", buffer=data, strides=(1,))
+    # windows from the last 7 bytes on, read from a zero-padded copy of them
+    end = np.zeros(data.size - inner + 8 * n_words + 8, dtype=np.uint8)
+    end[:data.size - inner] = data[inner:]
+    end_windows = np.ndarray(shape=(end.size - 7,), dtype="<u8", buffer=end, strides=(1,))
+    start = offsets[:-1]
+    length = offsets[1:] - start
+    for k in range(n_words):
+        at = start + 8 * k  # non-decreasing
+        tail = int(np.searchsorted(at, inner, side="left"))  # at[tail:] >= inner
+        keep = _KEEP_BYTES[np.clip(length - 8 * k, 0, 8)]
+        word = out[k]
+        np.bitwise_and(windows[at[:tail]], keep[:tail], out=word[:tail])
+        if tail < at.size:
+            np.bitwise_and(end_windows[at[tail:] - inner], keep[tail:], out=word[tail:])
+
+
+def _word_key(words: np.ndarray) -> np.ndarray:
+    """One uint64 key per column of ``words`` (shape (W, m)):
+    ``h = ((...((w_0 K) xor w_1) K ...) xor w_{W-1}) K`` with ``K = 0x9E3779B97F4A7C15`` (2**64 over the golden ratio, rounded to odd; Knuth 1998,
+    section 6.4), arithmetic modulo 2**64. Not injective: callers check for collisions."""
+    mix = np.uint64(0x9E3779B97F4A7C15)
+    key = words[0] * mix
+    for k in range(1, words.shape[0]):
+        key ^= words[k]
+        key *= mix
+    return key
+
+
+def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+    """Distinct ids of short-id columns through integer keys, or None when they do not apply.
+
+    An id of at most ``8 W`` UTF-8 bytes (``W <= _MAX_KEY_WORDS``) is read as ``W``
+    64-bit words, zero-padded (:func:`_id_words`). Without NUL bytes in the data these
+    words determine the id, and comparing them in turn, each read as a big-endian number,
+    compares the ids byte by byte: so sorting distinct ids by their byte-swapped words
+    (``numpy.lexsort``) gives UTF-8 byte order, the order Arrow's ``sort_indices`` gives
+    on the strings. Records are grouped by
+    Arrow's hash kernel on one uint64 key: the word itself for ``W = 1``, else a
+    multiply-xorshift mix of the words (:func:`_word_key`), checked afterwards: every
+    record's words must equal those of its group's representative, else (a key collision)
+    None is returned and the caller hashes the strings.
+
+    Returns ``(codes, representatives, order)``: the int32 code of every record (all parts
+    concatenated; codes number the distinct ids in order of first appearance), one record of
+    each distinct id in sorted order, and ``order`` (the code of each sorted position); or
+    None (no records, an id longer than ``8 * _MAX_KEY_WORDS`` bytes, a NUL byte, or a key
+    collision).
+
+    References
+    ----------
+    F. Yergeau, RFC 3629, "UTF-8" (2003), section 1 (byte order of UTF-8 is code point
+    order); D. E. Knuth, The Art of Computer Programming vol. 3 (1998), section 6.4
+    (multiplicative hashing); Apache Arrow compute function ``dictionary_encode``.
+    """
+    buffers = [_string_buffers(p) for p in parts]
+    m = sum(len(p) for p in parts)
+    if m == 0:
+        return None
+    longest = max(int(np.max(np.diff(off))) if off.size > 1 else 0 for off, _ in buffers)
+    n_words = max(1, -(-longest // 8))
+    if n_words > _MAX_KEY_WORDS:
+        return None
+    for offsets, data in buffers:
+        used = data[int(offsets[0]):int(offsets[-1])]
+        if used.size and not used.all():  # a NUL byte: the string path reports it
+            return None
+    words = np.empty((n_words, m), dtype=np.uint64)
+    at = 0
+    for (offsets, data), p in zip(buffers, parts):
+        _id_words(offsets, data, n_words, words[:, at:at + len(p)])
+        at += len(p)
+    del buffers
+    key = words[0] if n_words == 1 else _word_key(words)
+    encoded = pc.dictionary_encode(pa.array(key, type=pa.uint64()))
+    del key
+    codes = encoded.indices.to_numpy(zero_copy_only=False)
+    n = len(encoded.dictionary)
+    del encoded
+    representative = np.empty(n, dtype=np.int64)
+    representative[codes] = np.arange(m, dtype=np.int64)  # any record of each code
+    distinct = words[:, representative]
+    if n_words > 1:
+        for k in range(n_words):
+            if not np.array_equal(distinct[k][codes], words[k]):
+                return None  # two ids share a key
+    del words
+    # as big-endian numbers the words compare as their bytes do; first word first
+    order = np.lexsort(distinct[::-1].byteswap())
+    return codes, representative[order], order
 
 
 def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.ChunkedArray,
@@ -139,16 +253,14 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     """Sorted unique ids and indices of ``source`` and ``target`` into them (int32 while the
     ids number fewer than 2**31, else int64).
 
-    Arrow's hash kernel (``dictionary_encode``) gives each distinct id of the
-    source, target and declared-node columns a code (the distinct ids in order
-    of first appearance). On large inputs the source column and the rest are
-    encoded on two threads and their two dictionaries merged by one more
-    (small) encoding of their concatenation. The distinct ids are sorted
-    by Arrow's ``sort_indices``, which compares strings as UTF-8 bytes - for
-    valid UTF-8 the same as code point order, the order of numpy ``str``
-    arrays - and the codes are mapped through the inverse permutation
-    ``rank[order[i]] = i``. So ``node_ids`` is sorted by code point and
-    ``node_ids[u[k]]`` is the source id of record ``k``.
+    Each distinct id of the source, target and declared-node columns gets a code (the
+    distinct ids in order of first appearance): for ids of at most 32 UTF-8 bytes
+    through integer keys made of their bytes (:func:`_encode_by_words`, which also sorts
+    them), otherwise by Arrow's string hash kernel (``dictionary_encode``), whose distinct
+    ids are then sorted by Arrow's ``sort_indices``. Both sort by UTF-8 bytes - for valid
+    UTF-8 the same as code point order, the order of numpy ``str`` arrays - and the codes
+    are mapped through the inverse permutation ``rank[order[i]] = i``. So ``node_ids`` is
+    sorted by code point and ``node_ids[u[k]]`` is the source id of record ``k``.
 
     References
     ----------
@@ -158,56 +270,25 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     """
     parts = _chunks(source) + _chunks(target) + ([extra] if extra is not None else [])
     parts = [p.cast(pa.string()) if p.type != pa.string() else p for p in parts]
-    n_source = len(_chunks(source))
     m_source, m_target = len(source), len(target)
-    if m_source + m_target >= _PARALLEL_ENCODE_FROM and n_source and len(parts) > n_source:
-        import threading
-
-        halves: list = [None, None]
-
-        def encode_half(i: int, chunk_list: list[pa.Array]) -> None:
-            try:
-                halves[i] = _dictionary_encode(chunk_list)
-            except BaseException as exc:  # noqa: BLE001 - re-raised on the caller's thread
-                halves[i] = exc
-
-        helper = threading.Thread(target=encode_half, args=(1, parts[n_source:]),
-                                  name="cutbook-encode-ids", daemon=True)
-        helper.start()
-        encode_half(0, parts[:n_source])
-        helper.join()
-        for half in halves:
-            if isinstance(half, BaseException):
-                raise half
-        (dict_a, codes_a), (dict_b, codes_b) = halves
-        # the two dictionaries, merged: codes of each half's distinct ids in the merged one
-        dictionary, (map_a, map_b) = _dictionary_encode([dict_a, dict_b])
-        maps = [map_a] * len(codes_a) + [map_b] * len(codes_b)
-        codes = codes_a + codes_b
+    by_words = _encode_by_words(parts)
+    if by_words is not None:
+        codes, representative, order = by_words
+        distinct = pa.chunked_array(parts).take(pa.array(representative))
     else:
         dictionary, codes = _dictionary_encode(parts)
-        maps = [None] * len(codes)
-    if len(dictionary) and pc.any(pc.match_substring(dictionary, "\x00")).as_py():
-        raise InputError("a node id contains a NUL character, which is not supported")
-    order = pc.sort_indices(dictionary).to_numpy()
+        if len(dictionary) and pc.any(pc.match_substring(dictionary, "\x00")).as_py():
+            raise InputError("a node id contains a NUL character, which is not supported")
+        order = pc.sort_indices(dictionary).to_numpy()
+        distinct = dictionary.take(pa.array(order))
     # int32 indices whenever the ids fit (always, short of 2**31 distinct ids): half the memory
     # and bandwidth of int64 in every step after this; pair keys are formed in int64
     index_type = np.int32 if order.size < 2 ** 31 else np.int64
     rank = np.empty(order.size, dtype=index_type)
     rank[order] = np.arange(order.size, dtype=index_type)
-    rank_of = {}
-    all_codes = np.empty(sum(c.size for c in codes), dtype=index_type)
-    at = 0
-    for chunk_codes, mapping in zip(codes, maps):
-        if mapping is None:
-            table = rank
-        else:
-            table = rank_of.get(id(mapping))
-            if table is None:
-                table = rank_of[id(mapping)] = rank[mapping]
-        np.take(table, chunk_codes, out=all_codes[at:at + chunk_codes.size])
-        at += chunk_codes.size
-    node_ids = _string_array_to_numpy(dictionary.take(pa.array(order)))
+    all_codes = rank[codes]
+    del codes
+    node_ids = _string_array_to_numpy(_single(distinct))
     return node_ids, all_codes[:m_source], all_codes[m_source:m_source + m_target]
 
 
@@ -442,7 +523,9 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         # the string columns are done with: free them before the merge and the report (peak
         # memory); the record count stays known
         rec.release_columns()
-        # Arrow's allocator keeps freed pages for reuse: hand them back before numpy's big steps
+        # hand the freed pages back before numpy's big steps (Arrow's own allocators keep them
+        # for their reuse; for the "system" pool this is glibc's malloc_trim, which returns the
+        # free pages inside the heap as well): a lower peak resident size
         pa.default_memory_pool().release_unused()
     n = int(node_ids.size)
     weight = np.asarray(rec.weight, dtype=np.float64)
@@ -559,29 +642,81 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
     return graph, report
 
 
+#: outer rounds of :func:`component_labels` before it hands over to scipy (never reached on the
+#: graphs tried, paths in any node order included: see the tests); plus 4 per bit of n
+_COMPONENT_ROUNDS = 16
+
+
+def component_labels(n: int, u: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """Connected components of the undirected graph on ``n`` nodes with edges ``(u[k], v[k])``:
+    ``labels[i]`` is the smallest node of ``i``'s component.
+
+    Min-label hooking with pointer jumping, in whole-array steps: with a forest ``p``
+    (``p[i] <= i``, roots ``p[r] = r``, at first ``p = 0..n-1``) each round takes the edges whose
+    endpoints lie in different trees, with roots ``a < b``, and sets ``p[b] = min(p[b], a)``
+    (``numpy.minimum.at``: every root with a smaller-rooted neighbour hooks under one), then
+    ``p = p[p]`` until nothing changes (each tree becomes a star). Edges inside one tree are dropped
+    for good: trees only merge. Rounds stop when no edge joins two trees. Each pointer-jumping pass
+    halves the depth, so at most ``log2 n + 1`` of them follow a round; each round hooks at least
+    the largest root met, and after ``_COMPONENT_ROUNDS + 4 * bit_length(n)`` rounds (not reached
+    on any graph tried) the result comes from ``scipy.sparse.csgraph.connected_components``
+    instead. Loops (``u == v``) are ignored.
+
+    Returns int32 labels (int64 from 2**31 nodes).
+
+    References
+    ----------
+    Y. Shiloach and U. Vishkin, "An O(log n) parallel connectivity algorithm", J. Algorithms 3
+    (1982) 57-67 (hooking and pointer jumping); scipy ``sparse.csgraph.connected_components``.
+    """
+    index_type = np.int32 if n < 2 ** 31 else np.int64
+    parent = np.arange(n, dtype=index_type)
+    proper = u != v
+    a = u[proper].astype(index_type, copy=False)
+    b = v[proper].astype(index_type, copy=False)
+    del proper
+    max_jumps = n.bit_length() + 1
+    for _ in range(_COMPONENT_ROUNDS + 4 * n.bit_length()):
+        root_a, root_b = parent[a], parent[b]
+        low = np.minimum(root_a, root_b)
+        high = np.maximum(root_a, root_b, out=root_b)
+        cross = low != high
+        if not cross.all():
+            a, b, low, high = a[cross], b[cross], low[cross], high[cross]
+        if a.size == 0:
+            return parent
+        np.minimum.at(parent, high, low)
+        for _ in range(max_jumps):
+            grand = parent[parent]
+            if np.array_equal(grand, parent):
+                break
+            parent = grand
+    from scipy.sparse import coo_array
+    from scipy.sparse.csgraph import connected_components
+
+    _, labels = connected_components(coo_array((np.ones(u.size), (u, v)), shape=(n, n)).tocsr(),
+                                     directed=False)
+    # the smallest node of each component labels it, as above
+    first = np.full(int(labels.max()) + 1 if n else 0, n, dtype=np.int64)
+    np.minimum.at(first, labels, np.arange(n))
+    return first[labels].astype(index_type)
+
+
 def build_report(graph: GraphData, rec: EdgeRecords, records_read: int, loops_found: int,
                  loops_kept: int, merged: int, asymmetric: int, zero_dropped: int,
                  notes: list[str]) -> ImportReport:
     """The validation report of a canonical graph.
 
-    Components come from ``scipy.sparse.csgraph.connected_components``
-    (undirected). A node is isolated when no edge joins it to another node
-    (a node with only a self-loop counts as isolated).
+    Components (undirected, also for a directed graph) come from :func:`component_labels`.
+    A node is isolated when no edge joins it to another node (a node with only a self-loop
+    counts as isolated).
     """
-    import scipy.sparse as sp
-    from scipy.sparse.csgraph import connected_components
-
     n, m = graph.n_nodes, graph.n_edges
     u, v, w = graph.edge_u, graph.edge_v, graph.weight
-    # int32 indices while they fit: csgraph works on int32 and would otherwise convert a copy
-    index_type = np.int32 if max(n, m) < 2 ** 31 else np.int64
-    indptr = np.zeros(n + 1, dtype=index_type)
-    np.cumsum(np.bincount(u, minlength=n), out=indptr[1:])
-    # edges are sorted by (u, v): u and v already are CSR row order and column indices
-    # float64 data: csgraph works in float64 and would otherwise convert a copy
-    adjacency = sp.csr_array((w, v.astype(index_type, copy=False), indptr), shape=(n, n))
-    n_components, labels = connected_components(adjacency, directed=False)
-    sizes = np.sort(np.bincount(labels, minlength=n_components))[::-1]
+    labels = component_labels(n, u, v)
+    sizes = np.bincount(labels, minlength=n)
+    sizes = np.sort(sizes[sizes > 0])[::-1]
+    n_components = sizes.size
     proper = u != v
     degree = np.bincount(u[proper], minlength=n) + np.bincount(v[proper], minlength=n)
     summary = {

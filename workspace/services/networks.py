@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import json
 import os
-import sys
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any, Callable
 
@@ -70,7 +69,6 @@ def version_summary(v: NetworkVersion, project: str, network: str) -> dict[str, 
 #: it opens the store (so that no two threads import the same package at once).
 IMPORT_LATER_MODULES = ("workspace.services.store", "workspace.services.runs",
                         "workspace.store.repo")
-_DELIMITED = ("csv", "tsv", "edgelist")
 
 
 def load_readers() -> None:
@@ -108,7 +106,7 @@ def prepare_import(path: str | os.PathLike, *, format: str | None = None,
     import threading
 
     from workspace.domain import encode_node_ids
-    from workspace.io import format_from_path, read_network
+    from workspace.io import read_network
 
     policy = policy or ImportPolicy()
     done: dict[str, Any] = {}
@@ -119,24 +117,6 @@ def prepare_import(path: str | os.PathLike, *, format: str | None = None,
         thread.start()
         threads.append(thread)
         return thread
-
-    def load_scipy() -> None:
-        try:
-            import scipy.sparse.csgraph  # noqa: F401  the report's components
-        except BaseException:  # noqa: BLE001 - the report's own import raises it
-            pass
-
-    # scipy loads beside Arrow's parsing of a delimited file (the other readers may import scipy
-    # themselves, and one package must never be imported by two threads at once: SciPy's lazy
-    # submodules are not safe for that); the thread is joined before the report imports scipy
-    scipy_thread = None
-    try:
-        delimited = (format or format_from_path(path)) in _DELIMITED
-    except Exception:  # noqa: BLE001 - read_network reports a bad path or extension itself
-        delimited = False
-    if delimited and "scipy.sparse.csgraph" not in sys.modules:
-        load_readers()  # numpy and pyarrow on this thread first: scipy imports numpy too
-        scipy_thread = start(load_scipy, name="cutbook-load-scipy")
 
     def hash_and_compress(graph: GraphData) -> None:
         # runs beside the report (components, degrees, weight summary) on the other core
@@ -161,8 +141,6 @@ def prepare_import(path: str | os.PathLike, *, format: str | None = None,
             done["error"] = exc
 
     def on_graph(graph: GraphData) -> None:
-        if scipy_thread is not None:
-            scipy_thread.join()  # the report imports scipy next, on this thread
         done["thread"] = start(hash_and_compress, graph, name="cutbook-hash")
 
     try:
@@ -172,8 +150,6 @@ def prepare_import(path: str | os.PathLike, *, format: str | None = None,
         for thread in threads:  # a failed read leaves no thread behind importing or hashing
             thread.join()
         raise
-    if scipy_thread is not None:
-        scipy_thread.join()
     report_dict = report.as_dict()
     if source_label is not None:
         report_dict["source"] = source_label
