@@ -49,7 +49,7 @@ def _resolve(s, target: str | int, params: bool) -> tuple[str, int, str]:
     ref = VersionRef.parse(text)
     try:
         v = resolve_version(s, ref)
-    except NotFoundError as exc:
+    except NotFoundError:
         ps = s.scalar(select(ParamSet.id).join(Project, Project.id == ParamSet.project_id)
                       .where(Project.name == ref.project, ParamSet.name == ref.network))
         if ps is not None:

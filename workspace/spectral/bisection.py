@@ -126,7 +126,6 @@ def fiedler_vector(A, laplacian: str, ctx: SolverContext, *, extra: int = 1,
     Fiedler (1973), Algebraic connectivity of graphs, Czech. Math. J. 23.
     """
     A = sp.csr_array(A)
-    n = A.shape[0]
     d = degrees(A) if d is None else d
     op, shift, post = shifted_laplacian_operator(A, laplacian, d)
     sol = largest_eigenpairs(op, 2, ctx, stage=stage, bound=shift, extra=extra)
