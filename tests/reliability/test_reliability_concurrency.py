@@ -139,3 +139,44 @@ def test_four_runners_and_two_importers_at_once(tmp_path):
     assert {v[1] for v in versions} == imported and len(imported) == 2
     code, out, err = _cli(store, "verify", "--json")
     assert code == 0 and json.loads(out)["ok"] is True, out
+
+
+OPENER = r"""
+import os, sys, time
+go, ready, store = sys.argv[1], sys.argv[2], sys.argv[3]
+from workspace.services.store import open_workspace
+open(ready, "w").close()
+deadline = time.monotonic() + 60
+while not os.path.exists(go) and time.monotonic() < deadline:
+    pass   # spin: the processes leave the wait within microseconds of each other
+open_workspace(store).dispose()
+"""
+
+
+def test_processes_creating_one_store_at_the_same_moment(tmp_path):
+    """Four processes open the same new store at once, for eight new stores: each open succeeds and
+    the store is one WAL file at the current revision. (Two processes switching a new SQLite file
+    to WAL at the same instant get "database is locked" or "disk I/O error" from SQLite; the switch
+    is retried.) SQLite's own integrity_check is the outside reference."""
+    from workspace.store.db import HEAD_REVISION
+
+    env = {**os.environ, "PYTHONPATH": str(REPO)}
+    for round_ in range(8):
+        store = tmp_path / f"s{round_}.sqlite"
+        go = tmp_path / f"go{round_}"
+        readies = [tmp_path / f"ready{round_}-{i}" for i in range(4)]
+        procs = [subprocess.Popen([sys.executable, "-c", OPENER, str(go), str(r), str(store)],
+                                  stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+                 for r in readies]
+        deadline = time.monotonic() + 60
+        while not all(r.exists() for r in readies) and time.monotonic() < deadline:
+            time.sleep(0.01)
+        go.touch()
+        for p in procs:
+            out, err = p.communicate(timeout=120)
+            assert p.returncode == 0, err
+        con = sqlite3.connect(store)
+        assert con.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+        assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+        assert con.execute("SELECT version_num FROM alembic_version").fetchone()[0] == HEAD_REVISION
+        con.close()

@@ -236,7 +236,7 @@ def _make_engine(url: str, *, foreign_keys: bool = True, access: str = "rw") -> 
                 # WAL is a setting kept in the file: made once, for a new store. An existing file keeps
                 # its mode, so opening someone else's database (refused later) does not change it.
                 if cur.execute("PRAGMA page_count").fetchone()[0] == 0:
-                    cur.execute("PRAGMA journal_mode=WAL")
+                    _switch_to_wal(cur, timeout)
                 cur.execute("PRAGMA synchronous=NORMAL")
             else:
                 cur.execute("PRAGMA query_only=ON")
@@ -247,6 +247,36 @@ def _make_engine(url: str, *, foreign_keys: bool = True, access: str = "rw") -> 
             write = conn.get_execution_options().get("cutbook_write", False)
             conn.exec_driver_sql("BEGIN IMMEDIATE" if write else "BEGIN")
     return engine
+
+
+def _switch_to_wal(cur, timeout: float) -> None:
+    """``PRAGMA journal_mode=WAL`` on a new, empty SQLite file, retried while another process makes
+    the same switch at the same moment.
+
+    Two processes creating one store at once both see an empty file; SQLite answers the second
+    switch with "database is locked" (the mode change does not wait in the busy handler) or,
+    while the other connection creates the ``-wal``/``-shm`` files, with "disk I/O error". Each
+    attempt re-reads the file: once the other process has made it a WAL file (or written pages),
+    there is nothing left to do. Bounded by the busy timeout (at least 20 attempts).
+    """
+    import time
+
+    deadline = time.monotonic() + max(timeout, 1.0)
+    attempt = 0
+    while True:
+        try:
+            if cur.execute("PRAGMA page_count").fetchone()[0] != 0 or \
+                    str(cur.execute("PRAGMA journal_mode").fetchone()[0]).lower() == "wal":
+                return
+            cur.execute("PRAGMA journal_mode=WAL")
+            return
+        except sqlite3.OperationalError as exc:
+            text = str(exc).lower()
+            attempt += 1
+            if not ("locked" in text or "busy" in text or "disk i/o error" in text) or \
+                    (time.monotonic() > deadline and attempt >= 20):
+                raise
+            time.sleep(min(0.01 * attempt, 0.1))
 
 
 def _alembic_config(connection=None):
