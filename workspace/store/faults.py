@@ -179,9 +179,11 @@ def not_a_store(path: str | None, what: str = "the file is not an SQLite databas
 
 def busy(path: str | None) -> StoreBusy:
     wait = busy_timeout_s()
-    return StoreBusy(f"the store is busy: another process kept it locked for more than {wait:g} s; nothing was "
-                     f"written — try again when that process has finished (${ENV_BUSY_TIMEOUT} sets the wait)",
-                     path=path)
+    # SQLite also answers "busy" at once in a few cases (a mode switch, a lock it cannot wait for),
+    # so the message states the rule, not a wait that may not have happened
+    return StoreBusy(f"the store is busy: another process holds its lock (a writer waits for it up to {wait:g} s); "
+                     f"nothing was written — try again when that process has finished (${ENV_BUSY_TIMEOUT} sets "
+                     "the wait)", path=path)
 
 
 def permission_denied(path: str | None, *, writing: bool | None = False) -> PermissionDenied:
