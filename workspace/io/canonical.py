@@ -103,13 +103,7 @@ def _string_array_to_numpy(values: pa.Array) -> np.ndarray:
         return np.array([], dtype="<U1")
     if values.type not in (pa.string(), pa.large_string()):
         values = values.cast(pa.string())
-    offset_type = np.int64 if values.type == pa.large_string() else np.int32
-    buffers = values.buffers()
-    offsets = np.frombuffer(buffers[1], dtype=offset_type, count=n + 1,
-                            offset=values.offset * np.dtype(offset_type).itemsize).astype(np.int64)
-    data = (np.frombuffer(buffers[2], dtype=np.uint8)
-            if buffers[2] is not None else np.zeros(0, dtype=np.uint8))
-    return decode_node_ids(offsets, data)
+    return decode_node_ids(*_string_buffers(values))
 
 
 def _dictionary_encode(parts: list[pa.Array]) -> tuple[pa.Array, np.ndarray]:

@@ -15,7 +15,7 @@ from textual.widgets import Input, Label, Select, Static
 
 from workspace.tui.widgets.charts import HeatTable
 from workspace.tui.widgets.chrome import Pane, ScreenBar, ScreenFooter, ScrollPane
-from workspace.tui.widgets.detail import BAD, HEAD, KEY, MUTED, fmt_value
+from workspace.tui.widgets.detail import BAD, HEAD, KEY, MUTED, fmt_value, next_label_attribute
 from workspace.tui.widgets.paged_table import Column, ListSource, PagedTable
 
 MATCH_COLUMNS = [
@@ -256,8 +256,7 @@ class DiffScreen(Screen):
             self.notify("the compared versions have no node table with text attributes "
                         "(add one: cutbook nodes add REF FILE)", severity="warning")
             return
-        cycle = [*self.label_attrs, None]
-        nxt = cycle[(cycle.index(self.label_by) + 1) % len(cycle)] if self.label_by in cycle else cycle[0]
+        nxt = next_label_attribute(self.label_attrs, self.label_by)
         self.labels_off = nxt is None
         self.relabel(self.result, nxt)
 

@@ -14,7 +14,7 @@ from textual.widgets import Input, Label, Select, Static
 
 from workspace.tui.widgets.charts import SizeHistogram, SpectrumPlot
 from workspace.tui.widgets.chrome import Pane, ScreenBar, ScreenFooter, ScrollPane
-from workspace.tui.widgets.detail import fmt_value, label
+from workspace.tui.widgets.detail import fmt_value, label, next_label_attribute
 from workspace.tui.widgets.paged_table import Column, ListSource, PagedTable
 
 
@@ -184,8 +184,7 @@ class SpectrumScreen(Screen):
             self.notify("this run's version has no node table with text attributes "
                         "(add one: cutbook nodes add REF FILE)", severity="warning")
             return
-        cycle = [*self.label_attrs, None]
-        nxt = cycle[(cycle.index(self.label_by) + 1) % len(cycle)] if self.label_by in cycle else cycle[0]
+        nxt = next_label_attribute(self.label_attrs, self.label_by)
         self.labels_off = nxt is None
         self.load_members(self.members["run"], self.members["shown"], nxt)
 

@@ -303,3 +303,10 @@ class DetailPane(VerticalScroll):
         body = self.query_one("#detail-body", Static)
         content = body.content if hasattr(body, "content") else body.renderable
         return content.plain if isinstance(content, Text) else str(content)
+
+
+def next_label_attribute(attrs: list[str], current: str | None) -> str | None:
+    """The attribute after ``current`` in ``attrs`` and then None (ids only), round again: what
+    ``ctrl+l`` ("Label by") steps through on the screens that name nodes."""
+    cycle = [*attrs, None]
+    return cycle[(cycle.index(current) + 1) % len(cycle)] if current in cycle else cycle[0]
