@@ -20,7 +20,7 @@ from graphs import adjacency_to_csv
 REPO = Path(__file__).resolve().parents[2]
 
 SWEEP_KEYS = {"sweep", "ref", "method", "params", "ks", "vary", "seed", "seeds", "perturb", "status", "error",
-              "created", "finished", "tasks", "points", "recommendations", "recommended_k", "splits", "stable_ari"}
+              "created", "by", "finished", "tasks", "points", "recommendations", "recommended_k", "splits", "stable_ari"}
 POINT_KEYS = {"k", "value", "run", "runs", "k_found", "modularity", "normalized_cut", "conductance", "coverage",
               "eigengap", "repeats", "ari_mean", "ari_sd", "vi_mean", "vi_sd", "stable", "embedding"}
 
@@ -56,6 +56,17 @@ def test_sweep_json_contract_and_modularity_against_networkx(cli, karate, tmp_pa
         # networkx.community.modularity (Newman & Girvan 2004) of the stored membership
         assert p["modularity"] == pytest.approx(nx.community.modularity(karate, list(comms.values()),
                                                                         weight="weight"), abs=1e-12)
+
+
+def test_a_sweep_names_who_started_it(cli, karate):
+    """A sweep records its user (revision 0009) as runs do: `--user`, shown by list and show."""
+    assert cli("sweep", "club/karate", "--method", "njw", "--k", "2,3", "--user", "ana", "--json").code == 0
+    (row,) = cli("sweeps", "--json").json
+    assert row["by"] == "ana"
+    assert cli("sweeps", "show", str(row["sweep"]), "--json").json["by"] == "ana"
+    assert "by ana" in cli("sweeps", "show", str(row["sweep"])).out
+    runs = cli("runs", "club/karate", "--json").json
+    assert runs and {r["by"] for r in runs} == {"ana"}   # the same user as its runs
 
 
 def test_list_show_extend_diff_delete_and_embeddings(cli, karate):

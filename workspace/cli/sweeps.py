@@ -90,9 +90,10 @@ def cmd_sweeps(args) -> int:
             elif not rows:
                 out.line("no sweeps")
             else:
-                out.table(["sweep", "status", "method", "version", "k", "vary", "seeds", "runs", "created"],
+                out.table(["sweep", "status", "method", "version", "k", "vary", "seeds", "runs", "created", "by"],
                           [(r["sweep"], r["status"], r["method"], r["ref"], _ks_text(r["ks"]), _vary_text(r["vary"]),
-                            r["seeds"], f"{r['tasks']['done']}/{r['tasks']['total']}", r["created"]) for r in rows],
+                            r["seeds"], f"{r['tasks']['done']}/{r['tasks']['total']}", r["created"], r["by"] or "-")
+                           for r in rows],
                           right=["sweep", "seeds"])
             return 0
         if action == "show":
@@ -201,7 +202,8 @@ def _print_sweep(out, r: dict) -> None:
     out.line(f"sweep {r['sweep']}  {r['status']}  {r['method']} on {r['ref']}  k {_ks_text(r['ks'])}"
              + (f"  {_vary_text(r['vary'])}" if r["vary"] else "")
              + f"  seeds {r['seeds']}" + (f" (perturb {fmt(r['perturb'])})" if r["perturb"] else "")
-             + f"  runs {r['tasks']['done']}/{r['tasks']['total']}")
+             + f"  runs {r['tasks']['done']}/{r['tasks']['total']}"
+             + (f"  by {r['by']}" if r.get("by") else ""))
     if r.get("error"):
         out.line(f"  {r['error']}")
     recs = {json_key(x["value"]): x for x in r["recommendations"]}

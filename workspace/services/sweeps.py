@@ -787,7 +787,7 @@ def _sweep_row(sw: Sweep, ref: str, counts: dict[str, int]) -> dict[str, Any]:
     return {"sweep": sw.id, "ref": ref, "method": sw.method, "ks": json.loads(sw.ks_json),
             "vary": ({"name": sw.vary_name, "values": json.loads(sw.vary_values_json)} if sw.vary_name else None),
             "seed": sw.seed, "seeds": sw.seeds, "perturb": sw.perturb, "status": _effective_status(sw),
-            "error": sw.error, "created": iso_time(sw.started_at),
+            "error": sw.error, "created": iso_time(sw.started_at), "by": sw.created_by,
             "finished": iso_time(sw.finished_at) if sw.finished_at else None,
             "tasks": {"total": len(json.loads(sw.ks_json)) * len(json.loads(sw.vary_values_json)) * sw.seeds,
                       **counts}}

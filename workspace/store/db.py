@@ -44,7 +44,7 @@ BUSY_TIMEOUT_MS = 60_000
 WRITE_LOCK_KEY = int.from_bytes(b"cutbook!", "big") >> 1
 # The newest migration's revision id. Checking a store against it needs no Alembic import, which
 # keeps every command's start-up short; tests/store checks it equals Alembic's own head.
-HEAD_REVISION = "0008"
+HEAD_REVISION = "0009"
 ENV_STORE = "CUTBOOK_STORE"
 ENV_USER = "CUTBOOK_USER"
 MAX_USER_LENGTH = 200  # the created_by columns are String(200)

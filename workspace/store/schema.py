@@ -305,6 +305,7 @@ class Sweep(Base):
     host: Mapped[str | None] = mapped_column(String(255), nullable=True)
     pid: Mapped[int | None] = mapped_column(Integer, nullable=True)
     process_token: Mapped[str | None] = mapped_column(String(64), nullable=True)
+    created_by: Mapped[str | None] = mapped_column(String(200), nullable=True)  # who started it (0009)
 
 
 class SweepRun(Base):
