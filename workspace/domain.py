@@ -227,7 +227,6 @@ def _symmetric_csr(edge_u, edge_v, weight, n: int):
     return A
 
 
-
 @dataclass(frozen=True, eq=False)
 class GraphData:
     """A weighted graph in canonical form (undirected unless ``directed``).

@@ -574,6 +574,25 @@ def node_attributes(store: Store, network: str, node: str) -> dict[str, Any] | N
     return None
 
 
+def _rows_reading(s, col, wanted: str) -> tuple[list[int], list[str]]:
+    """Rows of a stored text column whose value equals ``wanted`` once stripped and case-folded, and
+    those values: matched in the column's dictionary of distinct values, then found among the codes."""
+    import numpy as np
+
+    from workspace.domain import decode_node_ids
+    from workspace.store import repo
+
+    dictionary = decode_node_ids(repo.get_array(s, col.dictionary_offsets_blob),
+                                 repo.get_array(s, col.dictionary_bytes_blob)).tolist()
+    codes = [c for c, value in enumerate(dictionary) if value.strip().casefold() == wanted]
+    if not codes:
+        return [], []
+    values = repo.get_array(s, col.values_blob)
+    present = repo.get_array(s, col.present_blob).astype(bool)
+    rows = np.flatnonzero(np.isin(values, codes) & present).tolist()
+    return rows, [dictionary[int(values[r])] for r in rows]
+
+
 def nodes_named(store: Store, text: str, network: str | None = None, *, limit: int = 10) -> list[dict[str, Any]]:
     """Nodes whose value of a text attribute equals ``text`` (ignoring case and outer spaces), in the
     newest node table of ``network`` (``P/N``) or of every network: ``[{"network", "node",
@@ -604,13 +623,12 @@ def nodes_named(store: Store, text: str, network: str | None = None, *, limit: i
                 for col in _column_rows(s, row.id):
                     if col.type != "text":
                         continue
-                    _, values = _decode_column(s, col)
-                    hits = [i for i, value in enumerate(values) if value is not None and value.strip().casefold() == wanted]
-                    if hits and ids is None:
+                    rows, values = _rows_reading(s, col, wanted)
+                    if rows and ids is None:
                         ids = repo.load_node_ids(s, v)
-                    for i in hits:
+                    for i, value in zip(rows, values):
                         out.append({"network": f"{project_name}/{net.name}", "node": str(ids[i]),
-                                    "attribute": col.name, "value": values[i]})
+                                    "attribute": col.name, "value": value})
                         if len(out) >= limit:
                             return out
                 break   # the newest table of each network
