@@ -127,6 +127,46 @@ def test_default_rule_keeps_test_sized_graphs_on_the_stored_operator():
     assert op.row_scale is None and eigen.SCALED_PRODUCT_MIN_NODES >= 500_000
 
 
+def test_one_blas_thread_rule_is_shared_by_solves_in_several_threads():
+    """Two solves overlapping in threads (a sweep's pool): one BLAS thread until the last one
+    leaves, then the counts from before the first; threadpoolctl reads them from outside."""
+    import threading
+
+    from threadpoolctl import threadpool_info
+
+    def blas_threads():
+        return [i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"]
+
+    if not any("openblas" in i["internal_api"] for i in threadpool_info()):
+        pytest.skip("the setting applies to OpenBLAS only")
+    outside = blas_threads()
+    first_in, second_in, first_out = threading.Event(), threading.Event(), threading.Event()
+    seen = {}
+
+    def first():
+        with eigen._blas_threads(eigen.BLAS_SINGLE_THREAD_MIN_NODES):
+            first_in.set()
+            second_in.wait(10)
+        first_out.set()
+
+    def second():
+        first_in.wait(10)
+        with eigen._blas_threads(eigen.BLAS_SINGLE_THREAD_MIN_NODES):
+            second_in.set()
+            first_out.wait(10)
+            seen["after first left"] = blas_threads()   # the first solve has left; this one has not
+        seen["after both left"] = blas_threads()
+
+    threads = [threading.Thread(target=first), threading.Thread(target=second)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join(20)
+    assert set(seen["after first left"]) == {1}
+    assert seen["after both left"] == outside
+    assert blas_threads() == outside
+
+
 def test_one_blas_thread_rule_leaves_small_solves_alone(monkeypatch):
     from threadpoolctl import threadpool_info
 

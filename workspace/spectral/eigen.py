@@ -15,6 +15,7 @@ checks ``cancel``, the matvec budget and the time limit, and reports
 from __future__ import annotations
 
 import os
+import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
@@ -468,23 +469,40 @@ def _openblas_thread_calls() -> list:
     return calls
 
 
+_blas_lock = threading.Lock()
+_blas_holders = [0, []]   # solves inside _blas_threads now, and the thread counts to restore after the last
+
+
 class _blas_threads:
     """Context manager: OpenBLAS in one thread while an operator of ``n`` rows is solved (see
-    :data:`BLAS_SINGLE_THREAD_MIN_NODES`), the previous counts restored after; nothing below it."""
+    :data:`BLAS_SINGLE_THREAD_MIN_NODES`), the previous counts restored after; nothing below it.
+
+    The setting is process-wide, so solves running at once in several threads (a sweep's thread
+    pool) share it: the first to enter saves the counts and the last to leave restores them, under a
+    lock (restoring on each exit would hand the other solves two threads mid-solve, and the last exit
+    would leave one thread behind for good).
+    """
 
     def __init__(self, n: int) -> None:
         self.calls = _openblas_thread_calls() if n >= BLAS_SINGLE_THREAD_MIN_NODES else []
-        self.before: list = []
 
     def __enter__(self) -> "_blas_threads":
-        self.before = [int(get()) for get, _ in self.calls]
-        for _, put in self.calls:
-            put(1)
+        if self.calls:
+            with _blas_lock:
+                if _blas_holders[0] == 0:
+                    _blas_holders[1] = [int(get()) for get, _ in self.calls]
+                    for _, put in self.calls:
+                        put(1)
+                _blas_holders[0] += 1
         return self
 
     def __exit__(self, *exc) -> None:
-        for (_, put), count in zip(self.calls, self.before):
-            put(count)
+        if self.calls:
+            with _blas_lock:
+                _blas_holders[0] -= 1
+                if _blas_holders[0] == 0:
+                    for (_, put), count in zip(self.calls, _blas_holders[1]):
+                        put(count)
 
 
 def _to_original_order(V: np.ndarray, order: np.ndarray) -> np.ndarray:
