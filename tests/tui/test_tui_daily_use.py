@@ -256,18 +256,25 @@ def test_tui_spectrum_lists_a_communitys_members(demo_path, size):
             names = dict(nodes.node_values(app.store, "velmora-bikes/stations@4", screen.label_attrs[0])["nodes"])
             assert all(r["label"] == names[r["node"]] for r in rows)
             assert table.shown_columns()[:2] == ["node", screen.label_attrs[0]]
-            # another community
-            other = int(np.argmin(sizes))
-            screen.query_one("#members-community", Select).value = other
-            await settle(app, pilot)
-            assert [table.row_at(i)["node"] for i in range(table.row_count)] == ids[labels == other].tolist()
-            # ctrl+l steps through the text attributes, then ids only
-            for expected in [*screen.label_attrs[1:], None]:
-                table.focus()
-                await pilot.press("ctrl+l")
+            # another community, then ctrl+l: the run's membership is not read from the store again
+            loads = []
+            real_load = runs.load_membership
+            runs.load_membership = lambda *a, **kw: (loads.append(a[1:]), real_load(*a, **kw))[1]
+            try:
+                other = int(np.argmin(sizes))
+                screen.query_one("#members-community", Select).value = other
                 await settle(app, pilot)
-                assert screen.label_by == expected
-            assert table.shown_columns() == ["node"]
+                assert [table.row_at(i)["node"] for i in range(table.row_count)] == ids[labels == other].tolist()
+                # ctrl+l steps through the text attributes, then ids only
+                for expected in [*screen.label_attrs[1:], None]:
+                    table.focus()
+                    await pilot.press("ctrl+l")
+                    await settle(app, pilot)
+                    assert screen.label_by == expected
+                assert table.shown_columns() == ["node"]
+            finally:
+                runs.load_membership = real_load
+            assert loads == []
 
     asyncio.run(go())
 

@@ -15,6 +15,63 @@ from workspace.store.schema import Run
 MAX_MATRIX_RUNS = 50
 
 
+class RunMembers:
+    """A finished run's membership indexed by community, loaded once: :meth:`page` answers
+    :func:`run_members` for any community without reading the store again (the UI's Members pane
+    keeps one per open run)."""
+
+    def __init__(self, store: Store, run_id: int) -> None:
+        from workspace.services.tracking import shown_labels_of
+
+        self.run_id = run_id
+        self.node_ids, labels, self.summary = runs_service.load_membership(store, run_id)
+        self.stability = None
+        with store.read() as s:
+            run = s.get(Run, run_id)
+            if run.stability_blob:
+                self.stability = repo.get_array(s, run.stability_blob) / max(run.repeats, 1)
+        self.n_nodes = int(labels.shape[0])
+        self.k = k = int(labels.max()) + 1 if labels.size and labels.max() >= 0 else 0
+        # a tracked run: labels matched to the previous version's run
+        self.stored_map = stored_map = shown_labels_of(store, run_id)
+        self.shown_of = ([int(x) for x in stored_map["map"]] if stored_map and len(stored_map["map"]) == k
+                         else list(range(k)))
+        self.order = np.argsort(labels, kind="stable")  # node order kept within each community
+        self.bounds = np.searchsorted(labels[self.order], np.arange(-1, k + 1))
+
+    def page(self, community: int | None = None, limit: int | None = None, offset: int = 0) -> dict[str, Any]:
+        """See :func:`run_members`."""
+        if limit is not None and limit < 0:
+            raise UsageError(f"--limit must be 0 or more, got {limit}")
+        if offset < 0:
+            raise UsageError(f"--offset must be 0 or more, got {offset}")
+        k, shown_of, run_id = self.k, self.shown_of, self.run_id
+        if community is not None and self.stored_map is not None:
+            if community not in shown_of:
+                raise NotFoundError(f"run {run_id} shows no community {community} (its communities are numbered "
+                                    f"{', '.join(map(str, sorted(shown_of)))})")
+            community = shown_of.index(community)
+        elif community is not None and not 0 <= community < k:
+            raise NotFoundError(f"run {run_id} has no community {community} (its communities are 0 to {k - 1})")
+        order, bounds, node_ids, stability = self.order, self.bounds, self.node_ids, self.stability
+        wanted = [community] if community is not None else list(range(k))
+        out_comms = []
+        for c in wanted:
+            members = order[bounds[c + 1]:bounds[c + 2]]
+            shown = members[offset:] if limit is None else members[offset:offset + limit]
+            nodes = node_ids[shown].tolist()
+            entry = {"community": c, "shown": shown_of[c], "size": int(members.shape[0]), "offset": offset,
+                     "nodes": nodes, "truncated": bool(offset > 0 or offset + len(nodes) < members.shape[0])}
+            if stability is not None:
+                entry["stability"] = [float(x) for x in stability[shown]]
+            out_comms.append(entry)
+        unassigned = node_ids[order[bounds[0]:bounds[1]]].tolist() if community is None else []
+        summary = self.summary
+        return {"run": run_id, "ref": summary["ref"], "method": summary["method"], "kind": summary["kind"],
+                "label": summary["label"], "k": k, "nodes": self.n_nodes, "communities": out_comms,
+                "unassigned": unassigned, "shown_labels": self.stored_map}
+
+
 def run_members(store: Store, run_id: int, *, community: int | None = None, limit: int | None = None,
                 offset: int = 0) -> dict[str, Any]:
     """The nodes of each community of a finished run (or of one community), in canonical node order.
@@ -33,42 +90,7 @@ def run_members(store: Store, run_id: int, *, community: int | None = None, limi
         raise UsageError(f"--limit must be 0 or more, got {limit}")
     if offset < 0:
         raise UsageError(f"--offset must be 0 or more, got {offset}")
-    node_ids, labels, summary = runs_service.load_membership(store, run_id)
-    stability = None
-    with store.read() as s:
-        run = s.get(Run, run_id)
-        if run.stability_blob:
-            stability = repo.get_array(s, run.stability_blob) / max(run.repeats, 1)
-    k = int(labels.max()) + 1 if labels.size and labels.max() >= 0 else 0
-    from workspace.services.tracking import shown_labels_of
-
-    stored_map = shown_labels_of(store, run_id)  # a tracked run: labels matched to the previous version's run
-    shown_of = [int(x) for x in stored_map["map"]] if stored_map and len(stored_map["map"]) == k else list(range(k))
-    if community is not None and stored_map is not None:
-        if community not in shown_of:
-            raise NotFoundError(f"run {run_id} shows no community {community} (its communities are numbered "
-                                f"{', '.join(map(str, sorted(shown_of)))})")
-        community = shown_of.index(community)
-    elif community is not None and not 0 <= community < k:
-        raise NotFoundError(f"run {run_id} has no community {community} (its communities are 0 to {k - 1})")
-    order = np.argsort(labels, kind="stable")  # node order kept within each community
-    bounds = np.searchsorted(labels[order], np.arange(-1, k + 1))
-    wanted = [community] if community is not None else list(range(k))
-    out_comms = []
-    for c in wanted:
-        members = order[bounds[c + 1]:bounds[c + 2]]
-        shown = members[offset:] if limit is None else members[offset:offset + limit]
-        nodes = node_ids[shown].tolist()
-        entry = {"community": c, "shown": shown_of[c], "size": int(members.shape[0]), "offset": offset, "nodes": nodes,
-                 "truncated": bool(offset > 0 or offset + len(nodes) < members.shape[0])}
-        if stability is not None:
-            entry["stability"] = [float(x) for x in stability[shown]]
-        out_comms.append(entry)
-    unassigned = node_ids[order[bounds[0]:bounds[1]]].tolist()
-    return {"run": run_id, "ref": summary["ref"], "method": summary["method"], "kind": summary["kind"],
-            "label": summary["label"], "k": k, "nodes": int(labels.shape[0]), "communities": out_comms,
-            "unassigned": unassigned if community is None else [],
-            "shown_labels": stored_map}
+    return RunMembers(store, run_id).page(community, limit, offset)
 
 
 def compare_matrix(store: Store, run_ids: list[int], *, nodes: str = "common",

@@ -53,6 +53,7 @@ class SpectrumScreen(Screen):
         self.label_by: str | None = None
         self.labels_off = False            # the user stepped to "ids only"
         self.members: dict[str, Any] | None = None
+        self.members_index = None          # the open run's RunMembers: each community without a reload
 
     def compose(self) -> ComposeResult:
         yield ScreenBar("spectrum")
@@ -191,11 +192,14 @@ class SpectrumScreen(Screen):
     @work(thread=True, exclusive=True, group="members", exit_on_error=False)
     def load_members(self, run_id: int, shown: int, label_by: str | None, *, choose: bool = False) -> None:
         """One community's nodes (and names) in a worker: a community may hold millions of nodes."""
-        from workspace.services.members import run_members
+        from workspace.services.members import RunMembers
         from workspace.services.nodes import label_attributes, labels_of
 
         try:
-            doc = run_members(self.app.store, run_id, community=shown)
+            index = self.members_index
+            if index is None or index.run_id != run_id:
+                index = self.members_index = RunMembers(self.app.store, run_id)
+            doc = index.page(shown)
             attrs = label_attributes(self.app.store, [run_id])
             if choose:
                 label_by = self.label_by if self.label_by in attrs else (
