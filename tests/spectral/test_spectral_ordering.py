@@ -182,7 +182,36 @@ def test_component_search_is_the_computation_order():
     assert np.array_equal(found[0], ref)
     assert np.array_equal(computation_order(A, min_nodes=0, min_gain=0.0, search=found[0]),
                           computation_order(A, min_nodes=0, min_gain=0.0))
-    lonely = sp.block_diag([A, sp.csr_array((1, 1))], format="csr")   # an isolated node: no reuse
-    found = []
-    _components(lonely, found)
-    assert found == []
+
+
+
+def test_component_search_renumbered_when_isolated_nodes_are_left_out(always_ordered, monkeypatch):
+    """With isolated nodes (and self-loops) the component is an induced submatrix; the components'
+    search renumbered to it is the order computation_order finds on that submatrix itself, and a
+    run takes it instead of searching again, with the same labels, eigenvalues and products."""
+    from workspace.spectral import engine
+    from workspace.spectral.engine import _components, _induced, _search_of
+    from workspace.spectral.laplacians import with_loops_doubled
+
+    A = sp.csr_array(_graph("les-miserables"))
+    A = A + sp.diags(np.r_[1.0, np.zeros(A.shape[0] - 1)])           # a self-loop on node 0
+    # isolated nodes before and after the component (scipy.sparse.block_diag)
+    full = sp.csr_array(sp.block_diag([sp.csr_array((2, 2)), A, sp.csr_array((1, 1))], format="csr"))
+    found: list = []
+    ncomp, comp = _components(full, found)
+    assert ncomp == 4 and len(found) == 1                              # one component and 3 isolated
+    nodes = np.flatnonzero(np.diff(full.indptr) > 0)
+    sub = _induced(with_loops_doubled(full), nodes)
+    assert np.array_equal(_search_of(found, nodes, full.shape[0], False), computation_order(sub))
+    assert _search_of(found, nodes, full.shape[0], True) is None       # arcs of a directed graph
+    searched = []
+    real = ordering._search_order
+    monkeypatch.setattr(ordering, "_search_order", lambda *a: (searched.append(1), real(*a))[1])
+    reused = partition(full, "njw", k=6, seed=3, dense_threshold=10)
+    assert searched == []                                              # no second search
+    monkeypatch.setattr(engine, "_search_of", lambda *a: None)
+    again = partition(full, "njw", k=6, seed=3, dense_threshold=10)
+    assert searched == [1]
+    assert np.array_equal(reused.labels, again.labels)
+    assert np.array_equal(reused.eigenvalues, again.eigenvalues)
+    assert reused.diagnostics["matvecs"] == again.diagnostics["matvecs"]

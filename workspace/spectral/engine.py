@@ -33,9 +33,10 @@ _MAX_RESIDUALS_LISTED = 64
 def _components(A: sp.csr_array, search_out: list | None = None) -> tuple[int, np.ndarray]:
     """Connected components of a symmetric adjacency: (count, component index per node).
 
-    ``search_out``: when given and the breadth-first search below reaches every node, its
-    order is appended to it (the computation order of :mod:`workspace.spectral.ordering` is
-    the same search from the same node, so the engine need not run it twice).
+    ``search_out``: when given and the breadth-first search below reaches every node with an
+    edge, its order is appended to it (the computation order of
+    :mod:`workspace.spectral.ordering` is the same search from the same node, so the engine need
+    not run it twice; with isolated nodes left out, it is that search renumbered to the component).
 
     Fast path: one breadth-first search from the first node with an edge; when it
     reaches every such node the graph is one component plus isolated nodes (the
@@ -49,7 +50,7 @@ def _components(A: sp.csr_array, search_out: list | None = None) -> tuple[int, n
         start = int(np.argmax(has_edges))
         reached = breadth_first_order(A, start, directed=True, return_predecessors=False)
         if reached.shape[0] == int(has_edges.sum()):
-            if search_out is not None and reached.shape[0] == n:
+            if search_out is not None:
                 search_out.append(reached)
             comp = np.zeros(n, dtype=np.int32)
             lonely = np.flatnonzero(~has_edges)
@@ -382,7 +383,7 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
                 sub = _induced(A_loops, nodes) if len(comp_nodes) > 1 or kept_mask is not None else A_loops
                 lab, vals, extra = _run_spectral(sub, method, k_i, ctx, p, two_m,
                                                  None if embedding is None else embedding.solution(),
-                                                 search=searched[0] if searched and sub is S else None)
+                                                 search=_search_of(searched, nodes, n, uses_direction))
                 labels[nodes] = lab + next_label
                 next_label += int(lab.max()) + 1
                 eig_chunks.append(vals)
@@ -496,6 +497,25 @@ def _eigengap_suggestion(method: str, eigenvalues: np.ndarray, k_req: int | None
     if k_req is not None and m < k_req + 2:
         return None
     return eigengap_k(eigenvalues, p.get("k_max") if k_req is None else None)
+
+
+def _search_of(searched: list, nodes: np.ndarray, n: int, uses_direction: bool) -> np.ndarray | None:
+    """The components' breadth-first order renumbered to the component ``nodes`` (sorted), or None.
+
+    It is the order :func:`workspace.spectral.ordering.computation_order` would find on the
+    component's matrix: the same start (the first node with an edge, the component's first node),
+    and the same neighbour order (the induced matrix keeps each row's stored order, renumbered
+    monotonically; doubling the loops changes values, not the pattern). A method on the arcs of a
+    directed graph (``uses_direction``) has another pattern: None.
+    """
+    if not searched or uses_direction or searched[0].shape[0] != nodes.shape[0]:
+        return None
+    reached = searched[0]
+    if nodes.shape[0] == n:
+        return reached
+    position = np.full(n, -1, dtype=reached.dtype)
+    position[nodes] = np.arange(nodes.shape[0], dtype=reached.dtype)
+    return position[reached]
 
 
 def _induced(A: sp.csr_array, nodes: np.ndarray) -> sp.csr_array:
