@@ -57,12 +57,12 @@ class SolverContext:
         Wall-time limit per eigenproblem; 0 means none.
     progress : callable(stage: str, matvecs: int) or None
     cancel : callable() -> bool or None
-    threads : int, default 1
+    threads : int, default 0
         Threads for the sparse products of the iterative solvers (row
-        blocks; 0 = all CPUs available to the process). Results do not
-        depend on it: each output entry is computed by one thread. (On the
-        2-core test machine, under load, 2 threads gave no speed-up: the
-        product is memory-bound; hence the default 1.)
+        blocks). 0 = automatic: every CPU available to the process for
+        operators of at least :data:`PARALLEL_AUTO_MIN_ROWS` rows, one below.
+        Results do not depend on it: each output entry is computed by one
+        thread.
     """
 
     seed: int = 0
@@ -72,7 +72,7 @@ class SolverContext:
     time_limit_s: float = 0.0
     progress: Callable[[str, int], None] | None = None
     cancel: Callable[[], bool] | None = None
-    threads: int = 1
+    threads: int = 0
     matvecs: int = 0
     solvers: list = field(default_factory=list)
     iterations: int = 0
@@ -130,6 +130,14 @@ SCALED_PRODUCT_MIN_NODES = 500_000
 #: (checked on a 1M-node planted partition), and at 1M nodes eight columns took 324-416 ms against
 #: 444-533 ms for the block (the residual check after every solve is such a block).
 COLUMNWISE_MIN_ROWS = 100_000
+
+#: ``threads=0`` (automatic, the default) multiplies operators of at least this many rows in
+#: every available CPU, smaller ones in one. Below it the vector of a product fits in the
+#: processor's last-level cache (32 MB here: 4M float64) and a second thread brought nothing (1M
+#: rows: 0.92-0.95x); above it every stored entry reads the vector at a random place in memory,
+#: the product waits on memory latency, and two threads keep twice the reads in flight (10M-node
+#: planted partition: one product 659-746 ms in one thread, 353-643 ms in two, load 2.4-2.6).
+PARALLEL_AUTO_MIN_ROWS = 4_000_000
 
 #: Sparse matrices with fewer stored entries are multiplied in one thread.
 PARALLEL_MIN_NNZ = 200_000
@@ -426,7 +434,7 @@ def largest_eigenpairs(op: SymmetricOperator, m: int, ctx: SolverContext, *,
         ctx.check_cancel()
         return sol
 
-    threads = ctx.threads if ctx.threads > 0 else available_cpus()
+    threads = ctx.threads if ctx.threads > 0 else (available_cpus() if n >= PARALLEL_AUTO_MIN_ROWS else 1)
     with _blas_threads(n):
         if threads > 1 and sp.issparse(op.S) and op.S.nnz >= PARALLEL_MIN_NNZ:
             with ThreadPoolExecutor(max_workers=threads - 1) as executor:
@@ -989,7 +997,7 @@ def shifted_laplacian_operator(A, laplacian: str, d: np.ndarray | None = None,
 def laplacian_eigenpairs(A, m: int, *, laplacian: str = "sym", seed: int = 0,
                          dense_threshold: int = 1000, eig_tol: float = 1e-10,
                          max_matvecs: int = 50000, time_limit_s: float = 0.0,
-                         progress=None, cancel=None, threads: int = 1) -> EigenSolution:
+                         progress=None, cancel=None, threads: int = 0) -> EigenSolution:
     r"""The ``m`` smallest eigenpairs of a graph Laplacian.
 
     Solves :math:`L x = \lambda x` for :math:`L = D - A`, or
@@ -1014,8 +1022,8 @@ def laplacian_eigenpairs(A, m: int, *, laplacian: str = "sym", seed: int = 0,
     time_limit_s : float, default 0 (no limit)
     progress, cancel : callables, optional
         As in :func:`workspace.spectral.partition`.
-    threads : int, default 1
-        Threads for large sparse products (0 = all available CPUs).
+    threads : int, default 0
+        Threads for large sparse products (0 = automatic, see :class:`SolverContext`).
 
     Returns
     -------

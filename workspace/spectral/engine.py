@@ -284,7 +284,7 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
     ctx = SolverContext(seed=seed, dense_threshold=p.get("dense_threshold", 1000),
                         eig_tol=p.get("eig_tol", 1e-6), max_matvecs=p.get("max_matvecs", 50000),
                         time_limit_s=p.get("time_limit_s", 0.0), progress=progress, cancel=cancel,
-                        threads=p.get("threads", 1))
+                        threads=p.get("threads", 0))
     ctx.check_cancel()
     ctx.report("components")
     searched: list = []            # the components' breadth-first search, reused as the computation order

@@ -191,9 +191,9 @@ def _solver() -> tuple[ParamSpec, ...]:
                   help="eigenvalues computed beyond those needed (eigengap suggestion, tie warning)"),
         ParamSpec("tie_tol", "float", 1e-5, minimum=0.0, maximum=0.5,
                   help="relative gap below which eigenvalues at the cut-off count as equal"),
-        ParamSpec("threads", "int", 1, minimum=0, maximum=256,
-                  help="threads for large sparse products (0 = all available CPUs); "
-                       "results do not depend on it"),
+        ParamSpec("threads", "int", 0, minimum=0, maximum=256,
+                  help="threads for the sparse products (0 = automatic: every available CPU from "
+                       "4M nodes, where products wait on memory; one below); results do not depend on it"),
     )
 
 
