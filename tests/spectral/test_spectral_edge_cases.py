@@ -245,3 +245,25 @@ def test_threaded_products_give_bit_identical_results():
     r3 = partition(A, "njw", k=4, threads=3, components="largest")
     assert np.array_equal(r1.labels, r2.labels) and np.array_equal(r1.labels, r3.labels)
     assert r1.eigenvalues.tobytes() == r2.eigenvalues.tobytes() == r3.eigenvalues.tobytes()
+
+
+def test_automatic_threads_use_every_cpu_only_for_large_operators(monkeypatch):
+    """threads=0 (the default): one thread below PARALLEL_AUTO_MIN_ROWS, every available CPU from it,
+    the same bits either way (each output row is computed by one thread)."""
+    from workspace.spectral import eigen
+    from workspace.spectral.methods import METHODS
+
+    assert next(p.default for p in METHODS["njw"].params if p.name == "threads") == 0
+    A, _ = planted_partition(20000, 4, 34, 4, seed=2)
+    parts = []
+    real = eigen.SymmetricOperator.parallel
+    monkeypatch.setattr(eigen.SymmetricOperator, "parallel",
+                        lambda self, executor, n: (parts.append(n), real(self, executor, n))[1])
+    small = partition(A, "njw", k=4, components="largest")
+    assert parts == []                                    # below the size: no thread pool
+    monkeypatch.setattr(eigen, "PARALLEL_AUTO_MIN_ROWS", 0)
+    monkeypatch.setattr(eigen, "available_cpus", lambda: 2)
+    large = partition(A, "njw", k=4, components="largest")
+    assert parts and set(parts) == {2}
+    assert np.array_equal(small.labels, large.labels)
+    assert small.eigenvalues.tobytes() == large.eigenvalues.tobytes()
