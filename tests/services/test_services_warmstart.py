@@ -70,6 +70,17 @@ def test_auto_warm_start_from_the_previous_run_agrees_with_cold_and_reruns_ident
     assert runs.show_run(store, again["run"])["diagnostics"]["warm_start"]["block_sha256"] == info["block_sha256"]
 
 
+def test_auto_warm_start_ignores_execution_only_parameters(store, two_versions):
+    """A run of the previous version that differs only in threads or the time limit is the warm start
+    (they change how a run is computed, not its result); one that differs in a result parameter is not."""
+    first = runs.launch(store, runs.prepare_run(store, "lab/net@1", method="njw", k=4,
+                                                sets={"threads": 1, "time_limit_s": 600}))
+    spec = runs.prepare_run(store, "lab/net@2", method="njw", k=4, warm="auto")
+    assert spec.params["threads"] == 0 and spec.warm_from == f"run:{first['run']}"
+    other = runs.prepare_run(store, "lab/net@2", method="njw", k=4, warm="auto", sets={"eig_tol": 1e-8})
+    assert other.warm_from is None
+
+
 def test_rerun_says_clearly_when_the_warm_source_is_gone(store, two_versions):
     first = runs.launch(store, runs.prepare_run(store, "lab/net@1", method="njw", k=4))
     warm = runs.launch(store, runs.prepare_run(store, "lab/net@2", method="njw", k=4, warm=str(first["run"])))

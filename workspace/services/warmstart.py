@@ -113,15 +113,25 @@ def resolve(store: Store, spec, warm: Any) -> tuple[str | None, str]:
             if fields.get("operator_params") == operator[1] and \
                     fields.get("solver", {}).get("components") == spec.params.get("components"):
                 return f"embedding:{key}", "cached embedding of the previous version"
-        params_json = json.dumps(spec.params, sort_keys=True)
-        run_id = s.scalar(select(Run.id).where(Run.version_id == prev.id, Run.kind == "computed",
-                                              Run.status == "done", Run.method == spec.method,
-                                              Run.repeats == 1, Run.params_json == params_json,
-                                              Run.k_requested == spec.k, Run.membership_blob.is_not(None))
-                          .order_by(Run.id.desc()).limit(1))
-        if run_id is not None:
-            return f"run:{run_id}", "run of the previous version"
+        wanted = _result_params(spec.params)
+        candidates = s.execute(select(Run.id, Run.params_json).where(
+            Run.version_id == prev.id, Run.kind == "computed", Run.status == "done", Run.method == spec.method,
+            Run.repeats == 1, Run.k_requested == spec.k, Run.membership_blob.is_not(None))
+            .order_by(Run.id.desc())).all()
+        for run_id, params_json in candidates:
+            if _result_params(json.loads(params_json)) == wanted:
+                return f"run:{run_id}", "run of the previous version"
     return None, "the previous version has no run or cached embedding of the same parameters"
+
+
+#: Parameters that change how a run is computed, not its result: a run of the previous version that
+#: differs only in these is still a warm start of the same parameters (threads: every output entry is
+#: computed by one thread whatever their number; the default changed from 1 to 0 = automatic).
+EXECUTION_PARAMS = ("threads", "time_limit_s")
+
+
+def _result_params(params: dict) -> dict:
+    return {key: value for key, value in params.items() if key not in EXECUTION_PARAMS}
 
 
 def _map_rows(old_ids, new_ids):
