@@ -1,0 +1,234 @@
+"""Membership CSV (``node,community``) built from packed node ids with numpy byte operations.
+
+The bytes are those of Python's ``csv.writer(f, lineterminator="\\n")`` over the rows
+``(id, label)`` (minimal quoting, RFC 4180): an id holding the delimiter ``,`` or the quote
+``"`` is written inside quotes with each quote doubled; other ids as they are. No Python
+``str`` is made per id: the UTF-8 bytes of the ids (the stored form, see
+:class:`workspace.domain.PackedNodeIds`) are laid out with the ``,label\\n`` tails between
+them in steps of bounded size, so the work per id is a few byte copies whatever the id
+length, and the memory a few times one step.
+"""
+
+from __future__ import annotations
+
+from typing import Iterator
+
+import numpy as np
+
+from workspace.domain import PackedNodeIds
+from workspace.errors import InputError
+
+#: Id bytes per output step (the step's output is that plus the tails, about 4 bytes a row).
+STEP_BYTES = 1 << 20
+#: Rows per output step at most.
+STEP_ROWS = 1 << 16
+
+HEADER = b"node,community\n"
+_COMMA, _QUOTE, _LF, _CR = 0x2C, 0x22, 0x0A, 0x0D
+
+
+def _rows_holding(node_ids: PackedNodeIds, groups: tuple[bytes, ...]) -> list[np.ndarray]:
+    """For each group of byte values, the ascending rows whose bytes hold any of them.
+
+    One read through the bytes in steps: a step whose smallest byte is above every value asked
+    (ids of letters, digits, ``-``, ``.``, ``_``) is passed after one numpy minimum; otherwise a
+    C-speed ``bytes.find`` per value, and numpy positions only for a value that is found.
+    """
+    offsets = node_ids.offsets
+    values = sorted({v for group in groups for v in group})
+    found: dict[int, list[np.ndarray]] = {v: [] for v in values}
+    lo, hi = int(offsets[0]), int(offsets[-1])
+    reader = node_ids.open_bytes()
+    for a in range(lo, hi, STEP_BYTES):
+        piece = reader.read(min(hi, a + STEP_BYTES) - a)
+        if int(piece.min()) > values[-1]:
+            continue
+        raw = piece.tobytes()
+        for v in values:
+            if raw.find(bytes([v])) >= 0:
+                positions = np.flatnonzero(piece == v) + a
+                found[v].append(np.searchsorted(offsets, positions, side="right") - 1)
+    out = []
+    for group in groups:
+        rows = [r for v in group for r in found[v]]
+        out.append(np.unique(np.concatenate(rows)) if rows else np.zeros(0, dtype=np.int64))
+    return out
+
+
+def _label_tails(top: int) -> tuple[np.ndarray, np.ndarray]:
+    """``b",<label>\\n"`` for every label 0..top, left-aligned in a (top + 1, width) table, and
+    their lengths. Label ``c`` has ``d = 1 + floor(log10 c)`` decimal digits (counted by
+    comparison with powers of ten); digit ``j`` from the left is ``floor(c / 10^(d-1-j)) mod 10``."""
+    labels = np.arange(top + 1, dtype=np.int64)
+    digits = np.ones(top + 1, dtype=np.int64)
+    power = 10
+    while power <= top:  # bounded: at most 19 decimal digits in an int64
+        digits += labels >= power
+        power *= 10
+    most = int(digits.max())
+    table = np.zeros((top + 1, most + 2), dtype=np.uint8)
+    table[:, 0] = _COMMA
+    powers = 10 ** np.arange(most, dtype=np.int64)
+    for j in range(most):
+        inside = j < digits
+        table[inside, 1 + j] = 48 + (labels[inside] // powers[digits[inside] - 1 - j]) % 10
+    table[labels, digits + 1] = _LF
+    return table, digits + 2
+
+
+def _interleave(body: np.ndarray, body_lengths: np.ndarray, tails: np.ndarray,
+                tail_lengths: np.ndarray) -> np.ndarray:
+    """``body_0 tail_0 body_1 tail_1 …`` for ragged byte strings given flat with their lengths.
+
+    Rows of one body length and one tail length (fixed-width ids, fewer than ten communities)
+    are laid out as the columns of a (rows, width) table; others by a mask of the tail bytes."""
+    rows = body_lengths.shape[0]
+    if rows and body_lengths.min() == body_lengths.max() and tail_lengths.min() == tail_lengths.max():
+        width_b, width_t = int(body_lengths[0]), int(tail_lengths[0])
+        table = np.empty((rows, width_b + width_t), dtype=np.uint8)
+        table[:, :width_b] = body.reshape(rows, width_b)
+        table[:, width_b:] = tails.reshape(rows, width_t)
+        return table.reshape(-1)
+    line_end = np.cumsum(body_lengths + tail_lengths)
+    total = int(line_end[-1]) if line_end.size else 0
+    tail_start = line_end - tail_lengths
+    before = np.cumsum(tail_lengths) - tail_lengths
+    at = np.repeat(tail_start - before, tail_lengths) + np.arange(tails.shape[0])
+    out = np.empty(total, dtype=np.uint8)
+    is_body = np.ones(total, dtype=bool)
+    is_body[at] = False
+    out[at] = tails
+    out[is_body] = body
+    return out
+
+
+def _ragged(table: np.ndarray, lengths: np.ndarray) -> np.ndarray:
+    """Rows of a left-aligned byte table cut to their lengths, concatenated."""
+    if lengths.size and int(lengths.min()) == table.shape[1]:
+        return table.reshape(-1)
+    return table[np.arange(table.shape[1])[None, :] < lengths[:, None]]
+
+
+def membership_csv(node_ids: PackedNodeIds, labels: np.ndarray, *,
+                   path: str | None = None) -> tuple[int, Iterator[memoryview]]:
+    """The bytes of a membership CSV from packed ids, in steps; nodes labelled -1 are left out.
+
+    Parameters
+    ----------
+    node_ids : PackedNodeIds, length n
+        Id ``i`` is bytes ``offsets[i]:offsets[i + 1]`` (UTF-8), in memory or read through
+        from the store a step at a time (twice: once to check for line breaks and find the
+        ids to quote, once to lay out the rows).
+    labels : ndarray of int, shape (n,)
+        Community of each node, -1 for none.
+    path : str or None
+        Named in errors.
+
+    Returns
+    -------
+    count : int
+        Nodes written with a community.
+    chunks : iterator of memoryview
+        The header ``node,community\\n``, then the rows in node order, each step at most
+        :data:`STEP_ROWS` rows and about :data:`STEP_BYTES` id bytes. Every chunk ends at a
+        line end, so each is valid UTF-8 on its own.
+
+    Raises
+    ------
+    InputError
+        A written id holding a line break (``\\n`` or ``\\r``), which a membership CSV cannot
+        carry; raised before any chunk is made.
+
+    Notes
+    -----
+    Row ``i`` is ``q(id_i) "," decimal(label_i) "\\n"`` where ``q(s) = s`` unless ``s`` holds
+    ``,`` or ``"``, then ``q(s) = '"' + s.replace('"', '""') + '"'`` (minimal quoting as
+    Python's ``csv.QUOTE_MINIMAL`` with ``lineterminator="\\n"``).
+
+    References
+    ----------
+    Y. Shafranovich, "Common Format and MIME Type for Comma-Separated Values (CSV) Files",
+    RFC 4180 (2005).
+    """
+    offsets = node_ids.offsets
+    labels = np.asarray(labels)
+    n = len(node_ids)
+    if labels.shape != (n,):
+        from workspace.errors import ParameterError
+
+        raise ParameterError("node_ids and labels must be 1-D arrays of the same length")
+    labels = labels.astype(np.int64, copy=False)
+    kept = labels >= 0
+    count = int(np.count_nonzero(kept))
+    broken, quoted_rows = _rows_holding(node_ids, (bytes([_LF, _CR]), bytes([_COMMA, _QUOTE])))
+    broken = broken[kept[broken]]
+    if broken.size:
+        bad = str(node_ids.take([int(broken[0])])[0])
+        raise InputError(f"node id {bad!r} holds a line break, which a membership CSV cannot carry; "
+                         "write json or graphml", path=path)
+    top = int(labels.max()) if count else 0
+    return count, _chunks(node_ids, labels, kept, count, quoted_rows, top)
+
+
+def _chunks(node_ids, labels, kept, count, quoted_rows, top) -> Iterator[memoryview]:
+    yield memoryview(HEADER)
+    if count == 0:
+        return
+    tails_of, tail_length_of = _label_tails(top)
+    offsets = node_ids.offsets
+    n = len(node_ids)
+    reader = node_ids.open_bytes()
+    a = 0
+    while a < n:  # bounded: each step takes at least one row
+        b = int(np.searchsorted(offsets, offsets[a] + STEP_BYTES, side="right")) - 1
+        b = min(n, a + STEP_ROWS, max(b, a + 1))
+        piece = reader.read(int(offsets[b] - offsets[a]))
+        lengths = np.diff(offsets[a:b + 1])
+        keep = kept[a:b]
+        if keep.all():
+            rows = None
+            body = piece
+        else:
+            rows = np.flatnonzero(keep)
+            body = piece[np.repeat(keep, lengths)]
+            lengths = lengths[rows]
+        label = labels[a:b] if rows is None else labels[a:b][rows]
+        a_next = b
+        if label.size == 0:
+            a = a_next
+            continue
+        q_lo, q_hi = np.searchsorted(quoted_rows, [a, b])
+        quoted = None
+        if q_hi > q_lo:
+            quoted = np.zeros(b - a, dtype=bool)
+            quoted[quoted_rows[q_lo:q_hi] - a] = True
+            quoted = quoted if rows is None else quoted[rows]
+        if quoted is None or not quoted.any():
+            tail_lengths = tail_length_of[label]
+            tails = _ragged(tails_of[label], tail_lengths)
+            yield memoryview(_interleave(body, lengths, tails, tail_lengths))
+        else:
+            # quotes inside quoted ids are doubled (an id with a quote is always quoted);
+            # row i's tail is its closing quote, ",label\n" and the next row's opening quote
+            doubled = body == _QUOTE
+            if doubled.any():
+                before = np.zeros(body.shape[0] + 1, dtype=np.int64)
+                np.cumsum(doubled, out=before[1:])
+                ends = np.cumsum(lengths)
+                lengths = lengths + np.diff(before[np.concatenate([[0], ends])])
+                body = np.repeat(body, 1 + doubled)
+            q = quoted.astype(np.int64)
+            opens_next = np.zeros_like(q)
+            opens_next[:-1] = q[1:]
+            width = tails_of.shape[1] + 2
+            table = np.zeros((label.shape[0], width), dtype=np.uint8)
+            table[quoted, 0] = _QUOTE
+            table[~quoted, :width - 2] = tails_of[label[~quoted]]
+            table[quoted, 1:width - 1] = tails_of[label[quoted]]
+            tail_lengths = q + tail_length_of[label]
+            table[opens_next.astype(bool), tail_lengths[opens_next.astype(bool)]] = _QUOTE
+            tail_lengths = tail_lengths + opens_next
+            if quoted[0]:
+                yield memoryview(b'"')
+            yield memoryview(_interleave(body, lengths, _ragged(table, tail_lengths), tail_lengths))
+        a = a_next
