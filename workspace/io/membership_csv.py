@@ -22,6 +22,8 @@ from workspace.errors import InputError
 STEP_BYTES = 1 << 20
 #: Rows per output step at most.
 STEP_ROWS = 1 << 16
+#: Bytes per step of the check for line breaks and characters to quote.
+SCAN_BYTES = 1 << 20
 
 HEADER = b"node,community\n"
 _COMMA, _QUOTE, _LF, _CR = 0x2C, 0x22, 0x0A, 0x0D
@@ -39,8 +41,8 @@ def _rows_holding(node_ids: PackedNodeIds, groups: tuple[bytes, ...]) -> list[np
     found: dict[int, list[np.ndarray]] = {v: [] for v in values}
     lo, hi = int(offsets[0]), int(offsets[-1])
     reader = node_ids.open_bytes()
-    for a in range(lo, hi, STEP_BYTES):
-        piece = reader.read(min(hi, a + STEP_BYTES) - a)
+    for a in range(lo, hi, SCAN_BYTES):
+        piece = reader.read(min(hi, a + SCAN_BYTES) - a)
         if int(piece.min()) > values[-1]:
             continue
         raw = piece.tobytes()
@@ -55,24 +57,26 @@ def _rows_holding(node_ids: PackedNodeIds, groups: tuple[bytes, ...]) -> list[np
     return out
 
 
-def _label_tails(top: int) -> tuple[np.ndarray, np.ndarray]:
-    """``b",<label>\\n"`` for every label 0..top, left-aligned in a (top + 1, width) table, and
-    their lengths. Label ``c`` has ``d = 1 + floor(log10 c)`` decimal digits (counted by
+def _label_tails(labels: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``b",<label>\\n"`` for each of ``labels`` (int >= 0), left-aligned in a (len, width) table,
+    and their lengths. Label ``c`` has ``d = 1 + floor(log10 c)`` decimal digits (counted by
     comparison with powers of ten); digit ``j`` from the left is ``floor(c / 10^(d-1-j)) mod 10``."""
-    labels = np.arange(top + 1, dtype=np.int64)
-    digits = np.ones(top + 1, dtype=np.int64)
+    labels = np.asarray(labels, dtype=np.int64)
+    digits = np.ones(labels.shape[0], dtype=np.int64)
+    top = int(labels.max()) if labels.size else 0
     power = 10
     while power <= top:  # bounded: at most 19 decimal digits in an int64
         digits += labels >= power
         power *= 10
-    most = int(digits.max())
-    table = np.zeros((top + 1, most + 2), dtype=np.uint8)
+    most = int(digits.max()) if labels.size else 1
+    rows = np.arange(labels.shape[0])
+    table = np.zeros((labels.shape[0], most + 2), dtype=np.uint8)
     table[:, 0] = _COMMA
     powers = 10 ** np.arange(most, dtype=np.int64)
     for j in range(most):
         inside = j < digits
         table[inside, 1 + j] = 48 + (labels[inside] // powers[digits[inside] - 1 - j]) % 10
-    table[labels, digits + 1] = _LF
+    table[rows, digits + 1] = _LF
     return table, digits + 2
 
 
@@ -166,15 +170,22 @@ def membership_csv(node_ids: PackedNodeIds, labels: np.ndarray, *,
         bad = str(node_ids.take([int(broken[0])])[0])
         raise InputError(f"node id {bad!r} holds a line break, which a membership CSV cannot carry; "
                          "write json or graphml", path=path)
-    top = int(labels.max()) if count else 0
-    return count, _chunks(node_ids, labels, kept, count, quoted_rows, top)
+    return count, _chunks(node_ids, labels, kept, count, quoted_rows)
 
 
-def _chunks(node_ids, labels, kept, count, quoted_rows, top) -> Iterator[memoryview]:
+def _chunks(node_ids, labels, kept, count, quoted_rows) -> Iterator[memoryview]:
     yield memoryview(HEADER)
     if count == 0:
         return
-    tails_of, tail_length_of = _label_tails(top)
+    # the tail of every label 0..top at once (a run's labels are 0..k-1, k <= n); labels spread
+    # wider than that get the tails of their distinct values, found by binary search
+    top = int(labels.max())
+    distinct = None
+    if top >= max(1 << 16, 2 * count):
+        distinct = np.unique(labels[kept])
+        tails_of, tail_length_of = _label_tails(distinct)
+    else:
+        tails_of, tail_length_of = _label_tails(np.arange(top + 1))
     offsets = node_ids.offsets
     n = len(node_ids)
     reader = node_ids.open_bytes()
@@ -193,6 +204,8 @@ def _chunks(node_ids, labels, kept, count, quoted_rows, top) -> Iterator[memoryv
             body = piece[np.repeat(keep, lengths)]
             lengths = lengths[rows]
         label = labels[a:b] if rows is None else labels[a:b][rows]
+        if distinct is not None:
+            label = np.searchsorted(distinct, label)
         a_next = b
         if label.size == 0:
             a = a_next
