@@ -1,7 +1,7 @@
 """Benchmark: how import, run, diff and export scale with the number of nodes, end to end via the CLI.
 
 Run: ``python tests/benchmarks/bench_scale.py [--sizes 1000000,3000000] [--big]
-[--id-length 8,40] [--keep DIR]``
+[--id-length 9,40] [--keep DIR] [--steps import,run,diff,export] [--stores DIR]``
 
 For every size (1M and 3M nodes by default; ``--big`` adds 10M) and every id length (short ids
 ``n00000123`` and 40-character ids ``station-0000…0123``), a planted partition is sampled with
@@ -16,6 +16,10 @@ a separate ``cutbook`` command in a fresh process, as a user runs it:
   run is the other side of the diff, and shows the speed of a second seed);
 * ``diff``: ``cutbook diff RUN0 RUN1 --json``;
 * ``export``: ``cutbook export RUN0 -o membership.csv``.
+
+``--steps`` times only some steps (those they need run first, untimed); ``--stores DIR`` keeps
+the stores and reuses them on the next call, so diff and export can be timed again without
+importing and running; ``--repeat R`` keeps the fastest of R diffs and exports.
 
 Wall time per step and the step's peak resident memory (``resource.getrusage(RUSAGE_CHILDREN)``
 of a small wrapper process around the command, so each step's peak is its own, children of the
@@ -130,24 +134,46 @@ def step(store: Path, *argv: str) -> dict:
     return stats
 
 
-def measure(tmp: Path, n: int, id_length: int) -> dict:
-    src = tmp / f"g{n}_{id_length}.csv"
-    t = time.perf_counter()
-    shape = write_graph(src, n, id_length)
-    print(f"\nn={n:,} ids of {id_length} chars: {shape['edges']:,} edges, "
-          f"{shape['bytes'] / 1e6:.0f} MB CSV written in {time.perf_counter() - t:.1f} s", flush=True)
-    store = tmp / f"s{n}_{id_length}.db"
-    res = {}
-    res["import"] = step(store, "import", str(src), "--project", "bench", "--network", "g", "--json")
-    src.unlink()
-    res["run"] = step(store, "run", "bench/g", "--method", "njw", "--k", str(K), "--seed", "0", "--json")
-    res["run seed 1"] = step(store, "run", "bench/g", "--method", "njw", "--k", str(K), "--seed", "1",
-                             "--json")
-    r0, r1 = res["run"]["json"]["run"], res["run seed 1"]["json"]["run"]
-    res["diff"] = step(store, "diff", str(r0), str(r1), "--json")
-    res["export"] = step(store, "export", str(r0), "-o", str(tmp / "membership.csv"))
-    (tmp / "membership.csv").unlink()
-    store.unlink()
+STEPS = ("import", "run", "diff", "export")
+
+
+def measure(tmp: Path, n: int, id_length: int, steps=STEPS, stores: Path | None = None,
+            repeat: int = 1) -> dict:
+    """Time the ``steps`` asked on one graph; the steps they need (import, the two runs) run
+    first untimed when left out. With ``stores``, the store is kept there and, when it already
+    holds the two runs, reused (no import, no runs)."""
+    store = (stores or tmp) / f"s{n}_{id_length}.db"
+    res, setup = {}, {}
+    reuse = stores is not None and store.exists()
+    if reuse:
+        print(f"\nn={n:,} ids of {id_length} chars: reusing {store} (runs 1 and 2)", flush=True)
+        r0, r1 = 1, 2
+    else:
+        src = tmp / f"g{n}_{id_length}.csv"
+        t = time.perf_counter()
+        shape = write_graph(src, n, id_length)
+        print(f"\nn={n:,} ids of {id_length} chars: {shape['edges']:,} edges, "
+              f"{shape['bytes'] / 1e6:.0f} MB CSV written in {time.perf_counter() - t:.1f} s", flush=True)
+        (res if "import" in steps else setup)["import"] = step(
+            store, "import", str(src), "--project", "bench", "--network", "g", "--json")
+        src.unlink()
+        if "run" in steps or "diff" in steps or "export" in steps:
+            into = res if "run" in steps else setup
+            into["run"] = step(store, "run", "bench/g", "--method", "njw", "--k", str(K), "--seed", "0",
+                               "--json")
+            into["run seed 1"] = step(store, "run", "bench/g", "--method", "njw", "--k", str(K),
+                                      "--seed", "1", "--json")
+            r0, r1 = into["run"]["json"]["run"], into["run seed 1"]["json"]["run"]
+    def best(*argv):  # the quick steps: the fastest of ``repeat`` (least disturbed by the load)
+        return min((step(store, *argv) for _ in range(repeat)), key=lambda r: r["wall"])
+
+    if "diff" in steps:
+        res["diff"] = best("diff", str(r0), str(r1), "--json")
+    if "export" in steps:
+        res["export"] = best("export", str(r0), "-o", str(tmp / "membership.csv"))
+        (tmp / "membership.csv").unlink()
+    if stores is None:
+        store.unlink()
     scale = n / 1e6
     for name, r in res.items():
         extra = ""
@@ -157,7 +183,7 @@ def measure(tmp: Path, n: int, id_length: int) -> dict:
         if name == "diff" and r["json"]:
             ari = _find(r["json"], "ari")
             extra = f"   ARI(seed 0, seed 1) {ari:.4f}" if ari is not None else ""
-        print(f"  {name:11s} {r['wall']:8.1f} s  cpu {r['cpu']:8.1f} s  peak {r['peak_kb'] / 2**20:6.2f} GB"
+        print(f"  {name:11s} {r['wall']:8.2f} s  cpu {r['cpu']:8.2f} s  peak {r['peak_kb'] / 2**20:6.2f} GB"
               f"   per 1M nodes: {r['wall'] / scale:7.2f} s  {r['peak_kb'] / 2**20 / scale:5.2f} GB"
               f"   load {r['load'][0]:.1f}->{r['load'][1]:.1f}{extra}", flush=True)
     return res
@@ -187,7 +213,22 @@ def main() -> None:
     ap.add_argument("--id-length", default="9,40",
                     help="id lengths to run (default 9,40: n00000123 and 40-character ids)")
     ap.add_argument("--keep", help="work directory (default: a temporary one)")
+    ap.add_argument("--steps", default=",".join(STEPS),
+                    help="steps to time (default import,run,diff,export); the steps they need run "
+                         "first, untimed")
+    ap.add_argument("--stores", help="keep the stores in this folder and reuse those already there "
+                                     "(their runs 1 and 2): time diff and export again without "
+                                     "importing and running")
+    ap.add_argument("--repeat", type=int, default=1,
+                    help="diff and export: time each this many times and keep the fastest (default 1)")
     args = ap.parse_args()
+    steps = tuple(x for x in args.steps.split(",") if x)
+    unknown = set(steps) - set(STEPS)
+    if unknown:
+        ap.error(f"--steps: unknown {', '.join(sorted(unknown))} (choose from {', '.join(STEPS)})")
+    stores = Path(args.stores) if args.stores else None
+    if stores is not None:
+        stores.mkdir(parents=True, exist_ok=True)
     sizes = [int(x) for x in args.sizes.split(",") if x] + ([10_000_000] if args.big else [])
     lengths = [int(x) for x in args.id_length.split(",") if x]
     print(f"cutbook scaling: planted partition k={K}, mean degree {DEGREE}, seed {SEED}; "
@@ -196,7 +237,7 @@ def main() -> None:
     with tempfile.TemporaryDirectory(dir=args.keep) as tmp:
         for length in lengths:
             for n in sizes:
-                results[(n, length)] = measure(Path(tmp), n, length)
+                results[(n, length)] = measure(Path(tmp), n, length, steps, stores, max(1, args.repeat))
     base_n = sizes[0]
     print(f"\nsummary: per-1M figures relative to n={base_n:,} with the same ids (target <= 1.2), "
           "and long ids relative to short ids at the same n (target <= 1.2)")
