@@ -206,9 +206,8 @@ def _chunks(node_ids, labels, kept, count, quoted_rows) -> Iterator[memoryview]:
         label = labels[a:b] if rows is None else labels[a:b][rows]
         if distinct is not None:
             label = np.searchsorted(distinct, label)
-        a_next = b
         if label.size == 0:
-            a = a_next
+            a = b
             continue
         q_lo, q_hi = np.searchsorted(quoted_rows, [a, b])
         quoted = None
@@ -241,7 +240,8 @@ def _chunks(node_ids, labels, kept, count, quoted_rows) -> Iterator[memoryview]:
             tail_lengths = q + tail_length_of[label]
             table[opens_next.astype(bool), tail_lengths[opens_next.astype(bool)]] = _QUOTE
             tail_lengths = tail_lengths + opens_next
-            if quoted[0]:
-                yield memoryview(b'"')
-            yield memoryview(_interleave(body, lengths, _ragged(table, tail_lengths), tail_lengths))
-        a = a_next
+            out = _interleave(body, lengths, _ragged(table, tail_lengths), tail_lengths)
+            if quoted[0]:  # the step's first id opens its own quote
+                out = np.concatenate([np.array([_QUOTE], dtype=np.uint8), out])
+            yield memoryview(out)
+        a = b
