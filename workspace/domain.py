@@ -219,7 +219,8 @@ class PackedNodeIds:
         import numpy as np
 
         if self._data is None:
-            self._data = np.array(self._open_data().read(self._size), dtype=np.uint8)
+            # a fresh reader read once: its buffer is handed over, not copied
+            self._data = np.asarray(self._open_data().read(self._size), dtype=np.uint8)
         return self._data
 
     def open_bytes(self):
