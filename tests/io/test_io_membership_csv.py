@@ -69,10 +69,11 @@ def _tricky_ids() -> list[str]:
     return sorted(out)
 
 
+@pytest.mark.parametrize("check_first", [True, False])
 @pytest.mark.parametrize("streamed", [False, True])
 @pytest.mark.parametrize("step_bytes,step_rows,scan_bytes", [(1, 1, 997), (7, 3, 4096), (4096, 5, 1),
                                                               (1 << 20, 1 << 16, 1 << 20)])
-def test_bytes_equal_python_csv_writer(monkeypatch, streamed, step_bytes, step_rows, scan_bytes):
+def test_bytes_equal_python_csv_writer(monkeypatch, streamed, step_bytes, step_rows, scan_bytes, check_first):
     monkeypatch.setattr(mc, "STEP_BYTES", step_bytes)
     monkeypatch.setattr(mc, "STEP_ROWS", step_rows)
     monkeypatch.setattr(mc, "SCAN_BYTES", scan_bytes)
@@ -80,7 +81,7 @@ def test_bytes_equal_python_csv_writer(monkeypatch, streamed, step_bytes, step_r
     rng = np.random.default_rng(5)
     for top in (3, 12, 123_456_789):  # one digit, mixed widths, many digits
         labels = rng.integers(-1, top, len(ids))
-        count, chunks = mc.membership_csv(_packed(ids, streamed), labels)
+        count, chunks = mc.membership_csv(_packed(ids, streamed), labels, check_first=check_first)
         pieces = [bytes(c) for c in chunks]
         assert b"".join(pieces) == _python_csv(ids, labels)
         assert count == int(np.count_nonzero(labels >= 0))
@@ -117,6 +118,14 @@ def test_line_break_refused_before_any_output(streamed):
     assert "out.csv" in str(err.value)
     # an id left out (-1) is not written, so its line break does not matter (as before)
     count, chunks = mc.membership_csv(_packed(ids[:2], streamed), np.array([0, -1]))
+    assert b"".join(bytes(c) for c in chunks) == b"node,community\na,0\n"
+    # checked step by step (a file written atomically): the error comes while iterating
+    count, chunks = mc.membership_csv(_packed(ids, streamed), np.array([0, 1, 2]), path="out.csv",
+                                      check_first=False)
+    with pytest.raises(InputError, match=r"'b\\nc' holds a line break") as err:
+        b"".join(bytes(c) for c in chunks)
+    assert "out.csv" in str(err.value)
+    count, chunks = mc.membership_csv(_packed(ids[:2], streamed), np.array([0, -1]), check_first=False)
     assert b"".join(bytes(c) for c in chunks) == b"node,community\na,0\n"
 
 

@@ -29,32 +29,47 @@ HEADER = b"node,community\n"
 _COMMA, _QUOTE, _LF, _CR = 0x2C, 0x22, 0x0A, 0x0D
 
 
-def _rows_holding(node_ids: PackedNodeIds, groups: tuple[bytes, ...]) -> list[np.ndarray]:
-    """For each group of byte values, the ascending rows whose bytes hold any of them.
+#: Byte values looked for in the ids: line breaks (refused), then the characters that need quotes.
+_SPECIAL = (bytes([_LF, _CR]), bytes([_COMMA, _QUOTE]))
 
-    One read through the bytes in steps: a step whose smallest byte is above every value asked
-    (ids of letters, digits, ``-``, ``.``, ``_``) is passed after one numpy minimum; otherwise a
-    C-speed ``bytes.find`` per value, and numpy positions only for a value that is found.
-    """
-    offsets = node_ids.offsets
+
+def _piece_rows(piece: np.ndarray, start: int, offsets: np.ndarray,
+                groups: tuple[bytes, ...]) -> list[np.ndarray]:
+    """For each group of byte values, the ascending rows with one of them in ``piece`` (the bytes
+    from byte ``start`` on): a piece whose smallest byte is above every value asked (ids of
+    letters, digits, ``-``, ``.``, ``_``) is passed after one numpy minimum; otherwise a C-speed
+    ``bytes.find`` per value, and numpy positions only for a value that is found."""
     values = sorted({v for group in groups for v in group})
-    found: dict[int, list[np.ndarray]] = {v: [] for v in values}
+    empty = np.zeros(0, dtype=np.int64)
+    if piece.size == 0 or int(piece.min()) > values[-1]:
+        return [empty for _ in groups]
+    raw = piece.tobytes()
+    found = {}
+    for v in values:
+        if raw.find(bytes([v])) >= 0:
+            found[v] = np.searchsorted(offsets, np.flatnonzero(piece == v) + start, side="right") - 1
+    return [np.unique(np.concatenate([found[v] for v in group if v in found]))
+            if any(v in found for v in group) else empty for group in groups]
+
+
+def _rows_holding(node_ids: PackedNodeIds, groups: tuple[bytes, ...]) -> list[np.ndarray]:
+    """For each group of byte values, the ascending rows whose bytes hold any of them: one read
+    through the bytes in steps of :data:`SCAN_BYTES` (see :func:`_piece_rows`)."""
+    offsets = node_ids.offsets
+    found: list[list[np.ndarray]] = [[] for _ in groups]
     lo, hi = int(offsets[0]), int(offsets[-1])
     reader = node_ids.open_bytes()
     for a in range(lo, hi, SCAN_BYTES):
-        piece = reader.read(min(hi, a + SCAN_BYTES) - a)
-        if int(piece.min()) > values[-1]:
-            continue
-        raw = piece.tobytes()
-        for v in values:
-            if raw.find(bytes([v])) >= 0:
-                positions = np.flatnonzero(piece == v) + a
-                found[v].append(np.searchsorted(offsets, positions, side="right") - 1)
-    out = []
-    for group in groups:
-        rows = [r for v in group for r in found[v]]
-        out.append(np.unique(np.concatenate(rows)) if rows else np.zeros(0, dtype=np.int64))
-    return out
+        for into, rows in zip(found, _piece_rows(reader.read(min(hi, a + SCAN_BYTES) - a), a, offsets, groups)):
+            if rows.size:
+                into.append(rows)
+    return [np.unique(np.concatenate(rows)) if rows else np.zeros(0, dtype=np.int64) for rows in found]
+
+
+def _line_break_error(node_ids: PackedNodeIds, row: int, path: str | None) -> InputError:
+    bad = str(node_ids.take([row])[0])
+    return InputError(f"node id {bad!r} holds a line break, which a membership CSV cannot carry; "
+                      "write json or graphml", path=path)
 
 
 def _label_tails(labels: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -113,8 +128,8 @@ def _ragged(table: np.ndarray, lengths: np.ndarray) -> np.ndarray:
     return table[np.arange(table.shape[1])[None, :] < lengths[:, None]]
 
 
-def membership_csv(node_ids: PackedNodeIds, labels: np.ndarray, *,
-                   path: str | None = None) -> tuple[int, Iterator[memoryview]]:
+def membership_csv(node_ids: PackedNodeIds, labels: np.ndarray, *, path: str | None = None,
+                   check_first: bool = True) -> tuple[int, Iterator[memoryview]]:
     """The bytes of a membership CSV from packed ids, in steps; nodes labelled -1 are left out.
 
     Parameters
@@ -127,6 +142,11 @@ def membership_csv(node_ids: PackedNodeIds, labels: np.ndarray, *,
         Community of each node, -1 for none.
     path : str or None
         Named in errors.
+    check_first : bool, default True
+        Read the bytes through once before the rows to refuse a line break before any chunk is
+        made (what a stream needs). False: each step is checked as it is laid out, so the error
+        comes from the iterator after earlier chunks (for a file written atomically, which is then
+        removed), and the bytes are read through once instead of twice.
 
     Returns
     -------
@@ -141,7 +161,7 @@ def membership_csv(node_ids: PackedNodeIds, labels: np.ndarray, *,
     ------
     InputError
         A written id holding a line break (``\\n`` or ``\\r``), which a membership CSV cannot
-        carry; raised before any chunk is made.
+        carry; raised before any chunk is made (``check_first``), else while iterating.
 
     Notes
     -----
@@ -164,16 +184,16 @@ def membership_csv(node_ids: PackedNodeIds, labels: np.ndarray, *,
     labels = labels.astype(np.int64, copy=False)
     kept = labels >= 0
     count = int(np.count_nonzero(kept))
-    broken, quoted_rows = _rows_holding(node_ids, (bytes([_LF, _CR]), bytes([_COMMA, _QUOTE])))
-    broken = broken[kept[broken]]
-    if broken.size:
-        bad = str(node_ids.take([int(broken[0])])[0])
-        raise InputError(f"node id {bad!r} holds a line break, which a membership CSV cannot carry; "
-                         "write json or graphml", path=path)
-    return count, _chunks(node_ids, labels, kept, count, quoted_rows)
+    quoted_rows = None  # found step by step
+    if check_first:
+        broken, quoted_rows = _rows_holding(node_ids, _SPECIAL)
+        broken = broken[kept[broken]]
+        if broken.size:
+            raise _line_break_error(node_ids, int(broken[0]), path)
+    return count, _chunks(node_ids, labels, kept, count, quoted_rows, path)
 
 
-def _chunks(node_ids, labels, kept, count, quoted_rows) -> Iterator[memoryview]:
+def _chunks(node_ids, labels, kept, count, quoted_rows, path) -> Iterator[memoryview]:
     yield memoryview(HEADER)
     if count == 0:
         return
@@ -194,6 +214,14 @@ def _chunks(node_ids, labels, kept, count, quoted_rows) -> Iterator[memoryview]:
         b = int(np.searchsorted(offsets, offsets[a] + STEP_BYTES, side="right")) - 1
         b = min(n, a + STEP_ROWS, max(b, a + 1))
         piece = reader.read(int(offsets[b] - offsets[a]))
+        if quoted_rows is None:
+            broken, step_quoted = _piece_rows(piece, int(offsets[a]), offsets, _SPECIAL)
+            broken = broken[kept[broken]]
+            if broken.size:
+                raise _line_break_error(node_ids, int(broken[0]), path)
+        else:
+            q_lo, q_hi = np.searchsorted(quoted_rows, [a, b])
+            step_quoted = quoted_rows[q_lo:q_hi]
         lengths = np.diff(offsets[a:b + 1])
         keep = kept[a:b]
         if keep.all():
@@ -209,11 +237,10 @@ def _chunks(node_ids, labels, kept, count, quoted_rows) -> Iterator[memoryview]:
         if label.size == 0:
             a = b
             continue
-        q_lo, q_hi = np.searchsorted(quoted_rows, [a, b])
         quoted = None
-        if q_hi > q_lo:
+        if step_quoted.size:
             quoted = np.zeros(b - a, dtype=bool)
-            quoted[quoted_rows[q_lo:q_hi] - a] = True
+            quoted[step_quoted - a] = True
             quoted = quoted if rows is None else quoted[rows]
         if quoted is None or not quoted.any():
             tail_lengths = tail_length_of[label]

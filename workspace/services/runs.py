@@ -754,7 +754,9 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
     if format == "csv":
         from workspace.io.membership_csv import membership_csv
 
-        count, chunks = membership_csv(node_ids, labels, path=target)
+        # a file is written atomically, so its steps are checked as they are laid out (an error
+        # removes the partial file); a stream is checked whole first, before anything is written
+        count, chunks = membership_csv(node_ids, labels, path=target, check_first=stream is not None)
         if stream is not None:
             _write_chunks(stream, chunks)
         else:
