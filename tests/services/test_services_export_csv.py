@@ -108,3 +108,30 @@ def test_export_json_and_graphml_unchanged(store, club, tmp_path):
     doc = json.loads((tmp_path / "m.json").read_text(encoding="utf-8"))
     assert [n["id"] for n in doc["nodes"]] == ids.tolist()
     assert [n["community"] for n in doc["nodes"]] == labels.tolist()
+
+
+def test_an_id_with_a_line_break_is_refused_and_leaves_no_file(store, tmp_path):
+    # GraphML carries a line break in an id (the character reference &#10;, XML 1.0 section 4.1);
+    # a membership CSV cannot: the export names the file and leaves nothing behind, and -o -
+    # writes nothing to the stream
+    from workspace.errors import InputError
+    from workspace.services.networks import import_network
+
+    path = tmp_path / "nl.graphml"
+    path.write_text('<?xml version="1.0" encoding="UTF-8"?>\n'
+                    '<graphml xmlns="http://graphml.graphdrawing.org/xmlns"><graph edgedefault="undirected">'
+                    '<node id="a&#10;b"/><node id="c"/><node id="d"/>'
+                    '<edge source="a&#10;b" target="c"/><edge source="c" target="d"/></graph></graphml>\n')
+    import_network(store, path, project="p", network="n", policy=ImportPolicy())
+    f = tmp_path / "labels.csv"
+    f.write_text('node,community\n"a\nb",x\nc,x\nd,y\n')
+    run = runs.attach(store, f, "p/n", label="two")["run"]
+    out = tmp_path / "out.csv"
+    with pytest.raises(InputError, match="line break") as err:
+        runs.export_run(store, run, out)
+    assert str(out) in str(err.value)
+    assert not out.exists() and not list(tmp_path.glob(".out.csv.partial*"))
+    text = io.StringIO()
+    with pytest.raises(InputError, match="line break"):
+        runs.export_run(store, run, "-", stream=text)
+    assert text.getvalue() == ""
