@@ -99,7 +99,8 @@ def decode_node_ids(offsets: np.ndarray, data: np.ndarray) -> np.ndarray:
     The code points of id ``i`` are found without a per-id loop: a byte
     starts a code point unless it is a continuation byte ``10xxxxxx`` (RFC 3629,
     section 3), so the running count of starting bytes at ``offsets`` gives each
-    id's code-point offsets (for ASCII data the byte offsets themselves). Rows
+    id's code-point length (for ASCII data its byte length), counted in steps of
+    at most ``_CHUNK_POINTS`` bytes. Rows
     are then filled in chunks of bounded size (ASCII bytes widened, other chunks
     through Python's UTF-8 -> UTF-32 codecs), so the cost per id does not jump
     with the number or the length of the ids. Invalid UTF-8 raises
@@ -118,14 +119,15 @@ def decode_node_ids(offsets: np.ndarray, data: np.ndarray) -> np.ndarray:
     data = np.asarray(data, dtype=np.uint8)[offsets[0]:offsets[-1]]
     rel = offsets - offsets[0]
     ascii_only = data.size == 0 or int(data.max()) < 0x80
-    if ascii_only:
-        points_at = rel
-    else:
-        starts = np.zeros(data.size + 1, dtype=np.int64)
-        np.cumsum((data & 0xC0) != 0x80, out=starts[1:])
-        points_at = starts[rel]
-        del starts
-    lengths = np.diff(points_at)
+    lengths = np.diff(rel)
+    if not ascii_only:  # code points per id: its bytes less its continuation bytes, in bounded steps
+        a = 0
+        while a < n:  # bounded: each step takes at least one id
+            b = min(n, max(a + 1, int(np.searchsorted(rel, rel[a] + _CHUNK_POINTS, side="right")) - 1))
+            starts = np.zeros(int(rel[b] - rel[a]) + 1, dtype=np.int64)
+            np.cumsum((data[rel[a]:rel[b]] & 0xC0) != 0x80, out=starts[1:])
+            lengths[a:b] = np.diff(starts[rel[a:b + 1] - rel[a]])
+            a = b
     width = max(int(lengths.max()), 1)
     out = np.zeros(n, dtype=f"<U{width}")
     grid = out.view(np.uint32).reshape(n, width)
@@ -141,6 +143,136 @@ def decode_node_ids(offsets: np.ndarray, data: np.ndarray) -> np.ndarray:
         block = grid[a:b]
         block[columns[None, :] < lengths[a:b, None]] = points
     return out
+
+
+#: Id bytes read per step when packed ids are read through (:meth:`PackedNodeIds.take`).
+_TAKE_BYTES = 1 << 20
+
+
+class BytesReader:
+    """``read(n)``: the next ``n`` bytes of a uint8 array held in memory, as a view.
+
+    The protocol :class:`PackedNodeIds` reads its bytes through (the store gives readers that
+    decompress a step at a time with the same method).
+    """
+
+    def __init__(self, data: np.ndarray) -> None:
+        self._data = data
+        self._at = 0
+
+    def read(self, n: int) -> np.ndarray:
+        if self._at + n > self._data.shape[0]:
+            raise ValueError(f"read past the end of {self._data.shape[0]} bytes")
+        self._at += n
+        return self._data[self._at - n:self._at]
+
+
+class PackedNodeIds:
+    """A version's node ids as stored: UTF-8 bytes and offsets, decoded only where asked.
+
+    Id ``i`` is ``data[offsets[i]:offsets[i + 1]].decode("utf-8")`` (the layout of
+    :func:`encode_node_ids`). A command that needs few id strings (the moved nodes of a
+    diff of two runs of one version) or only their bytes (a CSV export) keeps the ids in
+    this form: about 8 bytes per id, plus the UTF-8 bytes, which may even stay in the
+    store's compressed form and be read through a step at a time (``open_data``), against
+    4 bytes per character of the longest id for a numpy ``str`` array. The ids of a stored
+    version are canonical (sorted ascending by code point, unique): the store holds no others.
+
+    Parameters
+    ----------
+    offsets : ndarray of int64, shape (n + 1,)
+    data : ndarray of uint8, shape (offsets[-1],), or None
+        The bytes in memory; None when ``open_data`` reads them.
+    open_data : callable or None
+        Returns a fresh reader (an object with ``read(n)`` giving the next ``n`` bytes from
+        ``offsets[0]`` on, valid until the next call) over the bytes.
+    size : int or None
+        Length of the bytes with ``open_data`` (default ``offsets[-1]``).
+    """
+
+    __slots__ = ("offsets", "_data", "_open_data", "_size", "_decoded")
+
+    def __init__(self, offsets: np.ndarray, data: np.ndarray | None = None, *, open_data=None,
+                 size: int | None = None) -> None:
+        import numpy as np
+
+        self.offsets = np.asarray(offsets, dtype=np.int64)
+        if self.offsets.ndim != 1 or self.offsets.shape[0] < 1:
+            raise ValueError("offsets must be a 1-D array of n + 1 entries")
+        if (data is None) == (open_data is None):
+            raise ValueError("give the bytes (data) or a way to read them (open_data), one of the two")
+        self._data = None if data is None else np.asarray(data, dtype=np.uint8)
+        self._open_data = open_data
+        self._size = int(self.offsets[-1]) if size is None else int(size)
+        self._decoded = None
+
+    def __len__(self) -> int:
+        return int(self.offsets.shape[0]) - 1
+
+    @property
+    def shape(self) -> tuple[int]:
+        return (len(self),)
+
+    @property
+    def data(self) -> np.ndarray:
+        """All the bytes in memory (read once from ``open_data`` if need be, then kept)."""
+        import numpy as np
+
+        if self._data is None:
+            # a fresh reader read once: its buffer is handed over, not copied
+            self._data = np.asarray(self._open_data().read(self._size), dtype=np.uint8)
+        return self._data
+
+    def open_bytes(self):
+        """A fresh reader over the bytes (see ``open_data``), in memory or from the store."""
+        return BytesReader(self._data) if self._data is not None else self._open_data()
+
+    def decode(self) -> np.ndarray:
+        """All ids as a numpy ``str`` array (:func:`decode_node_ids`), decoded once and kept."""
+        if self._decoded is None:
+            self._decoded = decode_node_ids(self.offsets, self.data)
+        return self._decoded
+
+    def take(self, positions) -> np.ndarray:
+        """The ids at ``positions`` (int, any order) as a numpy ``str`` array.
+
+        Only their bytes are gathered and decoded; bytes not in memory are read through once
+        in steps of about :data:`_TAKE_BYTES` (whole ids), never held all at once.
+        """
+        import numpy as np
+
+        positions = np.asarray(positions, dtype=np.int64).reshape(-1)
+        if self._decoded is not None:
+            return self._decoded[positions]
+        if positions.size == 0:
+            return np.zeros(0, dtype="<U1")
+        n = len(self)
+        if int(positions.min()) < -n or int(positions.max()) >= n:
+            raise IndexError(f"node position out of range for {n} ids")
+        positions = np.where(positions < 0, positions + n, positions)
+        wanted, back = np.unique(positions, return_inverse=True)
+        starts = self.offsets[wanted]
+        lengths = self.offsets[wanted + 1] - starts
+        out_offsets = np.zeros(wanted.size + 1, dtype=np.int64)
+        np.cumsum(lengths, out=out_offsets[1:])
+        gathered = np.empty(int(out_offsets[-1]), dtype=np.uint8)
+        reader = self.open_bytes()
+        row = 0
+        w = 0
+        while row < n and w < wanted.size:  # bounded: each step takes at least one row
+            end = int(np.searchsorted(self.offsets, self.offsets[row] + _TAKE_BYTES, side="right")) - 1
+            end = min(n, max(end, row + 1))
+            piece = reader.read(int(self.offsets[end] - self.offsets[row]))
+            w_end = int(np.searchsorted(wanted, end))
+            if w_end > w:
+                first = int(self.offsets[row])
+                shift = np.repeat(starts[w:w_end] - first - out_offsets[w:w_end], lengths[w:w_end])
+                at = np.arange(out_offsets[w], out_offsets[w_end])
+                gathered[out_offsets[w]:out_offsets[w_end]] = piece[shift + at]
+                w = w_end
+            row = end
+        ids = decode_node_ids(out_offsets, gathered)
+        return ids[back]
 
 
 #: Edges per step of the adjacency builder (bounded temporaries).

@@ -258,3 +258,32 @@ def test_input_errors_are_clear():
     # Object arrays of str are accepted like numpy str arrays.
     d = compare_memberships(np.array(["a", "b", "c"], dtype=object), lab, nid, lab)
     assert d.ari == 1.0
+
+
+def test_packed_ids_of_one_version_give_the_same_diff_as_strings():
+    # runs of one stored version: the same PackedNodeIds object on both sides is never decoded
+    # whole, and the result equals the one over str arrays; the moved nodes are those whose A
+    # community is not matched to their B community (recomputed here from the matches), with
+    # ARI from sklearn.metrics.adjusted_rand_score
+    from workspace.domain import PackedNodeIds, encode_node_ids
+
+    rng = np.random.default_rng(9)
+    names = np.array(sorted({f"näme-{i:05d}," * (1 + i % 3) for i in range(600)}))
+    a = rng.integers(0, 5, names.size)
+    b = (a + (rng.random(names.size) < 0.1)) % 5
+    b[:7] = -1
+    packed = PackedNodeIds(*encode_node_ids(names))
+    for limit in (None, 3, 0):
+        plain = compare_memberships(names, a, names, b, moved_limit=limit).to_dict(moved_rows=True)
+        fast = compare_memberships(packed, a, packed, b, moved_limit=limit).to_dict(moved_rows=True)
+        assert fast == plain
+    assert packed._decoded is None  # only the listed ids were decoded
+    d = compare_memberships(packed, a, packed, b)
+    assert d.ari == pytest.approx(adjusted_rand_score(a, b), abs=1e-12)
+    match = {m.a: m.b for m in d.matches}
+    moved = [n for n, x, y in zip(names.tolist(), a.tolist(), b.tolist()) if match.get(x) != y]
+    assert d.moved_ids.tolist() == moved
+    # two different packed objects (two versions) are aligned by their decoded strings
+    other = PackedNodeIds(*encode_node_ids(names[5:]))
+    assert compare_memberships(packed, a, other, b[5:]).to_dict() == \
+        compare_memberships(names, a, names[5:], b[5:]).to_dict()

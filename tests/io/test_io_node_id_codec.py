@@ -88,3 +88,46 @@ def test_many_ids_cross_chunk_boundaries(monkeypatch):
 def test_invalid_utf8_is_refused_as_python_does():
     with pytest.raises(UnicodeDecodeError):
         decode_node_ids(np.array([0, 2], dtype=np.int64), np.array([0xC3, 0x28], dtype=np.uint8))
+
+
+class _StepReader:
+    """Hands out each step in one reused buffer, as the store's reader does."""
+
+    def __init__(self, data: bytes) -> None:
+        self.data = np.frombuffer(data, dtype=np.uint8)
+        self.at = 0
+        self.buf = np.empty(0, dtype=np.uint8)
+
+    def read(self, n: int) -> np.ndarray:
+        if n > self.buf.size:
+            self.buf = np.empty(n, dtype=np.uint8)
+        self.buf[:n] = self.data[self.at:self.at + n]
+        self.at += n
+        return self.buf[:n]
+
+
+@pytest.mark.parametrize("take_bytes", [1, 100, 1 << 20])
+@pytest.mark.parametrize("streamed", [False, True])
+def test_packed_ids_take_gives_pythons_strings(monkeypatch, take_bytes, streamed):
+    # PackedNodeIds.take decodes only the ids asked for; reference: bytes.decode("utf-8") of the
+    # same slices (standard library, RFC 3629), for ids of every length, any order, repeats and
+    # negative positions as numpy indexing has them
+    from workspace.domain import PackedNodeIds
+
+    monkeypatch.setattr(domain, "_TAKE_BYTES", take_bytes)
+    ids = _ids_of_every_length()
+    ref_offsets, ref_data = _reference(ids)
+    packed = (PackedNodeIds(ref_offsets, open_data=lambda: _StepReader(ref_data)) if streamed
+              else PackedNodeIds(ref_offsets, np.frombuffer(ref_data, dtype=np.uint8)))
+    assert len(packed) == len(ids)
+    rng = np.random.default_rng(3)
+    for positions in ([], [0], [len(ids) - 1], [-1, 0, -2], rng.integers(0, len(ids), 40),
+                      np.arange(len(ids))[::-1]):
+        positions = np.asarray(positions, dtype=np.int64)
+        expected = [ref_data[ref_offsets[i]:ref_offsets[i + 1]].decode("utf-8")
+                    for i in (positions % len(ids)).tolist()]
+        assert packed.take(positions).tolist() == expected
+    with pytest.raises(IndexError):
+        packed.take([len(ids)])
+    assert packed.decode().tolist() == ids
+    assert packed.take([2, 1]).tolist() == ids[2:0:-1]  # from the decoded array now

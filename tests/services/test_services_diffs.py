@@ -97,26 +97,48 @@ def test_diff_errors(store, two_versions, tmp_path):
             diff_module.DENSE_LIMIT = old
 
 
-def test_diff_and_track_decode_each_versions_ids_once(store, tmp_path, monkeypatch):
-    # two runs of one version: its node ids are decoded once per command, not once per run;
-    # a track over both versions decodes each version once. Reference for the values: sklearn's
-    # adjusted_rand_score on the same labels (scikit-learn, sklearn.metrics).
+def test_diff_decodes_only_the_listed_ids_and_each_version_once(store, tmp_path, monkeypatch):
+    # two runs of one version: no full decode of its node ids, only the moved nodes listed are
+    # decoded; a track over two versions decodes each version once. Reference for the values:
+    # sklearn's adjusted_rand_score on the same labels (scikit-learn, sklearn.metrics), and the
+    # moved nodes recomputed from the matches the diff reports.
+    from workspace import domain
     from workspace.store import repo
 
     G = nx.karate_club_graph()
     A = nx.to_scipy_sparse_array(G, nodelist=range(34), weight="weight")
     names = [f"m{i:02d}" for i in range(34)]
     import_adjacency(store, A, tmp_path, project="club", network="karate", names=names)
+    import_adjacency(store, A[:30][:, :30], tmp_path, project="club", network="karate", names=names[:30])
     la = np.array([G.nodes[i]["club"] == "Mr. Hi" for i in range(34)], dtype=int)
     lb = np.arange(34) % 3
     ra = _attach(store, tmp_path, "club/karate@1", names, la, "clubs")
     rb = _attach(store, tmp_path, "club/karate@1", names, lb, "thirds")
-    calls = []
-    real = repo.decode_node_ids
-    monkeypatch.setattr(repo, "decode_node_ids", lambda *a: calls.append(1) or real(*a))
-    d = diffs.diff_runs(store, ra, rb)
-    assert len(calls) == 1
+    from workspace.services.networks import load_graph
+
+    names_2 = load_graph(store, "club/karate@2")[1].node_ids.tolist()  # members left with an edge
+    rc = _attach(store, tmp_path, "club/karate@2", names_2, np.arange(len(names_2)) % 2, "halves")
+    ids_1, stored_a, _ = runs.load_membership(store, ra)  # labels as stored (renumbered)
+    stored_b = runs.load_membership(store, rb)[1]
+    decoded = []
+    real = domain.decode_node_ids
+
+    def counting(offsets, data):
+        decoded.append(len(offsets) - 1)
+        return real(offsets, data)
+
+    monkeypatch.setattr(domain, "decode_node_ids", counting)
+    monkeypatch.setattr(repo, "decode_node_ids", counting)
+    d = diffs.diff_runs(store, ra, rb, moved_rows=True)
     assert d["ari"] == pytest.approx(adjusted_rand_score(la, lb), abs=1e-12)
-    calls.clear()
-    diffs.track(store, [ra, rb, ra])
-    assert len(calls) == 1
+    match = {m["a"]: m["b"] for m in d["matches"]}
+    expected = sorted(v for v, x, y in zip(ids_1.tolist(), stored_a.tolist(), stored_b.tolist())
+                      if match.get(x) != y)
+    assert [row[0] for row in d["moved_nodes"]] == expected and d["moved"] == len(expected) > 0
+    assert sum(decoded) == len(expected)  # only the listed ids, never all 34
+    decoded.clear()
+    assert diffs.diff_runs(store, ra, rb, moved_limit=0)["moved"] == len(expected)
+    assert decoded == []  # nothing listed, nothing decoded
+    decoded.clear()
+    diffs.track(store, [ra, rc, rb])
+    assert sorted(decoded) == [len(names_2), 34]  # each version once, though version 1 is on two steps

@@ -159,3 +159,51 @@ def test_reading_a_chunked_array_does_not_hold_it_twice(store, monkeypatch):
             tracemalloc.stop()
     assert np.array_equal(back, arr)
     assert peak < arr.nbytes * 1.25, peak / arr.nbytes
+
+
+@pytest.mark.parametrize("chunk_bytes", [None, "100", "4096"])
+@pytest.mark.parametrize("size", [1001, 3 << 20])
+def test_array_bytes_read_through_in_steps(store, monkeypatch, chunk_bytes, size):
+    # repo.open_array_bytes: the raw little-endian bytes of a stored array (one .npy+zstd value, or
+    # chunks), read in steps of any size through one reused buffer, are the array's own bytes
+    # (reference: numpy's tobytes of the array put in); past the end is an error
+    from workspace.store import repo
+
+    if chunk_bytes:
+        monkeypatch.setenv("CUTBOOK_BLOB_CHUNK_BYTES", chunk_bytes)
+    rng = np.random.default_rng(size)
+    arr = rng.integers(0, 256, size).astype(np.uint8)
+    with store.write() as s:
+        h = repo.put_array(s, arr)
+    with store.read() as s:
+        open_bytes, total = repo.open_array_bytes(s, h)
+        back = repo.get_array(s, h)
+    assert total == arr.nbytes and back.flags.writeable and np.array_equal(back, arr)
+    for steps in ([total], [1, 2, 3, 4096, 99_999], [7] * 5):
+        reader = open_bytes()
+        got, at = [], 0
+        while at < total:
+            for n in steps:
+                n = min(n, total - at)
+                got.append(reader.read(n).tobytes())
+                at += n
+        assert b"".join(got) == arr.tobytes()
+        with pytest.raises(ValueError):
+            reader.read(1)
+
+
+def test_large_single_value_decodes_in_place_as_numpy_loads_it():
+    # blobs.decode_array on a large .npy+zstd value: the same array as numpy.load of the stream
+    # (numpy.lib.format, NEP 1), writable, for several dtypes
+    import io
+
+    import zstandard
+
+    from workspace.store.blobs import decode_array, encode_array
+
+    for arr in (np.arange(300_000, dtype="<i8"), np.linspace(0, 1, 200_001), np.arange(2 << 20, dtype=np.uint8)):
+        enc = encode_array(arr)
+        assert enc.raw_size > 1 << 20 and not enc.chunks
+        back = decode_array(enc.codec, enc.data, enc.raw_size)
+        ref = np.load(io.BytesIO(zstandard.ZstdDecompressor().decompress(enc.data, max_output_size=enc.raw_size)))
+        assert back.dtype == ref.dtype and np.array_equal(back, ref) and back.flags.writeable

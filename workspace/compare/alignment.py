@@ -88,9 +88,10 @@ def align_nodes(node_ids_a, node_ids_b) -> NodeAlignment:
 
     Parameters
     ----------
-    node_ids_a, node_ids_b : ndarray of str, shape (n_a,) and (n_b,)
+    node_ids_a, node_ids_b : ndarray of str, shape (n_a,) and (n_b,), or PackedNodeIds
         Sorted ascending, unique (the canonical node order of a network
-        version).
+        version). Packed ids (:class:`workspace.domain.PackedNodeIds`, a stored
+        version's) are decoded, unless the same object is on both sides.
 
     Returns
     -------
@@ -106,7 +107,8 @@ def align_nodes(node_ids_a, node_ids_b) -> NodeAlignment:
     Notes
     -----
     The same array object on both sides (runs on one network version) and
-    equal arrays are detected in O(1) and O(n); otherwise every id of A is looked up
+    equal arrays are detected in O(1) and O(n) (the same packed ids in O(1), none
+    decoded); otherwise every id of A is looked up
     in B by binary search (``np.searchsorted``), O(n_a log n_b) string
     comparisons. The coverage is the Jaccard index of the two node sets.
 
@@ -115,6 +117,18 @@ def align_nodes(node_ids_a, node_ids_b) -> NodeAlignment:
     Jaccard, P. (1912). The distribution of the flora in the alpine zone.
     New Phytologist 11, 37-50.
     """
+    from workspace.domain import PackedNodeIds
+
+    if isinstance(node_ids_a, PackedNodeIds) and node_ids_b is node_ids_a:
+        # one stored version on both sides: canonical by construction, no id needs decoding
+        na = len(node_ids_a)
+        idx = np.arange(na, dtype=np.int64)
+        empty = np.zeros(0, dtype=np.int64)
+        return NodeAlignment(idx, idx.copy(), empty, empty.copy(), na, na)
+    if isinstance(node_ids_a, PackedNodeIds):
+        node_ids_a = node_ids_a.decode()
+    if isinstance(node_ids_b, PackedNodeIds):
+        node_ids_b = node_ids_b.decode()
     a = as_node_ids(node_ids_a, "node_ids_a")
     b = a if node_ids_b is node_ids_a else as_node_ids(node_ids_b, "node_ids_b")
     na, nb = a.shape[0], b.shape[0]

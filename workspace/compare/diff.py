@@ -20,6 +20,7 @@ from workspace.compare.scores import (
     _mutual_information, _normalized_mutual_info,
     _variation_of_information,
 )
+from workspace.domain import PackedNodeIds
 from workspace.errors import ComputeError, ParameterError, UsageError
 
 NODE_MODES = ("common", "all")
@@ -178,6 +179,14 @@ class MembershipDiff:
         }
 
 
+def _id_array(ids) -> np.ndarray:
+    """Node ids as a numpy ``str`` array (packed ids decoded, object arrays converted)."""
+    if isinstance(ids, PackedNodeIds):
+        return ids.decode()
+    arr = np.asarray(ids)
+    return arr.astype(np.str_) if arr.dtype.kind == "O" else arr
+
+
 def _check_labels(labels, n: int, name: str) -> np.ndarray:
     arr = np.asarray(labels)
     if arr.ndim != 1 or arr.shape[0] != n:
@@ -211,9 +220,11 @@ def compare_memberships(node_ids_a, labels_a, node_ids_b, labels_b, *, nodes: st
 
     Parameters
     ----------
-    node_ids_a, node_ids_b : ndarray of str, shape (n_a,), (n_b,)
+    node_ids_a, node_ids_b : ndarray of str, shape (n_a,), (n_b,), or PackedNodeIds
         Canonical node ids of the two network versions (sorted ascending,
-        unique).
+        unique). The same :class:`workspace.domain.PackedNodeIds` object on
+        both sides (runs of one stored version) is never decoded as a whole:
+        only the moved nodes listed are.
     labels_a, labels_b : ndarray of int, shape (n_a,), (n_b,)
         Community of each node, 0..k-1; -1 marks a node left unassigned. If
         present, the unassigned nodes form one more group for the scores; they
@@ -273,12 +284,12 @@ def compare_memberships(node_ids_a, labels_a, node_ids_b, labels_b, *, nodes: st
         raise ParameterError(f"tail_mass must be in [0, 1), got {tail_mass}")
 
     al = align_nodes(node_ids_a, node_ids_b)
-    ids_a = np.asarray(node_ids_a)
-    ids_b = np.asarray(node_ids_b)
-    if ids_a.dtype.kind == "O":
-        ids_a = ids_a.astype(np.str_)
-    if ids_b.dtype.kind == "O":
-        ids_b = ids_b.astype(np.str_)
+    ids_a, ids_b = node_ids_a, node_ids_b
+    if isinstance(ids_a, PackedNodeIds) and ids_b is ids_a:
+        take_a = take_b = ids_a.take  # one version: only the listed ids are decoded
+    else:
+        ids_a, ids_b = (_id_array(ids_a), _id_array(ids_b))
+        take_a, take_b = ids_a.__getitem__, ids_b.__getitem__
     la_full = _check_labels(labels_a, al.n_a, "labels_a")
     lb_full = _check_labels(labels_b, al.n_b, "labels_b")
 
@@ -336,7 +347,7 @@ def compare_memberships(node_ids_a, labels_a, node_ids_b, labels_b, *, nodes: st
         src = moved_pos if al.identical else al.common_a[moved_pos]
     else:
         src = common_pos[moved_pos]
-    moved_ids = ids_a[src]
+    moved_ids = take_a(src)
     moved_from = va[ca_c[moved_pos]]
     moved_to = vb[cb_c[moved_pos]]
     exp = expected[moved_pos]
@@ -346,7 +357,7 @@ def compare_memberships(node_ids_a, labels_a, node_ids_b, labels_b, *, nodes: st
         ari=float(ari), nmi=float(nmi), nmi_normalization=nmi_normalization, ami=float(ami),
         vi_nats=vi_nats, vi_bits=vi_bits, nodes=nodes, n_a=al.n_a, n_b=al.n_b,
         n_common=al.n_common, n_scored=table.n,
-        only_in_a_ids=ids_a[al.only_a], only_in_b_ids=ids_b[al.only_b],
+        only_in_a_ids=take_a(al.only_a), only_in_b_ids=take_b(al.only_b),
         coverage=al.coverage, k_a=int(np.count_nonzero(va >= 0)),
         k_b=int(np.count_nonzero(vb >= 0)), table=table, matches=tuple(matches),
         events=tuple(events), event_thresholds=thresholds, moved=n_moved,

@@ -8,8 +8,6 @@ appearance in canonical node order, the numbering the rest of the package uses.
 
 from __future__ import annotations
 
-import csv
-import io
 import json
 import os
 import re
@@ -303,10 +301,30 @@ def write_membership(path: str | os.PathLike, node_ids: np.ndarray, labels: np.n
     RFC 4180 (2005); U. Brandes et al., "GraphML Progress Report" (2002).
     """
     path = os.fspath(path)
+    if format == "csv":
+        count, chunks = _csv_chunks(node_ids, labels, path)
+        with open(path, "wb") as out:
+            for chunk in chunks:
+                out.write(chunk)
+        return count
     text, count = membership_text(node_ids, labels, format, graph=graph, path=path)
     with open(path, "w", encoding="utf-8", newline="") as out:
         out.write(text)
     return count
+
+
+def _csv_chunks(node_ids, labels, path: str | None):
+    """Count and byte chunks of a membership CSV of str node ids (see :mod:`membership_csv`)."""
+    from workspace.domain import PackedNodeIds, encode_node_ids
+    from workspace.io.membership_csv import membership_csv
+
+    labels = np.asarray(labels)
+    if not isinstance(node_ids, PackedNodeIds):
+        node_ids = np.asarray(node_ids)
+        if node_ids.shape != labels.shape or node_ids.ndim != 1:
+            raise ParameterError("node_ids and labels must be 1-D arrays of the same length")
+        node_ids = PackedNodeIds(*encode_node_ids(node_ids))
+    return membership_csv(node_ids, labels, path=path)
 
 
 def membership_text(node_ids: np.ndarray, labels: np.ndarray, format: str = "csv", *,
@@ -370,19 +388,12 @@ def membership_text(node_ids: np.ndarray, labels: np.ndarray, format: str = "csv
         raise ParameterError("node_ids and labels must be 1-D arrays of the same length")
     if graph is not None and not np.array_equal(graph.node_ids, node_ids):
         raise ParameterError("graph node ids differ from node_ids")
+    if format == "csv":  # RFC 4180 minimal quoting, built from the ids' UTF-8 bytes
+        count, chunks = _csv_chunks(node_ids, labels, path)
+        return b"".join(chunks).decode("utf-8"), count
     keep = np.flatnonzero(labels >= 0)
     ids = node_ids[keep].tolist()
     values = labels[keep].astype(np.int64).tolist()
-    if format == "csv":
-        bad = next((x for x in ids if "\n" in x or "\r" in x), None)
-        if bad is not None:
-            raise InputError(f"node id {bad!r} holds a line break, which a membership CSV "
-                             "cannot carry; write json or graphml", path=path)
-        buf = io.StringIO()
-        writer = csv.writer(buf, lineterminator="\n")
-        writer.writerow(["node", "community"])
-        writer.writerows(zip(ids, values))
-        return buf.getvalue(), len(ids)
     all_ids = node_ids.tolist()
     label_of = labels.astype(np.int64).tolist()
     if format == "json" and graph is None:

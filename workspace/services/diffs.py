@@ -78,12 +78,16 @@ def paused_gc() -> Iterator[None]:
 
 def _load_memberships(store: Store, run_ids: list[int]) -> list[tuple[Any, Any, dict[str, Any]]]:
     """(node_ids, labels int64, run summary) per run, in one read; the node ids of a version are
-    decoded once and shared (the same array lets the alignment take its fast path)."""
+    loaded once and shared (the same object lets the alignment take its fast path).
+
+    Runs all of one version get its ids packed as stored (:class:`workspace.domain.PackedNodeIds`):
+    the comparison then decodes only the ids it lists (moved nodes). Runs of several versions get
+    each version's ids decoded once (their alignment compares the strings)."""
     import numpy as np
 
     from workspace.store import repo
 
-    out = []
+    rows = []
     ids_of: dict[int, Any] = {}
     with store.read() as s:
         for rid in run_ids:
@@ -91,10 +95,12 @@ def _load_memberships(store: Store, run_ids: list[int]) -> list[tuple[Any, Any, 
             if run.membership_blob is None:
                 raise NotFoundError(f"run {rid} has no membership (status {run.status})")
             if run.version_id not in ids_of:
-                ids_of[run.version_id] = repo.load_node_ids(s, s.get(NetworkVersion, run.version_id))
+                ids_of[run.version_id] = repo.load_packed_node_ids(s, s.get(NetworkVersion, run.version_id))
             labels = repo.get_array(s, run.membership_blob).astype(np.int64)
-            out.append((ids_of[run.version_id], labels, runs_service._run_row_dict(run, p, n, v)))
-    return out
+            rows.append((run.version_id, labels, runs_service._run_row_dict(run, p, n, v)))
+    if len(ids_of) > 1:
+        ids_of = {vid: repo.decode_node_ids(ids.offsets, ids.data) for vid, ids in ids_of.items()}
+    return [(ids_of[vid], labels, summary) for vid, labels, summary in rows]
 
 
 def _brief(summary: dict[str, Any]) -> dict[str, Any]:

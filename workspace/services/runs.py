@@ -633,8 +633,10 @@ def _get_run(s, run_id: int):
     return row
 
 
-def load_membership(store: Store, run_id: int) -> tuple[np.ndarray, np.ndarray, dict[str, Any]]:
-    """(node_ids, labels int64, run summary) of a finished run."""
+def load_membership(store: Store, run_id: int, *, packed: bool = False) -> tuple[Any, np.ndarray, dict[str, Any]]:
+    """(node_ids, labels int64, run summary) of a finished run; with ``packed`` the node ids as
+    stored (:class:`workspace.domain.PackedNodeIds`, decoded only where asked), else a numpy
+    ``str`` array."""
     import numpy as np
 
     with store.read() as s:
@@ -642,7 +644,7 @@ def load_membership(store: Store, run_id: int) -> tuple[np.ndarray, np.ndarray, 
         if run.membership_blob is None:
             raise NotFoundError(f"run {run_id} has no membership (status {run.status})")
         version = s.get(NetworkVersion, run.version_id)
-        node_ids = repo.load_node_ids(s, version)
+        node_ids = repo.load_packed_node_ids(s, version) if packed else repo.load_node_ids(s, version)
         labels = repo.get_array(s, run.membership_blob).astype(np.int64)
         return node_ids, labels, _run_row_dict(run, p, n, v)
 
@@ -698,14 +700,19 @@ def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict
         return out
 
 
-def write_atomically(target: str, body: bytes) -> None:
-    """Write ``body`` beside ``target`` and rename it over: a full disk or a refused write leaves
-    no partial file (an OSError names ``target``, not the temporary file)."""
+def write_atomically(target: str, body) -> None:
+    """Write ``body`` (bytes, or an iterable of bytes-like chunks written one by one) beside
+    ``target`` and rename it over: a full disk, a refused write or an error while the chunks are
+    made leaves no partial file (an OSError names ``target``, not the temporary file)."""
     partial = os.path.join(os.path.dirname(os.path.abspath(target)),
                            f".{os.path.basename(target)}.partial-{os.getpid()}")
     try:
         with open(partial, "wb") as out:
-            out.write(body)
+            if isinstance(body, (bytes, bytearray, memoryview)):
+                out.write(body)
+            else:
+                for chunk in body:
+                    out.write(chunk)
         os.replace(partial, target)
     except BaseException as exc:
         try:
@@ -727,9 +734,9 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
     id) numbers the communities by their match in that run (see
     :func:`workspace.services.tracking.aligned_labels`).
     """
-    from workspace.io import membership_text
-
-    node_ids, labels, summary = load_membership(store, run_id)
+    # CSV is laid out from the stored UTF-8 bytes of the ids (no str per id, see
+    # workspace.io.membership_csv); JSON and GraphML take the decoded ids
+    node_ids, labels, summary = load_membership(store, run_id, packed=format == "csv")
     if align_to is not None:
         from workspace.services.tracking import aligned_labels
 
@@ -744,6 +751,21 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
             graph = repo.load_graph(s, s.get(NetworkVersion, version_id))
             attributes = stored_attributes(s, version_id)  # the version's node table, if it has one
     target = os.fspath(path)
+    if format == "csv":
+        from workspace.io.membership_csv import membership_csv
+
+        # a file is written atomically, so its steps are checked as they are laid out (an error
+        # removes the partial file); a stream is checked whole first, before anything is written
+        count, chunks = membership_csv(node_ids, labels, path=target, check_first=stream is not None)
+        if stream is not None:
+            _write_chunks(stream, chunks)
+        else:
+            write_atomically(target, chunks)
+        return {"run": run_id, "path": target, "format": format, "nodes": int(labels.shape[0]),
+                "with_community": count, "edges": None, "membership_hash": summary["membership_hash"],
+                "aligned_to": align_to}
+    from workspace.io import membership_text  # pyarrow and the XML readers load with it
+
     text, count = membership_text(node_ids, labels, format, graph=graph, path=target, attributes=attributes)
     edges = None if graph is None else graph.n_edges
     if stream is not None:
@@ -754,6 +776,21 @@ def export_run(store: Store, run_id: int, path: str | os.PathLike, *, format: st
     return {"run": run_id, "path": target, "format": format, "nodes": int(labels.shape[0]),
             "with_community": count, "edges": edges, "membership_hash": summary["membership_hash"],
             "aligned_to": align_to}
+
+
+def _write_chunks(stream, chunks) -> None:
+    """UTF-8 byte chunks to a text stream: through its byte buffer when it has one (standard
+    output), else decoded (each chunk ends at a line end, so decodes alone)."""
+    buffer = getattr(stream, "buffer", None)
+    stream.flush()
+    for chunk in chunks:
+        if buffer is not None:
+            buffer.write(chunk)
+        else:
+            stream.write(bytes(chunk).decode("utf-8"))
+    if buffer is not None:
+        buffer.flush()
+    stream.flush()
 
 
 def _networks_holding(store: Store, node: str, *, exclude: str) -> list[str]:

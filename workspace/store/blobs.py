@@ -204,8 +204,99 @@ def decode_array(codec: str, data: bytes, raw_size: int | None = None) -> np.nda
 
     if codec != CODEC:
         raise ValueError(f"unknown blob codec {codec!r}")
-    raw = zstandard.ZstdDecompressor().decompress(data, max_output_size=raw_size or 0)
+    if raw_size and raw_size > 1 << 20:
+        # large arrays: the .npy stream decompressed into one numpy buffer and the array viewed
+        # in place after its header (np.load from bytes would copy the values once more)
+        buf = np.empty(raw_size, dtype=np.uint8)
+        decompress_chunk_into(data, memoryview(buf))
+        head = io.BytesIO(buf[:min(raw_size, 1 << 16)].tobytes())
+        version = np.lib.format.read_magic(head)
+        read_header = (np.lib.format.read_array_header_1_0 if version == (1, 0)
+                       else np.lib.format.read_array_header_2_0)
+        shape, fortran, dtype = read_header(head)
+        start = head.tell()
+        if len(shape) == 1 and not dtype.hasobject and start + shape[0] * dtype.itemsize == raw_size:
+            return buf[start:].view(dtype)
+        raw = buf.tobytes()
+    else:
+        raw = zstandard.ZstdDecompressor().decompress(data, max_output_size=raw_size or 0)
     return np.load(io.BytesIO(raw), allow_pickle=False)
+
+
+class ArrayBytesReader:
+    """The raw bytes of a stored array, read in order and decompressed a step at a time.
+
+    ``frames`` are the array's compressed pieces in order with their raw sizes: one ``.npy``
+    stream for codec ``npy+zstd`` (its header is skipped), the chunks for ``zstd-chunks``.
+    :meth:`read` returns the next ``n`` bytes as a uint8 view into one reused buffer (valid
+    until the next call), so reading a large array through costs no allocation of its size
+    (a fresh buffer of hundreds of MB costs page faults and, with transparent huge pages,
+    compaction, several times the decompression itself).
+    """
+
+    def __init__(self, frames: list[tuple[bytes, int]], *, npy: bool, capacity: int = 1 << 20) -> None:
+        import numpy as np
+
+        self._frames = list(frames)
+        self._npy = npy
+        self._next = 0
+        self._reader = None
+        self._left = 0  # raw bytes still expected from the open frame
+        self._buf = np.empty(max(capacity, 16), dtype=np.uint8)
+
+    def _open_next(self) -> bool:
+        import zstandard
+
+        if self._reader is not None:
+            self._reader.close()
+            self._reader = None
+        if self._left:
+            raise ValueError(f"a stored array's piece ended {self._left} bytes short")
+        if self._next >= len(self._frames):
+            return False
+        data, raw_size = self._frames[self._next]
+        self._next += 1
+        self._reader = zstandard.ZstdDecompressor().stream_reader(data)
+        self._left = raw_size
+        if self._npy:  # skip the .npy header: magic, version, header length, header
+            self._npy = False
+            lead = self._exact(10)
+            if lead[:6] != _NPY_MAGIC:
+                raise ValueError("not an .npy stream")
+            size = int.from_bytes(lead[8:10], "little") if lead[6] == 1 else \
+                int.from_bytes(lead[8:10] + self._exact(2), "little")
+            self._exact(size)
+        return True
+
+    def _exact(self, n: int) -> bytes:
+        got = self._reader.read(n)
+        while len(got) < n:  # bounded: each pass reads at least one byte or stops
+            more = self._reader.read(n - len(got))
+            if not more:
+                raise ValueError("a stored array's piece ended early")
+            got += more
+        self._left -= n
+        return got
+
+    def read(self, n: int):
+        """The next ``n`` bytes (uint8 view, valid until the next call); ValueError past the end."""
+        import numpy as np
+
+        if n > self._buf.shape[0]:
+            self._buf = np.empty(n, dtype=np.uint8)
+        out = memoryview(self._buf)
+        filled = 0
+        while filled < n:  # bounded: every pass fills bytes or opens the next of finitely many frames
+            if self._reader is None or self._left == 0:
+                if not self._open_next():
+                    raise ValueError(f"a stored array ended {n - filled} bytes early")
+                continue
+            got = self._reader.readinto(out[filled:filled + min(n - filled, self._left)])
+            if not got:
+                raise ValueError("a stored array's piece ended early")
+            filled += got
+            self._left -= got
+        return self._buf[:n]
 
 
 #: The five arrays of a network version, in the order of their blob columns.

@@ -9,7 +9,7 @@ from typing import TYPE_CHECKING
 from sqlalchemy import func, insert, select
 from sqlalchemy.orm import Session
 
-from workspace.domain import GraphData, decode_node_ids
+from workspace.domain import BytesReader, GraphData, PackedNodeIds, decode_node_ids
 from workspace.store.blobs import (GRAPH_ARRAYS, EncodedArray, decode_array, decode_values, decompress_chunk_into,
                                    encode_array, encode_graph_arrays)
 from workspace.store.schema import Blob, BlobChunk, Network, NetworkVersion, Project
@@ -196,8 +196,40 @@ def add_version(session: Session, network: Network, graph: GraphData, *, parent:
 
 
 def load_node_ids(session: Session, version: NetworkVersion) -> np.ndarray:
+    """A version's node ids as a numpy ``str`` array (canonical order)."""
     return decode_node_ids(get_array(session, version.node_offsets_blob),
                            get_array(session, version.node_bytes_blob))
+
+
+def open_array_bytes(session: Session, blob_hash: str):
+    """A callable that opens a fresh :class:`~workspace.store.blobs.ArrayBytesReader` over a stored
+    array's raw bytes, and the array's length in bytes. The compressed pieces are fetched now (the
+    callable needs no session); nothing is decompressed until read."""
+    from workspace.store.blobs import CODEC, ArrayBytesReader
+
+    row = session.execute(select(Blob.codec, Blob.data, Blob.raw_size, Blob.dtype, Blob.length, Blob.chunks)
+                          .where(Blob.hash == blob_hash)).one()
+    import numpy as np
+
+    if row.length is None or row.dtype is None or not row.raw_size or (row.codec != CODEC and not row.chunks):
+        raw = np.ascontiguousarray(get_array(session, blob_hash)).reshape(-1).view(np.uint8)
+        return (lambda: BytesReader(raw)), int(raw.shape[0])
+    size = int(row.length) * np.dtype(row.dtype).itemsize
+    if row.chunks:
+        frames = [(r.data, int(r.raw_size)) for r in iter_chunks(session, blob_hash)]
+        if len(frames) != row.chunks or sum(f[1] for f in frames) != size:
+            raise ValueError(f"array {blob_hash[:12]}: chunks do not add up to {size} bytes")
+        return (lambda: ArrayBytesReader(frames, npy=False)), size
+    frames = [(row.data, int(row.raw_size))]
+    return (lambda: ArrayBytesReader(frames, npy=True)), size
+
+
+def load_packed_node_ids(session: Session, version: NetworkVersion) -> PackedNodeIds:
+    """A version's node ids as stored (offsets + UTF-8 bytes), decoded only where asked; the bytes
+    stay compressed until read, and are read through in steps where possible (see
+    :class:`~workspace.domain.PackedNodeIds`)."""
+    open_data, size = open_array_bytes(session, version.node_bytes_blob)
+    return PackedNodeIds(get_array(session, version.node_offsets_blob), open_data=open_data, size=size)
 
 
 def version_is_directed(version: NetworkVersion) -> bool:
