@@ -46,7 +46,10 @@ def read_bytes(path: str, progress: Progress = None) -> bytes:
     if os.path.isdir(path):
         raise InputError("is a directory, not a network file", path=path)
     try:
-        with open(path, "rb") as raw:
+        # unbuffered: ``read()`` then sizes one bytes object from the file size and fills it in
+        # place (a buffered reader would join its buffered head to the rest: a second copy of
+        # the whole file at the peak)
+        with open(path, "rb", buffering=0) as raw:
             total = os.fstat(raw.fileno()).st_size
             if raw.read(2) == b"\x1f\x8b":
                 raw.seek(0)
@@ -129,6 +132,56 @@ class LineMap:
         """1-based file line of non-blank row ``row`` (None if out of range)."""
         if 0 <= row < self.rows.size:
             return int(self.rows[row]) + 1
+        return None
+
+
+class BlankLines:
+    r"""The file line of each non-blank line of a buffer, kept as the blank lines alone.
+
+    Gives what :meth:`LineMap.line` gives without keeping the buffer or an entry per line:
+    with ``b`` the sorted 0-based indices of the blank lines (lines end at ``\n``, after
+    :func:`normalise_newlines`; a buffer ending in ``\n`` ends with a blank line), the k-th
+    non-blank line is line ``k + #{j : b[j] - j <= k}`` (``b[j] - j`` non-blank lines come
+    before blank line ``j``). Most edge lists have no blank line inside, and then nothing is
+    stored at all. The newline positions are found in slices of bounded size, so building it
+    costs memory in proportion to a slice, not to the file.
+    """
+
+    _SLICE = 1 << 26
+
+    def __init__(self, data: bytes) -> None:
+        codes = np.frombuffer(data, dtype=np.uint8)
+        step = self._SLICE
+        blanks: list[np.ndarray] = [np.zeros(0, dtype=np.int64)]
+        n_newlines = 0
+        previous = -1  # position of the last newline before the slice (-1: start of data)
+        for at in range(0, codes.size, step):
+            is_newline = codes[at:at + step] == 10
+            count = int(np.count_nonzero(is_newline))
+            adjacent = bool(np.any(is_newline[1:] & is_newline[:-1])) or (
+                count and bool(is_newline[0]) and previous == at - 1)
+            if adjacent:
+                # line n_newlines + i ends at newline[i] and starts after before[i]: blank if
+                # the two are adjacent
+                newline = np.flatnonzero(is_newline) + at
+                before = np.empty(newline.size, dtype=np.int64)
+                before[0] = previous
+                before[1:] = newline[:-1]
+                blanks.append(np.flatnonzero(newline == before + 1) + n_newlines)
+            if count:
+                previous = at + is_newline.size - 1 - int(np.argmax(is_newline[::-1]))
+            n_newlines += count
+        self.n_lines = n_newlines + 1
+        if not data or data.endswith(b"\n"):
+            blanks.append(np.array([n_newlines], dtype=np.int64))
+        blank = np.concatenate(blanks).astype(np.int64)
+        self.n_rows = self.n_lines - int(blank.size)
+        self._before = blank - np.arange(blank.size, dtype=np.int64)
+
+    def line(self, row: int) -> int | None:
+        """1-based file line of non-blank row ``row`` (None if out of range)."""
+        if 0 <= row < self.n_rows:
+            return int(row + np.searchsorted(self._before, row, side="right")) + 1
         return None
 
 

@@ -19,6 +19,7 @@ import pyarrow.csv as pa_csv
 from workspace.domain import ImportPolicy
 from workspace.errors import InputError, ParameterError
 from workspace.io._common import (
+    BlankLines,
     EdgeRecords,
     LineMap,
     Progress,
@@ -139,10 +140,17 @@ class _Csv:
         self.block_size = 1 << 22
 
     @property
-    def lines(self) -> LineMap:
+    def lines(self) -> LineMap | BlankLines:
         if self._lines is None:
             self._lines = LineMap(self.data)
         return self._lines
+
+    def release(self) -> None:
+        """Done parsing: keep only where the lines are (:class:`BlankLines`), not the file's
+        bytes, so that record lookups made later (errors found while canonicalising) do not
+        hold the whole file in memory."""
+        self._lines = BlankLines(self.data)
+        self.data = None
 
     def read(self, data: bytes, n_columns: int | None, include: list[int] | None,
              threads: bool) -> pa.Table:
@@ -374,6 +382,7 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
     else:
         weight = np.ones(m, dtype=np.float64)
     notes.insert(0, f"fields separated by {shown}")
+    reader.release()
     return EdgeRecords(path=path, format=fmt, source=source, target=target, weight=weight,
                        weighted=weight_index is not None, directed=False, locate=locate,
                        notes=notes)
