@@ -126,9 +126,11 @@ def _dictionary_encode(parts: list[pa.Array]) -> tuple[pa.Array, np.ndarray]:
 
 #: ids of at most this many 8-byte words are encoded as integer keys (:func:`_encode_by_words`);
 #: longer ones go through Arrow's string hash kernel
-_MAX_KEY_WORDS = 4
+_MAX_KEY_WORDS = 8
 #: ``_KEEP_BYTES[r]`` keeps the first ``r`` bytes of a little-endian 8-byte word
 _KEEP_BYTES = np.array([(1 << (8 * r)) - 1 for r in range(9)], dtype=np.uint64)
+#: the multiplier of :func:`_fold_key`: 2**64 over the golden ratio, rounded to odd
+_MIX = np.uint64(0x9E3779B97F4A7C15)
 
 
 def _string_buffers(values: pa.Array) -> tuple[np.ndarray, np.ndarray]:
@@ -143,39 +145,56 @@ def _string_buffers(values: pa.Array) -> tuple[np.ndarray, np.ndarray]:
     return offsets, data
 
 
-def _id_words(offsets: np.ndarray, data: np.ndarray, n_words: int,
-              out: np.ndarray) -> None:
-    """Write ids ``data[offsets[i]:offsets[i + 1]]`` as ``n_words`` little-endian uint64 words
-    each, zero-padded: byte ``j`` of ``out[k, i]`` (value ``out[k, i] >> 8 j & 255``) is byte
-    ``8 k + j`` of id ``i``, or 0 past its end."""
-    # every 8-byte window of the data: window p holds bytes p .. p + 7 (none if fewer than 8)
-    inner = max(data.size - 7, 0)
-    windows = np.ndarray(shape=(inner,), dtype="<u8", buffer=data, strides=(1,))
-    # windows from the last 7 bytes on, read from a zero-padded copy of them
-    end = np.zeros(data.size - inner + 8 * n_words + 8, dtype=np.uint8)
-    end[:data.size - inner] = data[inner:]
-    end_windows = np.ndarray(shape=(end.size - 7,), dtype="<u8", buffer=end, strides=(1,))
-    start = offsets[:-1]
-    length = offsets[1:] - start
-    for k in range(n_words):
-        at = start + 8 * k  # non-decreasing
-        tail = int(np.searchsorted(at, inner, side="left"))  # at[tail:] >= inner
-        keep = _KEEP_BYTES[np.clip(length - 8 * k, 0, 8)]
-        word = out[k]
-        np.bitwise_and(windows[at[:tail]], keep[:tail], out=word[:tail])
-        if tail < at.size:
-            np.bitwise_and(end_windows[at[tail:] - inner], keep[tail:], out=word[tail:])
+class _IdWords:
+    """The ids of one string array as little-endian 64-bit words, made when asked for.
+
+    :meth:`words` ``(W)`` gives an array of shape ``(n, W)``: byte ``j`` of ``out[i, k]``
+    (value ``out[i, k] >> 8 j & 255``) is byte ``8 k + j`` of id ``i``
+    (``data[offsets[i]:offsets[i + 1]]``), or 0 past its end. Nothing per id is kept between
+    calls (the offsets are read from Arrow's buffer again), so only one part's words are
+    held at a time.
+    """
+
+    def __init__(self, values: pa.Array) -> None:
+        self.values = values
+        self.size = len(values)
+        offsets, data = _string_buffers(values)
+        self.longest = int(np.max(np.diff(offsets))) if self.size else 0
+        used = data[int(offsets[0]):int(offsets[-1])]
+        self.has_nul = bool(used.size) and not bool(used.all())
+
+    def words(self, n_words: int) -> np.ndarray:
+        offsets, data = _string_buffers(self.values)
+        out = np.empty((self.size, n_words), dtype=np.uint64)
+        # every 8-byte window of the data: window p holds bytes p .. p + 7 (none if fewer than 8)
+        inner = max(data.size - 7, 0)
+        windows = np.ndarray(shape=(inner,), dtype="<u8", buffer=data, strides=(1,))
+        # windows from the last 7 bytes on, read from a zero-padded copy of them
+        end = np.zeros(data.size - inner + 8 * n_words + 8, dtype=np.uint8)
+        end[:data.size - inner] = data[inner:]
+        end_windows = np.ndarray(shape=(end.size - 7,), dtype="<u8", buffer=end, strides=(1,))
+        start = offsets[:-1]
+        length = np.diff(offsets)
+        for k in range(n_words):
+            at = start + 8 * k  # non-decreasing
+            tail = int(np.searchsorted(at, inner, side="left"))  # at[tail:] >= inner
+            keep = _KEEP_BYTES[np.clip(length - 8 * k, 0, 8)]
+            word = out[:, k]
+            np.bitwise_and(windows[at[:tail]], keep[:tail], out=word[:tail])
+            if tail < at.size:
+                np.bitwise_and(end_windows[at[tail:] - inner], keep[tail:], out=word[tail:])
+        return out
 
 
-def _word_key(words: np.ndarray) -> np.ndarray:
-    """One uint64 key per column of ``words`` (shape (W, m)):
-    ``h = ((...((w_0 K) xor w_1) K ...) xor w_{W-1}) K`` with ``K = 0x9E3779B97F4A7C15`` (2**64 over the golden ratio, rounded to odd; Knuth 1998,
-    section 6.4), arithmetic modulo 2**64. Not injective: callers check for collisions."""
-    mix = np.uint64(0x9E3779B97F4A7C15)
-    key = words[0] * mix
-    for k in range(1, words.shape[0]):
-        key ^= words[k]
-        key *= mix
+def _fold_key(key: np.ndarray | None, word: np.ndarray) -> np.ndarray:
+    """One more word into the uint64 keys: ``h_0 = w_0 K``, ``h_k = (h_{k-1} xor w_k) K`` with
+    ``K = 0x9E3779B97F4A7C15`` (2**64 over the golden ratio, rounded to odd; Knuth 1998,
+    section 6.4), arithmetic modulo 2**64; ``key`` is updated in place (None: the first word).
+    Not injective: callers check for collisions."""
+    if key is None:
+        return word * _MIX
+    key ^= word
+    key *= _MIX
     return key
 
 
@@ -183,19 +202,21 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
     """Distinct ids of short-id columns through integer keys, or None when they do not apply.
 
     An id of at most ``8 W`` UTF-8 bytes (``W <= _MAX_KEY_WORDS``) is read as ``W``
-    64-bit words, zero-padded (:func:`_id_words`). Without NUL bytes in the data these
+    64-bit words, zero-padded (:class:`_IdWords`). Without NUL bytes in the data these
     words determine the id, and comparing them in turn, each read as a big-endian number,
     compares the ids byte by byte: so sorting distinct ids by their byte-swapped words
     (``numpy.lexsort``) gives UTF-8 byte order, the order Arrow's ``sort_indices`` gives
-    on the strings. Records are grouped by
-    Arrow's hash kernel on one uint64 key: the word itself for ``W = 1``, else a
-    multiply-xorshift mix of the words (:func:`_word_key`), checked afterwards: every
-    record's words must equal those of its group's representative, else (a key collision)
-    None is returned and the caller hashes the strings.
+    on the strings. Records are grouped by Arrow's hash kernel on one uint64 key: the word
+    itself for ``W = 1``, else a multiply-xorshift fold of the words (:func:`_fold_key`),
+    checked afterwards: every record's words must equal those of its group's
+    representative, else (a key collision) None is returned and the caller hashes the
+    strings. The words are made one word index at a time (once for the key, once for the
+    check, which also collects the distinct ids' words), so the memory held is a few
+    arrays of one value per record whatever ``W``.
 
-    Returns ``(codes, representatives, order)``: the int32 code of every record (all parts
-    concatenated; codes number the distinct ids in order of first appearance), one record of
-    each distinct id in sorted order, and ``order`` (the code of each sorted position); or
+    Returns ``(codes, first, order)``: the int32 code of every record (all parts
+    concatenated; codes number the distinct ids in order of first appearance), the first
+    record of each code (increasing), and ``order`` (the code of each sorted position); or
     None (no records, an id longer than ``8 * _MAX_KEY_WORDS`` bytes, a NUL byte, or a key
     collision).
 
@@ -205,41 +226,52 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
     order); D. E. Knuth, The Art of Computer Programming vol. 3 (1998), section 6.4
     (multiplicative hashing); Apache Arrow compute function ``dictionary_encode``.
     """
-    buffers = [_string_buffers(p) for p in parts]
     m = sum(len(p) for p in parts)
     if m == 0:
         return None
-    longest = max(int(np.max(np.diff(off))) if off.size > 1 else 0 for off, _ in buffers)
+    readers = [_IdWords(p) for p in parts]
+    longest = max(r.longest for r in readers)
     n_words = max(1, -(-longest // 8))
-    if n_words > _MAX_KEY_WORDS:
-        return None
-    for offsets, data in buffers:
-        used = data[int(offsets[0]):int(offsets[-1])]
-        if used.size and not used.all():  # a NUL byte: the string path reports it
-            return None
-    words = np.empty((n_words, m), dtype=np.uint64)
-    at = 0
-    for (offsets, data), p in zip(buffers, parts):
-        _id_words(offsets, data, n_words, words[:, at:at + len(p)])
-        at += len(p)
-    del buffers
-    key = words[0] if n_words == 1 else _word_key(words)
+    if n_words > _MAX_KEY_WORDS or any(r.has_nul for r in readers):
+        return None  # long ids take the string path; a NUL byte is reported there
+    bounds = np.cumsum([0] + [r.size for r in readers])
+    # one key per record, folded part by part (the words of one part at a time)
+    key = np.empty(m, dtype=np.uint64)
+    for r, at in zip(readers, bounds):
+        words = r.words(n_words)
+        folded = None
+        for k in range(n_words):
+            folded = _fold_key(folded, words[:, k])
+        key[at:at + r.size] = words[:, 0] if n_words == 1 else folded
+    del words, folded
     encoded = pc.dictionary_encode(pa.array(key, type=pa.uint64()))
-    del key
     codes = encoded.indices.to_numpy(zero_copy_only=False)
     n = len(encoded.dictionary)
     del encoded
-    representative = np.empty(n, dtype=np.int64)
-    representative[codes] = np.arange(m, dtype=np.int64)  # any record of each code
-    distinct = words[:, representative]
-    if n_words > 1:
-        for k in range(n_words):
-            if not np.array_equal(distinct[k][codes], words[k]):
+    # first[c]: the first record of code c, increasing in c (codes number first appearances);
+    # parts from the last, each from its end, so that the earliest record writes last
+    first = np.empty(n, dtype=np.int64)
+    for r, at in zip(readers[::-1], bounds[-2::-1]):
+        first[codes[at:at + r.size][::-1]] = np.arange(at + r.size - 1, at - 1, -1, dtype=np.int64)
+    if n_words == 1:
+        distinct = key[first][:, None]  # the key is the word: no collision possible
+        del key
+    else:
+        del key
+        # the words of the distinct ids, (n, W): each part's words, the ids first met in it
+        # recorded, then every record checked against its group's first record (met in this
+        # part or before)
+        distinct = np.empty((n, n_words), dtype=np.uint64)
+        for r, at in zip(readers, bounds):
+            words = r.words(n_words)
+            lo, hi = np.searchsorted(first, [at, at + r.size])
+            np.take(words, first[lo:hi] - at, axis=0, out=distinct[lo:hi])
+            # (np.take along axis 0 gathers whole rows, several times faster than d[index])
+            if not np.array_equal(np.take(distinct, codes[at:at + r.size], axis=0), words):
                 return None  # two ids share a key
-    del words
     # as big-endian numbers the words compare as their bytes do; first word first
-    order = np.lexsort(distinct[::-1].byteswap())
-    return codes, representative[order], order
+    order = np.lexsort(distinct.T[::-1].byteswap())
+    return codes, first, order
 
 
 def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.ChunkedArray,
@@ -267,8 +299,17 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     m_source, m_target = len(source), len(target)
     by_words = _encode_by_words(parts)
     if by_words is not None:
-        codes, representative, order = by_words
-        distinct = pa.chunked_array(parts).take(pa.array(representative))
+        codes, first, order = by_words
+        # the distinct ids in code order, taken part by part (a take on the chunked column
+        # would first join all its chunks: a copy of every id), then sorted
+        pieces, at = [], 0
+        for part in parts:
+            lo, hi = np.searchsorted(first, [at, at + len(part)])
+            if hi > lo:
+                pieces.append(part.take(pa.array(first[lo:hi] - at)))
+            at += len(part)
+        distinct = pa.concat_arrays(pieces).take(pa.array(order))
+        del pieces
     else:
         dictionary, codes = _dictionary_encode(parts)
         if len(dictionary) and pc.any(pc.match_substring(dictionary, "\x00")).as_py():
