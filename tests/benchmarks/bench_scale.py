@@ -1,7 +1,7 @@
 """Benchmark: how import, run, diff and export scale with the number of nodes, end to end via the CLI.
 
 Run: ``python tests/benchmarks/bench_scale.py [--sizes 1000000,3000000] [--big]
-[--id-length 8,40] [--keep DIR]``
+[--id-length 8,40] [--keep DIR] [--steps import,run,diff,export]``
 
 For every size (1M and 3M nodes by default; ``--big`` adds 10M) and every id length (short ids
 ``n00000123`` and 40-character ids ``station-0000…0123``), a planted partition is sampled with
@@ -44,6 +44,8 @@ sys.path.insert(0, str(ROOT))
 K = 8
 DEGREE = 15.0
 SEED = 1
+#: the steps in order; each needs the ones before it (import always runs)
+STEPS = ("import", "run", "diff", "export")
 
 _WRAPPER = r"""
 import json, resource, subprocess, sys, time
@@ -130,7 +132,7 @@ def step(store: Path, *argv: str) -> dict:
     return stats
 
 
-def measure(tmp: Path, n: int, id_length: int) -> dict:
+def measure(tmp: Path, n: int, id_length: int, steps: set[str] = frozenset(STEPS)) -> dict:
     src = tmp / f"g{n}_{id_length}.csv"
     t = time.perf_counter()
     shape = write_graph(src, n, id_length)
@@ -140,13 +142,17 @@ def measure(tmp: Path, n: int, id_length: int) -> dict:
     res = {}
     res["import"] = step(store, "import", str(src), "--project", "bench", "--network", "g", "--json")
     src.unlink()
-    res["run"] = step(store, "run", "bench/g", "--method", "njw", "--k", str(K), "--seed", "0", "--json")
-    res["run seed 1"] = step(store, "run", "bench/g", "--method", "njw", "--k", str(K), "--seed", "1",
-                             "--json")
-    r0, r1 = res["run"]["json"]["run"], res["run seed 1"]["json"]["run"]
-    res["diff"] = step(store, "diff", str(r0), str(r1), "--json")
-    res["export"] = step(store, "export", str(r0), "-o", str(tmp / "membership.csv"))
-    (tmp / "membership.csv").unlink()
+    if "run" in steps:
+        res["run"] = step(store, "run", "bench/g", "--method", "njw", "--k", str(K), "--seed", "0",
+                          "--json")
+        res["run seed 1"] = step(store, "run", "bench/g", "--method", "njw", "--k", str(K), "--seed",
+                                 "1", "--json")
+        r0, r1 = res["run"]["json"]["run"], res["run seed 1"]["json"]["run"]
+        if "diff" in steps:
+            res["diff"] = step(store, "diff", str(r0), str(r1), "--json")
+        if "export" in steps:
+            res["export"] = step(store, "export", str(r0), "-o", str(tmp / "membership.csv"))
+            (tmp / "membership.csv").unlink()
     store.unlink()
     scale = n / 1e6
     for name, r in res.items():
@@ -187,7 +193,13 @@ def main() -> None:
     ap.add_argument("--id-length", default="9,40",
                     help="id lengths to run (default 9,40: n00000123 and 40-character ids)")
     ap.add_argument("--keep", help="work directory (default: a temporary one)")
+    ap.add_argument("--steps", default=",".join(STEPS),
+                    help="steps to measure (default import,run,diff,export; import always runs, diff "
+                         "and export need run): --steps import measures imports alone")
     args = ap.parse_args()
+    steps = {x for x in args.steps.split(",") if x} | {"import"}
+    if steps - set(STEPS):
+        ap.error(f"unknown step(s) {', '.join(sorted(steps - set(STEPS)))}; choose from {', '.join(STEPS)}")
     sizes = [int(x) for x in args.sizes.split(",") if x] + ([10_000_000] if args.big else [])
     lengths = [int(x) for x in args.id_length.split(",") if x]
     print(f"cutbook scaling: planted partition k={K}, mean degree {DEGREE}, seed {SEED}; "
@@ -196,7 +208,7 @@ def main() -> None:
     with tempfile.TemporaryDirectory(dir=args.keep) as tmp:
         for length in lengths:
             for n in sizes:
-                results[(n, length)] = measure(Path(tmp), n, length)
+                results[(n, length)] = measure(Path(tmp), n, length, steps)
     base_n = sizes[0]
     print(f"\nsummary: per-1M figures relative to n={base_n:,} with the same ids (target <= 1.2), "
           "and long ids relative to short ids at the same n (target <= 1.2)")

@@ -147,7 +147,7 @@ class BlankLines:
     costs memory in proportion to a slice, not to the file.
     """
 
-    _SLICE = 1 << 26
+    _SLICE = 1 << 23
 
     def __init__(self, data: bytes) -> None:
         codes = np.frombuffer(data, dtype=np.uint8)
@@ -204,8 +204,9 @@ class EdgeRecords:
         Source file and reader format name.
     source, target : pyarrow string Array or ChunkedArray, length m
         Endpoint ids per record, verbatim.
-    weight : ndarray of float64, shape (m,)
-        Finite, non-negative weights (1.0 when unweighted).
+    weight : ndarray of float64, shape (m,), or None
+        Finite, non-negative weights; None when unweighted (every record weighs 1.0: the
+        array of ones is made only once the id columns are encoded and released).
     weighted : bool
         Whether a weight column / attribute was used.
     directed : bool
@@ -223,7 +224,7 @@ class EdgeRecords:
     format: str
     source: pa.Array | pa.ChunkedArray
     target: pa.Array | pa.ChunkedArray
-    weight: np.ndarray
+    weight: np.ndarray | None
     weighted: bool
     directed: bool = False
     extra_nodes: pa.Array | None = None

@@ -563,7 +563,10 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         # free pages inside the heap as well): a lower peak resident size
         pa.default_memory_pool().release_unused()
     n = int(node_ids.size)
-    weight = np.asarray(rec.weight, dtype=np.float64)
+    # unweighted records carry no weights until here: the ones are made after the id columns
+    # are gone (peak memory)
+    weight = (np.ones(m_read, dtype=np.float64) if rec.weight is None
+              else np.asarray(rec.weight, dtype=np.float64))
     # original record numbers are carried along only where an error may need a line
     need_record = policy.duplicates == "error" or rec.directed
     record = np.arange(m_read, dtype=np.int64) if need_record else None
@@ -706,21 +709,27 @@ def component_labels(n: int, u: np.ndarray, v: np.ndarray) -> np.ndarray:
     """
     index_type = np.int32 if n < 2 ** 31 else np.int64
     parent = np.arange(n, dtype=index_type)
-    proper = u != v
-    a = u[proper].astype(index_type, copy=False)
-    b = v[proper].astype(index_type, copy=False)
-    del proper
+    a, b = _proper_pairs(u, v, index_type)
     max_jumps = n.bit_length() + 1
     for _ in range(_COMPONENT_ROUNDS + 4 * n.bit_length()):
-        root_a, root_b = parent[a], parent[b]
-        low = np.minimum(root_a, root_b)
-        high = np.maximum(root_a, root_b, out=root_b)
-        cross = low != high
+        # (each array is replaced as soon as its successor exists: a few edge-length arrays at a
+        # time, not two generations of them)
+        root_a = parent[a]
+        root_b = parent[b]
+        cross = root_a != root_b
         if not cross.all():
-            a, b, low, high = a[cross], b[cross], low[cross], high[cross]
+            a = a[cross]
+            b = b[cross]
+            root_a = root_a[cross]
+            root_b = root_b[cross]
+        del cross
         if a.size == 0:
             return parent
+        low = np.minimum(root_a, root_b)
+        high = np.maximum(root_a, root_b, out=root_b)
+        del root_a
         np.minimum.at(parent, high, low)
+        del low, high
         for _ in range(max_jumps):
             grand = parent[parent]
             if np.array_equal(grand, parent):
@@ -735,6 +744,37 @@ def component_labels(n: int, u: np.ndarray, v: np.ndarray) -> np.ndarray:
     first = np.full(int(labels.max()) + 1 if n else 0, n, dtype=np.int64)
     np.minimum.at(first, labels, np.arange(n))
     return first[labels].astype(index_type)
+
+
+_PAIR_CHUNK = 1 << 22
+
+
+def _proper_pairs(u: np.ndarray, v: np.ndarray, index_type) -> tuple[np.ndarray, np.ndarray]:
+    """``u[u != v]``, ``v[u != v]`` as ``index_type``, made in chunks (no full-length temporaries
+    of the input's wider type)."""
+    count = 0
+    for at in range(0, u.size, _PAIR_CHUNK):
+        count += int(np.count_nonzero(u[at:at + _PAIR_CHUNK] != v[at:at + _PAIR_CHUNK]))
+    a = np.empty(count, dtype=index_type)
+    b = np.empty(count, dtype=index_type)
+    filled = 0
+    for at in range(0, u.size, _PAIR_CHUNK):
+        cu, cv = u[at:at + _PAIR_CHUNK], v[at:at + _PAIR_CHUNK]
+        proper = cu != cv
+        k = int(np.count_nonzero(proper))
+        a[filled:filled + k] = cu[proper]
+        b[filled:filled + k] = cv[proper]
+        filled += k
+    return a, b
+
+
+def _median(w: np.ndarray) -> float:
+    """``numpy.median(w)``; without its sorted copy of ``w`` when every value is the same
+    (unweighted graphs): then the middle values are any one or two of them, averaged by
+    ``numpy.median`` itself as it would average the middle pair."""
+    if w.size and w.min() == w.max():
+        return float(np.median(w[:2] if w.size % 2 == 0 else w[:1]))
+    return float(np.median(w))
 
 
 def build_report(graph: GraphData, rec: EdgeRecords, records_read: int, loops_found: int,
@@ -752,17 +792,22 @@ def build_report(graph: GraphData, rec: EdgeRecords, records_read: int, loops_fo
     sizes = np.bincount(labels, minlength=n)
     sizes = np.sort(sizes[sizes > 0])[::-1]
     n_components = sizes.size
-    proper = u != v
-    degree = np.bincount(u[proper], minlength=n) + np.bincount(v[proper], minlength=n)
+    # a node is isolated when no edge between two nodes touches it (chunks: no full-length copies)
+    touched = np.zeros(n, dtype=bool)
+    for at in range(0, m, _PAIR_CHUNK):
+        cu, cv = u[at:at + _PAIR_CHUNK], v[at:at + _PAIR_CHUNK]
+        proper = cu != cv
+        touched[cu[proper]] = True
+        touched[cv[proper]] = True
     summary = {
         "min": float(w.min()), "max": float(w.max()), "mean": float(w.mean()),
-        "median": float(np.median(w)), "total": float(w.sum()),
+        "median": _median(w), "total": float(w.sum()),
     }
     return ImportReport(
         source=rec.path, format=rec.format, records_read=int(records_read), nodes=n, edges=m,
         components=int(n_components),
         component_sizes=[int(s) for s in sizes[:COMPONENT_SIZES_LISTED]],
-        isolated_nodes=int(np.count_nonzero(degree == 0)), self_loops_found=int(loops_found),
+        isolated_nodes=int(n - np.count_nonzero(touched)), self_loops_found=int(loops_found),
         self_loops_kept=int(loops_kept), duplicates_merged=int(merged),
         asymmetric_pairs=int(asymmetric), zero_weight_dropped=int(zero_dropped),
         weighted=bool(rec.weighted), weight_summary=summary, notes=notes)

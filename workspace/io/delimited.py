@@ -369,7 +369,6 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
 
     source = source.slice(start)
     target = target.slice(start)
-    m = len(source)
     if weight_index is not None:
         column = table.column(2).slice(start)
 
@@ -380,7 +379,7 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
         label = f"column {first_row[weight_index]!r}" if header else f"column {weight_index}"
         notes.append(f"weights from {label}")
     else:
-        weight = np.ones(m, dtype=np.float64)
+        weight = None  # every record weighs 1 (made by canonicalise when needed)
     notes.insert(0, f"fields separated by {shown}")
     reader.release()
     return EdgeRecords(path=path, format=fmt, source=source, target=target, weight=weight,
