@@ -67,6 +67,22 @@ def generate(folder: Path) -> list[Path]:
             path = folder / f"gen_{length}_{variant}.csv"
             path.write_bytes((end.join(lines) + end).encode("utf-8"))
             files.append(path)
+    # larger than the 256 KiB header sample: header, weights, a blank line, quotes
+    for variant in ("big", "big_blank", "big_quoted", "big_dup"):
+        ids = [f"node-{i:05d}" for i in range(3000)]
+        lines = ["from,to,w"]
+        for i in range(40000):
+            a, b = rng.choice(ids), rng.choice(ids)
+            if variant == "big_quoted" and i % 7 == 0:
+                a = f'"{a}"'
+            lines.append(f"{a},{b},{rng.randint(1, 5)}")
+            if variant == "big_blank" and i in (5, 39000):
+                lines.append("")
+        if variant == "big_dup":
+            lines.append(lines[1])
+        path = folder / f"gen_{variant}.csv"
+        path.write_text("\n".join(lines) + "\n")
+        files.append(path)
     # the same edges as whitespace text, and a numeric-id file
     path = folder / "gen_ws.txt"
     path.write_text("\n".join(f"  n{rng.randint(0, 50)}\t n{rng.randint(0, 50)}  {rng.randint(1, 5)} "
@@ -83,6 +99,13 @@ def run_cases(files: list[str]) -> dict:
     """In this interpreter: the outcome of every (file, policy) case."""
     from workspace.domain import ImportPolicy
     from workspace.services.networks import prepare_import
+
+    if os.environ.get("EQUIVALENCE_FILE_MODE"):
+        # every delimited file through the file-mode reader, where this checkout has one
+        from workspace.io import delimited
+
+        if hasattr(delimited, "STREAM_FROM_BYTES"):
+            delimited.STREAM_FROM_BYTES = 0
 
     out = {}
     for f in files:
@@ -103,6 +126,9 @@ def run_cases(files: list[str]) -> dict:
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--against", required=True, help="another checkout of the project")
+    ap.add_argument("--file-mode", action="store_true",
+                    help="here, read every delimited file the way large ones are read (from the file "
+                         "itself, io.delimited.read_delimited_file); there, as that checkout does")
     ap.add_argument("--child", help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.child:
@@ -118,6 +144,9 @@ def main() -> None:
         results = []
         for tree in (ROOT, Path(args.against).resolve()):
             env = {**os.environ, "PYTHONPATH": str(tree)}
+            env.pop("EQUIVALENCE_FILE_MODE", None)
+            if args.file_mode and tree == ROOT:
+                env["EQUIVALENCE_FILE_MODE"] = "1"
             done = subprocess.run([sys.executable, str(Path(__file__).resolve()), "--against", ".",
                                    "--child", str(listing)], env=env, cwd=tree, capture_output=True,
                                   text=True, check=True)

@@ -32,3 +32,19 @@ def test_lines_match_split(monkeypatch, slice_bytes):
         assert lines.n_rows == len(expected), data
         assert [lines.line(k) for k in range(len(expected))] == expected, data
         assert lines.line(-1) is None and lines.line(len(expected)) is None
+
+
+def test_lines_fed_in_pieces_match_split():
+    # the same text given in pieces of random size (the file scan's way); reference bytes.split
+    rng = random.Random(11)
+    for data in _cases():
+        lines = BlankLines(b"", feed=True)
+        at = 0
+        while at < len(data):
+            step = rng.randint(1, 9)
+            lines.feed(data[at:at + step])
+            at += step
+        lines.finish()
+        expected = _expected(data)
+        assert lines.n_rows == len(expected), data
+        assert [lines.line(k) for k in range(len(expected))] == expected, data

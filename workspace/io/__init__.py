@@ -259,8 +259,16 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
     elif format not in FORMAT_NAMES:
         raise ParameterError(f"unknown format {format!r}; choose one of "
                              f"{', '.join(FORMAT_NAMES)}")
-    data = read_bytes(path, progress)
+    records = None
     if format in ("csv", "tsv", "edgelist"):
+        # a large file that needs no rewriting is parsed from the file itself (its bytes are
+        # never held in memory beside the parsed columns); else, and on any doubt, as below
+        from workspace.io.delimited import read_delimited_file
+        records = read_delimited_file(path, format, policy, progress)
+    data = read_bytes(path, progress) if records is None else b""
+    if records is not None:
+        pass
+    elif format in ("csv", "tsv", "edgelist"):
         from workspace.io.delimited import read_delimited
         records = read_delimited(path, data, format, policy, progress)
     elif format == "graphml":

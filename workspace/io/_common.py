@@ -149,34 +149,49 @@ class BlankLines:
 
     _SLICE = 1 << 23
 
-    def __init__(self, data: bytes) -> None:
+    def __init__(self, data: bytes, *, feed: bool = False) -> None:
+        """The lines of ``data``; with ``feed``, of ``data`` and the pieces given to :meth:`feed`
+        after it, complete once :meth:`finish` is called."""
+        self._blanks: list[np.ndarray] = [np.zeros(0, dtype=np.int64)]
+        self._newlines = 0
+        self._size = 0
+        self._previous = -1  # position of the last newline so far (-1: start of data)
+        self.feed(data)
+        if not feed:
+            self.finish()
+
+    def feed(self, data: bytes) -> None:
+        """The next piece of the text."""
         codes = np.frombuffer(data, dtype=np.uint8)
         step = self._SLICE
-        blanks: list[np.ndarray] = [np.zeros(0, dtype=np.int64)]
-        n_newlines = 0
-        previous = -1  # position of the last newline before the slice (-1: start of data)
         for at in range(0, codes.size, step):
             is_newline = codes[at:at + step] == 10
             count = int(np.count_nonzero(is_newline))
+            base = self._size + at
             adjacent = bool(np.any(is_newline[1:] & is_newline[:-1])) or (
-                count and bool(is_newline[0]) and previous == at - 1)
+                count and bool(is_newline[0]) and self._previous == base - 1)
             if adjacent:
-                # line n_newlines + i ends at newline[i] and starts after before[i]: blank if
+                # line newlines + i ends at newline[i] and starts after before[i]: blank if
                 # the two are adjacent
-                newline = np.flatnonzero(is_newline) + at
+                newline = np.flatnonzero(is_newline) + base
                 before = np.empty(newline.size, dtype=np.int64)
-                before[0] = previous
+                before[0] = self._previous
                 before[1:] = newline[:-1]
-                blanks.append(np.flatnonzero(newline == before + 1) + n_newlines)
+                self._blanks.append(np.flatnonzero(newline == before + 1) + self._newlines)
             if count:
-                previous = at + is_newline.size - 1 - int(np.argmax(is_newline[::-1]))
-            n_newlines += count
-        self.n_lines = n_newlines + 1
-        if not data or data.endswith(b"\n"):
-            blanks.append(np.array([n_newlines], dtype=np.int64))
-        blank = np.concatenate(blanks).astype(np.int64)
+                self._previous = base + is_newline.size - 1 - int(np.argmax(is_newline[::-1]))
+            self._newlines += count
+        self._size += codes.size
+
+    def finish(self) -> None:
+        """No more pieces: the last line (empty after a final newline) is counted."""
+        self.n_lines = self._newlines + 1
+        if self._size == 0 or self._previous == self._size - 1:
+            self._blanks.append(np.array([self._newlines], dtype=np.int64))
+        blank = np.concatenate(self._blanks).astype(np.int64)
         self.n_rows = self.n_lines - int(blank.size)
         self._before = blank - np.arange(blank.size, dtype=np.int64)
+        del self._blanks
 
     def line(self, row: int) -> int | None:
         """1-based file line of non-blank row ``row`` (None if out of range)."""
