@@ -129,7 +129,7 @@ def validate_policy(policy: ImportPolicy) -> None:
 def read_network(path: str | os.PathLike, *, format: str | None = None,
                  policy: ImportPolicy = ImportPolicy(),
                  progress: Progress = None,
-                 on_graph: Callable[[GraphData], None] | None = None
+                 on_graph: Callable[[GraphData, tuple], None] | None = None
                  ) -> tuple[GraphData, ImportReport]:
     """Read a network file into canonical form and validate it.
 
@@ -173,10 +173,12 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
     progress : callable(stage: str, done: int, total: int | None) or None
         Called with stages ``"read"`` (bytes), ``"parse"``,
         ``"canonicalise"`` (steps of 4) and ``"report"``.
-    on_graph : callable(GraphData) or None
+    on_graph : callable(GraphData, (offsets, data)) or None
         Called once with the canonical graph as soon as it exists, before
         the report is built (on the caller's thread: a caller can start
-        hashing or compressing it elsewhere meanwhile).
+        hashing or compressing it elsewhere meanwhile), and with its node ids
+        packed as :func:`workspace.domain.encode_node_ids` packs them (int64
+        offsets, UTF-8 bytes), made from the ids' own bytes.
 
     Returns
     -------

@@ -41,19 +41,27 @@ def _numeric_ids(values: pa.Array) -> tuple[pa.Array | None, int | None]:
     return pc.cast(integers, pa.string()), None
 
 
-def _first_empty(values: pa.Array) -> int | None:
-    if len(values) and pc.min(pc.binary_length(values)).as_py() == 0:
-        return pc.index(pc.binary_length(values), 0).as_py()
-    return None
-
-
 MAX_ID_BYTES = 4096
 
 
-def _first_too_long(values: pa.Array) -> int | None:
-    if len(values) and pc.max(pc.binary_length(values)).as_py() > MAX_ID_BYTES:
-        return pc.index(pc.greater(pc.binary_length(values), MAX_ID_BYTES), True).as_py()
-    return None
+def _length_faults(values: pa.Array | pa.ChunkedArray) -> tuple[int | None, int | None]:
+    """(index of the first empty id, index of the first id longer than ``MAX_ID_BYTES``), each
+    None when there is none: one length pass, chunk by chunk (no lengths array of the whole
+    column)."""
+    empty = long = None
+    at = 0
+    for chunk in _chunks(values):
+        if len(chunk):
+            lengths = pc.binary_length(chunk)
+            low, high = (x.as_py() for x in pc.min_max(lengths).values())
+            if empty is None and low == 0:
+                empty = at + pc.index(lengths, 0).as_py()
+            if long is None and high > MAX_ID_BYTES:
+                long = at + pc.index(pc.greater(lengths, MAX_ID_BYTES), True).as_py()
+            if empty is not None and long is not None:
+                break
+        at += len(chunk)
+    return empty, long
 
 
 def _check_ids(rec: EdgeRecords, source: pa.Array, target: pa.Array, extra: pa.Array | None,
@@ -72,12 +80,13 @@ def _check_ids(rec: EdgeRecords, source: pa.Array, target: pa.Array, extra: pa.A
             raise rec.error(i, f"node id {columns[k][i].as_py()!r} is not an integer (numeric "
                                "ids were asked for)", node=k == 2)
         columns = [c for c, _ in converted]
-    empty = [(i, k) for k, c in enumerate(columns) if (i := _first_empty(c)) is not None]
+    faults = [_length_faults(c) for c in columns]
+    empty = [(i, k) for k, (i, _) in enumerate(faults) if i is not None]
     if empty:
         endpoint = [(i, k) for i, k in empty if k < 2]
         i, k = min(endpoint) if endpoint else empty[0]
         raise rec.error(i, "empty node id", node=k == 2)
-    long = [(i, k) for k, c in enumerate(columns) if (i := _first_too_long(c)) is not None]
+    long = [(i, k) for k, (_, i) in enumerate(faults) if i is not None]
     if long:
         i, k = min(long)
         raise rec.error(i, f"node id longer than {MAX_ID_BYTES} bytes "
@@ -175,11 +184,18 @@ class _IdWords:
         end_windows = np.ndarray(shape=(end.size - 7,), dtype="<u8", buffer=end, strides=(1,))
         start = offsets[:-1]
         length = np.diff(offsets)
+        shortest = int(length.min()) if length.size else 0
         for k in range(n_words):
             at = start + 8 * k  # non-decreasing
             tail = int(np.searchsorted(at, inner, side="left"))  # at[tail:] >= inner
-            keep = _KEEP_BYTES[np.clip(length - 8 * k, 0, 8)]
             word = out[:, k]
+            if shortest >= 8 * (k + 1):  # word k lies inside every id: nothing to mask
+                # (fancy indexing: np.take would first copy the overlapping windows' view)
+                word[:tail] = windows[at[:tail]]
+                if tail < at.size:
+                    word[tail:] = end_windows[at[tail:] - inner]
+                continue
+            keep = _KEEP_BYTES[np.clip(length - 8 * k, 0, 8)]
             np.bitwise_and(windows[at[:tail]], keep[:tail], out=word[:tail])
             if tail < at.size:
                 np.bitwise_and(end_windows[at[tail:] - inner], keep[tail:], out=word[tail:])
@@ -275,7 +291,7 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
 
 
 def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.ChunkedArray,
-               extra: pa.Array | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+               extra: pa.Array | None, *, packed: bool = False) -> tuple:
     """Sorted unique ids and indices of ``source`` and ``target`` into them (int32 while the
     ids number fewer than 2**31, else int64).
 
@@ -323,8 +339,20 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     rank[order] = np.arange(order.size, dtype=index_type)
     all_codes = rank[codes]
     del codes
-    node_ids = _string_array_to_numpy(_single(distinct))
-    return node_ids, all_codes[:m_source], all_codes[m_source:m_source + m_target]
+    distinct = _single(distinct)
+    node_ids = _string_array_to_numpy(distinct)
+    out = (node_ids, all_codes[:m_source], all_codes[m_source:m_source + m_target])
+    if not packed:
+        return out
+    # the packed form (domain.encode_node_ids) straight from the UTF-8 bytes the ids came from
+    # (valid UTF-8 without NUL: encode_node_ids of their decoding gives these bytes back)
+    if len(distinct) == 0:
+        return out + ((np.zeros(1, dtype=np.int64), np.zeros(0, dtype=np.uint8)),)
+    if distinct.type != pa.string():
+        distinct = distinct.cast(pa.string())
+    offsets, data = _string_buffers(distinct)
+    base = int(offsets[0])
+    return out + ((offsets - base, data[base:int(offsets[-1])]),)
 
 
 def _group_starts(sorted_keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -510,7 +538,9 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
     progress : callable or None, default None
         Receives ``("canonicalise", step, 4)``.
     on_graph : callable or None, default None
-        Called with the graph before the report is built.
+        Called with the graph and its packed node ids (``encode_node_ids``'s int64 offsets
+        and UTF-8 bytes, taken from the sorted distinct ids' Arrow buffers) before the
+        report is built.
     consume : bool, default False
         The caller is done with ``rec``'s id columns: they are released
         (:meth:`EdgeRecords.release_columns`) once the ids are encoded.
@@ -550,7 +580,7 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
     source, target, extra = _check_ids(rec, source, target, extra, policy.numeric_ids)
     report_progress(progress, "canonicalise", 0, 4)
     try:
-        node_ids, u, v = encode_ids(source, target, extra)
+        node_ids, u, v, packed_ids = encode_ids(source, target, extra, packed=True)
     except InputError as err:
         raise InputError(err.message, path=path) from None
     del source, target, extra
@@ -673,7 +703,8 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
                       edge_v=edge_v.astype(np.int64, copy=False),
                       weight=np.ascontiguousarray(weight, dtype=np.float64), directed=keep_direction)
     if on_graph is not None:
-        on_graph(graph)
+        on_graph(graph, packed_ids)
+    del packed_ids
     report = build_report(graph, rec, m_read, loops_found, loops_kept, merged, asymmetric,
                           zero_dropped, notes)
     report_progress(progress, "canonicalise", 4, 4)
