@@ -139,13 +139,15 @@ class _Csv:
         self.parse_kwargs = dict(delimiter=delimiter, quote_char='"' if quoting else False,
                                  double_quote=quoting, escape_char=False,
                                  newlines_in_values=False, ignore_empty_lines=True)
-        self._lines: LineMap | BlankLines | None = scan.lines if scan is not None else None
+        self._lines: LineMap | BlankLines | None = None
         # Arrow cannot parse a row longer than its block ("straddling object"): 4 MiB blocks hold
         # any ordinary line; only when one does not are blocks sized to the longest line
         self.block_size = 1 << 22
 
     @property
     def lines(self) -> LineMap | BlankLines:
+        if self.scan is not None:
+            return self.scan.lines
         if self._lines is None:
             self._lines = LineMap(self.data)
         return self._lines
@@ -259,20 +261,22 @@ class _FileScan:
 
     ``usable`` is False when the text would need any of the in-memory path's rewriting or
     checks: gzip data, a byte-order mark, a non-ASCII byte (UTF-8 validation and stray marks),
-    a carriage return (line ends), or a file that changed size while read. Otherwise ``lines``
-    (:class:`BlankLines`, the same line numbers as the in-memory text), ``has_quote`` and the
-    first ``_SAMPLE_BYTES`` (``head``) are known.
+    a carriage return (line ends), or a file that changed size while read. Otherwise
+    ``has_quote`` and the first ``_SAMPLE_BYTES`` (``head``) are known, and :attr:`lines`
+    (:class:`BlankLines`, the same line numbers as the in-memory text) is found by a second
+    pass when first asked for: only an error's line or a quoted file's line count needs it.
     """
 
     def __init__(self, path: str) -> None:
         self.usable = False
+        self.path = path
         self.size = os.path.getsize(path)
         self.has_quote = False
-        self.lines = BlankLines(b"", feed=True)
+        self._lines: BlankLines | None = None
         with open(path, "rb", buffering=0) as fh:
             seen = 0
             head = b""
-            while True:
+            for _ in range(self.size // _SCAN_BYTES + 2):  # a file that grows is refused below
                 chunk = fh.read(_SCAN_BYTES)
                 if not chunk:
                     break
@@ -281,15 +285,27 @@ class _FileScan:
                 if not chunk.isascii() or b"\r" in chunk:
                     return
                 self.has_quote = self.has_quote or b'"' in chunk
-                self.lines.feed(chunk)
                 if len(head) < _SAMPLE_BYTES:
                     head += chunk[:_SAMPLE_BYTES - len(head)]
                 seen += len(chunk)
         if seen != self.size:
             return
-        self.lines.finish()
         self.head = head
         self.usable = True
+
+    @property
+    def lines(self) -> BlankLines:
+        if self._lines is None:
+            lines = BlankLines(b"", feed=True)
+            with open(self.path, "rb", buffering=0) as fh:
+                for _ in range(self.size // _SCAN_BYTES + 1):
+                    chunk = fh.read(_SCAN_BYTES)
+                    if not chunk:
+                        break
+                    lines.feed(chunk)
+            lines.finish()
+            self._lines = lines
+        return self._lines
 
 
 def read_delimited_file(path: str, fmt: str, policy: ImportPolicy,
