@@ -11,7 +11,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from workspace.domain import GraphData, ImportPolicy, ImportReport
+from workspace.domain import GraphData, ImportPolicy, ImportReport, decode_node_ids
 from workspace.errors import InputError
 from workspace.io._common import EdgeRecords, Progress, first_cast_failure, report_progress
 
@@ -293,7 +293,9 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
 def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.ChunkedArray,
                extra: pa.Array | None, *, packed: bool = False) -> tuple:
     """Sorted unique ids and indices of ``source`` and ``target`` into them (int32 while the
-    ids number fewer than 2**31, else int64).
+    ids number fewer than 2**31, else int64). With ``packed``: ``(None, u, v, (offsets,
+    data))``, the sorted ids packed as ``domain.encode_node_ids`` packs them (int64 offsets,
+    UTF-8 bytes, from the ids' own Arrow bytes) instead of the str array.
 
     Each distinct id of the source, target and declared-node columns gets a code (the
     distinct ids in order of first appearance): for ids of at most 32 UTF-8 bytes
@@ -340,12 +342,14 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     all_codes = rank[codes]
     del codes
     distinct = _single(distinct)
-    node_ids = _string_array_to_numpy(distinct)
-    out = (node_ids, all_codes[:m_source], all_codes[m_source:m_source + m_target])
+    u, v = all_codes[:m_source], all_codes[m_source:m_source + m_target]
     if not packed:
-        return out
+        return _string_array_to_numpy(distinct), u, v
     # the packed form (domain.encode_node_ids) straight from the UTF-8 bytes the ids came from
-    # (valid UTF-8 without NUL: encode_node_ids of their decoding gives these bytes back)
+    # (valid UTF-8 without NUL: encode_node_ids of their decoding gives these bytes back); the
+    # str array is left to the caller (decode_node_ids of these), to be made once the id
+    # columns are released
+    out = (None, u, v)
     if len(distinct) == 0:
         return out + ((np.zeros(1, dtype=np.int64), np.zeros(0, dtype=np.uint8)),)
     if distinct.type != pa.string():
@@ -592,6 +596,8 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         # for their reuse; for the "system" pool this is glibc's malloc_trim, which returns the
         # free pages inside the heap as well): a lower peak resident size
         pa.default_memory_pool().release_unused()
+    # the str array of the ids, decoded from their packed bytes now that the columns are gone
+    node_ids = decode_node_ids(*packed_ids)
     n = int(node_ids.size)
     # unweighted records carry no weights until here: the ones are made after the id columns
     # are gone (peak memory)
