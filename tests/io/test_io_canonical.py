@@ -190,3 +190,15 @@ def test_whitespace_and_crlf_and_gzip_read_the_same(tmp_path):
     H = nx.parse_edgelist(messy.splitlines(), nodetype=str, data=(("weight", float),))
     graph = read_network(tmp_path / "messy.txt", policy=policy)[0]
     assert _edge_dict(graph) == {tuple(sorted(e)): d["weight"] for *e, d in H.edges(data=True)}
+
+
+@pytest.mark.parametrize("n_nodes, m", [(10, 50), (1 << 22, 1 << 20), (1 << 31, 3000), (7, 1 << 16)])
+def test_stable_order_equals_numpy_stable_argsort(n_nodes, m):
+    # the order of pair keys lo * n + hi < n**2, also where key * m overflows int64 (the two-digit
+    # path); reference numpy.argsort(kind="stable") on keys with many ties
+    from workspace.io.canonical import _stable_order
+
+    rng = np.random.default_rng(m)
+    key = rng.integers(0, n_nodes * n_nodes, m, dtype=np.int64)
+    key[rng.integers(0, m, m // 3)] = key[rng.integers(0, m, m // 3)]
+    assert np.array_equal(_stable_order(key, n_nodes * n_nodes), np.argsort(key, kind="stable"))

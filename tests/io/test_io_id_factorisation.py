@@ -204,7 +204,7 @@ def test_a_key_collision_falls_back_to_hashing_the_strings(monkeypatch):
     monkeypatch.setattr(canonical, "_encode_by_words",
                         lambda parts: taken.append(original(parts)) or taken[-1])
     # every id gets the same key: the check against each group's representative must see it
-    monkeypatch.setattr(canonical, "_word_key", lambda words: np.zeros(words.shape[1], np.uint64))
+    monkeypatch.setattr(canonical, "_fold_key", lambda key, word: np.zeros(word.size, np.uint64))
     src = ["abcdefghij", "abcdefghik", "zz", "abcdefghij"]
     dst = ["zz", "yy-longer-than-8", "abcdefghik", "q"]
     _check_encoding(src, dst, [], pa.array(src), pa.array(dst), None)
@@ -220,3 +220,35 @@ def test_a_nul_byte_takes_the_string_path_and_is_refused():
         encode_ids(pa.array(["a", "b\x00"]), pa.array(["b", "a"]), None)
     with pytest.raises(InputError, match="NUL character"):  # "a" and "a\0" would share words
         encode_ids(pa.array(["a"]), pa.array(["a\x00"]), None)
+
+
+@pytest.mark.parametrize("longest", [33, 40, 64])
+def test_ids_up_to_64_bytes_take_the_integer_key_path(monkeypatch, longest):
+    # ids of 33 to 64 UTF-8 bytes (station names, gene identifiers): reference Python's
+    # sorted(set()) on str, and the string hash path gives the same arrays
+    import pyarrow as pa
+
+    from workspace.io import canonical
+
+    taken = []
+    original = canonical._encode_by_words
+    monkeypatch.setattr(canonical, "_encode_by_words",
+                        lambda parts: taken.append(original(parts)) or taken[-1])
+    rng = np.random.default_rng(longest)
+    alphabet = list("abcXYZ019-_é漢")
+    pool = set()
+    while len(pool) < 400:
+        word = "".join(rng.choice(alphabet, size=int(rng.integers(1, longest))))
+        if len(word.encode()) <= longest:
+            pool.add(word)
+    pool = sorted(pool) + ["s" * longest, "s" * (longest - 1), "s" * (longest - 8)]
+    src = [pool[i] for i in rng.integers(0, len(pool), 1500)]
+    dst = [pool[i] for i in rng.integers(0, len(pool), 1500)]
+    source = pa.chunked_array([pa.array(src[:700]), pa.array(["x"] + src[700:]).slice(1)])
+    target = pa.chunked_array([pa.array(dst)])
+    encoded = _check_encoding(src, dst, [], source, target, None)
+    assert taken and taken[0] is not None
+    monkeypatch.setattr(canonical, "_MAX_KEY_WORDS", 0)
+    by_strings = encode_ids(source, target, None)
+    assert taken[-1] is None
+    assert all(np.array_equal(a, b) for a, b in zip(encoded, by_strings))

@@ -148,3 +148,39 @@ def test_csv_agrees_with_networkx_read_edgelist(tmp_path):
     reference = nx.read_weighted_edgelist(tmp_path / "f.txt", delimiter=";")
     graph, _ = read_network(tmp_path / "f.txt", policy=ImportPolicy(weight=2, delimiter=";"))
     assert edges(graph) == nx_edges(reference)
+
+
+@pytest.mark.parametrize("blank_lines", [False, True])
+def test_large_file_read_from_the_file_agrees_with_networkx(tmp_path, monkeypatch, blank_lines):
+    # file mode (io.delimited.read_delimited_file, the reader of large files: Arrow parses the
+    # file itself) on a file larger than the header sample, with a header, weights, quoted ids
+    # and (optionally) blank lines; reference networkx.parse_edgelist on the same lines
+    from workspace.io import delimited
+
+    taken = []
+    original = delimited.read_delimited_file
+    monkeypatch.setattr(delimited, "STREAM_FROM_BYTES", 0)
+    monkeypatch.setattr(delimited, "read_delimited_file",
+                        lambda *a, **k: taken.append(original(*a, **k)) or taken[-1])
+    G = nx.gnm_random_graph(3000, 30000, seed=5)
+    rng = np.random.default_rng(5)
+    rows = [(f"station-{u:06d}-{'x' * (u % 41)}", f"station-{v:06d}-{'x' * (v % 41)}",
+             int(rng.integers(1, 9))) for u, v in G.edges]
+    lines = ["from,to,w"] + [f'"{a}",{b},{w}' if k % 5 == 0 else f"{a},{b},{w}"
+                            for k, (a, b, w) in enumerate(rows)]
+    if blank_lines:
+        lines[100:100] = ["", ""]
+    path = tmp_path / "big.csv"
+    path.write_text("\n".join(lines) + "\n")
+    assert path.stat().st_size > delimited._SAMPLE_BYTES
+    reference = nx.parse_edgelist([f"{a} {b} {w}" for a, b, w in rows], data=[("weight", float)])
+    graph, report = read_network(path, policy=ImportPolicy(weight="w", duplicates="error"))
+    assert taken and taken[0] is not None
+    assert edges(graph) == nx_edges(reference)
+    assert report.records_read == len(rows)
+    # an error found after parsing names the file line (header and blank lines counted)
+    dup = lines[-1]
+    path.write_text("\n".join(lines + [dup]) + "\n")
+    with pytest.raises(Exception, match=rf":{len(lines) + 1}: duplicate edge"):
+        read_network(path, policy=ImportPolicy(weight="w", duplicates="error"))
+    assert taken[-1] is not None

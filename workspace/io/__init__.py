@@ -129,7 +129,7 @@ def validate_policy(policy: ImportPolicy) -> None:
 def read_network(path: str | os.PathLike, *, format: str | None = None,
                  policy: ImportPolicy = ImportPolicy(),
                  progress: Progress = None,
-                 on_graph: Callable[[GraphData], None] | None = None
+                 on_graph: Callable[[GraphData, tuple], None] | None = None
                  ) -> tuple[GraphData, ImportReport]:
     """Read a network file into canonical form and validate it.
 
@@ -173,10 +173,12 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
     progress : callable(stage: str, done: int, total: int | None) or None
         Called with stages ``"read"`` (bytes), ``"parse"``,
         ``"canonicalise"`` (steps of 4) and ``"report"``.
-    on_graph : callable(GraphData) or None
+    on_graph : callable(GraphData, (offsets, data)) or None
         Called once with the canonical graph as soon as it exists, before
         the report is built (on the caller's thread: a caller can start
-        hashing or compressing it elsewhere meanwhile).
+        hashing or compressing it elsewhere meanwhile), and with its node ids
+        packed as :func:`workspace.domain.encode_node_ids` packs them (int64
+        offsets, UTF-8 bytes), made from the ids' own bytes.
 
     Returns
     -------
@@ -259,8 +261,16 @@ def read_network(path: str | os.PathLike, *, format: str | None = None,
     elif format not in FORMAT_NAMES:
         raise ParameterError(f"unknown format {format!r}; choose one of "
                              f"{', '.join(FORMAT_NAMES)}")
-    data = read_bytes(path, progress)
+    records = None
     if format in ("csv", "tsv", "edgelist"):
+        # a large file that needs no rewriting is parsed from the file itself (its bytes are
+        # never held in memory beside the parsed columns); else, and on any doubt, as below
+        from workspace.io.delimited import read_delimited_file
+        records = read_delimited_file(path, format, policy, progress)
+    data = read_bytes(path, progress) if records is None else b""
+    if records is not None:
+        pass
+    elif format in ("csv", "tsv", "edgelist"):
         from workspace.io.delimited import read_delimited
         records = read_delimited(path, data, format, policy, progress)
     elif format == "graphml":

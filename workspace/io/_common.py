@@ -46,7 +46,10 @@ def read_bytes(path: str, progress: Progress = None) -> bytes:
     if os.path.isdir(path):
         raise InputError("is a directory, not a network file", path=path)
     try:
-        with open(path, "rb") as raw:
+        # unbuffered: ``read()`` then sizes one bytes object from the file size and fills it in
+        # place (a buffered reader would join its buffered head to the rest: a second copy of
+        # the whole file at the peak)
+        with open(path, "rb", buffering=0) as raw:
             total = os.fstat(raw.fileno()).st_size
             if raw.read(2) == b"\x1f\x8b":
                 raw.seek(0)
@@ -132,6 +135,71 @@ class LineMap:
         return None
 
 
+class BlankLines:
+    r"""The file line of each non-blank line of a buffer, kept as the blank lines alone.
+
+    Gives what :meth:`LineMap.line` gives without keeping the buffer or an entry per line:
+    with ``b`` the sorted 0-based indices of the blank lines (lines end at ``\n``, after
+    :func:`normalise_newlines`; a buffer ending in ``\n`` ends with a blank line), the k-th
+    non-blank line is line ``k + #{j : b[j] - j <= k}`` (``b[j] - j`` non-blank lines come
+    before blank line ``j``). Most edge lists have no blank line inside, and then nothing is
+    stored at all. The newline positions are found in slices of bounded size, so building it
+    costs memory in proportion to a slice, not to the file.
+    """
+
+    _SLICE = 1 << 23
+
+    def __init__(self, data: bytes, *, feed: bool = False) -> None:
+        """The lines of ``data``; with ``feed``, of ``data`` and the pieces given to :meth:`feed`
+        after it, complete once :meth:`finish` is called."""
+        self._blanks: list[np.ndarray] = [np.zeros(0, dtype=np.int64)]
+        self._newlines = 0
+        self._size = 0
+        self._previous = -1  # position of the last newline so far (-1: start of data)
+        self.feed(data)
+        if not feed:
+            self.finish()
+
+    def feed(self, data: bytes) -> None:
+        """The next piece of the text."""
+        codes = np.frombuffer(data, dtype=np.uint8)
+        step = self._SLICE
+        for at in range(0, codes.size, step):
+            is_newline = codes[at:at + step] == 10
+            count = int(np.count_nonzero(is_newline))
+            base = self._size + at
+            adjacent = bool(np.any(is_newline[1:] & is_newline[:-1])) or (
+                count and bool(is_newline[0]) and self._previous == base - 1)
+            if adjacent:
+                # line newlines + i ends at newline[i] and starts after before[i]: blank if
+                # the two are adjacent
+                newline = np.flatnonzero(is_newline) + base
+                before = np.empty(newline.size, dtype=np.int64)
+                before[0] = self._previous
+                before[1:] = newline[:-1]
+                self._blanks.append(np.flatnonzero(newline == before + 1) + self._newlines)
+            if count:
+                self._previous = base + is_newline.size - 1 - int(np.argmax(is_newline[::-1]))
+            self._newlines += count
+        self._size += codes.size
+
+    def finish(self) -> None:
+        """No more pieces: the last line (empty after a final newline) is counted."""
+        self.n_lines = self._newlines + 1
+        if self._size == 0 or self._previous == self._size - 1:
+            self._blanks.append(np.array([self._newlines], dtype=np.int64))
+        blank = np.concatenate(self._blanks).astype(np.int64)
+        self.n_rows = self.n_lines - int(blank.size)
+        self._before = blank - np.arange(blank.size, dtype=np.int64)
+        del self._blanks
+
+    def line(self, row: int) -> int | None:
+        """1-based file line of non-blank row ``row`` (None if out of range)."""
+        if 0 <= row < self.n_rows:
+            return int(row + np.searchsorted(self._before, row, side="right")) + 1
+        return None
+
+
 def count_nonblank_lines(data: bytes) -> int:
     """Number of non-blank ``\\n``-separated lines, cheaply when there are no blank lines."""
     if not data:
@@ -151,8 +219,9 @@ class EdgeRecords:
         Source file and reader format name.
     source, target : pyarrow string Array or ChunkedArray, length m
         Endpoint ids per record, verbatim.
-    weight : ndarray of float64, shape (m,)
-        Finite, non-negative weights (1.0 when unweighted).
+    weight : ndarray of float64, shape (m,), or None
+        Finite, non-negative weights; None when unweighted (every record weighs 1.0: the
+        array of ones is made only once the id columns are encoded and released).
     weighted : bool
         Whether a weight column / attribute was used.
     directed : bool
@@ -170,7 +239,7 @@ class EdgeRecords:
     format: str
     source: pa.Array | pa.ChunkedArray
     target: pa.Array | pa.ChunkedArray
-    weight: np.ndarray
+    weight: np.ndarray | None
     weighted: bool
     directed: bool = False
     extra_nodes: pa.Array | None = None

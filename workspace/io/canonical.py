@@ -7,11 +7,13 @@ numpy hooking and pointer jumping for the report's connected components.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from workspace.domain import GraphData, ImportPolicy, ImportReport
+from workspace.domain import GraphData, ImportPolicy, ImportReport, decode_node_ids
 from workspace.errors import InputError
 from workspace.io._common import EdgeRecords, Progress, first_cast_failure, report_progress
 
@@ -41,19 +43,27 @@ def _numeric_ids(values: pa.Array) -> tuple[pa.Array | None, int | None]:
     return pc.cast(integers, pa.string()), None
 
 
-def _first_empty(values: pa.Array) -> int | None:
-    if len(values) and pc.min(pc.binary_length(values)).as_py() == 0:
-        return pc.index(pc.binary_length(values), 0).as_py()
-    return None
-
-
 MAX_ID_BYTES = 4096
 
 
-def _first_too_long(values: pa.Array) -> int | None:
-    if len(values) and pc.max(pc.binary_length(values)).as_py() > MAX_ID_BYTES:
-        return pc.index(pc.greater(pc.binary_length(values), MAX_ID_BYTES), True).as_py()
-    return None
+def _length_faults(values: pa.Array | pa.ChunkedArray) -> tuple[int | None, int | None]:
+    """(index of the first empty id, index of the first id longer than ``MAX_ID_BYTES``), each
+    None when there is none: one length pass, chunk by chunk (no lengths array of the whole
+    column)."""
+    empty = long = None
+    at = 0
+    for chunk in _chunks(values):
+        if len(chunk):
+            lengths = pc.binary_length(chunk)
+            low, high = (x.as_py() for x in pc.min_max(lengths).values())
+            if empty is None and low == 0:
+                empty = at + pc.index(lengths, 0).as_py()
+            if long is None and high > MAX_ID_BYTES:
+                long = at + pc.index(pc.greater(lengths, MAX_ID_BYTES), True).as_py()
+            if empty is not None and long is not None:
+                break
+        at += len(chunk)
+    return empty, long
 
 
 def _check_ids(rec: EdgeRecords, source: pa.Array, target: pa.Array, extra: pa.Array | None,
@@ -72,12 +82,13 @@ def _check_ids(rec: EdgeRecords, source: pa.Array, target: pa.Array, extra: pa.A
             raise rec.error(i, f"node id {columns[k][i].as_py()!r} is not an integer (numeric "
                                "ids were asked for)", node=k == 2)
         columns = [c for c, _ in converted]
-    empty = [(i, k) for k, c in enumerate(columns) if (i := _first_empty(c)) is not None]
+    faults = [_length_faults(c) for c in columns]
+    empty = [(i, k) for k, (i, _) in enumerate(faults) if i is not None]
     if empty:
         endpoint = [(i, k) for i, k in empty if k < 2]
         i, k = min(endpoint) if endpoint else empty[0]
         raise rec.error(i, "empty node id", node=k == 2)
-    long = [(i, k) for k, c in enumerate(columns) if (i := _first_too_long(c)) is not None]
+    long = [(i, k) for k, (_, i) in enumerate(faults) if i is not None]
     if long:
         i, k = min(long)
         raise rec.error(i, f"node id longer than {MAX_ID_BYTES} bytes "
@@ -126,9 +137,11 @@ def _dictionary_encode(parts: list[pa.Array]) -> tuple[pa.Array, np.ndarray]:
 
 #: ids of at most this many 8-byte words are encoded as integer keys (:func:`_encode_by_words`);
 #: longer ones go through Arrow's string hash kernel
-_MAX_KEY_WORDS = 4
+_MAX_KEY_WORDS = 8
 #: ``_KEEP_BYTES[r]`` keeps the first ``r`` bytes of a little-endian 8-byte word
 _KEEP_BYTES = np.array([(1 << (8 * r)) - 1 for r in range(9)], dtype=np.uint64)
+#: the multiplier of :func:`_fold_key`: 2**64 over the golden ratio, rounded to odd
+_MIX = np.uint64(0x9E3779B97F4A7C15)
 
 
 def _string_buffers(values: pa.Array) -> tuple[np.ndarray, np.ndarray]:
@@ -143,39 +156,63 @@ def _string_buffers(values: pa.Array) -> tuple[np.ndarray, np.ndarray]:
     return offsets, data
 
 
-def _id_words(offsets: np.ndarray, data: np.ndarray, n_words: int,
-              out: np.ndarray) -> None:
-    """Write ids ``data[offsets[i]:offsets[i + 1]]`` as ``n_words`` little-endian uint64 words
-    each, zero-padded: byte ``j`` of ``out[k, i]`` (value ``out[k, i] >> 8 j & 255``) is byte
-    ``8 k + j`` of id ``i``, or 0 past its end."""
-    # every 8-byte window of the data: window p holds bytes p .. p + 7 (none if fewer than 8)
-    inner = max(data.size - 7, 0)
-    windows = np.ndarray(shape=(inner,), dtype="<u8", buffer=data, strides=(1,))
-    # windows from the last 7 bytes on, read from a zero-padded copy of them
-    end = np.zeros(data.size - inner + 8 * n_words + 8, dtype=np.uint8)
-    end[:data.size - inner] = data[inner:]
-    end_windows = np.ndarray(shape=(end.size - 7,), dtype="<u8", buffer=end, strides=(1,))
-    start = offsets[:-1]
-    length = offsets[1:] - start
-    for k in range(n_words):
-        at = start + 8 * k  # non-decreasing
-        tail = int(np.searchsorted(at, inner, side="left"))  # at[tail:] >= inner
-        keep = _KEEP_BYTES[np.clip(length - 8 * k, 0, 8)]
-        word = out[k]
-        np.bitwise_and(windows[at[:tail]], keep[:tail], out=word[:tail])
-        if tail < at.size:
-            np.bitwise_and(end_windows[at[tail:] - inner], keep[tail:], out=word[tail:])
+class _IdWords:
+    """The ids of one string array as little-endian 64-bit words, made when asked for.
+
+    :meth:`words` ``(W)`` gives an array of shape ``(n, W)``: byte ``j`` of ``out[i, k]``
+    (value ``out[i, k] >> 8 j & 255``) is byte ``8 k + j`` of id ``i``
+    (``data[offsets[i]:offsets[i + 1]]``), or 0 past its end. Nothing per id is kept between
+    calls (the offsets are read from Arrow's buffer again), so only one part's words are
+    held at a time.
+    """
+
+    def __init__(self, values: pa.Array) -> None:
+        self.values = values
+        self.size = len(values)
+        offsets, data = _string_buffers(values)
+        self.longest = int(np.max(np.diff(offsets))) if self.size else 0
+        used = data[int(offsets[0]):int(offsets[-1])]
+        self.has_nul = bool(used.size) and not bool(used.all())
+
+    def words(self, n_words: int) -> np.ndarray:
+        offsets, data = _string_buffers(self.values)
+        out = np.empty((self.size, n_words), dtype=np.uint64)
+        # every 8-byte window of the data: window p holds bytes p .. p + 7 (none if fewer than 8)
+        inner = max(data.size - 7, 0)
+        windows = np.ndarray(shape=(inner,), dtype="<u8", buffer=data, strides=(1,))
+        # windows from the last 7 bytes on, read from a zero-padded copy of them
+        end = np.zeros(data.size - inner + 8 * n_words + 8, dtype=np.uint8)
+        end[:data.size - inner] = data[inner:]
+        end_windows = np.ndarray(shape=(end.size - 7,), dtype="<u8", buffer=end, strides=(1,))
+        start = offsets[:-1]
+        length = np.diff(offsets)
+        shortest = int(length.min()) if length.size else 0
+        for k in range(n_words):
+            at = start + 8 * k  # non-decreasing
+            tail = int(np.searchsorted(at, inner, side="left"))  # at[tail:] >= inner
+            word = out[:, k]
+            if shortest >= 8 * (k + 1):  # word k lies inside every id: nothing to mask
+                # (fancy indexing: np.take would first copy the overlapping windows' view)
+                word[:tail] = windows[at[:tail]]
+                if tail < at.size:
+                    word[tail:] = end_windows[at[tail:] - inner]
+                continue
+            keep = _KEEP_BYTES[np.clip(length - 8 * k, 0, 8)]
+            np.bitwise_and(windows[at[:tail]], keep[:tail], out=word[:tail])
+            if tail < at.size:
+                np.bitwise_and(end_windows[at[tail:] - inner], keep[tail:], out=word[tail:])
+        return out
 
 
-def _word_key(words: np.ndarray) -> np.ndarray:
-    """One uint64 key per column of ``words`` (shape (W, m)):
-    ``h = ((...((w_0 K) xor w_1) K ...) xor w_{W-1}) K`` with ``K = 0x9E3779B97F4A7C15`` (2**64 over the golden ratio, rounded to odd; Knuth 1998,
-    section 6.4), arithmetic modulo 2**64. Not injective: callers check for collisions."""
-    mix = np.uint64(0x9E3779B97F4A7C15)
-    key = words[0] * mix
-    for k in range(1, words.shape[0]):
-        key ^= words[k]
-        key *= mix
+def _fold_key(key: np.ndarray | None, word: np.ndarray) -> np.ndarray:
+    """One more word into the uint64 keys: ``h_0 = w_0 K``, ``h_k = (h_{k-1} xor w_k) K`` with
+    ``K = 0x9E3779B97F4A7C15`` (2**64 over the golden ratio, rounded to odd; Knuth 1998,
+    section 6.4), arithmetic modulo 2**64; ``key`` is updated in place (None: the first word).
+    Not injective: callers check for collisions."""
+    if key is None:
+        return word * _MIX
+    key ^= word
+    key *= _MIX
     return key
 
 
@@ -183,19 +220,21 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
     """Distinct ids of short-id columns through integer keys, or None when they do not apply.
 
     An id of at most ``8 W`` UTF-8 bytes (``W <= _MAX_KEY_WORDS``) is read as ``W``
-    64-bit words, zero-padded (:func:`_id_words`). Without NUL bytes in the data these
+    64-bit words, zero-padded (:class:`_IdWords`). Without NUL bytes in the data these
     words determine the id, and comparing them in turn, each read as a big-endian number,
     compares the ids byte by byte: so sorting distinct ids by their byte-swapped words
     (``numpy.lexsort``) gives UTF-8 byte order, the order Arrow's ``sort_indices`` gives
-    on the strings. Records are grouped by
-    Arrow's hash kernel on one uint64 key: the word itself for ``W = 1``, else a
-    multiply-xorshift mix of the words (:func:`_word_key`), checked afterwards: every
-    record's words must equal those of its group's representative, else (a key collision)
-    None is returned and the caller hashes the strings.
+    on the strings. Records are grouped by Arrow's hash kernel on one uint64 key: the word
+    itself for ``W = 1``, else a multiply-xorshift fold of the words (:func:`_fold_key`),
+    checked afterwards: every record's words must equal those of its group's
+    representative, else (a key collision) None is returned and the caller hashes the
+    strings. The words are made one word index at a time (once for the key, once for the
+    check, which also collects the distinct ids' words), so the memory held is a few
+    arrays of one value per record whatever ``W``.
 
-    Returns ``(codes, representatives, order)``: the int32 code of every record (all parts
-    concatenated; codes number the distinct ids in order of first appearance), one record of
-    each distinct id in sorted order, and ``order`` (the code of each sorted position); or
+    Returns ``(codes, first, order)``: the int32 code of every record (all parts
+    concatenated; codes number the distinct ids in order of first appearance), the first
+    record of each code (increasing), and ``order`` (the code of each sorted position); or
     None (no records, an id longer than ``8 * _MAX_KEY_WORDS`` bytes, a NUL byte, or a key
     collision).
 
@@ -205,47 +244,60 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
     order); D. E. Knuth, The Art of Computer Programming vol. 3 (1998), section 6.4
     (multiplicative hashing); Apache Arrow compute function ``dictionary_encode``.
     """
-    buffers = [_string_buffers(p) for p in parts]
     m = sum(len(p) for p in parts)
     if m == 0:
         return None
-    longest = max(int(np.max(np.diff(off))) if off.size > 1 else 0 for off, _ in buffers)
+    readers = [_IdWords(p) for p in parts]
+    longest = max(r.longest for r in readers)
     n_words = max(1, -(-longest // 8))
-    if n_words > _MAX_KEY_WORDS:
-        return None
-    for offsets, data in buffers:
-        used = data[int(offsets[0]):int(offsets[-1])]
-        if used.size and not used.all():  # a NUL byte: the string path reports it
-            return None
-    words = np.empty((n_words, m), dtype=np.uint64)
-    at = 0
-    for (offsets, data), p in zip(buffers, parts):
-        _id_words(offsets, data, n_words, words[:, at:at + len(p)])
-        at += len(p)
-    del buffers
-    key = words[0] if n_words == 1 else _word_key(words)
+    if n_words > _MAX_KEY_WORDS or any(r.has_nul for r in readers):
+        return None  # long ids take the string path; a NUL byte is reported there
+    bounds = np.cumsum([0] + [r.size for r in readers])
+    # one key per record, folded part by part (the words of one part at a time)
+    key = np.empty(m, dtype=np.uint64)
+    for r, at in zip(readers, bounds):
+        words = r.words(n_words)
+        folded = None
+        for k in range(n_words):
+            folded = _fold_key(folded, words[:, k])
+        key[at:at + r.size] = words[:, 0] if n_words == 1 else folded
+    del words, folded
     encoded = pc.dictionary_encode(pa.array(key, type=pa.uint64()))
-    del key
     codes = encoded.indices.to_numpy(zero_copy_only=False)
     n = len(encoded.dictionary)
     del encoded
-    representative = np.empty(n, dtype=np.int64)
-    representative[codes] = np.arange(m, dtype=np.int64)  # any record of each code
-    distinct = words[:, representative]
-    if n_words > 1:
-        for k in range(n_words):
-            if not np.array_equal(distinct[k][codes], words[k]):
+    # first[c]: the first record of code c, increasing in c (codes number first appearances);
+    # parts from the last, each from its end, so that the earliest record writes last
+    first = np.empty(n, dtype=np.int64)
+    for r, at in zip(readers[::-1], bounds[-2::-1]):
+        first[codes[at:at + r.size][::-1]] = np.arange(at + r.size - 1, at - 1, -1, dtype=np.int64)
+    if n_words == 1:
+        distinct = key[first][:, None]  # the key is the word: no collision possible
+        del key
+    else:
+        del key
+        # the words of the distinct ids, (n, W): each part's words, the ids first met in it
+        # recorded, then every record checked against its group's first record (met in this
+        # part or before)
+        distinct = np.empty((n, n_words), dtype=np.uint64)
+        for r, at in zip(readers, bounds):
+            words = r.words(n_words)
+            lo, hi = np.searchsorted(first, [at, at + r.size])
+            np.take(words, first[lo:hi] - at, axis=0, out=distinct[lo:hi])
+            # (np.take along axis 0 gathers whole rows, several times faster than d[index])
+            if not np.array_equal(np.take(distinct, codes[at:at + r.size], axis=0), words):
                 return None  # two ids share a key
-    del words
     # as big-endian numbers the words compare as their bytes do; first word first
-    order = np.lexsort(distinct[::-1].byteswap())
-    return codes, representative[order], order
+    order = np.lexsort(distinct.T[::-1].byteswap())
+    return codes, first, order
 
 
 def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.ChunkedArray,
-               extra: pa.Array | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+               extra: pa.Array | None, *, packed: bool = False) -> tuple:
     """Sorted unique ids and indices of ``source`` and ``target`` into them (int32 while the
-    ids number fewer than 2**31, else int64).
+    ids number fewer than 2**31, else int64). With ``packed``: ``(None, u, v, (offsets,
+    data))``, the sorted ids packed as ``domain.encode_node_ids`` packs them (int64 offsets,
+    UTF-8 bytes, from the ids' own Arrow bytes) instead of the str array.
 
     Each distinct id of the source, target and declared-node columns gets a code (the
     distinct ids in order of first appearance): for ids of at most 32 UTF-8 bytes
@@ -267,8 +319,17 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     m_source, m_target = len(source), len(target)
     by_words = _encode_by_words(parts)
     if by_words is not None:
-        codes, representative, order = by_words
-        distinct = pa.chunked_array(parts).take(pa.array(representative))
+        codes, first, order = by_words
+        # the distinct ids in code order, taken part by part (a take on the chunked column
+        # would first join all its chunks: a copy of every id), then sorted
+        pieces, at = [], 0
+        for part in parts:
+            lo, hi = np.searchsorted(first, [at, at + len(part)])
+            if hi > lo:
+                pieces.append(part.take(pa.array(first[lo:hi] - at)))
+            at += len(part)
+        distinct = pa.concat_arrays(pieces).take(pa.array(order))
+        del pieces
     else:
         dictionary, codes = _dictionary_encode(parts)
         if len(dictionary) and pc.any(pc.match_substring(dictionary, "\x00")).as_py():
@@ -282,8 +343,22 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     rank[order] = np.arange(order.size, dtype=index_type)
     all_codes = rank[codes]
     del codes
-    node_ids = _string_array_to_numpy(_single(distinct))
-    return node_ids, all_codes[:m_source], all_codes[m_source:m_source + m_target]
+    distinct = _single(distinct)
+    u, v = all_codes[:m_source], all_codes[m_source:m_source + m_target]
+    if not packed:
+        return _string_array_to_numpy(distinct), u, v
+    # the packed form (domain.encode_node_ids) straight from the UTF-8 bytes the ids came from
+    # (valid UTF-8 without NUL: encode_node_ids of their decoding gives these bytes back); the
+    # str array is left to the caller (decode_node_ids of these), to be made once the id
+    # columns are released
+    out = (None, u, v)
+    if len(distinct) == 0:
+        return out + ((np.zeros(1, dtype=np.int64), np.zeros(0, dtype=np.uint8)),)
+    if distinct.type != pa.string():
+        distinct = distinct.cast(pa.string())
+    offsets, data = _string_buffers(distinct)
+    base = int(offsets[0])
+    return out + ((offsets - base, data[base:int(offsets[-1])]),)
 
 
 def _group_starts(sorted_keys: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -302,13 +377,39 @@ def _stable_order(key: np.ndarray, key_bound: int) -> np.ndarray:
     (``key * m + position``) and the packed values are sorted with numpy's
     vectorised sort, several times faster than ``argsort(kind="stable")``;
     ties keep file order because the position breaks them.
+
+    When it does not (pair keys ``lo * n + hi`` from about 2.5M nodes at 7.5 edges per node),
+    the key is split in two digits ``key = q * b + r`` with ``b = ceil(sqrt(key_bound))`` and
+    sorted least significant digit first, each pass packed the same way (``r * m + i``, then
+    ``q[order] * m + i``): a stable sort by ``r`` followed by a stable sort by ``q`` is a
+    stable sort by ``key`` (LSD radix sort; Knuth 1998, section 5.2.5). This keeps the fast
+    vectorised sort where ``argsort(kind="stable")`` (a merge sort) cost several seconds at
+    3M nodes. The order is the same: a stable order of given keys is unique.
     """
     m = key.size
-    if key_bound > 0 and key_bound <= (2 ** 63 - 1) // max(m, 1):
+    limit = (2 ** 63 - 1) // max(m, 1)
+    if key_bound > 0 and key_bound <= limit:
         packed = key * m
         packed += np.arange(m, dtype=np.int64)
         packed.sort()
         return packed % m
+    base = math.isqrt(max(key_bound - 1, 0)) + 1  # base ** 2 >= key_bound
+    if base <= limit:
+        def pack_positions(values: np.ndarray) -> None:  # values * m + i, in place
+            values *= m
+            for at in range(0, m, _PAIR_CHUNK):
+                values[at:at + _PAIR_CHUNK] += np.arange(at, min(m, at + _PAIR_CHUNK), dtype=np.int64)
+
+        packed = np.remainder(key, base)
+        pack_positions(packed)
+        packed.sort()
+        order = packed % m  # stable by the low digit
+        np.take(key, order, out=packed)
+        packed //= base
+        pack_positions(packed)
+        packed.sort()
+        packed %= m
+        return order[packed]  # stable by the high digit, ties in the low digit's order
     return np.argsort(key, kind="stable")
 
 
@@ -469,7 +570,9 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
     progress : callable or None, default None
         Receives ``("canonicalise", step, 4)``.
     on_graph : callable or None, default None
-        Called with the graph before the report is built.
+        Called with the graph and its packed node ids (``encode_node_ids``'s int64 offsets
+        and UTF-8 bytes, taken from the sorted distinct ids' Arrow buffers) before the
+        report is built.
     consume : bool, default False
         The caller is done with ``rec``'s id columns: they are released
         (:meth:`EdgeRecords.release_columns`) once the ids are encoded.
@@ -509,7 +612,7 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
     source, target, extra = _check_ids(rec, source, target, extra, policy.numeric_ids)
     report_progress(progress, "canonicalise", 0, 4)
     try:
-        node_ids, u, v = encode_ids(source, target, extra)
+        node_ids, u, v, packed_ids = encode_ids(source, target, extra, packed=True)
     except InputError as err:
         raise InputError(err.message, path=path) from None
     del source, target, extra
@@ -521,8 +624,13 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         # for their reuse; for the "system" pool this is glibc's malloc_trim, which returns the
         # free pages inside the heap as well): a lower peak resident size
         pa.default_memory_pool().release_unused()
+    # the str array of the ids, decoded from their packed bytes now that the columns are gone
+    node_ids = decode_node_ids(*packed_ids)
     n = int(node_ids.size)
-    weight = np.asarray(rec.weight, dtype=np.float64)
+    # unweighted records carry no weights until here: the ones are made after the id columns
+    # are gone (peak memory)
+    weight = (np.ones(m_read, dtype=np.float64) if rec.weight is None
+              else np.asarray(rec.weight, dtype=np.float64))
     # original record numbers are carried along only where an error may need a line
     need_record = policy.duplicates == "error" or rec.directed
     record = np.arange(m_read, dtype=np.int64) if need_record else None
@@ -629,7 +737,8 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
                       edge_v=edge_v.astype(np.int64, copy=False),
                       weight=np.ascontiguousarray(weight, dtype=np.float64), directed=keep_direction)
     if on_graph is not None:
-        on_graph(graph)
+        on_graph(graph, packed_ids)
+    del packed_ids
     report = build_report(graph, rec, m_read, loops_found, loops_kept, merged, asymmetric,
                           zero_dropped, notes)
     report_progress(progress, "canonicalise", 4, 4)
@@ -665,21 +774,27 @@ def component_labels(n: int, u: np.ndarray, v: np.ndarray) -> np.ndarray:
     """
     index_type = np.int32 if n < 2 ** 31 else np.int64
     parent = np.arange(n, dtype=index_type)
-    proper = u != v
-    a = u[proper].astype(index_type, copy=False)
-    b = v[proper].astype(index_type, copy=False)
-    del proper
+    a, b = _proper_pairs(u, v, index_type)
     max_jumps = n.bit_length() + 1
     for _ in range(_COMPONENT_ROUNDS + 4 * n.bit_length()):
-        root_a, root_b = parent[a], parent[b]
-        low = np.minimum(root_a, root_b)
-        high = np.maximum(root_a, root_b, out=root_b)
-        cross = low != high
+        # (each array is replaced as soon as its successor exists: a few edge-length arrays at a
+        # time, not two generations of them)
+        root_a = parent[a]
+        root_b = parent[b]
+        cross = root_a != root_b
         if not cross.all():
-            a, b, low, high = a[cross], b[cross], low[cross], high[cross]
+            a = a[cross]
+            b = b[cross]
+            root_a = root_a[cross]
+            root_b = root_b[cross]
+        del cross
         if a.size == 0:
             return parent
+        low = np.minimum(root_a, root_b)
+        high = np.maximum(root_a, root_b, out=root_b)
+        del root_a
         np.minimum.at(parent, high, low)
+        del low, high
         for _ in range(max_jumps):
             grand = parent[parent]
             if np.array_equal(grand, parent):
@@ -694,6 +809,37 @@ def component_labels(n: int, u: np.ndarray, v: np.ndarray) -> np.ndarray:
     first = np.full(int(labels.max()) + 1 if n else 0, n, dtype=np.int64)
     np.minimum.at(first, labels, np.arange(n))
     return first[labels].astype(index_type)
+
+
+_PAIR_CHUNK = 1 << 22
+
+
+def _proper_pairs(u: np.ndarray, v: np.ndarray, index_type) -> tuple[np.ndarray, np.ndarray]:
+    """``u[u != v]``, ``v[u != v]`` as ``index_type``, made in chunks (no full-length temporaries
+    of the input's wider type)."""
+    count = 0
+    for at in range(0, u.size, _PAIR_CHUNK):
+        count += int(np.count_nonzero(u[at:at + _PAIR_CHUNK] != v[at:at + _PAIR_CHUNK]))
+    a = np.empty(count, dtype=index_type)
+    b = np.empty(count, dtype=index_type)
+    filled = 0
+    for at in range(0, u.size, _PAIR_CHUNK):
+        cu, cv = u[at:at + _PAIR_CHUNK], v[at:at + _PAIR_CHUNK]
+        proper = cu != cv
+        k = int(np.count_nonzero(proper))
+        a[filled:filled + k] = cu[proper]
+        b[filled:filled + k] = cv[proper]
+        filled += k
+    return a, b
+
+
+def _median(w: np.ndarray) -> float:
+    """``numpy.median(w)``; without its sorted copy of ``w`` when every value is the same
+    (unweighted graphs): then the middle values are any one or two of them, averaged by
+    ``numpy.median`` itself as it would average the middle pair."""
+    if w.size and w.min() == w.max():
+        return float(np.median(w[:2] if w.size % 2 == 0 else w[:1]))
+    return float(np.median(w))
 
 
 def build_report(graph: GraphData, rec: EdgeRecords, records_read: int, loops_found: int,
@@ -711,17 +857,22 @@ def build_report(graph: GraphData, rec: EdgeRecords, records_read: int, loops_fo
     sizes = np.bincount(labels, minlength=n)
     sizes = np.sort(sizes[sizes > 0])[::-1]
     n_components = sizes.size
-    proper = u != v
-    degree = np.bincount(u[proper], minlength=n) + np.bincount(v[proper], minlength=n)
+    # a node is isolated when no edge between two nodes touches it (chunks: no full-length copies)
+    touched = np.zeros(n, dtype=bool)
+    for at in range(0, m, _PAIR_CHUNK):
+        cu, cv = u[at:at + _PAIR_CHUNK], v[at:at + _PAIR_CHUNK]
+        proper = cu != cv
+        touched[cu[proper]] = True
+        touched[cv[proper]] = True
     summary = {
         "min": float(w.min()), "max": float(w.max()), "mean": float(w.mean()),
-        "median": float(np.median(w)), "total": float(w.sum()),
+        "median": _median(w), "total": float(w.sum()),
     }
     return ImportReport(
         source=rec.path, format=rec.format, records_read=int(records_read), nodes=n, edges=m,
         components=int(n_components),
         component_sizes=[int(s) for s in sizes[:COMPONENT_SIZES_LISTED]],
-        isolated_nodes=int(np.count_nonzero(degree == 0)), self_loops_found=int(loops_found),
+        isolated_nodes=int(n - np.count_nonzero(touched)), self_loops_found=int(loops_found),
         self_loops_kept=int(loops_kept), duplicates_merged=int(merged),
         asymmetric_pairs=int(asymmetric), zero_weight_dropped=int(zero_dropped),
         weighted=bool(rec.weighted), weight_summary=summary, notes=notes)

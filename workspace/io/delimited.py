@@ -9,6 +9,7 @@ with a single-space delimiter and quoting off.
 
 from __future__ import annotations
 
+import os
 import re
 
 import numpy as np
@@ -19,6 +20,7 @@ import pyarrow.csv as pa_csv
 from workspace.domain import ImportPolicy
 from workspace.errors import InputError, ParameterError
 from workspace.io._common import (
+    BlankLines,
     EdgeRecords,
     LineMap,
     Progress,
@@ -127,28 +129,47 @@ def _normalise_whitespace(data: bytes) -> bytes:
 class _Csv:
     """pyarrow.csv with one set of parse options; everything read as strings."""
 
-    def __init__(self, path: str, data: bytes, delimiter: str, quoting: bool) -> None:
+    def __init__(self, path: str, data: bytes | None, delimiter: str, quoting: bool, *,
+                 scan: _FileScan | None = None) -> None:
         self.path = path
         self.data = data
+        # file mode (``scan``): the whole text is read by Arrow from the file itself; any parse
+        # failure hands over to the in-memory path (:class:`_ReadFromBytes`), which explains it
+        self.scan = scan
         self.parse_kwargs = dict(delimiter=delimiter, quote_char='"' if quoting else False,
                                  double_quote=quoting, escape_char=False,
                                  newlines_in_values=False, ignore_empty_lines=True)
-        self._lines: LineMap | None = None
+        self._lines: LineMap | BlankLines | None = None
         # Arrow cannot parse a row longer than its block ("straddling object"): 4 MiB blocks hold
         # any ordinary line; only when one does not are blocks sized to the longest line
         self.block_size = 1 << 22
 
     @property
-    def lines(self) -> LineMap:
+    def lines(self) -> LineMap | BlankLines:
+        if self.scan is not None:
+            return self.scan.lines
         if self._lines is None:
             self._lines = LineMap(self.data)
         return self._lines
 
-    def read(self, data: bytes, n_columns: int | None, include: list[int] | None,
+    def release(self) -> None:
+        """Done parsing: keep only where the lines are (:class:`BlankLines`), not the file's
+        bytes, so that record lookups made later (errors found while canonicalising) do not
+        hold the whole file in memory."""
+        if self.scan is None:
+            self._lines = BlankLines(self.data)
+        self.data = None
+
+    def read(self, data: bytes | None, n_columns: int | None, include: list[int] | None,
              threads: bool) -> pa.Table:
+        """Parse ``data`` (None: the whole text, from the file itself in file mode)."""
+        from_file = data is None and self.scan is not None
+        if data is None and not from_file:
+            data = self.data
+        size = self.scan.size if from_file else len(data)
         names = None if n_columns is None else [f"f{i}" for i in range(n_columns)]
         # threads only pay off on large inputs (and Arrow's pool is best left idle for small ones)
-        read_options = pa_csv.ReadOptions(use_threads=threads and len(data) > _THREADS_FROM_BYTES,
+        read_options = pa_csv.ReadOptions(use_threads=threads and size > _THREADS_FROM_BYTES,
                                           autogenerate_column_names=True, block_size=self.block_size)
         convert = dict(strings_can_be_null=False, quoted_strings_can_be_null=False,
                        check_utf8=False)
@@ -157,10 +178,17 @@ class _Csv:
             if include is not None:
                 convert["include_columns"] = [names[i] for i in include]
         try:
+            if from_file:
+                with pa.OSFile(self.path, "rb") as source:
+                    return pa_csv.read_csv(source, read_options=read_options,
+                                           parse_options=pa_csv.ParseOptions(**self.parse_kwargs),
+                                           convert_options=pa_csv.ConvertOptions(**convert))
             return pa_csv.read_csv(pa.BufferReader(data), read_options=read_options,
                                    parse_options=pa_csv.ParseOptions(**self.parse_kwargs),
                                    convert_options=pa_csv.ConvertOptions(**convert))
-        except pa.ArrowInvalid as err:
+        except (pa.ArrowInvalid, OSError) as err:
+            if self.scan is not None:
+                raise _ReadFromBytes() from err
             # a line longer than the block shows as "straddling object" or as an empty file
             if len(data) > self.block_size and self._fit_block_to_longest_line():
                 return self.read(data, n_columns, include, threads)
@@ -215,6 +243,99 @@ class _Csv:
 
 def _is_numeric(values: pa.Array | pa.ChunkedArray) -> bool:
     return len(values) > 0 and to_float64(values) is not None
+
+
+#: delimited files of at least this many bytes are parsed from the file itself when they need
+#: no rewriting (:func:`read_delimited_file`); smaller ones are read into memory
+STREAM_FROM_BYTES = 32 << 20
+_SCAN_BYTES = 1 << 24
+
+
+class _ReadFromBytes(Exception):
+    """File mode cannot read this file as it is: read it into memory (the usual path)."""
+
+
+class _FileScan:
+    """One pass over a file in slices of bounded size: can Arrow parse it as it is, and where
+    are its lines.
+
+    ``usable`` is False when the text would need any of the in-memory path's rewriting or
+    checks: gzip data, a byte-order mark, a non-ASCII byte (UTF-8 validation and stray marks),
+    a carriage return (line ends), or a file that changed size while read. Otherwise
+    ``has_quote`` and the first ``_SAMPLE_BYTES`` (``head``) are known, and :attr:`lines`
+    (:class:`BlankLines`, the same line numbers as the in-memory text) is found by a second
+    pass when first asked for: only an error's line or a quoted file's line count needs it.
+    """
+
+    def __init__(self, path: str) -> None:
+        self.usable = False
+        self.path = path
+        self.size = os.path.getsize(path)
+        self.has_quote = False
+        self._lines: BlankLines | None = None
+        with open(path, "rb", buffering=0) as fh:
+            seen = 0
+            head = b""
+            for _ in range(self.size // _SCAN_BYTES + 2):  # a file that grows is refused below
+                chunk = fh.read(_SCAN_BYTES)
+                if not chunk:
+                    break
+                if not seen and (chunk[:2] == b"\x1f\x8b" or chunk.startswith(b"\xef\xbb\xbf")):
+                    return
+                if not chunk.isascii() or b"\r" in chunk:
+                    return
+                self.has_quote = self.has_quote or b'"' in chunk
+                if len(head) < _SAMPLE_BYTES:
+                    head += chunk[:_SAMPLE_BYTES - len(head)]
+                seen += len(chunk)
+        if seen != self.size:
+            return
+        self.head = head
+        self.usable = True
+
+    @property
+    def lines(self) -> BlankLines:
+        if self._lines is None:
+            lines = BlankLines(b"", feed=True)
+            with open(self.path, "rb", buffering=0) as fh:
+                for _ in range(self.size // _SCAN_BYTES + 1):
+                    chunk = fh.read(_SCAN_BYTES)
+                    if not chunk:
+                        break
+                    lines.feed(chunk)
+            lines.finish()
+            self._lines = lines
+        return self._lines
+
+
+def read_delimited_file(path: str, fmt: str, policy: ImportPolicy,
+                        progress: Progress = None) -> EdgeRecords | None:
+    """:func:`read_delimited` on a large file without holding its bytes: Arrow parses the file
+    itself, so the peak memory is that of the parsed columns alone; or None when the file is
+    smaller than :data:`STREAM_FROM_BYTES`, uses comments or blank-run separators, or needs
+    rewriting (:class:`_FileScan`), or Arrow cannot parse it (the caller then reads it into
+    memory, which gives the same records or the same error).
+    """
+    try:
+        if policy.comment or not os.path.isfile(path) or os.path.getsize(path) < STREAM_FROM_BYTES:
+            return None
+        delimiter = resolve_delimiter(fmt, policy.delimiter)
+    except (OSError, ParameterError):
+        return None
+    if delimiter == WHITESPACE:
+        return None
+    try:
+        scan = _FileScan(path)
+    except OSError:
+        return None
+    if not scan.usable:
+        return None
+    reader = _Csv(path, None, delimiter, quoting=delimiter != "\t", scan=scan)
+    try:
+        return _read_records(path, fmt, policy, progress, reader, delimiter, scan.head,
+                             whole=scan.size <= _SAMPLE_BYTES)
+    except _ReadFromBytes:
+        return None
 
 
 def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
@@ -277,15 +398,30 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
         reader = _Csv(path, data, " ", quoting=False)
     else:
         reader = _Csv(path, data, delimiter, quoting=delimiter != "\t")
+    return _read_records(path, fmt, policy, progress, reader, delimiter, data, whole=True)
+
+
+def _read_records(path: str, fmt: str, policy: ImportPolicy, progress: Progress, reader: _Csv,
+                  delimiter: str, head: bytes, *, whole: bool) -> EdgeRecords:
+    """The records of a delimited text: ``head`` is the whole text (``whole``) or, in file
+    mode, its first ``_SAMPLE_BYTES`` (raises :class:`_ReadFromBytes` when that is not enough).
+    In file mode (``reader.scan``) the text is the file's bytes as they are, which the scan
+    checked need none of :func:`read_delimited`'s rewriting."""
+    data = head
+    size = len(data) if whole else reader.scan.size
     notes: list[str] = []
     shown = {"\t": "tab", " ": "blank runs", WHITESPACE: "blank runs"}.get(delimiter, repr(delimiter))
 
     # --- first non-blank line (column count) and a sample of up to 256 KiB of whole lines
     lead = re.match(rb"\n*", data).end()
     if lead == len(data):
+        if not whole:
+            raise _ReadFromBytes()
         raise InputError("the file holds no records", path=path)
     header_line = data.count(b"\n", 0, lead) + 1
     first_end = data.find(b"\n", lead)
+    if first_end < 0 and not whole:
+        raise _ReadFromBytes()
     first_table = reader.read(data[lead:] if first_end < 0 else data[lead:first_end + 1],
                               None, None, threads=False)
     n_columns = first_table.num_columns
@@ -294,8 +430,10 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
                          f"found 1{_delimiter_hint(data[lead:] if first_end < 0 else data[lead:first_end], delimiter)}",
                          path=path, line=header_line)
     sample_bytes = data
-    if len(data) > _SAMPLE_BYTES:
+    if size > _SAMPLE_BYTES:
         cut = data.rfind(b"\n", 0, _SAMPLE_BYTES)
+        if cut < 0 and not whole:
+            raise _ReadFromBytes()
         sample_bytes = data[:cut + 1] if cut >= 0 else data
     sample = reader.read(sample_bytes, n_columns, None, threads=False)
     first_row = [sample.column(i)[0].as_py() for i in range(n_columns)]
@@ -308,10 +446,15 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
 
     report_progress(progress, "parse", 0, None)
     include = [0, 1] + ([weight_index] if weight_index is not None else [])
-    table = reader.read(data, n_columns, include, threads=True)
+    del data, head  # file mode: only the head; the in-memory path: the reader keeps the text
+    table = reader.read(None, n_columns, include, threads=True)
     expected_rows = table.num_rows
-    if reader.parse_kwargs["quote_char"] and b'"' in data:
-        expected_rows = count_nonblank_lines(data)
+    if reader.parse_kwargs["quote_char"]:
+        if reader.scan is not None:
+            if reader.scan.has_quote:
+                expected_rows = reader.scan.lines.n_rows
+        elif b'"' in reader.data:
+            expected_rows = count_nonblank_lines(reader.data)
     if table.num_rows != expected_rows:
         raise InputError(f"{table.num_rows} records parsed from {expected_rows} non-blank lines: "
                          "a quoted value spans a line break, which is not supported",
@@ -361,7 +504,6 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
 
     source = source.slice(start)
     target = target.slice(start)
-    m = len(source)
     if weight_index is not None:
         column = table.column(2).slice(start)
 
@@ -372,8 +514,9 @@ def read_delimited(path: str, data: bytes, fmt: str, policy: ImportPolicy,
         label = f"column {first_row[weight_index]!r}" if header else f"column {weight_index}"
         notes.append(f"weights from {label}")
     else:
-        weight = np.ones(m, dtype=np.float64)
+        weight = None  # every record weighs 1 (made by canonicalise when needed)
     notes.insert(0, f"fields separated by {shown}")
+    reader.release()
     return EdgeRecords(path=path, format=fmt, source=source, target=target, weight=weight,
                        weighted=weight_index is not None, directed=False, locate=locate,
                        notes=notes)

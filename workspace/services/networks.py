@@ -118,12 +118,13 @@ def prepare_import(path: str | os.PathLike, *, format: str | None = None,
         threads.append(thread)
         return thread
 
-    def hash_and_compress(graph: GraphData) -> None:
+    def hash_and_compress(graph: GraphData, encoded_ids=None) -> None:
         # runs beside the report (components, degrees, weight summary) on the other core
         try:
             from workspace.store.blobs import encode_graph_arrays  # numpy and zstandard only
 
-            encoded_ids = encode_node_ids(graph.node_ids)  # once, for the hash and the blobs
+            if encoded_ids is None:  # once, for the hash and the blobs
+                encoded_ids = encode_node_ids(graph.node_ids)
 
             def content_hash() -> None:
                 try:
@@ -140,8 +141,8 @@ def prepare_import(path: str | os.PathLike, *, format: str | None = None,
         except BaseException as exc:  # noqa: BLE001 - re-raised on the caller's thread
             done["error"] = exc
 
-    def on_graph(graph: GraphData) -> None:
-        done["thread"] = start(hash_and_compress, graph, name="cutbook-hash")
+    def on_graph(graph: GraphData, encoded_ids) -> None:
+        done["thread"] = start(hash_and_compress, graph, encoded_ids, name="cutbook-hash")
 
     try:
         graph, report = read_network(path, format=format, policy=policy, progress=progress,
