@@ -132,12 +132,14 @@ SCALED_PRODUCT_MIN_NODES = 500_000
 COLUMNWISE_MIN_ROWS = 100_000
 
 #: ``threads=0`` (automatic, the default) multiplies operators of at least this many rows in
-#: every available CPU, smaller ones in one. Below it the vector of a product fits in the
-#: processor's last-level cache (32 MB here: 4M float64) and a second thread brought nothing (1M
-#: rows: 0.92-0.95x); above it every stored entry reads the vector at a random place in memory,
-#: the product waits on memory latency, and two threads keep twice the reads in flight (10M-node
-#: planted partition: one product 659-746 ms in one thread, 353-643 ms in two, load 2.4-2.6).
-PARALLEL_AUTO_MIN_ROWS = 4_000_000
+#: every available CPU, smaller ones in one (there a product takes a few milliseconds and the
+#: thread hand-off is a visible share). Each output row is computed by one thread, so the bits do
+#: not depend on it. Measured on the 2-core machine, planted partitions of mean degree 15, one
+#: product in one / two threads: quiet (load 0.0-0.3) 1M rows 22.6-23.3 / 14.6-14.8 ms, 2M
+#: 41.2-42.7 / 33.3-36.5 ms, 3M 110.7-124.6 / 63.0-73.4 ms; 10M at load 2.4-2.6 659-746 /
+#: 353-643 ms. A whole 1M-node njw run, quiet: 7.8-8.5 s wall with one, 6.3-6.4 s with two (CPU
+#: 7.8-8.4 / 7.9-8.0 s); under load 2 the two took the same wall time as one.
+PARALLEL_AUTO_MIN_ROWS = 500_000
 
 #: Sparse matrices with fewer stored entries are multiplied in one thread.
 PARALLEL_MIN_NNZ = 200_000
