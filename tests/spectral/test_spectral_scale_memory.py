@@ -227,7 +227,13 @@ def test_block_products_one_column_at_a_time_are_the_same_bits(monkeypatch):
     assert np.array_equal(before, reference) and np.array_equal(after, reference)
     with ThreadPoolExecutor(1) as pool:
         monkeypatch.setattr(eigen, "PARALLEL_MIN_NNZ", 0)
-        assert np.array_equal(scaled.parallel(pool, 2).apply(X), reference)
+        parallel = scaled.parallel(pool, 2)
+        assert np.array_equal(parallel.apply(X), reference)
+        assert np.array_equal(parallel.S @ X[:, 0], A @ X[:, 0])          # scipy's product, 1-D
+        assert np.array_equal(parallel.S @ X, A @ X)                      # and a block
+        # the row blocks are views of the matrix: no second copy of its values or indices
+        assert len(parallel.S.blocks) == 2 and all(
+            np.shares_memory(b.data, A.data) and np.shares_memory(b.indices, A.indices) for b in parallel.S.blocks)
     plain = eigen.SymmetricOperator(A)
     assert np.array_equal(plain.apply(X), A @ X)
     assert np.array_equal(plain.apply(X[:, :1]), A @ X[:, :1])
