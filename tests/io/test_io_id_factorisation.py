@@ -153,16 +153,24 @@ def _check_encoding(src, dst, extra_ids, source, target, extra):
     return node_ids, u, v
 
 
-@pytest.mark.parametrize("seed", [1, 2, 3])
-def test_short_ids_take_the_integer_key_path_and_sort_by_code_point(monkeypatch, seed):
-    import pyarrow as pa
-
+def _spy_on_word_path(monkeypatch) -> list:
+    """What each call of ``canonical._encode_by_words`` (the integer-key path) returned, in order."""
     from workspace.io import canonical
 
     taken = []
     original = canonical._encode_by_words
     monkeypatch.setattr(canonical, "_encode_by_words",
                         lambda parts: taken.append(original(parts)) or taken[-1])
+    return taken
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_short_ids_take_the_integer_key_path_and_sort_by_code_point(monkeypatch, seed):
+    import pyarrow as pa
+
+    from workspace.io import canonical
+
+    taken = _spy_on_word_path(monkeypatch)
     rng = np.random.default_rng(seed)
     pool = SHORT + _random_short_ids(rng, 300)
     src = [pool[i] for i in rng.integers(0, len(pool), 900)]
@@ -199,10 +207,7 @@ def test_a_key_collision_falls_back_to_hashing_the_strings(monkeypatch):
 
     from workspace.io import canonical
 
-    taken = []
-    original = canonical._encode_by_words
-    monkeypatch.setattr(canonical, "_encode_by_words",
-                        lambda parts: taken.append(original(parts)) or taken[-1])
+    taken = _spy_on_word_path(monkeypatch)
     # every id gets the same key: the check against each group's representative must see it
     monkeypatch.setattr(canonical, "_fold_key", lambda key, word: np.zeros(word.size, np.uint64))
     src = ["abcdefghij", "abcdefghik", "zz", "abcdefghij"]
@@ -230,10 +235,7 @@ def test_ids_up_to_64_bytes_take_the_integer_key_path(monkeypatch, longest):
 
     from workspace.io import canonical
 
-    taken = []
-    original = canonical._encode_by_words
-    monkeypatch.setattr(canonical, "_encode_by_words",
-                        lambda parts: taken.append(original(parts)) or taken[-1])
+    taken = _spy_on_word_path(monkeypatch)
     rng = np.random.default_rng(longest)
     alphabet = list("abcXYZ019-_é漢")
     pool = set()
