@@ -313,7 +313,7 @@ def test_killing_a_worker_mid_sweep_loses_and_duplicates_nothing(store, planted,
     spec = sweeps.prepare_sweep(store, "lab/sbm", method="njw", ks="2..7", seeds=3)
     dask = sweeps.sweep(store, spec, executor=ex, progress=kill_after_two)
     assert killed and killed[0] < 18
-    assert dask["status"] == "done" and dask["tasks"]["done"] == 18
+    assert dask["status"] == "done" and dask["tasks"]["done"] == 18, (dask.get("error"), dask["tasks"])
     links = _links(store, dask["sweep"])
     # every (k, repeat) exactly once, every run done
     assert sorted((k, r) for k, r, _ in links) == sorted((k, r) for k in range(2, 8) for r in range(3))

@@ -662,6 +662,10 @@ def _run_on_dask(store: Store, sweep_id: int, spec: SweepSpec, graph, groups: di
                     time.sleep(0.02)
                     continue
                 for fut in finished:
+                    # a worker that dies while this batch is handled (its results gone with it) turns a
+                    # finished future back to "lost": Dask computes it again, so it stays outstanding
+                    if fut.status not in ("finished", "error", "cancelled"):
+                        continue
                     if fut in emb_pending:
                         group_embedded(fut)
                     else:
