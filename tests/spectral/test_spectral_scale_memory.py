@@ -237,3 +237,29 @@ def test_block_products_one_column_at_a_time_are_the_same_bits(monkeypatch):
     plain = eigen.SymmetricOperator(A)
     assert np.array_equal(plain.apply(X), A @ X)
     assert np.array_equal(plain.apply(X[:, :1]), A @ X[:, :1])
+
+
+def test_assignment_of_a_large_embedding_runs_blas_in_one_thread(monkeypatch):
+    """k-means from BLAS_SINGLE_THREAD_MIN_NODES rows runs with one OpenBLAS thread (threadpoolctl's
+    view from inside the call), the counts are restored after, and the labels are the same bits as with
+    the process setting (each output entry of its products is summed by one thread)."""
+    from threadpoolctl import threadpool_info
+
+    from workspace.spectral import kway
+
+    def blas_threads():
+        return [i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"]
+
+    if not any("openblas" in i["internal_api"] for i in threadpool_info()):
+        pytest.skip("the setting applies to OpenBLAS only")
+    U = np.random.default_rng(5).standard_normal((3000, 4))
+    seen = []
+    real = kway.kmeans
+    monkeypatch.setattr(kway, "kmeans", lambda *a, **kw: (seen.append(blas_threads()), real(*a, **kw))[1])
+    outside = blas_threads()
+    plain, _ = kway.assign_rows(U, 4, eigen.SolverContext(seed=3))
+    monkeypatch.setattr(eigen, "BLAS_SINGLE_THREAD_MIN_NODES", 1000)
+    single, _ = kway.assign_rows(U, 4, eigen.SolverContext(seed=3))
+    assert seen[0] == outside and set(seen[1]) == {1}
+    assert blas_threads() == outside
+    assert np.array_equal(plain, single)
