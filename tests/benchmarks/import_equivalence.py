@@ -45,11 +45,12 @@ def generate(folder: Path) -> list[Path]:
     rng = random.Random(2026)
     files = []
     for length in (1, 7, 8, 9, 16, 17, 32, 33, 40, 64, 65, 129, 300):
-        for variant in ("plain", "blank", "crlf", "comment", "unicode", "weights", "dup", "quoted"):
+        for variant in ("plain", "blank", "crlf", "comment", "unicode", "weights", "dup", "quoted",
+                        "fixed"):
             n_nodes = rng.randint(5, 300)
             alphabet = "abcdefgXYZ0123456789-_." if variant != "unicode" else "aé漢字😀ßz"
-            ids = sorted({_word(rng, rng.randint(max(1, length - 3), length), alphabet)
-                          for _ in range(n_nodes)})
+            shortest = length if variant == "fixed" else max(1, length - 3)  # fixed: ids of one length
+            ids = sorted({_word(rng, rng.randint(shortest, length), alphabet) for _ in range(n_nodes)})
             lines = ["source,target,weight"] if rng.random() < 0.5 else []
             for _ in range(rng.randint(3, 4 * len(ids))):
                 a, b = rng.choice(ids), rng.choice(ids)
@@ -106,6 +107,12 @@ def run_cases(files: list[str]) -> dict:
 
         if hasattr(delimited, "STREAM_FROM_BYTES"):
             delimited.STREAM_FROM_BYTES = 0
+    if os.environ.get("EQUIVALENCE_ENCODE_THREADS"):
+        # every id encoding through the two-thread path, where this checkout has one
+        from workspace.io import canonical
+
+        if hasattr(canonical, "PARALLEL_ENCODE_MIN_RECORDS"):
+            canonical.PARALLEL_ENCODE_MIN_RECORDS = 1
 
     out = {}
     for f in files:
@@ -129,6 +136,9 @@ def main() -> None:
     ap.add_argument("--file-mode", action="store_true",
                     help="here, read every delimited file the way large ones are read (from the file "
                          "itself, io.delimited.read_delimited_file); there, as that checkout does")
+    ap.add_argument("--encode-threads", action="store_true",
+                    help="here, encode every file's ids the way large ones are encoded (two threads, "
+                         "io.canonical.PARALLEL_ENCODE_MIN_RECORDS); there, as that checkout does")
     ap.add_argument("--child", help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.child:
@@ -145,8 +155,11 @@ def main() -> None:
         for tree in (ROOT, Path(args.against).resolve()):
             env = {**os.environ, "PYTHONPATH": str(tree)}
             env.pop("EQUIVALENCE_FILE_MODE", None)
+            env.pop("EQUIVALENCE_ENCODE_THREADS", None)
             if args.file_mode and tree == ROOT:
                 env["EQUIVALENCE_FILE_MODE"] = "1"
+            if args.encode_threads and tree == ROOT:
+                env["EQUIVALENCE_ENCODE_THREADS"] = "1"
             done = subprocess.run([sys.executable, str(Path(__file__).resolve()), "--against", ".",
                                    "--child", str(listing)], env=env, cwd=tree, capture_output=True,
                                   text=True, check=True)

@@ -23,6 +23,20 @@ from workspace.domain import ImportPolicy
 from workspace.io import read_network
 from workspace.io.canonical import encode_ids
 
+
+@pytest.fixture(autouse=True, params=["serial", "two threads"])
+def encode_threads(request, monkeypatch):
+    """Every test here runs twice: as small inputs run (one thread), and with the integer-key
+    encoding's two-thread path forced on (its threshold lowered to one record), which must
+    give the same arrays."""
+    from workspace.io import canonical
+
+    if request.param == "two threads":
+        monkeypatch.setattr(canonical, "PARALLEL_ENCODE_MIN_RECORDS", 1)
+        monkeypatch.setattr(canonical.os, "sched_getaffinity", lambda pid: {0, 1}, raising=False)
+    return request.param
+
+
 TRICKY = [
     "007", "7", "10", "9", "-1", "1e3", "+5", "0x1F", "1.0",         # look numeric, are strings
     "B", "a", "a b", "ab", "a-b", "Z", "_",                          # case, blanks, punctuation
@@ -254,3 +268,65 @@ def test_ids_up_to_64_bytes_take_the_integer_key_path(monkeypatch, longest):
     by_strings = encode_ids(source, target, None)
     assert taken[-1] is None
     assert all(np.array_equal(a, b) for a, b in zip(encoded, by_strings))
+
+
+def test_byte_order_of_words_is_the_byte_order_of_the_ids(encode_threads):
+    # reference: Python's sorted() on bytes (lexicographic by byte), ids of one to three words
+    import pyarrow as pa
+
+    from workspace.io.canonical import _byte_order, _IdWords
+
+    rng = np.random.default_rng(11)
+    for longest in (8, 16, 24):
+        ids = sorted({bytes(rng.integers(1, 256, int(rng.integers(1, longest + 1))).astype(np.uint8))
+                      for _ in range(3000)})
+        shuffled = [ids[i] for i in rng.permutation(len(ids))]
+        values = pa.array(shuffled, type=pa.binary()).cast(pa.string(), safe=False)
+        words = _IdWords(values).words(-(-longest // 8))
+        order = _byte_order(words)
+        assert [shuffled[i] for i in order] == ids
+
+
+def test_large_inputs_take_the_two_thread_path(monkeypatch, encode_threads):
+    import pyarrow as pa
+
+    from workspace.io import canonical
+
+    pools = []
+    original = canonical._thread_pool
+    monkeypatch.setattr(canonical, "_thread_pool", lambda m: pools.append(original(m)) or pools[-1])
+    src = [f"node-{i % 997}" for i in range(3000)]
+    dst = [f"node-{(7 * i) % 1009}" for i in range(3000)]
+    _check_encoding(src, dst, [], pa.array(src), pa.array(dst), None)
+    assert (pools[0] is not None) == (encode_threads == "two threads")
+
+
+@pytest.mark.parametrize("length", [1, 3, 7, 8, 9, 15, 16, 17, 40, 64])
+def test_ids_of_one_length_read_as_words_and_encoded(length):
+    # ids that all have the same byte length are read through a strided view, not a gather;
+    # reference: the zero-padded UTF-8 bytes themselves (Python bytes.ljust) read as
+    # little-endian words, and Python's sorted(set()) for the encoding
+    import pyarrow as pa
+
+    from workspace.io.canonical import _IdWords
+
+    rng = np.random.default_rng(length)
+    pool = {"é" * (length // 2) + "q" * (length % 2)}
+    while len(pool) < min(300, 8 ** length):  # (one byte: at most the 10 letters and "q")
+        pool.add("".join(rng.choice(list("abcxyz019-"), length)))
+    pool = sorted(pool)
+    for count in (1, 2, 5, 1000):
+        ids = [pool[i] for i in rng.integers(0, len(pool), count)]
+        values = pa.array(["lead"] + ids).slice(1)  # a non-zero offset, as Arrow's chunks have
+        n_words = -(-length // 8)
+        expected = np.frombuffer(b"".join(x.encode().ljust(8 * n_words, b"\0") for x in ids),
+                                 dtype="<u8").reshape(count, n_words)
+        reader = _IdWords(values)
+        assert np.array_equal(reader.words(n_words), expected)
+        assert np.array_equal(reader.words(n_words, np.arange(count)), expected)  # the gather
+        wider = reader.words(n_words + 1)
+        assert np.array_equal(wider[:, :n_words], expected) and not wider[:, n_words].any()
+    src = [pool[i] for i in rng.integers(0, len(pool), 2000)]
+    dst = [pool[i] for i in rng.integers(0, len(pool), 2000)]
+    _check_encoding(src, dst, [], pa.chunked_array([pa.array(src[:900]), pa.array(src[900:])]),
+                    pa.array(dst), None)
