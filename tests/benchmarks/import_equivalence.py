@@ -113,6 +113,10 @@ def run_cases(files: list[str]) -> dict:
 
         if hasattr(canonical, "PARALLEL_ENCODE_MIN_RECORDS"):
             canonical.PARALLEL_ENCODE_MIN_RECORDS = 1
+        from workspace.io import _common
+
+        if hasattr(_common, "PARALLEL_CAST_MIN_VALUES"):
+            _common.PARALLEL_CAST_MIN_VALUES = 1
 
     out = {}
     for f in files:
@@ -137,8 +141,9 @@ def main() -> None:
                     help="here, read every delimited file the way large ones are read (from the file "
                          "itself, io.delimited.read_delimited_file); there, as that checkout does")
     ap.add_argument("--encode-threads", action="store_true",
-                    help="here, encode every file's ids the way large ones are encoded (two threads, "
-                         "io.canonical.PARALLEL_ENCODE_MIN_RECORDS); there, as that checkout does")
+                    help="here, encode every file's ids and cast its weights the way large ones are "
+                         "(two threads: io.canonical.PARALLEL_ENCODE_MIN_RECORDS, "
+                         "io._common.PARALLEL_CAST_MIN_VALUES); there, as that checkout does")
     ap.add_argument("--child", help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.child:

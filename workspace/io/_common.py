@@ -304,6 +304,10 @@ def weights_from_strings(values: pa.Array | pa.ChunkedArray,
     offending record in file order: non-numeric text, NaN, +-inf, negatives.
     ``fail(i, message)`` builds the error for record ``i``.
     """
+    weight = _cast_chunks_in_threads(values)
+    if weight is not None:
+        check_weights(weight, lambda i, msg: fail(i, f"weight {values[i].as_py()!r} {msg}"))
+        return weight
     parsed = to_float64(values)
     if parsed is None:
         trimmed = pc.utf8_trim_whitespace(values)
@@ -314,6 +318,43 @@ def weights_from_strings(values: pa.Array | pa.ChunkedArray,
     weight = parsed.to_numpy(zero_copy_only=False).astype(np.float64, copy=False)
     check_weights(weight, lambda i, msg: fail(i, f"weight {values[i].as_py()!r} {msg}"))
     return weight
+
+
+#: From this many weights in several chunks (a large file's parse) the chunks are cast in two
+#: threads (Arrow's cast runs without the interpreter lock): the same cast, chunk by chunk.
+PARALLEL_CAST_MIN_VALUES = 1 << 19
+
+
+def _cast_chunks_in_threads(values: pa.Array | pa.ChunkedArray) -> np.ndarray | None:
+    """The chunks of ``values`` cast to float64 by two threads straight into one array, or None
+    (few values or chunks, one CPU, or a chunk the plain cast refuses: the caller then takes
+    :func:`to_float64`'s path, which also retries with blanks trimmed)."""
+    chunks = values.chunks if isinstance(values, pa.ChunkedArray) else [values]
+    if len(values) < PARALLEL_CAST_MIN_VALUES or len(chunks) < 2:
+        return None
+    try:
+        if len(os.sched_getaffinity(0)) < 2:
+            return None
+    except AttributeError:  # pragma: no cover - not Linux
+        return None
+    from concurrent.futures import ThreadPoolExecutor
+
+    out = np.empty(len(values), dtype=np.float64)
+    starts = np.cumsum([0] + [len(c) for c in chunks[:-1]]).tolist()
+
+    def cast(part: tuple[int, pa.Array]) -> bool:
+        at, chunk = part
+        try:
+            done = pc.cast(chunk, pa.float64())
+        except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+            return False
+        out[at:at + len(done)] = done.to_numpy(zero_copy_only=False)
+        return True
+
+    with ThreadPoolExecutor(2, thread_name_prefix="cutbook-weights") as pool:
+        if not all(pool.map(cast, zip(starts, chunks))):
+            return None
+    return out
 
 
 def check_weights(weight: np.ndarray, fail: Callable[[int, str], InputError]) -> None:

@@ -273,21 +273,26 @@ class _FileScan:
         self.size = os.path.getsize(path)
         self.has_quote = False
         self._lines: BlankLines | None = None
+        # one buffer read into again and again: a fresh bytes object per slice cost the kernel's
+        # page clearing of every slice (the scan of a 73 MiB file took 25 ms instead of 12-17 ms)
+        chunk = bytearray(min(_SCAN_BYTES, self.size + 1))
         with open(path, "rb", buffering=0) as fh:
             seen = 0
             head = b""
             for _ in range(self.size // _SCAN_BYTES + 2):  # a file that grows is refused below
-                chunk = fh.read(_SCAN_BYTES)
-                if not chunk:
+                got = fh.readinto(chunk)
+                if not got:
                     break
+                if got < len(chunk):
+                    del chunk[got:]  # the file's last slice
                 if not seen and (chunk[:2] == b"\x1f\x8b" or chunk.startswith(b"\xef\xbb\xbf")):
                     return
                 if not chunk.isascii() or b"\r" in chunk:
                     return
                 self.has_quote = self.has_quote or b'"' in chunk
                 if len(head) < _SAMPLE_BYTES:
-                    head += chunk[:_SAMPLE_BYTES - len(head)]
-                seen += len(chunk)
+                    head += bytes(chunk[:_SAMPLE_BYTES - len(head)])
+                seen += got
         if seen != self.size:
             return
         self.head = head
