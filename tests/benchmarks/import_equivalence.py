@@ -113,6 +113,8 @@ def run_cases(files: list[str]) -> dict:
 
         if hasattr(canonical, "PARALLEL_ENCODE_MIN_RECORDS"):
             canonical.PARALLEL_ENCODE_MIN_RECORDS = 1
+        if hasattr(canonical, "COMPONENTS_BESIDE_MERGE_MIN"):
+            canonical.COMPONENTS_BESIDE_MERGE_MIN = 1
         from workspace.io import _common
 
         if hasattr(_common, "PARALLEL_CAST_MIN_VALUES"):
@@ -141,9 +143,10 @@ def main() -> None:
                     help="here, read every delimited file the way large ones are read (from the file "
                          "itself, io.delimited.read_delimited_file); there, as that checkout does")
     ap.add_argument("--encode-threads", action="store_true",
-                    help="here, encode every file's ids and cast its weights the way large ones are "
-                         "(two threads: io.canonical.PARALLEL_ENCODE_MIN_RECORDS, "
-                         "io._common.PARALLEL_CAST_MIN_VALUES); there, as that checkout does")
+                    help="here, take the two-thread paths of large files for every file (id encoding, "
+                         "weight cast, components beside the merge: io.canonical."
+                         "PARALLEL_ENCODE_MIN_RECORDS, COMPONENTS_BESIDE_MERGE_MIN, io._common."
+                         "PARALLEL_CAST_MIN_VALUES); there, as that checkout does")
     ap.add_argument("--child", help=argparse.SUPPRESS)
     args = ap.parse_args()
     if args.child:

@@ -75,3 +75,46 @@ def test_the_bounded_rounds_hand_over_to_scipy(monkeypatch):
     monkeypatch.setattr(canonical, "_COMPONENT_ROUNDS", -4 * n.bit_length())  # no round at all
     labels = component_labels(n, u, v)
     assert np.array_equal(labels, _expected(n, u, v))
+
+
+@pytest.mark.parametrize("duplicates", ["sum", "error"])
+def test_components_found_beside_the_merge_match_networkx(tmp_path, monkeypatch, duplicates):
+    # the report's components are found on a second thread while the pairs merge (forced here
+    # by lowering the threshold): reference networkx.connected_components on the graph read by
+    # networkx.parse_edgelist from the same lines, zero-weight records left out (they name their
+    # nodes but join nothing)
+    from workspace.domain import ImportPolicy
+    from workspace.errors import InputError
+    from workspace.io import read_network
+
+    monkeypatch.setattr(canonical, "COMPONENTS_BESIDE_MERGE_MIN", 1)
+    monkeypatch.setattr(canonical.os, "sched_getaffinity", lambda pid: {0, 1}, raising=False)
+    started = []
+    original = canonical._components_beside
+    monkeypatch.setattr(canonical, "_components_beside",
+                        lambda n, u, v: started.append(original(n, u, v)) or started[-1])
+    rng = np.random.default_rng(5)
+    lines = []
+    for _ in range(600):
+        a, b = rng.integers(0, 400, 2)
+        lines.append(f"n{a},n{b},{rng.choice([1, 2, 0])}")
+    if duplicates == "sum":
+        lines.append(lines[0])  # a duplicate record, merged
+    path = tmp_path / "edges.csv"
+    path.write_text("\n".join(lines) + "\n")
+    policy = ImportPolicy(duplicates=duplicates, self_loops="keep", weight=2, header="no")
+    kept = [line for line in lines if not line.endswith(",0")]
+    reference = nx.parse_edgelist(kept, delimiter=",", nodetype=str, data=(("weight", float),))
+    reference.add_nodes_from(x for line in lines for x in line.split(",")[:2])
+    pairs = {frozenset(line.split(",")[:2]) for line in kept}
+    if duplicates == "error" and len(pairs) < len(kept):
+        with pytest.raises(InputError, match="duplicate edge"):
+            read_network(str(path), format="csv", policy=policy)
+        assert started and started[0] is not None
+        return
+    graph, report = read_network(str(path), format="csv", policy=policy)
+    assert started and started[0] is not None  # the thread ran
+    sizes = sorted((len(c) for c in nx.connected_components(reference)), reverse=True)
+    assert report.components == len(sizes) and report.component_sizes == sizes[:50]
+    isolated = sum(1 for x in reference if all(y == x for y in reference[x]))
+    assert report.isolated_nodes == isolated

@@ -787,6 +787,7 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
                                  f"{where}); choose --duplicates sum|max|first")
 
     asymmetric = 0
+    labels = None  # the report's components, when found beside the merge
     keep_direction = policy.directed == "keep"
     if keep_direction:
         if not rec.directed and rec.format not in DELIMITED_FORMATS:
@@ -828,12 +829,20 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         if loops_kept:
             loops_kept = int(np.count_nonzero(key // n == key % n))
     else:
+        # the components of the records' pairs are those of the merged edges (merging only joins
+        # records of one pair, and every weight left is positive): from
+        # COMPONENTS_BESIDE_MERGE_MIN records they are found on the other core while the pairs merge
+        labels_future = _components_beside(n, u, v)
         key = np.minimum(u, v).astype(np.int64)
         key *= n
         key += np.maximum(u, v)
         del u, v
-        key, weight, record, merged = merge_duplicates(key, weight, record, policy.duplicates,
-                                                       on_duplicate, n * n)
+        try:
+            key, weight, record, merged = merge_duplicates(key, weight, record, policy.duplicates,
+                                                           on_duplicate, n * n)
+        finally:
+            if labels_future is not None:
+                labels = labels_future.result()  # (waits for the thread, also when the merge failed)
         if loops_kept:
             loops_kept = int(np.count_nonzero(key // n == key % n))
     if merged:
@@ -854,9 +863,43 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         on_graph(graph, packed_ids)
     del packed_ids
     report = build_report(graph, rec, m_read, loops_found, loops_kept, merged, asymmetric,
-                          zero_dropped, notes)
+                          zero_dropped, notes, labels=labels)
     report_progress(progress, "canonicalise", 4, 4)
     return graph, report
+
+
+#: From this many records (and up to :data:`COMPONENTS_BESIDE_MERGE_MAX`) an undirected import
+#: finds the report's components in a second thread while the pairs are merged (numpy runs
+#: without the interpreter lock). Above the maximum the components are found after the merge, as
+#: below the minimum: running both at once would add the components' arrays to the merge's peak
+#: memory, which sets the import's peak on large files.
+COMPONENTS_BESIDE_MERGE_MIN = 1 << 19
+COMPONENTS_BESIDE_MERGE_MAX = 8_000_000
+
+
+def _components_beside(n: int, u: np.ndarray, v: np.ndarray):
+    """A future of ``component_labels(n, u, v)`` computed on a thread of its own, or None (too few
+    or too many records, or one CPU)."""
+    if not COMPONENTS_BESIDE_MERGE_MIN <= u.size <= COMPONENTS_BESIDE_MERGE_MAX:
+        return None
+    try:
+        if len(os.sched_getaffinity(0)) < 2:
+            return None
+    except AttributeError:  # pragma: no cover - not Linux
+        return None
+    import threading
+    from concurrent.futures import Future
+
+    future: Future = Future()
+
+    def work() -> None:
+        try:
+            future.set_result(component_labels(n, u, v))
+        except BaseException as exc:  # noqa: BLE001 - re-raised by result() on the caller's thread
+            future.set_exception(exc)
+
+    threading.Thread(target=work, name="cutbook-components", daemon=True).start()
+    return future
 
 
 #: outer rounds of :func:`component_labels` before it hands over to scipy (never reached on the
@@ -958,16 +1001,18 @@ def _median(w: np.ndarray) -> float:
 
 def build_report(graph: GraphData, rec: EdgeRecords, records_read: int, loops_found: int,
                  loops_kept: int, merged: int, asymmetric: int, zero_dropped: int,
-                 notes: list[str]) -> ImportReport:
+                 notes: list[str], labels: np.ndarray | None = None) -> ImportReport:
     """The validation report of a canonical graph.
 
-    Components (undirected, also for a directed graph) come from :func:`component_labels`.
+    Components (undirected, also for a directed graph) come from :func:`component_labels`
+    (``labels``: already found, on pairs with the same components).
     A node is isolated when no edge joins it to another node (a node with only a self-loop
     counts as isolated).
     """
     n, m = graph.n_nodes, graph.n_edges
     u, v, w = graph.edge_u, graph.edge_v, graph.weight
-    labels = component_labels(n, u, v)
+    if labels is None:
+        labels = component_labels(n, u, v)
     sizes = np.bincount(labels, minlength=n)
     sizes = np.sort(sizes[sizes > 0])[::-1]
     n_components = sizes.size
