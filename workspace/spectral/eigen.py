@@ -18,7 +18,6 @@ import os
 import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
-from contextlib import nullcontext
 from dataclasses import dataclass, field
 from typing import Callable
 
@@ -695,9 +694,13 @@ def largest_eigenpairs(op: SymmetricOperator, m: int, ctx: SolverContext, *,
 
     threads = ctx.threads if ctx.threads > 0 else (available_cpus() if n >= PARALLEL_AUTO_MIN_ROWS else 1)
     pool = threads > 1 and sp.issparse(op.S) and op.S.nnz >= PARALLEL_MIN_NNZ
-    with _blas_threads(n), (ThreadPoolExecutor(max_workers=threads - 1) if pool else nullcontext()) as executor, \
-            _panelled(op, executor, threads if pool else 1) as run_op:
-        sol = _iterative(run_op, m, ctx, stage, bound, extra, start)
+    executor = ThreadPoolExecutor(max_workers=threads - 1) if pool else None
+    try:
+        with _blas_threads(n), _panelled(op, executor, threads if pool else 1) as run_op:
+            sol = _iterative(run_op, m, ctx, stage, bound, extra, start)
+    finally:
+        if executor is not None:
+            executor.shutdown()
     if op.order is not None:
         sol.vectors = _to_original_order(sol.vectors, op.order)
     return sol
