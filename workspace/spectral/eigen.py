@@ -221,12 +221,16 @@ class RowBlockMatrix:
 
 #: From this many rows the sparse products of an iterative solve use column panels
 #: (:class:`PanelMatrix`): the product vector (8 bytes a row) no longer fits in the 32 MB last-level
-#: cache, and every stored entry reads it at a random place. Below it (every test graph, the demo,
-#: 1M and 3M nodes) the products are those of before.
+#: cache, and on a graph without locality every stored entry reads it at a random place. Below it
+#: (every test graph, the demo, 1M and 3M nodes) the products are those of before. Measured on
+#: planted partitions of mean degree 15 (``tests/benchmarks/bench_products.py``, one thread, CPU
+#: per 1M rows, load 1-2): 10M rows 62.8 ms plain, 41.3-42.6 ms in panels; 5M 52.7 / 25.1 ms.
 PANEL_MIN_ROWS = 4_000_000
 
 #: Bytes of the vector one column panel reads (its width is this over 8 bytes, evened out over
-#: the panels): half the 32 MB last-level cache, which the two product threads share.
+#: the panels): half the 32 MB last-level cache, which the two product threads share. At 10M rows
+#: (one thread, CPU per 1M rows) 8 MB panels took 59.3 ms, 12 MB 47.1, 16 MB 41.3, 20 MB 44.9:
+#: narrower panels visit every row once more each (a planted row has 15 entries).
 PANEL_BYTES = 16 << 20
 
 #: Rows per row range of a :class:`PanelMatrix` (the regrouping's temporaries are this many rows).
@@ -262,11 +266,23 @@ class PanelMatrix:
     :math:`y` is the same bits as ``S @ x``. Blocks are multiplied one column at a time (the same
     bits as scipy's block kernel, see :data:`COLUMNWISE_MIN_ROWS`). With an executor and
     ``parts`` > 1 each thread owns a contiguous share of the row ranges (every output row is
-    computed by one thread) and loops over the panels.
+    computed by one thread), and the threads take the panels in step (a hand-off per panel), so
+    they share one slice of ``x`` in the cache.
 
     The regrouped arrays are those of ``S``: until :meth:`restore` (which puts every entry back in
     its row order, the same bits) ``S`` must not be read as a plain CSR matrix. The engine builds it
     inside :func:`largest_eigenpairs` and restores it before returning (see :func:`_panelled`).
+
+    Parameters
+    ----------
+    S : scipy sparse CSR matrix, shape (n, m)
+        float64 values, int32 or int64 indices, the columns of every row sorted; its ``data`` and
+        ``indices`` are regrouped in place.
+    panel_bytes : int, optional
+        Bytes of ``x`` per panel (width ``panel_bytes / 8`` columns, evened out); default
+        :data:`PANEL_BYTES`.
+    range_rows : int, optional
+        Rows per row range; default :data:`PANEL_RANGE_ROWS`.
 
     References
     ----------
