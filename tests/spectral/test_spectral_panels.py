@@ -198,3 +198,27 @@ def test_solves_at_once_share_the_panels_and_the_last_restores(small_panels):
         assert sol.values.tobytes() == alone.values.tobytes()
         assert np.array_equal(sol.vectors, alone.vectors)
     assert np.array_equal(A.data, data0) and np.array_equal(A.indices, indices0)
+
+
+def test_a_failure_while_regrouping_leaves_the_matrix_as_it_was(monkeypatch):
+    """An error half way through the regrouping (here the third row range) puts back the ranges
+    already regrouped; a read-only matrix is not panelled at all."""
+    A = _random_symmetric(2000, 0.01, seed=8)
+    data0, indices0 = A.data.copy(), A.indices.copy()
+    real = eigen._panel_moves
+    calls = [0]
+
+    def failing(*args):
+        calls[0] += 1
+        if calls[0] == 3:
+            raise MemoryError("simulated")
+        return real(*args)
+
+    monkeypatch.setattr(eigen, "_panel_moves", failing)
+    with pytest.raises(MemoryError):
+        eigen.PanelMatrix(A, 8 * 64, 300)
+    assert calls[0] > 3                                            # the two ranges were put back
+    assert np.array_equal(A.data, data0) and np.array_equal(A.indices, indices0)
+    monkeypatch.setattr(eigen, "PANEL_MIN_ROWS", 0)
+    A.data.flags.writeable = False
+    assert not eigen.panels_apply(A, A.shape[0])

@@ -305,26 +305,31 @@ class PanelMatrix:
         step = max(1, int(range_rows or PANEL_RANGE_ROWS))
         idx = S.indices.dtype
         self.ranges: list[tuple[int, int, int, int, np.ndarray]] = []   # (start, stop, p0, p1, offsets)
-        for a in range(0, n, step):
-            b = min(n, a + step)
-            rows = b - a
-            p0, p1 = int(indptr[a]), int(indptr[b])
-            offsets = np.zeros(panels * rows + 1, dtype=idx)
-            if p1 > p0:
-                local = np.repeat(np.arange(rows, dtype=np.int64), np.diff(indptr[a:b + 1]))
-                key = (S.indices[p0:p1] // self.width).astype(np.int64) * rows + local
-                del local
-                np.cumsum(np.bincount(key, minlength=panels * rows), out=offsets[1:])
-                del key
-                dest = _panel_moves(offsets, panels, rows)
-                for arr in (self.data, self.indices):
-                    seg = arr[p0:p1]
-                    moved = np.empty_like(seg)
-                    moved[dest] = seg
-                    seg[...] = moved
-                del dest, moved
-            self.ranges.append((a, b, p0, p1, offsets))
         self.restored = False
+        try:
+            for a in range(0, n, step):
+                b = min(n, a + step)
+                rows = b - a
+                p0, p1 = int(indptr[a]), int(indptr[b])
+                offsets = np.zeros(panels * rows + 1, dtype=idx)
+                if p1 > p0:
+                    local = np.repeat(np.arange(rows, dtype=np.int64), np.diff(indptr[a:b + 1]))
+                    key = (S.indices[p0:p1] // self.width).astype(np.int64) * rows + local
+                    del local
+                    np.cumsum(np.bincount(key, minlength=panels * rows), out=offsets[1:])
+                    del key
+                    dest = _panel_moves(offsets, panels, rows)
+                    # both moved copies first: a range is regrouped whole or not at all
+                    data, indices = np.empty(p1 - p0, self.data.dtype), np.empty(p1 - p0, idx)
+                    data[dest] = self.data[p0:p1]
+                    indices[dest] = self.indices[p0:p1]
+                    self.data[p0:p1] = data
+                    self.indices[p0:p1] = indices
+                    del dest, data, indices
+                self.ranges.append((a, b, p0, p1, offsets))
+        except BaseException:
+            self.restore()                # the ranges regrouped so far: the matrix as it was
+            raise
 
     def restore(self) -> None:
         """Put every stored entry back in its row order (the matrix as it was, bit for bit)."""
@@ -408,6 +413,8 @@ def panels_apply(S, n: int) -> bool:
         return False
     if S.data.dtype != np.float64 or S.indices.dtype not in (np.int32, np.int64) or S.nnz == 0:
         return False
+    if not all(a.flags.writeable and a.flags.c_contiguous and a.ndim == 1 for a in (S.data, S.indices)):
+        return False                   # regrouped in place: a read-only (e.g. memory-mapped) matrix is left alone
     if S.indices.dtype == np.int32:   # the local indptrs share the indices' type
         step = max(1, PANEL_RANGE_ROWS)
         bounds = S.indptr[np.r_[0:n:step, n]].astype(np.int64)
