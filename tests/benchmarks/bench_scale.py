@@ -185,12 +185,28 @@ def print_step(name: str, r: dict, n: int) -> None:
     extra = ""
     if name.startswith("run"):
         extra = f"   matvecs {r['json']['diagnostics']['matvecs']}"
+        digest = _find_text(r["json"], "membership_hash")
+        extra += f"   membership {digest[:16]}" if digest else ""
     if name == "diff" and r["json"]:
         ari = _find(r["json"], "ari")
         extra = f"   ARI(seed 0, seed 1) {ari:.4f}" if ari is not None else ""
     print(f"  {name:11s} {r['wall']:8.2f} s  cpu {r['cpu']:8.2f} s  peak {r['peak_kb'] / 2**20:6.2f} GB"
           f"   per 1M nodes: {r['wall'] / scale:7.2f} s  {r['peak_kb'] / 2**20 / scale:5.2f} GB"
           f"   load {r['load'][0]:.1f}->{r['load'][1]:.1f}{extra}", flush=True)
+
+
+def _find_text(doc, key):
+    """First string value of ``key`` in a nested JSON document (depth first)."""
+    if isinstance(doc, dict):
+        if isinstance(doc.get(key), str):
+            return doc[key]
+        doc = list(doc.values())
+    if isinstance(doc, list):
+        for val in doc:
+            got = _find_text(val, key)
+            if got is not None:
+                return got
+    return None
 
 
 def _find(doc, key):
