@@ -216,16 +216,54 @@ def test_ids_at_the_end_of_short_buffers():
     _check_encoding(["é", "ab"], ["ab", "ab"], [], sliced, pa.array(["ab", "ab"]), None)
 
 
-def test_a_key_collision_falls_back_to_hashing_the_strings(monkeypatch):
+def _colliding_pair(rng) -> tuple[str, str]:
+    """Two different 16-byte ASCII ids with the same real ``_fold_key`` key: for the fold
+    ``h = ((w0 K) xor w1) K`` any second first word ``v0`` collides with ``v1 = (w0 K) xor w1
+    xor (v0 K)`` (arithmetic modulo 2**64); drawn until ``v1``'s bytes are printable ASCII."""
+    from workspace.io.canonical import _MIX
+
+    mix = int(_MIX)
+    mask = (1 << 64) - 1
+    w = rng.integers(0x21, 0x7F, 16, dtype=np.uint8).tobytes()
+    w0, w1 = int.from_bytes(w[:8], "little"), int.from_bytes(w[8:], "little")
+    for _ in range(1_000_000):
+        v = rng.integers(0x21, 0x7F, 8, dtype=np.uint8).tobytes()
+        v0 = int.from_bytes(v, "little")
+        v1 = ((w0 * mix) & mask) ^ w1 ^ ((v0 * mix) & mask)
+        tail = v1.to_bytes(8, "little")
+        if all(0x21 <= b < 0x7F for b in tail):
+            return w.decode(), (v + tail).decode()
+    raise AssertionError("no colliding pair found")
+
+
+def test_a_real_key_collision_falls_back_to_hashing_the_strings(monkeypatch):
+    # a genuine collision of the fold (constructed from its formula, not assumed): the check of
+    # the first word must see it, and the string path then gives Python's sorted(set())
+    import pyarrow as pa
+
+    from workspace.io.canonical import _IdWords, _fold_key
+
+    a, b = _colliding_pair(np.random.default_rng(1))
+    words = _IdWords(pa.array([a, b])).words(2)
+    keys = _fold_key(_fold_key(None, words[:, 0]), words[:, 1])
+    assert a != b and keys[0] == keys[1]
+    taken = _spy_on_word_path(monkeypatch)
+    src, dst = [a, "zz", b, a], [b, "q", "zz", b]
+    _check_encoding(src, dst, [], pa.array(src), pa.array(dst), None)
+    assert taken == [None]
+
+
+def test_a_key_collision_in_an_earlier_word_falls_back(monkeypatch):
     import pyarrow as pa
 
     from workspace.io import canonical
 
     taken = _spy_on_word_path(monkeypatch)
-    # every id gets the same key: the check against each group's representative must see it
+    # every id gets the same key (a fold that is no bijection): ids that differ before their
+    # last word are told apart by the check against each group's representative
     monkeypatch.setattr(canonical, "_fold_key", lambda key, word: np.zeros(word.size, np.uint64))
-    src = ["abcdefghij", "abcdefghik", "zz", "abcdefghij"]
-    dst = ["zz", "yy-longer-than-8", "abcdefghik", "q"]
+    src = ["abcdefghij", "bbcdefghij", "zz", "abcdefghij"]
+    dst = ["zz", "yy-longer-than-8", "bbcdefghij", "q"]
     _check_encoding(src, dst, [], pa.array(src), pa.array(dst), None)
     assert taken == [None]
 

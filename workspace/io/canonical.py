@@ -314,7 +314,8 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
     on the strings. Records are grouped by Arrow's hash kernel on one uint64 key: the word itself for ``W = 1``, else a multiply-xorshift
     fold of the words (:func:`_fold_key`), checked afterwards: every record's words must equal
     those of its group's representative, else (a key collision) None is returned and the
-    caller hashes the strings. The words are made one part at a time (once for the key, once
+    caller hashes the strings. The last word needs no comparison: the fold's last step is a
+    bijection of it for fixed earlier words, so equal keys and equal earlier words imply it. The words are made one part at a time (once for the key, once
     for the check) and, for the representatives, only theirs, so the memory held is a few
     arrays of one value per record whatever ``W``. From
     :data:`PARALLEL_ENCODE_MIN_RECORDS` records the parts are handled in two threads, and the
@@ -386,11 +387,16 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
 
         _each(pool, representatives, spans)
 
+        # every record against its group's representative, on all words but the last: for a
+        # fixed h_{W-2} the last fold step w -> (h_{W-2} xor w) K is a bijection (xor with a
+        # constant, then a product with an odd number modulo 2**64), so records with equal keys
+        # and equal words 0..W-2 have equal last words too
+        head = np.ascontiguousarray(distinct[:, :n_words - 1])
+
         def same_words(span) -> bool:
-            # every record of the part against its group's representative
             r, at = span
             # (np.take along axis 0 gathers whole rows, several times faster than d[index])
-            return np.array_equal(np.take(distinct, codes[at:at + r.size], axis=0), r.words(n_words))
+            return np.array_equal(np.take(head, codes[at:at + r.size], axis=0), r.words(n_words - 1))
 
         if pool is None:
             if not all(same_words(span) for span in spans):
