@@ -280,6 +280,12 @@ def _dense_ranks(values: np.ndarray) -> tuple[np.ndarray, int]:
     return rank.astype(np.int64, copy=False).reshape(-1), int(distinct.size)
 
 
+#: Distinct ids up to which :func:`_byte_order` ranks two-word ids instead of ``lexsort``
+#: (at 3M nodes the ranks' temporaries beside the collision check raised the import's peak from
+#: 0.53 to 0.62 GB per 1M nodes).
+DENSE_RANK_ORDER_MAX_IDS = 1 << 19
+
+
 def _byte_order(words: np.ndarray) -> np.ndarray:
     """The order that sorts distinct ids given as little-endian words (:class:`_IdWords`) by
     their bytes: read big-endian, the words compare as the bytes do, first word first.
@@ -289,12 +295,15 @@ def _byte_order(words: np.ndarray) -> np.ndarray:
     words), whose order is the lexicographic one; its values are distinct, so numpy's
     unstable vectorised sort gives the order. Measured at 400k-1M ids this took 0.02-0.06 s
     against 0.05-0.11 s for ``numpy.lexsort`` (stable merge sorts of the words); from three
-    words on the two took about the same time, and ``lexsort`` is kept.
+    words on the two took about the same time, and ``lexsort`` is kept. ``numpy.unique``'s
+    copies make the ranks the heavier of the two in memory, so beyond
+    :data:`DENSE_RANK_ORDER_MAX_IDS` distinct ids (where the import's peak is set while the ids
+    are encoded) ``lexsort`` is used as well.
     """
     swapped = words.byteswap()
     if swapped.shape[1] == 1:
         return np.argsort(swapped[:, 0])  # distinct values: any sort gives the order
-    if swapped.shape[1] > 2:
+    if swapped.shape[1] > 2 or swapped.shape[0] > DENSE_RANK_ORDER_MAX_IDS:
         return np.lexsort(swapped.T[::-1])
     major, _ = _dense_ranks(swapped[:, 0])
     minor, n_minor = _dense_ranks(swapped[:, 1])
@@ -360,6 +369,7 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
             key[at:at + r.size] = folded
 
         _each(pool, fold, spans)
+        del fold  # (its default argument holds the keys, freed below once the codes are made)
         # Arrow's hash kernel, in one thread: encoding two halves at once and joining their
         # dictionaries took as long, the join included (0.13 s for 4M keys)
         encoded = pc.dictionary_encode(pa.array(key, type=pa.uint64()))
@@ -391,12 +401,11 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
         # fixed h_{W-2} the last fold step w -> (h_{W-2} xor w) K is a bijection (xor with a
         # constant, then a product with an odd number modulo 2**64), so records with equal keys
         # and equal words 0..W-2 have equal last words too
-        head = np.ascontiguousarray(distinct[:, :n_words - 1])
-
         def same_words(span) -> bool:
             r, at = span
             # (np.take along axis 0 gathers whole rows, several times faster than d[index])
-            return np.array_equal(np.take(head, codes[at:at + r.size], axis=0), r.words(n_words - 1))
+            return np.array_equal(np.take(distinct, codes[at:at + r.size], axis=0)[:, :n_words - 1],
+                                  r.words(n_words - 1))
 
         if pool is None:
             if not all(same_words(span) for span in spans):
@@ -877,10 +886,11 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
 #: From this many records (and up to :data:`COMPONENTS_BESIDE_MERGE_MAX`) an undirected import
 #: finds the report's components in a second thread while the pairs are merged (numpy runs
 #: without the interpreter lock). Above the maximum the components are found after the merge, as
-#: below the minimum: running both at once would add the components' arrays to the merge's peak
-#: memory, which sets the import's peak on large files.
+#: below the minimum: running both at once adds the components' arrays to the merge's peak
+#: memory, which sets the import's peak on large files (1M nodes, 7.5M records: 0.62 -> 0.72 GB
+#: with the components beside the merge).
 COMPONENTS_BESIDE_MERGE_MIN = 1 << 19
-COMPONENTS_BESIDE_MERGE_MAX = 8_000_000
+COMPONENTS_BESIDE_MERGE_MAX = 4_000_000
 
 
 def _components_beside(n: int, u: np.ndarray, v: np.ndarray):
