@@ -85,10 +85,10 @@ def test_components_found_beside_the_merge_match_networkx(tmp_path, monkeypatch,
     # nodes but join nothing)
     from workspace.domain import ImportPolicy
     from workspace.errors import InputError
-    from workspace.io import read_network
+    from workspace.io import _common, read_network
 
     monkeypatch.setattr(canonical, "COMPONENTS_BESIDE_MERGE_MIN", 1)
-    monkeypatch.setattr(canonical.os, "sched_getaffinity", lambda pid: {0, 1}, raising=False)
+    monkeypatch.setattr(_common.os, "sched_getaffinity", lambda pid: {0, 1}, raising=False)
     started = []
     original = canonical._components_beside
     monkeypatch.setattr(canonical, "_components_beside",

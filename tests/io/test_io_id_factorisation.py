@@ -29,11 +29,11 @@ def encode_threads(request, monkeypatch):
     """Every test here runs twice: as small inputs run (one thread), and with the integer-key
     encoding's two-thread path forced on (its threshold lowered to one record), which must
     give the same arrays."""
-    from workspace.io import canonical
+    from workspace.io import _common, canonical
 
     if request.param == "two threads":
         monkeypatch.setattr(canonical, "PARALLEL_ENCODE_MIN_RECORDS", 1)
-        monkeypatch.setattr(canonical.os, "sched_getaffinity", lambda pid: {0, 1}, raising=False)
+        monkeypatch.setattr(_common.os, "sched_getaffinity", lambda pid: {0, 1}, raising=False)
     return request.param
 
 

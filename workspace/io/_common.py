@@ -320,6 +320,14 @@ def weights_from_strings(values: pa.Array | pa.ChunkedArray,
     return weight
 
 
+def usable_cpus() -> int:
+    """CPUs this process may run on (affinity-aware)."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
+
+
 #: From this many weights in several chunks (a large file's parse) the chunks are cast in two
 #: threads (Arrow's cast runs without the interpreter lock): the same cast, chunk by chunk.
 PARALLEL_CAST_MIN_VALUES = 1 << 19
@@ -330,12 +338,7 @@ def _cast_chunks_in_threads(values: pa.Array | pa.ChunkedArray) -> np.ndarray | 
     (few values or chunks, one CPU, or a chunk the plain cast refuses: the caller then takes
     :func:`to_float64`'s path, which also retries with blanks trimmed)."""
     chunks = values.chunks if isinstance(values, pa.ChunkedArray) else [values]
-    if len(values) < PARALLEL_CAST_MIN_VALUES or len(chunks) < 2:
-        return None
-    try:
-        if len(os.sched_getaffinity(0)) < 2:
-            return None
-    except AttributeError:  # pragma: no cover - not Linux
+    if len(values) < PARALLEL_CAST_MIN_VALUES or len(chunks) < 2 or usable_cpus() < 2:
         return None
     from concurrent.futures import ThreadPoolExecutor
 

@@ -8,7 +8,6 @@ numpy hooking and pointer jumping for the report's connected components.
 from __future__ import annotations
 
 import math
-import os
 
 import numpy as np
 import pyarrow as pa
@@ -16,7 +15,8 @@ import pyarrow.compute as pc
 
 from workspace.domain import GraphData, ImportPolicy, ImportReport, decode_node_ids
 from workspace.errors import InputError
-from workspace.io._common import EdgeRecords, Progress, first_cast_failure, report_progress
+from workspace.io._common import (EdgeRecords, Progress, first_cast_failure, report_progress,
+                                  usable_cpus)
 
 COMPONENT_SIZES_LISTED = 50
 
@@ -254,13 +254,7 @@ PARALLEL_ENCODE_MIN_RECORDS = 1 << 18
 
 def _thread_pool(records: int):
     """A two-thread pool for the integer-key encoding of ``records`` records, or None (serial)."""
-    if records < PARALLEL_ENCODE_MIN_RECORDS:
-        return None
-    try:
-        cpus = len(os.sched_getaffinity(0))
-    except AttributeError:  # pragma: no cover - not Linux
-        cpus = os.cpu_count() or 1
-    if cpus < 2:
+    if records < PARALLEL_ENCODE_MIN_RECORDS or usable_cpus() < 2:
         return None
     from concurrent.futures import ThreadPoolExecutor
 
@@ -896,12 +890,7 @@ COMPONENTS_BESIDE_MERGE_MAX = 4_000_000
 def _components_beside(n: int, u: np.ndarray, v: np.ndarray):
     """A future of ``component_labels(n, u, v)`` computed on a thread of its own, or None (too few
     or too many records, or one CPU)."""
-    if not COMPONENTS_BESIDE_MERGE_MIN <= u.size <= COMPONENTS_BESIDE_MERGE_MAX:
-        return None
-    try:
-        if len(os.sched_getaffinity(0)) < 2:
-            return None
-    except AttributeError:  # pragma: no cover - not Linux
+    if not COMPONENTS_BESIDE_MERGE_MIN <= u.size <= COMPONENTS_BESIDE_MERGE_MAX or usable_cpus() < 2:
         return None
     import threading
     from concurrent.futures import Future
