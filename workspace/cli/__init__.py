@@ -14,6 +14,10 @@ from workspace.cli.parser import build_parser
 
 def main(argv: list[str] | None = None) -> int:
     """Run one command; ``argv=None`` means this process's command line (the console script)."""
+    if argv is None:
+        from workspace.cli import common
+
+        common.PROCESS_ENDS_AFTER_COMMAND = True
     code = _run(argv)
     if argv is None and "pyarrow" in sys.modules:
         # Arrow's CSV thread pool can abort interpreter teardown ("terminate called without an

@@ -8,6 +8,28 @@ from contextlib import contextmanager
 from workspace.cli.output import Out, ProgressBar, emit_json
 
 
+#: True in the console script (``main()`` with the process's own command line): the process ends
+#: once the command returns. False when commands run inside a longer-lived process (tests, tools).
+PROCESS_ENDS_AFTER_COMMAND = False
+
+
+def resume_collector() -> None:
+    """Re-enable the cyclic garbage collector after a command paused it (``gc.disable()``).
+
+    In the console script the objects made meanwhile (chiefly the modules loaded for the
+    command, about 120k objects for an import) are first moved to the collector's permanent
+    generation (``gc.freeze()``): they live until the process ends anyway, and otherwise the
+    first collection after re-enabling walks all of them (38 ms at the end of a 2M-edge import).
+    Objects are still freed by reference counting; only cycles among them are left to the exit.
+    In a longer-lived process the collector is simply re-enabled.
+    """
+    import gc
+
+    if PROCESS_ENDS_AFTER_COMMAND:
+        gc.freeze()
+    gc.enable()
+
+
 def _explicit_store(args) -> str | None:
     from workspace.services.store import ENV_STORE
 

@@ -136,7 +136,7 @@ def _file_bytes(path) -> int:
 
 
 def cmd_import(args) -> int:
-    from workspace.cli.common import warm_imports
+    from workspace.cli.common import resume_collector, warm_imports
     from workspace.services.networks import (IMPORT_LATER_MODULES, check_names, import_network,
                                              load_readers, prepare_import)
 
@@ -168,7 +168,8 @@ def cmd_import(args) -> int:
                 res = import_network(store, args.file, project=args.project, network=args.network,
                                      message=args.message, progress=bar, prepared=prepared)
                 if collecting:
-                    gc.enable()
+                    resume_collector()
+                    collecting = False
                 bar.close()
                 if not args.json:
                     _print_import(args, out, res)
