@@ -323,8 +323,8 @@ def group_keys(key: np.ndarray, pool=None) -> tuple[np.ndarray, np.ndarray]:
     positions of its dictionary entries, without a hash table.
 
     With ``h = key K mod 2**64`` (``K`` of :func:`_fold_key`, odd, so ``h`` is a bijection of the
-    key), the distinct ``h`` are sorted (``d``, in steps of :data:`GROUP_SORT_RECORDS` merged
-    in turn) and bucketed by their top ``b`` bits (``2**b >= n``, the number of distinct keys;
+    key), the distinct ``h`` are sorted (``d``: steps of :data:`GROUP_SORT_RECORDS` keys sorted
+    into it in turn; with two threads and several steps, each takes one half of the range of ``h``) and bucketed by their top ``b`` bits (``2**b >= n``, the number of distinct keys;
     multiplicative hashing spreads any set of keys over the buckets, Knuth 1998, section 6.4).
     A table of where each bucket begins in ``d`` then finds every key's position in ``d``: at its
     bucket's start or among the next :data:`_GROUP_PROBES` entries; the rare key further on is
@@ -349,20 +349,20 @@ def group_keys(key: np.ndarray, pool=None) -> tuple[np.ndarray, np.ndarray]:
     def spans(step: int) -> list[tuple[int, int]]:
         return [(s, min(s + step, m)) for s in range(0, m, step)]
 
-    def distinct_of(span) -> np.ndarray:
-        s, e = span
-        h = key[s:e] * _MIX
-        h.sort()
-        keep = np.empty(h.size, dtype=bool)
-        keep[0] = True
-        np.not_equal(h[1:], h[:-1], out=keep[1:])
-        return h[keep]
+    def distinct_in(top: int | None) -> np.ndarray:
+        """The sorted distinct h with top bit ``top`` (None: all), a sorted step at a time merged in."""
+        d = np.zeros(0, dtype=np.uint64)
+        for s, e in spans(GROUP_SORT_RECORDS):
+            h = key[s:e] * _MIX
+            if top is not None:
+                h = h[(h >> np.uint64(63)) == np.uint64(top)]
+            d = _merge_distinct(d, h)
+        return d
 
-    sort_spans = spans(GROUP_SORT_RECORDS)
-    d = None
-    for i in range(0, len(sort_spans), 2):
-        for piece in _each(pool, distinct_of, sort_spans[i:i + 2]):
-            d = piece if d is None else _merge_distinct(d, piece)
+    # with several steps, two threads take the two halves of the range of h (disjoint, so joined
+    # in order); one step is sorted in one thread (halving it only added the selection)
+    tops = [None] if pool is None or m <= GROUP_SORT_RECORDS else [0, 1]
+    d = np.concatenate(_each(pool, distinct_in, tops))
     n = d.size
     bits = max(1, (n - 1).bit_length())
     shift = np.uint64(64 - bits)
@@ -416,10 +416,12 @@ def group_keys(key: np.ndarray, pool=None) -> tuple[np.ndarray, np.ndarray]:
     return codes, first
 
 
-def _merge_distinct(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """The sorted distinct values of two sorted arrays of distinct values."""
-    both = np.concatenate((a, b))
-    both.sort()
+def _merge_distinct(d: np.ndarray, more: np.ndarray) -> np.ndarray:
+    """The sorted distinct values of ``d`` (sorted, distinct) and ``more`` (any)."""
+    both = np.concatenate((d, more))
+    if both.size < 2:
+        return both
+    both.sort()  # numpy's vectorised sort: an in-place sort is cheaper than a merge done by hand
     keep = np.empty(both.size, dtype=bool)
     keep[0] = True
     np.not_equal(both[1:], both[:-1], out=keep[1:])
