@@ -50,6 +50,32 @@ def test_a_freed_block_is_reused_without_new_page_faults():
     assert first >= 16000 and second < 200  # kept in the heap: the second block reuses the pages
 
 
+_THREADS = """
+import resource, sys, threading
+def touch(n):
+    block = bytearray(n)
+    block[::4096] = b"\\x01" * len(block[::4096])
+    return block
+if sys.argv[1] == "keep":
+    from workspace.cli.networks import keep_freed_memory
+    assert keep_freed_memory()
+worker = threading.Thread(target=lambda: touch(16 << 20))  # touched and freed on another thread
+worker.start(); worker.join()
+before = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
+block = touch(16 << 20)
+print(resource.getrusage(resource.RUSAGE_SELF).ru_minflt - before)
+"""
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux") or platform.libc_ver()[0] != "glibc",
+                    reason="mallopt settings are glibc's")
+def test_a_block_freed_on_another_thread_is_reused():
+    # 16 MiB = 4096 pages: with one shared heap (M_ARENA_MAX = 1) the main thread reuses the pages
+    # another thread freed; by default that thread's block stays in its own arena (or is unmapped)
+    assert int(_run(_THREADS, "plain")) >= 4000
+    assert int(_run(_THREADS, "keep")) < 200
+
+
 _SETTINGS = """
 import os, sys
 from workspace.cli.networks import native_library_settings

@@ -48,7 +48,7 @@ def print_report(out, report: dict) -> None:
 
 
 #: glibc ``mallopt`` parameters (malloc.h)
-_M_TRIM_THRESHOLD, _M_MMAP_MAX = -1, -4
+_M_TRIM_THRESHOLD, _M_MMAP_MAX, _M_ARENA_MAX = -1, -4, -8
 
 
 def keep_freed_memory() -> bool:
@@ -59,9 +59,13 @@ def keep_freed_memory() -> bool:
     again on first touch: on a 2M-edge file about a quarter of the CPU time went to the kernel's
     page clearing. With ``M_MMAP_MAX = 0`` large blocks come from the heap (glibc still maps
     memory when the heap cannot grow) and with a high ``M_TRIM_THRESHOLD`` freed blocks stay in
-    it for the next array; the peak resident size stays that of the largest live set. Only for
-    commands that end after their work (the CLI import), never for the long-lived UI. False when
-    the C library is not glibc (nothing is changed then).
+    it for the next array; the peak resident size stays that of the largest live set. With
+    ``M_ARENA_MAX = 1`` the threads (Arrow's parser, the encoding and compression threads) share
+    that one heap instead of each keeping its own free blocks: the labelled 2M-edge import peaked
+    at 380-400 MiB instead of 460-490 MiB, a 3M-node one at 1.68 GB instead of 1.75-1.77 GB, with
+    less system time (2.9-3.2 s against 3.6-5.6 s at 3M). Only for commands that end after their
+    work (the CLI import), never for the long-lived UI. False when the C library is not glibc
+    (nothing is changed then).
     """
     import platform
 
@@ -71,7 +75,8 @@ def keep_freed_memory() -> bool:
         import ctypes
 
         libc = ctypes.CDLL("libc.so.6")
-        return bool(libc.mallopt(_M_MMAP_MAX, 0)) and bool(libc.mallopt(_M_TRIM_THRESHOLD, 2 ** 31 - 1))
+        return (bool(libc.mallopt(_M_MMAP_MAX, 0)) and bool(libc.mallopt(_M_TRIM_THRESHOLD, 2 ** 31 - 1))
+                and bool(libc.mallopt(_M_ARENA_MAX, 1)))
     except (OSError, AttributeError):
         return False
 
