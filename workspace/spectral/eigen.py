@@ -212,15 +212,11 @@ class RowBlockMatrix:
 
     def __matmul__(self, X: np.ndarray) -> np.ndarray:
         out = np.empty((self.shape[0],) + X.shape[1:], dtype=np.float64)
-        self.times_into(X, out)
-        return out
-
-    def times_into(self, X: np.ndarray, out: np.ndarray) -> None:
-        """``out[...] = S @ X``, the blocks in parallel."""
         futures = [self.executor.submit(blk.product_into, X, out) for blk in self.blocks[1:]]
         self.blocks[0].product_into(X, out)
         for f in futures:
             f.result()
+        return out
 
 
 #: From this many rows the sparse products of an iterative solve use column panels
@@ -370,10 +366,8 @@ class PanelMatrix:
                 _csr_matvec(rows, ncol, offsets[p * rows:(p + 1) * rows + 1], self.indices[p0:p1],
                             self.data[p0:p1], x, out[a:b])
 
-    def times(self, x: np.ndarray, executor: ThreadPoolExecutor | None = None, parts: int = 1,
-              out: np.ndarray | None = None) -> np.ndarray:
-        """``S @ x`` for a vector or an ``n × b`` block (a column at a time); a vector's product
-        into ``out`` when given."""
+    def times(self, x: np.ndarray, executor: ThreadPoolExecutor | None = None, parts: int = 1) -> np.ndarray:
+        """``S @ x`` for a vector or an ``n × b`` block (a column at a time)."""
         if self.restored:
             raise RuntimeError("the panelled matrix was restored to rows; build a new one")
         x = np.asarray(x)
@@ -383,8 +377,7 @@ class PanelMatrix:
                 out[:, j] = self.times(x[:, j], executor, parts)
             return out
         x = np.ascontiguousarray(x, dtype=np.float64)
-        if out is None:
-            out = np.empty(self.shape[0], dtype=np.float64)
+        out = np.empty(self.shape[0], dtype=np.float64)
         groups = self.groups(parts) if executor is not None else [self.ranges]
         if len(groups) == 1:
             self._rows_into(groups[0], x, out)
@@ -410,9 +403,6 @@ class _BoundPanels:
 
     def __matmul__(self, X: np.ndarray) -> np.ndarray:
         return self.panels.times(X, self.executor, self.parts)
-
-    def times_into(self, x: np.ndarray, out: np.ndarray) -> None:
-        self.panels.times(x, self.executor, self.parts, out=out)
 
 
 def panels_apply(S, n: int) -> bool:
@@ -535,47 +525,6 @@ class SymmetricOperator:
             u = self.rank_one
             Y -= np.multiply.outer(u, (u @ X) / self.rank_one_denominator)
         return Y
-
-    def apply_into(self, x: np.ndarray, out: np.ndarray, scratch: np.ndarray) -> np.ndarray:
-        """``M @ x`` for a vector, into ``out`` (returned), using ``scratch`` (both float64, length
-        ``n``, neither aliasing ``x``): the operations of :meth:`apply`, in the same order (so the
-        same bits), without two fresh vectors per product. For an iterative solve's products: at 1M
-        nodes a run's 124 products allocated 2 GB that the kernel cleared page by page (1.2 s of
-        system time; glibc hands such freed blocks back, and the next product faults them in again).
-        """
-        if type(self).apply is not SymmetricOperator.apply:  # an operator of its own kind
-            out[...] = self.apply(x)
-            return out
-        r = self.row_scale
-        if r is None:
-            self._sparse_times_into(x, out)
-        else:
-            np.multiply(x, r, out=scratch)
-            self._sparse_times_into(scratch, out)
-            out *= r
-        if self.scale != 1.0:
-            out *= self.scale
-        diag = self.diagonal
-        if np.ndim(diag) != 0 or diag != 0.0:
-            np.multiply(diag, x, out=scratch)
-            out += scratch
-        if self.rank_one is not None:
-            u = self.rank_one
-            np.multiply(u, (u @ x) / self.rank_one_denominator, out=scratch)
-            out -= scratch
-        return out
-
-    def _sparse_times_into(self, x: np.ndarray, out: np.ndarray) -> None:
-        """``out[...] = S @ x`` for a vector (the kernels of :meth:`_sparse_times`)."""
-        S = self.S
-        if isinstance(S, (RowBlockMatrix, _BoundPanels)):
-            S.times_into(x, out)
-        elif (_csr_matvec is not None and isinstance(S, sp.csr_array) and S.data.dtype == np.float64
-              and x.dtype == np.float64 and x.flags.c_contiguous):
-            out.fill(0.0)  # scipy's csr_array @ x: this kernel on zeros
-            _csr_matvec(self.n, S.shape[1], S.indptr, S.indices, S.data, x, out)
-        else:
-            out[...] = S @ x
 
     def _sparse_times(self, X: np.ndarray) -> np.ndarray:
         """``S @ X``; a block on a large operator one column at a time (see :data:`COLUMNWISE_MIN_ROWS`)."""
@@ -889,16 +838,7 @@ def _iterative(op: SymmetricOperator, m: int, ctx: SolverContext, stage: str,
         ctx.tick(X.shape[1], stage)
         return op.apply(X)
 
-    # ARPACK copies each product into its own workspace at once, so its products reuse two vectors
-    # (LOBPCG keeps the products it is given: it gets fresh ones from ``lin``)
-    buffers = (np.empty(n, dtype=np.float64), np.empty(n, dtype=np.float64))
-
-    def mv_reusing(x):
-        ctx.tick(1, stage)
-        return op.apply_into(np.ascontiguousarray(x, dtype=np.float64), *buffers)
-
     lin = LinearOperator((n, n), matvec=mv, matmat=mm, rmatvec=mv, dtype=np.float64)
-    lin_arpack = LinearOperator((n, n), matvec=mv_reusing, matmat=mm, rmatvec=mv_reusing, dtype=np.float64)
     rng = np.random.default_rng(ctx.seed)
     v0 = _in_order(rng.uniform(-1.0, 1.0, n), op.order)
     ncv = min(n, max(2 * m + 1, 20))
@@ -906,15 +846,14 @@ def _iterative(op: SymmetricOperator, m: int, ctx: SolverContext, stage: str,
     if start is not None:
         # the block comes in the original node order, like the random draws: move it to the operator's
         # the block comes in the original node order, like the random draws: move it to the operator's
-        sol = _warm_arpack(op, lin_arpack, m, ctx, stage, extra, _in_order(np.asarray(start), op.order), v0, ncv,
-                           maxiter)
+        sol = _warm_arpack(op, lin, m, ctx, stage, extra, _in_order(np.asarray(start), op.order), v0, ncv, maxiter)
         if sol is not None:
             return sol
     start = ctx.matvecs
     X0 = None
     why = ""
     try:
-        w, V = eigsh(lin_arpack, k=m, which="LA", v0=v0, ncv=ncv, tol=ctx.eig_tol, maxiter=maxiter)
+        w, V = eigsh(lin, k=m, which="LA", v0=v0, ncv=ncv, tol=ctx.eig_tol, maxiter=maxiter)
         solver = "arpack-eigsh"
     except ArpackNoConvergence as exc:
         why = f"ARPACK did not converge ({len(exc.eigenvalues)} of {m} pairs)"
