@@ -324,7 +324,8 @@ def group_keys(key: np.ndarray, pool=None) -> tuple[np.ndarray, np.ndarray]:
 
     With ``h = key K mod 2**64`` (``K`` of :func:`_fold_key`, odd, so ``h`` is a bijection of the
     key), the distinct ``h`` are sorted (``d``: steps of :data:`GROUP_SORT_RECORDS` keys sorted
-    into it in turn; with two threads and several steps, each takes one half of the range of ``h``) and bucketed by their top ``b`` bits (``2**b >= n``, the number of distinct keys;
+    into it in turn; with two threads and several steps, each takes one half of the range of
+    ``h``) and bucketed by their top ``b`` bits (``2**b >= n``, the number of distinct keys;
     multiplicative hashing spreads any set of keys over the buckets, Knuth 1998, section 6.4).
     A table of where each bucket begins in ``d`` then finds every key's position in ``d``: at its
     bucket's start or among the next :data:`_GROUP_PROBES` entries; the rare key further on is
@@ -442,8 +443,8 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
     else (a key collision) None is returned and the caller hashes the strings. The last word
     needs no comparison: the fold's last step is a bijection of it for fixed earlier words, so
     equal keys and equal earlier words imply it. The words are made one part at a time (once
-    for the key, once for the check) and, for the representatives, only theirs, so the memory held is a few
-    arrays of one value per record whatever ``W``. From
+    for the key, once for the check) and, for the representatives, only theirs, so the memory
+    held is a few arrays of one value per record whatever ``W``. From
     :data:`PARALLEL_ENCODE_MIN_RECORDS` records the parts are handled in two threads, and the
     check runs beside the sort; the results do not depend on it.
 
@@ -460,7 +461,7 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
     (multiplicative hashing); Apache Arrow compute function ``dictionary_encode``.
     """
     m = sum(len(p) for p in parts)
-    if m == 0:
+    if m == 0 or m >= 2 ** 31:  # (int32 codes: beyond them the string path)
         return None
     readers = [_IdWords(p) for p in parts]
     longest = max(r.longest for r in readers)
