@@ -22,6 +22,7 @@ from workspace.spectral.quality import _dense_labels
     np.array([5]),
     np.arange(10)[::-1].copy(),
     np.array([2, 9, 2], dtype=np.uint16),
+    np.array([4, 1, 4], dtype=np.uint64),                   # no safe cast to intp: numpy's sort
     np.array([1, 10 ** 12, 1, 7]),                          # too large to count: numpy's sort
     np.random.default_rng(3).integers(0, 300, 5000),
 ])

@@ -31,7 +31,8 @@ def _dense_labels(labels: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """``numpy.unique(labels, return_inverse=True)`` (sorted distinct values, int64 index of each
     label among them), by counting instead of sorting when the labels are non-negative integers
     not much larger than their number (a partition's labels): the same two arrays."""
-    if labels.size and labels.dtype.kind in "iu" and int(labels.max()) < 4 * labels.size + 1024:
+    if (labels.size and labels.dtype.kind in "iu" and np.can_cast(labels.dtype, np.intp)
+            and int(labels.max()) < 4 * labels.size + 1024):
         present = np.bincount(labels.ravel()) > 0
         rank = np.cumsum(present, dtype=np.int64) - 1
         return np.flatnonzero(present).astype(labels.dtype), rank[labels.ravel()]
