@@ -7,6 +7,7 @@ the canonical layout described on each class; the store keeps them as blobs.
 from __future__ import annotations
 
 import hashlib
+import os
 import re
 from dataclasses import dataclass, field
 from typing import Any
@@ -19,6 +20,15 @@ if TYPE_CHECKING:
 # numpy loads with the first function that needs it, so that the CLI's listings and ``--help``
 # (which import this module for its dataclasses) start without it.
 _NUMPY_CONSTANTS = {"NODE_ID_DTYPE": "str_", "INDEX_DTYPE": "int64", "WEIGHT_DTYPE": "float64"}
+
+
+def available_cpus() -> int:
+    """CPUs this process may run on (affinity-aware): what the numerics' and the readers'
+    two-thread paths check before starting a second thread."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):  # pragma: no cover - not Linux
+        return max(1, os.cpu_count() or 1)
 
 
 def __getattr__(name: str):

@@ -18,6 +18,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
+from workspace.domain import available_cpus
 from workspace.errors import InputError, ParameterError
 
 Progress = Callable[[str, int, "int | None"], None] | None
@@ -320,14 +321,6 @@ def weights_from_strings(values: pa.Array | pa.ChunkedArray,
     return weight
 
 
-def usable_cpus() -> int:
-    """CPUs this process may run on (affinity-aware)."""
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except AttributeError:  # pragma: no cover - not Linux
-        return max(1, os.cpu_count() or 1)
-
-
 #: From this many weights in several chunks (a large file's parse) the chunks are cast in two
 #: threads (Arrow's cast runs without the interpreter lock): the same cast, chunk by chunk.
 PARALLEL_CAST_MIN_VALUES = 1 << 19
@@ -338,7 +331,7 @@ def _cast_chunks_in_threads(values: pa.Array | pa.ChunkedArray) -> np.ndarray | 
     (few values or chunks, one CPU, or a chunk the plain cast refuses: the caller then takes
     :func:`to_float64`'s path, which also retries with blanks trimmed)."""
     chunks = values.chunks if isinstance(values, pa.ChunkedArray) else [values]
-    if len(values) < PARALLEL_CAST_MIN_VALUES or len(chunks) < 2 or usable_cpus() < 2:
+    if len(values) < PARALLEL_CAST_MIN_VALUES or len(chunks) < 2 or available_cpus() < 2:
         return None
     from concurrent.futures import ThreadPoolExecutor
 

@@ -13,10 +13,9 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from workspace.domain import GraphData, ImportPolicy, ImportReport, decode_node_ids
+from workspace.domain import GraphData, ImportPolicy, ImportReport, available_cpus, decode_node_ids
 from workspace.errors import InputError
-from workspace.io._common import (EdgeRecords, Progress, first_cast_failure, report_progress,
-                                  usable_cpus)
+from workspace.io._common import EdgeRecords, Progress, first_cast_failure, report_progress
 
 COMPONENT_SIZES_LISTED = 50
 
@@ -256,7 +255,7 @@ PARALLEL_ENCODE_MIN_RECORDS = 1 << 18
 
 def _thread_pool(records: int):
     """A two-thread pool for the integer-key encoding of ``records`` records, or None (serial)."""
-    if records < PARALLEL_ENCODE_MIN_RECORDS or usable_cpus() < 2:
+    if records < PARALLEL_ENCODE_MIN_RECORDS or available_cpus() < 2:
         return None
     from concurrent.futures import ThreadPoolExecutor
 
@@ -1006,7 +1005,7 @@ COMPONENTS_BESIDE_MERGE_MAX = 4_000_000
 def _components_beside(n: int, u: np.ndarray, v: np.ndarray):
     """A future of ``component_labels(n, u, v)`` computed on a thread of its own, or None (too few
     or too many records, or one CPU)."""
-    if not COMPONENTS_BESIDE_MERGE_MIN <= u.size <= COMPONENTS_BESIDE_MERGE_MAX or usable_cpus() < 2:
+    if not COMPONENTS_BESIDE_MERGE_MIN <= u.size <= COMPONENTS_BESIDE_MERGE_MAX or available_cpus() < 2:
         return None
     import threading
     from concurrent.futures import Future

@@ -78,11 +78,9 @@ def keep_malloc_adaptive() -> None:
 
 def default_local_workers() -> int:
     """Worker processes of a LocalCluster when not given: the CPUs available, at most 4."""
-    try:
-        n = len(os.sched_getaffinity(0))
-    except (AttributeError, OSError):
-        n = os.cpu_count() or 1
-    return max(1, min(n, 4))
+    from workspace.domain import available_cpus
+
+    return min(available_cpus(), 4)
 
 
 def executor_from_options(executor: str | None = None, *, workers: int | None = None,

@@ -379,7 +379,7 @@ def run_sweep(store: Store, sweep_id: int, *, progress: SweepProgress | None = N
     if executor.kind == "local":   # (an open DaskCluster has kind "dask" too)
         workers = executor.workers if executor.workers is not None else workers
         if workers is None:
-            from workspace.spectral.eigen import available_cpus
+            from workspace.domain import available_cpus
 
             workers = min(available_cpus(), 4)
         workers = max(1, int(workers))

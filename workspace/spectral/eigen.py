@@ -14,7 +14,6 @@ checks ``cancel``, the matvec budget and the time limit, and reports
 
 from __future__ import annotations
 
-import os
 import threading
 import time
 from concurrent.futures import ThreadPoolExecutor
@@ -26,6 +25,7 @@ import scipy.linalg as sla
 import scipy.sparse as sp
 from scipy.sparse.linalg import ArpackError, ArpackNoConvergence, LinearOperator, eigsh, lobpcg
 
+from workspace.domain import available_cpus
 from workspace.errors import Cancelled, ComputeError
 
 from .laplacians import degrees, inverse_sqrt_degrees, normalized_adjacency, with_loops_doubled
@@ -143,14 +143,6 @@ PARALLEL_AUTO_MIN_ROWS = 500_000
 
 #: Sparse matrices with fewer stored entries are multiplied in one thread.
 PARALLEL_MIN_NNZ = 200_000
-
-
-def available_cpus() -> int:
-    """CPUs this process may run on (affinity-aware)."""
-    try:
-        return max(1, len(os.sched_getaffinity(0)))
-    except AttributeError:  # pragma: no cover - not Linux
-        return max(1, os.cpu_count() or 1)
 
 
 try:  # scipy's own CSR kernels: they add into a given output (``csr_array @ x`` runs them on zeros)
