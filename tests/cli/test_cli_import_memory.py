@@ -19,8 +19,8 @@ import pytest
 
 ROOT = Path(__file__).resolve().parents[2]
 
-_FAULTS = """
-import resource, sys
+_PRELUDE = """
+import resource, sys, threading
 def faults_for(n):
     before = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
     block = bytearray(n)
@@ -30,8 +30,8 @@ def faults_for(n):
 if sys.argv[1] == "keep":
     from workspace.cli.networks import keep_freed_memory
     assert keep_freed_memory()
-print(faults_for(64 << 20), faults_for(64 << 20))
 """
+_FAULTS = _PRELUDE + "print(faults_for(64 << 20), faults_for(64 << 20))\n"
 
 
 def _run(code: str, *args: str, env: dict | None = None) -> str:
@@ -50,20 +50,11 @@ def test_a_freed_block_is_reused_without_new_page_faults():
     assert first >= 16000 and second < 200  # kept in the heap: the second block reuses the pages
 
 
-_THREADS = """
-import resource, sys, threading
-def touch(n):
-    block = bytearray(n)
-    block[::4096] = b"\\x01" * len(block[::4096])
-    return block
-if sys.argv[1] == "keep":
-    from workspace.cli.networks import keep_freed_memory
-    assert keep_freed_memory()
-worker = threading.Thread(target=lambda: touch(16 << 20))  # touched and freed on another thread
+# a block touched and freed on another thread, then one of the same size on the main thread
+_THREADS = _PRELUDE + """
+worker = threading.Thread(target=faults_for, args=(16 << 20,))
 worker.start(); worker.join()
-before = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
-block = touch(16 << 20)
-print(resource.getrusage(resource.RUSAGE_SELF).ru_minflt - before)
+print(faults_for(16 << 20))
 """
 
 

@@ -373,6 +373,7 @@ def group_keys(key: np.ndarray, pool=None) -> tuple[np.ndarray, np.ndarray]:
     codes = np.empty(m, dtype=np.int32)
     steps = spans(GROUP_STEP_RECORDS)
     halves = [steps] if pool is None else [steps[:len(steps) // 2], steps[len(steps) // 2:]]
+    halves = [h for h in halves if h]  # (one step: one half)
 
     def find(own: list[tuple[int, int]]) -> np.ndarray:
         """Each key's position in ``d`` (into ``codes``); returns, per position, the first key of
@@ -395,7 +396,7 @@ def group_keys(key: np.ndarray, pool=None) -> tuple[np.ndarray, np.ndarray]:
             first[pos[::-1]] = np.arange(e - 1, s - 1, -1, dtype=np.int64)
         return first
 
-    firsts = _each(pool, find, [h for h in halves if h])
+    firsts = _each(pool, find, halves)
     first = firsts[0] if len(firsts) == 1 else np.minimum(firsts[0], firsts[1])
     del firsts
     # the positions in d renumbered by first appearance: sorted (first, position) pairs, packed
@@ -412,7 +413,7 @@ def group_keys(key: np.ndarray, pool=None) -> tuple[np.ndarray, np.ndarray]:
         for s, e in own:
             codes[s:e] = renumber[codes[s:e]]
 
-    _each(pool, relabel, [h for h in halves if h])
+    _each(pool, relabel, halves)
     return codes, first
 
 
