@@ -12,12 +12,16 @@ import sys
 from workspace.cli.parser import build_parser
 
 
+#: True in the console script (``main()`` with the process's own command line): the process ends
+#: once the command returns. False when commands run inside a longer-lived process (tests, tools).
+PROCESS_ENDS_AFTER_COMMAND = False
+
+
 def main(argv: list[str] | None = None) -> int:
     """Run one command; ``argv=None`` means this process's command line (the console script)."""
+    global PROCESS_ENDS_AFTER_COMMAND
     if argv is None:
-        from workspace.cli import common
-
-        common.PROCESS_ENDS_AFTER_COMMAND = True
+        PROCESS_ENDS_AFTER_COMMAND = True
     code = _run(argv)
     if argv is None and "pyarrow" in sys.modules:
         # Arrow's CSV thread pool can abort interpreter teardown ("terminate called without an

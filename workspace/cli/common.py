@@ -8,15 +8,10 @@ from contextlib import contextmanager
 from workspace.cli.output import Out, ProgressBar, emit_json
 
 
-#: True in the console script (``main()`` with the process's own command line): the process ends
-#: once the command returns. False when commands run inside a longer-lived process (tests, tools).
-PROCESS_ENDS_AFTER_COMMAND = False
-
-
 def resume_collector() -> None:
     """Re-enable the cyclic garbage collector after a command paused it (``gc.disable()``).
 
-    In the console script the objects made meanwhile (chiefly the modules loaded for the
+    In the console script (:data:`workspace.cli.PROCESS_ENDS_AFTER_COMMAND`) the objects made meanwhile (chiefly the modules loaded for the
     command, about 120k objects for an import) are first moved to the collector's permanent
     generation (``gc.freeze()``): they live until the process ends anyway, and otherwise the
     first collection after re-enabling walks all of them (38 ms at the end of a 2M-edge import).
@@ -25,7 +20,9 @@ def resume_collector() -> None:
     """
     import gc
 
-    if PROCESS_ENDS_AFTER_COMMAND:
+    import workspace.cli
+
+    if workspace.cli.PROCESS_ENDS_AFTER_COMMAND:
         gc.freeze()
     gc.enable()
 
