@@ -380,7 +380,7 @@ def group_keys(key: np.ndarray, pool=None) -> tuple[np.ndarray, np.ndarray]:
         ``own`` at it (``m`` where none)."""
         first = np.full(n, m, dtype=np.int64)
         for s, e in own[::-1]:  # the last step first: the earlier ones overwrite later positions
-            h = key[s:e] * _MIX
+            h = key[s:e] * _MIX  # made again per step rather than kept (8 bytes a record)
             pos = start[h >> shift]
             miss = np.flatnonzero(d[pos] != h)
             for _ in range(_GROUP_PROBES):
