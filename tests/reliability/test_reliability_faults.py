@@ -282,7 +282,10 @@ def test_import_larger_than_the_free_space(template, tmp_path):
     big = tmp_path / "big.csv"
     u, v = rng.integers(0, 20_000, 60_000), rng.integers(0, 20_000, 60_000)
     big.write_text("a,b,w\n" + "".join(f"n{a},n{b},{w:.6f}\n" for a, b, w in zip(u, v, rng.random(60_000))))
-    with tmpfs(tmp_path / "small", 768) as mnt:
+    # room for the store, its log's first pages and its shared-memory index, not for the new arrays
+    # (several hundred kB compressed)
+    room_kb = template["store"].stat().st_size // 1024 + 384
+    with tmpfs(tmp_path / "small", room_kb) as mnt:
         store = _place(template, mnt)
         before = snapshot(mnt)
         r = cutbook(store, "import", big, "--project", "club", "--network", "big", "--weight", "w")
@@ -543,7 +546,7 @@ def test_migration_backup_on_a_full_disk(tmp_path):
         loud_skip("SKIPPED LOUDLY: cannot mount a tmpfs here")
     from workspace.store.db import HEAD_REVISION, migrate, resolve_store_url
 
-    with tmpfs(tmp_path / "mig", 1024) as mnt:
+    with tmpfs(tmp_path / "mig", 4096) as mnt:  # the store, its backup and the upgrade's log
         store = mnt / "old.sqlite"
         migrate(resolve_store_url(store), target="0001")
         con = sqlite3.connect(store)
@@ -724,10 +727,10 @@ def test_run_and_attach_with_too_little_space_record_nothing(tmp_path):
 
     open_workspace(source).dispose()
     assert cutbook(source, "import", ring, "--project", "p", "--network", "ring").code == 0
-    with tmpfs(tmp_path / "tight", 2048) as mnt:
+    with tmpfs(tmp_path / "tight", 4096) as mnt:
         store = mnt / "store.sqlite"
         shutil.copy2(source, store)
-        fill(mnt, leave=56 * 1024)  # the 32 kB -shm plus about 24 kB of log
+        fill(mnt, leave=160 * 1024)  # the 32 kB -shm plus about 128 kB of log (eight 16 kB pages)
         before, rows = snapshot(mnt), dump_store(store)
         r = cutbook(store, "attach", members, "--to", "p/ring", "--label", "survey")
         assert_fault(r, NO_SPACE, str(store), "no space left", "the write needed about")
@@ -780,7 +783,7 @@ def test_demo_build_meets_the_faults(tmp_path, fault):
             assert_fault(r, READ_ONLY, str(view / "demo.sqlite"), "read-only medium")
             assert snapshot(view) == before
     else:
-        with tmpfs(tmp_path / "full", 1024) as mnt:
+        with tmpfs(tmp_path / "full", 4096) as mnt:  # an empty store is about 1 MB
             open_workspace(mnt / "demo.sqlite").dispose()
             fill(mnt)
             before = snapshot(mnt)

@@ -60,6 +60,40 @@ def test_fresh_store_is_at_head(store, store_path):
         assert s.execute(text("PRAGMA foreign_keys")).scalar() == 1
 
 
+def test_new_store_pages_and_an_older_page_size_kept(tmp_path):
+    """A new store gets ``SQLITE_PAGE_SIZE`` pages (set before its first page, as SQLite requires:
+    sqlite.org/pragma.html#pragma_page_size); a store made with SQLite's default 4096-byte pages
+    (every store before) keeps them and still takes imports."""
+    from workspace.services.networks import import_network
+    from workspace.services.store import open_workspace
+    from workspace.store.db import SQLITE_PAGE_SIZE
+
+    assert SQLITE_PAGE_SIZE != 4096
+    fresh = tmp_path / "new.sqlite"
+    open_workspace(fresh).dispose()
+    older = tmp_path / "old.sqlite"
+    con = sqlite3.connect(older)
+    con.execute("PRAGMA page_size=4096")
+    con.execute("PRAGMA journal_mode=WAL")
+    con.execute("CREATE TABLE t (x)")  # its first pages written: the size is fixed
+    con.execute("DROP TABLE t")
+    con.close()
+    edges = tmp_path / "e.csv"
+    edges.write_text("".join(f"a{i},a{(i * 7 + 1) % 3000}\n" for i in range(3000)))
+    for path, size in ((fresh, SQLITE_PAGE_SIZE), (older, 4096)):
+        store = open_workspace(path)
+        try:
+            outcome = import_network(store, edges, project="p", network="n")
+        finally:
+            store.dispose()
+        assert outcome.new_version and outcome.nodes == 3000
+        con = sqlite3.connect(path)
+        assert con.execute("PRAGMA page_size").fetchone()[0] == size
+        assert con.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+        assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
+        con.close()
+
+
 def test_newer_store_is_refused_and_untouched(tmp_path):
     from workspace.services.store import open_workspace
 

@@ -90,13 +90,19 @@ def on_screen(app, widget, *, min_width: int = 1, min_height: int = 1) -> None:
     assert r.x >= 0 and r.y >= 0 and r.right <= w and r.bottom <= h, f"{widget!r} at {r} leaves the {w}x{h} screen"
 
 
-def footer_keys(app) -> list[str]:
-    """Keys the footer shows whole (inside the screen width)."""
+async def footer_keys(app, pilot) -> list[str]:
+    """Keys the footer shows whole (inside the screen width). The footer composes its keys after a
+    screen or focus change, a few frames later on a loaded machine: waited for, at most ~5 s."""
     from textual.widgets._footer import FooterKey
 
     w, _ = app.size
-    return [k.key_display for k in app.screen.query(FooterKey)
-            if k.region.width > 0 and k.region.right <= w]
+    for _ in range(100):
+        keys = [k.key_display for k in app.screen.query(FooterKey)
+                if k.region.width > 0 and k.region.right <= w]
+        if keys:
+            break
+        await pilot.pause(0.05)
+    return keys
 
 
 def table_lines(table) -> list[str]:
@@ -155,7 +161,7 @@ def test_tui_ledger_fits(demo_copy, size):
             line = next(ln for ln in lines[1:] if ln.split()[0] == str(wide_k))
             assert "stations@4 " in line and " 12 " in line, line
             assert re.search(r"\d\d-\d\d \d\d:\d\d", line), line  # started
-            keys = footer_keys(app)
+            keys = await footer_keys(app, pilot)
             for key in ("a", "b", "l", "f", "o", "?", "m"):
                 assert key in keys, (key, keys)
             bar = screen.query_one("#screen-bar")
@@ -194,7 +200,8 @@ def test_tui_launch_fits(demo_path, size):
             on_screen(app, start, min_width=8)
             on_screen(app, screen.query_one("#run-state"), min_width=30)
             on_screen(app, screen.query_one("#launch-progress-pane"), min_height=5)
-            assert "^r" in footer_keys(app) and "?" in footer_keys(app) or "f1" in footer_keys(app)
+            keys = await footer_keys(app, pilot)
+            assert "^r" in keys and "?" in keys or "f1" in keys
 
     asyncio.run(go())
 
@@ -219,7 +226,7 @@ def test_tui_spectrum_fits(demo_path, size):
             on_screen(app, hist, min_width=size[0] // 2 - 6, min_height=3)
             on_screen(app, screen.query_one("#spectrum-summary"), min_width=40)
             for key in ("[", "]", "?"):
-                assert key in footer_keys(app)
+                assert key in (await footer_keys(app, pilot))
 
     asyncio.run(go())
 
@@ -311,7 +318,7 @@ def test_tui_diff_fits(demo_path, size):
             # event lines are not cut at the right edge: each fits the pane
             width = events.region.width
             assert all(len(ln) <= width for ln in static_text(events).splitlines())
-            keys = footer_keys(app)
+            keys = await footer_keys(app, pilot)
             assert "^r" in keys and "^f" in keys
 
     asyncio.run(go())
@@ -338,7 +345,7 @@ def test_tui_lookup_fits(demo_path, size):
             table = screen.query_one("#lookup-runs", PagedTable)
             on_screen(app, table, min_width=size[0] - 6, min_height=5)
             assert table.shown_columns()[:5] == ["run", "version", "method / grouping", "k", "community"]
-            assert "^f" in footer_keys(app)
+            assert "^f" in (await footer_keys(app, pilot))
 
     asyncio.run(go())
 
@@ -402,7 +409,7 @@ def test_tui_maximise_a_pane(demo_path):
             assert app.screen.maximized is runs_pane
             assert runs_pane.region.height >= 24 - 2 - 1 > before
             assert app.screen.query_one("#screen-bar").region.height == 1
-            assert footer_keys(app)
+            assert (await footer_keys(app, pilot))
             await pilot.press("m")
             await pilot.pause()
             assert app.screen.maximized is None
@@ -1035,7 +1042,7 @@ def test_tui_updates_fits_and_shows_the_report(demo_path, size):
                 name = re.escape(names[m["node"]])
                 assert re.search(rf"{m['node']}\s+{name}\s+{shown_a[m['from']]} → {shown_b[m['to']]}", text)
                 assert shown_a[m["from"]] != shown_b[m["to"]]
-            assert "^r" in footer_keys(app)
+            assert "^r" in (await footer_keys(app, pilot))
 
     asyncio.run(go())
 
