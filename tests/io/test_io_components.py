@@ -77,12 +77,13 @@ def test_the_bounded_rounds_hand_over_to_scipy(monkeypatch):
     assert np.array_equal(labels, _expected(n, u, v))
 
 
-@pytest.mark.parametrize("duplicates", ["sum", "error"])
-def test_components_found_beside_the_merge_match_networkx(tmp_path, monkeypatch, duplicates):
+@pytest.mark.parametrize("duplicates,self_loops", [("sum", "keep"), ("error", "keep"), ("sum", "drop")])
+def test_components_found_beside_the_merge_match_networkx(tmp_path, monkeypatch, duplicates, self_loops):
     # the report's components are found on a second thread while the pairs merge (forced here
     # by lowering the threshold): reference networkx.connected_components on the graph read by
     # networkx.parse_edgelist from the same lines, zero-weight records left out (they name their
-    # nodes but join nothing)
+    # nodes but join nothing); self-loops kept or dropped (a loop joins nothing; the lines of seed 5
+    # hold one)
     from workspace.domain import ImportPolicy
     from workspace.errors import InputError
     from workspace.io import _common, read_network
@@ -102,7 +103,7 @@ def test_components_found_beside_the_merge_match_networkx(tmp_path, monkeypatch,
         lines.append(lines[0])  # a duplicate record, merged
     path = tmp_path / "edges.csv"
     path.write_text("\n".join(lines) + "\n")
-    policy = ImportPolicy(duplicates=duplicates, self_loops="keep", weight=2, header="no")
+    policy = ImportPolicy(duplicates=duplicates, self_loops=self_loops, weight=2, header="no")
     kept = [line for line in lines if not line.endswith(",0")]
     reference = nx.parse_edgelist(kept, delimiter=",", nodetype=str, data=(("weight", float),))
     reference.add_nodes_from(x for line in lines for x in line.split(",")[:2])
