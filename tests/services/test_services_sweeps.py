@@ -217,3 +217,21 @@ def test_no_eigengap_where_it_means_nothing(store, planted):
     out = sweeps.sweep(store, sweeps.prepare_sweep(store, "lab/sbm", method="recursive", ks="2..4"))
     assert all(p["eigengap"] is None for p in out["points"])
     assert "eigengap not available" in " ".join(out["recommendations"][0]["candidates"][0]["reasons"])
+
+
+def test_sweeps_and_runs_listed_by_project_network_and_version(store, karate, planted, tmp_path):
+    # the same narrowing (services.runs.narrowed_to) for both listings: a project, a network, a
+    # version, a version with nothing on it (none such: narrowing finds nothing rather than failing), and
+    # a project with nothing in it
+    first = sweeps.sweep(store, sweeps.prepare_sweep(store, "club/karate", method="njw", ks="2..3"))["sweep"]
+    second = sweeps.sweep(store, sweeps.prepare_sweep(store, "lab/sbm", method="njw", ks="2..3"))["sweep"]
+    A, _ = planted_partition(50, 2, 10, 1, seed=2)
+    import_adjacency(store, A, tmp_path, project="empty-handed", network="g", names=node_names(50))
+    expect = {None: [second, first], "club": [first], "club/karate": [first], "club/karate@1": [first],
+              "club/karate@2": [], "lab/sbm@1": [second], "empty-handed": [], "empty-handed/g": []}
+    for ref, ids in expect.items():
+        assert [row["sweep"] for row in sweeps.list_sweeps(store, ref)] == ids, ref
+        listed = runs.list_runs(store, ref)
+        assert len(listed) == 2 * len(ids), ref
+        parts = (ref or "").replace("@", "/").split("/")
+        assert all(row["ref"].replace("@", "/").split("/")[:len(parts)] == parts for row in listed if ref), ref

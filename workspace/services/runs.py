@@ -586,18 +586,22 @@ def _runs_query():
             .join(Project, Project.id == Network.project_id))
 
 
+def narrowed_to(q, ref: str | None):
+    """``q`` (a select joining ``NetworkVersion``, ``Network`` and ``Project``) narrowed to a
+    project (``P``), a network (``P/N``) or a version (``P/N@V``); unchanged for no ``ref``."""
+    if not ref:
+        return q
+    if "/" not in ref:
+        return q.where(Project.name == ref)
+    vref = VersionRef.parse(ref)
+    q = q.where(Project.name == vref.project, Network.name == vref.network)
+    return q if vref.version is None else q.where(NetworkVersion.number == vref.version)
+
+
 def list_runs(store: Store, ref: str | None = None, *, limit: int | None = None, offset: int = 0,
               status: str | None = None) -> list[dict[str, Any]]:
     """Runs, newest first; ``ref`` narrows to a project (``P``), network (``P/N``) or version (``P/N@V``)."""
-    q = _runs_query()
-    if ref:
-        if "/" in ref:
-            vref = VersionRef.parse(ref)
-            q = q.where(Project.name == vref.project, Network.name == vref.network)
-            if vref.version is not None:
-                q = q.where(NetworkVersion.number == vref.version)
-        else:
-            q = q.where(Project.name == ref)
+    q = narrowed_to(_runs_query(), ref)
     if status:
         q = q.where(Run.status == status)
     q = q.order_by(Run.id.desc()).offset(offset)

@@ -814,15 +814,7 @@ def _task_counts(s, sweep_id: int) -> dict[str, int]:
 
 def list_sweeps(store: Store, ref: str | None = None) -> list[dict[str, Any]]:
     """Sweeps, newest first; ``ref`` narrows to a project, network or version."""
-    q = _sweeps_query()
-    if ref:
-        if "/" in ref:
-            vref = VersionRef.parse(ref)
-            q = q.where(Project.name == vref.project, Network.name == vref.network)
-            if vref.version is not None:
-                q = q.where(NetworkVersion.number == vref.version)
-        else:
-            q = q.where(Project.name == ref)
+    q = runs_service.narrowed_to(_sweeps_query(), ref)
     with store.read() as s:
         return [_sweep_row(sw, f"{p}/{n}@{v}", _task_counts(s, sw.id))
                 for sw, p, n, v in s.execute(q.order_by(Sweep.id.desc())).all()]
