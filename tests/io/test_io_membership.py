@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import csv
 import json
+from pathlib import Path
 
 import networkx as nx
 import numpy as np
@@ -113,3 +114,26 @@ def test_read_errors(tmp_path):
     assert err.value.line == 3 and "expected 2 fields" in str(err.value)
     with pytest.raises(InputError, match="membership format"):
         read_membership(tmp_path / "m.parquet", IDS)
+
+
+BAD = Path(__file__).resolve().parents[1] / "data" / "bad"
+
+
+@pytest.mark.parametrize("name,line,message", [
+    # the network reader's cases of tests/io/test_io_bad_inputs.py (lines counted by hand in the files)
+    ("entity_bomb.graphml", 3, "refused: the file declares the XML entity 'lol'"),
+    ("external_entity.graphml", 2, "refused: the file declares the XML external entity 'secret'"),
+    ("malformed.graphml", 5, "not well-formed XML: mismatched tag"),
+])
+def test_graphml_membership_and_node_table_refusals_name_the_line(name, line, message):
+    # a membership or node-table GraphML is read by the same guarded parser as a network: the same
+    # refusal, with its file and line (defusedxml refuses entity declarations and external references)
+    from workspace.io.node_data import read_node_table
+
+    path = BAD / name
+    for read in (lambda: read_membership(path, IDS, format="graphml"),
+                 lambda: read_node_table(path, format="graphml")):
+        with pytest.raises(InputError) as info:
+            read()
+        err = info.value
+        assert message in err.message and err.line == line and str(path) in str(err), str(err)

@@ -33,6 +33,51 @@ def report_progress(progress: Progress, stage: str, done: int, total: int | None
         progress(stage, done, total)
 
 
+#: bytes per call into the XML parser, so progress moves on big files
+_XML_FEED = 1 << 22
+
+
+def feed_xml(path: str, data: bytes, target, progress: Progress = None) -> None:
+    """Parse XML ``data`` into a parser ``target`` (ElementTree's target interface) with
+    defusedxml's expat parser; ``target.expat`` is set to the expat parser first, for line numbers.
+
+    Errors name ``path`` and the line: not well-formed XML, and the refusals of defusedxml (entity
+    declarations, which can expand without bound or read other files; external references and
+    document type declarations that point outside the file).
+
+    References
+    ----------
+    W3C, "Extensible Markup Language (XML) 1.0", 5th ed. (2008), section 4 (entities);
+    defusedxml documentation ("XML bomb" and external entity attacks).
+    """
+    from xml.etree.ElementTree import ParseError
+
+    import defusedxml
+    import defusedxml.ElementTree as safe_etree
+
+    parser = safe_etree.DefusedXMLParser(target=target)
+    target.expat = parser.parser
+    try:
+        for offset in range(0, len(data), _XML_FEED):
+            parser.feed(data[offset:offset + _XML_FEED])
+            report_progress(progress, "parse", min(offset + _XML_FEED, len(data)), len(data))
+        parser.close()
+    except ParseError as err:
+        line = err.position[0] if getattr(err, "position", None) else None
+        raise InputError(f"not well-formed XML: {err.msg if hasattr(err, 'msg') else err}",
+                         path=path, line=line) from None
+    except defusedxml.EntitiesForbidden as err:
+        kind = f"external entity {err.name!r} ({err.sysid})" if err.sysid else \
+            f"entity {err.name!r}"
+        raise InputError(f"refused: the file declares the XML {kind}; entity declarations "
+                         "can expand without bound or read other files, so they are not "
+                         "accepted", path=path,
+                         line=target.expat.CurrentLineNumber) from None
+    except (defusedxml.ExternalReferenceForbidden, defusedxml.DTDForbidden) as err:
+        raise InputError(f"refused: the file refers to an external resource ({err})",
+                         path=path, line=target.expat.CurrentLineNumber) from None
+
+
 def read_bytes(path: str, progress: Progress = None) -> bytes:
     """Whole file as bytes; gzip data (magic ``1f 8b``) is decompressed.
 

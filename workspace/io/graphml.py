@@ -8,10 +8,7 @@ before anything is expanded.
 
 from __future__ import annotations
 
-from xml.etree.ElementTree import ParseError
 
-import defusedxml
-import defusedxml.ElementTree as safe_etree
 import numpy as np
 import pyarrow as pa
 
@@ -20,13 +17,12 @@ from workspace.errors import InputError, ParameterError
 from workspace.io._common import (
     EdgeRecords,
     Progress,
-    report_progress,
+    feed_xml,
     string_array,
     weights_from_strings,
 )
 
 GRAPHML_NAMESPACE = "http://graphml.graphdrawing.org/xmlns"
-_FEED = 1 << 22
 
 
 def _local(tag: str) -> str:
@@ -199,27 +195,7 @@ def read_graphml(path: str, data: bytes, policy: ImportPolicy,
     if policy.weight is not None and not isinstance(policy.weight, str):
         raise ParameterError("for GraphML, weight names an edge attribute, not a column index")
     target = _GraphMLTarget(path, policy.weight)
-    parser = safe_etree.DefusedXMLParser(target=target)
-    target.expat = parser.parser
-    try:
-        for offset in range(0, len(data), _FEED):
-            parser.feed(data[offset:offset + _FEED])
-            report_progress(progress, "parse", min(offset + _FEED, len(data)), len(data))
-        parser.close()
-    except ParseError as err:
-        line = err.position[0] if getattr(err, "position", None) else None
-        raise InputError(f"not well-formed XML: {err.msg if hasattr(err, 'msg') else err}",
-                         path=path, line=line) from None
-    except defusedxml.EntitiesForbidden as err:
-        kind = f"external entity {err.name!r} ({err.sysid})" if err.sysid else \
-            f"entity {err.name!r}"
-        raise InputError(f"refused: the file declares the XML {kind}; entity declarations "
-                         "can expand without bound or read other files, so they are not "
-                         "accepted", path=path,
-                         line=target.expat.CurrentLineNumber) from None
-    except (defusedxml.ExternalReferenceForbidden, defusedxml.DTDForbidden) as err:
-        raise InputError(f"refused: the file refers to an external resource ({err})",
-                         path=path, line=target.expat.CurrentLineNumber) from None
+    feed_xml(path, data, target, progress)
     if not target.root_checked:
         raise InputError("not GraphML: no elements", path=path)
     if target.graph_depth is None:

@@ -11,11 +11,8 @@ from __future__ import annotations
 import json
 import os
 import re
-from xml.etree.ElementTree import ParseError
 from xml.sax.saxutils import escape, quoteattr
 
-import defusedxml
-import defusedxml.ElementTree as safe_etree
 import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
@@ -23,6 +20,7 @@ import pyarrow.compute as pc
 from workspace.errors import InputError, ParameterError
 from workspace.io._common import (
     check_utf8,
+    feed_xml,
     format_by_name,
     normalise_newlines,
     read_bytes,
@@ -248,18 +246,7 @@ class _CommunityTarget:
 
 def _read_graphml(path: str, data: bytes, node_ids: np.ndarray):
     target = _CommunityTarget()
-    parser = safe_etree.DefusedXMLParser(target=target)
-    target.expat = parser.parser
-    try:
-        parser.feed(data)
-        parser.close()
-    except ParseError as err:
-        raise InputError(f"not well-formed XML: {err}", path=path,
-                         line=err.position[0] if getattr(err, "position", None) else None) \
-            from None
-    except defusedxml.DefusedXmlException as err:
-        raise InputError(f"refused: entity declarations or external references ({err})",
-                         path=path) from None
+    feed_xml(path, data, target)
     if None in target.ids:
         j = target.ids.index(None)
         raise InputError("<node> without an id attribute", path=path, line=target.lines[j])

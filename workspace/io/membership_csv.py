@@ -174,7 +174,6 @@ def membership_csv(node_ids: PackedNodeIds, labels: np.ndarray, *, path: str | N
     Y. Shafranovich, "Common Format and MIME Type for Comma-Separated Values (CSV) Files",
     RFC 4180 (2005).
     """
-    offsets = node_ids.offsets
     labels = np.asarray(labels)
     n = len(node_ids)
     if labels.shape != (n,):

@@ -14,13 +14,17 @@ import json
 import math
 import os
 from dataclasses import dataclass, field
-from xml.etree.ElementTree import ParseError
 
-import defusedxml
-import defusedxml.ElementTree as safe_etree
 
 from workspace.errors import InputError
-from workspace.io._common import check_utf8, format_by_name, normalise_newlines, read_bytes, strip_bom
+from workspace.io._common import (
+    check_utf8,
+    feed_xml,
+    format_by_name,
+    normalise_newlines,
+    read_bytes,
+    strip_bom,
+)
 from workspace.io.node_link import _id_text
 
 NODE_TABLE_FORMATS = ("csv", "graphml", "json")
@@ -268,16 +272,7 @@ def _graphml_value(kind: str, text: str, fail):
 
 def _read_graphml(path: str, data: bytes) -> NodeTable:
     target = _NodeDataTarget(path)
-    parser = safe_etree.DefusedXMLParser(target=target)
-    target.expat = parser.parser
-    try:
-        parser.feed(data)
-        parser.close()
-    except ParseError as err:
-        raise InputError(f"not well-formed XML: {err}", path=path,
-                         line=err.position[0] if getattr(err, "position", None) else None) from None
-    except defusedxml.DefusedXmlException as err:
-        raise InputError(f"refused: entity declarations or external references ({err})", path=path) from None
+    feed_xml(path, data, target)
     seen: dict[str, int] = {}
     for node, line in zip(target.ids, target.lines):
         if node in seen:
