@@ -12,102 +12,18 @@ work on a copy.
 from __future__ import annotations
 
 import asyncio
-import contextlib
 import itertools
 import re
-import shutil
 from pathlib import Path
 
 import networkx as nx
 import numpy as np
 import pytest
 
+from tui_pilot import footer_keys, on_screen, settle, static_text, table_lines, walk, workspace
 from workspace.services.store import open_workspace
 
 SIZES = [(80, 24), (120, 36)]
-
-
-@pytest.fixture(autouse=True)
-def _no_animations(monkeypatch):
-    monkeypatch.setenv("TEXTUAL_ANIMATIONS", "none")
-
-
-@pytest.fixture(scope="module")
-def demo_path(tmp_path_factory) -> Path:
-    from workspace.demo.build import build_demo
-
-    path = tmp_path_factory.mktemp("tui-daily") / "demo.sqlite"
-    store = open_workspace(path)
-    try:
-        build_demo(store)
-    finally:
-        store.dispose()
-    return path
-
-
-@pytest.fixture
-def demo_copy(demo_path, tmp_path) -> Path:
-    target = tmp_path / "demo.sqlite"
-    for suffix in ("", "-wal", "-shm"):
-        src = Path(str(demo_path) + suffix)
-        if src.exists():
-            shutil.copy(src, str(target) + suffix)
-    return target
-
-
-@contextlib.asynccontextmanager
-async def workspace(path: Path, size=(120, 36)):
-    from workspace.tui.app import CutbookApp
-
-    store = open_workspace(path)
-    app = CutbookApp(store, poll_interval=0.05)
-    try:
-        async with app.run_test(size=size) as pilot:
-            await pilot.pause()
-            yield app, pilot
-    finally:
-        store.dispose()
-
-
-async def settle(app, pilot) -> None:
-    await pilot.pause()
-    await app.workers.wait_for_complete()
-    await pilot.pause()
-    await pilot.pause()
-
-
-def static_text(widget) -> str:
-    content = widget.content if hasattr(widget, "content") else widget.renderable
-    return getattr(content, "plain", str(content))
-
-
-def on_screen(app, widget, *, min_width: int = 1, min_height: int = 1) -> None:
-    """The widget is laid out inside the terminal with at least this many cells."""
-    w, h = app.size
-    r = widget.region
-    assert r.width >= min_width, f"{widget!r} is {r.width} cells wide (need {min_width}) at {w}x{h}"
-    assert r.height >= min_height, f"{widget!r} is {r.height} rows high (need {min_height}) at {w}x{h}"
-    assert r.x >= 0 and r.y >= 0 and r.right <= w and r.bottom <= h, f"{widget!r} at {r} leaves the {w}x{h} screen"
-
-
-async def footer_keys(app, pilot) -> list[str]:
-    """Keys the footer shows whole (inside the screen width). The footer composes its keys after a
-    screen or focus change, a few frames later on a loaded machine: waited for, at most ~5 s."""
-    from textual.widgets._footer import FooterKey
-
-    w, _ = app.size
-    for _ in range(100):
-        keys = [k.key_display for k in app.screen.query(FooterKey)
-                if k.region.width > 0 and k.region.right <= w]
-        if keys:
-            break
-        await pilot.pause(0.05)
-    return keys
-
-
-def table_lines(table) -> list[str]:
-    """The table's rendered lines (header first) as plain text."""
-    return [table.render_line(y).text for y in range(min(table.row_count + 1, table.size.height))]
 
 
 def demo_run(store, method: str, ref: str) -> int:
@@ -442,12 +358,6 @@ def _add_karate(path: Path) -> None:
         store.dispose()
 
 
-def _walk(node):
-    yield node
-    for child in node.children:
-        yield from _walk(child)
-
-
 def test_tui_launch_here_on_a_network_without_runs(demo_copy):
     """`l` on a network row with no runs opens Launch on that network's newest version, not another one."""
     from textual.widgets import Select, Tree
@@ -458,7 +368,7 @@ def test_tui_launch_here_on_a_network_without_runs(demo_copy):
         async with workspace(demo_copy) as (app, pilot):
             tree = app.screen.query_one("#outline", Tree)
             tree.focus()
-            node = next(n for n in _walk(tree.root) if (n.data or {}).get("network") == "velmora-bikes/karate"
+            node = next(n for n in walk(tree.root) if (n.data or {}).get("network") == "velmora-bikes/karate"
                         and n.data.get("kind") == "network")
             tree.move_cursor(node)
             await settle(app, pilot)
@@ -486,7 +396,7 @@ def test_tui_detail_follows_the_row_kind(demo_path):
             for kind, title, expect in (("project", "Project", "orrin-hollow-lab"),
                                         ("network", "Network", "orrin-hollow-lab/co-working"),
                                         ("store", "Store", "velmora-bikes")):
-                node = next(n for n in _walk(tree.root) if (n.data or {}).get("kind", "store") == kind
+                node = next(n for n in walk(tree.root) if (n.data or {}).get("kind", "store") == kind
                             and (kind == "store" or n.data.get("project") == "orrin-hollow-lab"))
                 tree.move_cursor(node)
                 await settle(app, pilot)
@@ -864,7 +774,7 @@ def test_tui_outline_plural(demo_path):
     async def go():
         async with workspace(demo_path) as (app, pilot):
             tree = app.screen.query_one("#outline", Tree)
-            labels = [str(n.label) for n in _walk(tree.root)]
+            labels = [str(n.label) for n in walk(tree.root)]
             assert not any(re.search(r"\b1 (sets|runs)\b", lb) for lb in labels), labels
             assert any(re.search(r"\b1 run\b", lb) for lb in labels)
             # project rows carry the name only (the set count, cut to "1 s" at 80x24, is in the detail pane)

@@ -5,42 +5,13 @@ Outside references: networkx (karate club, modularity)."""
 from __future__ import annotations
 
 import asyncio
-import contextlib
-import time
-from pathlib import Path
 
 import networkx as nx
 import pytest
 
 from graphs import import_adjacency
+from tui_pilot import wait_until, workspace
 from workspace.services.store import open_workspace
-
-
-@pytest.fixture(autouse=True)
-def _no_animations(monkeypatch):
-    monkeypatch.setenv("TEXTUAL_ANIMATIONS", "none")
-
-
-@contextlib.asynccontextmanager
-async def workspace(path: Path, size=(120, 36)):
-    from workspace.tui.app import CutbookApp
-
-    store = open_workspace(path)
-    app = CutbookApp(store, poll_interval=0.05)
-    try:
-        async with app.run_test(size=size) as pilot:
-            await pilot.pause()
-            yield app, pilot
-    finally:
-        store.dispose()
-
-
-async def wait_until(pilot, condition, timeout: float, what: str) -> None:
-    deadline = time.monotonic() + timeout
-    while not condition():
-        if time.monotonic() > deadline:
-            raise AssertionError(f"timed out after {timeout} s waiting for {what}")
-        await pilot.pause(0.05)
 
 
 @pytest.fixture

@@ -9,11 +9,6 @@ import pytest
 from scipy.linalg import eigh
 
 
-@pytest.fixture(autouse=True)
-def _no_animations(monkeypatch):
-    monkeypatch.setenv("TEXTUAL_ANIMATIONS", "none")
-
-
 def test_tui_largest_gap_counts_components():
     """A graph of 3 disjoint cliques has Laplacian eigenvalue 0 with multiplicity 3
     (Chung 1997, Spectral Graph Theory, lemma 1.7), so the largest gap follows the third value."""

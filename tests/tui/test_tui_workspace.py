@@ -11,9 +11,6 @@ runs work on a copy of it.
 from __future__ import annotations
 
 import asyncio
-import contextlib
-import shutil
-import time
 from pathlib import Path
 
 import networkx as nx
@@ -23,83 +20,22 @@ import scipy.sparse as sp
 from scipy.optimize import linear_sum_assignment
 from sklearn.metrics import adjusted_rand_score
 
+from tui_pilot import settle, static_text, toasts, wait_until, walk
+from tui_pilot import workspace as _workspace
 from workspace.services.store import open_workspace
 
 SIZE = (160, 48)
 
 
-@pytest.fixture(autouse=True)
-def _no_animations(monkeypatch):
-    monkeypatch.setenv("TEXTUAL_ANIMATIONS", "none")
-
-
-@pytest.fixture(scope="module")
-def demo_path(tmp_path_factory) -> Path:
-    from workspace.demo.build import build_demo
-
-    path = tmp_path_factory.mktemp("tui-demo") / "demo.sqlite"
-    store = open_workspace(path)
-    try:
-        summary = build_demo(store)
-    finally:
-        store.dispose()
-    path.with_suffix(".json").write_text(repr(summary["runs"]))
-    return path
-
-
-@pytest.fixture
-def demo_copy(demo_path, tmp_path) -> Path:
-    target = tmp_path / "demo.sqlite"
-    for suffix in ("", "-wal", "-shm"):
-        src = Path(str(demo_path) + suffix)
-        if src.exists():
-            shutil.copy(src, str(target) + suffix)
-    return target
+def workspace(path: Path):
+    """The app on ``path`` at this module's terminal size."""
+    return _workspace(path, SIZE)
 
 
 def demo_runs(demo_path: Path) -> dict[str, int]:
     import ast
 
     return ast.literal_eval(demo_path.with_suffix(".json").read_text())
-
-
-@contextlib.asynccontextmanager
-async def workspace(path: Path):
-    from workspace.tui.app import CutbookApp
-
-    store = open_workspace(path)
-    app = CutbookApp(store, poll_interval=0.05)
-    try:
-        async with app.run_test(size=SIZE) as pilot:
-            await pilot.pause()
-            yield app, pilot
-    finally:
-        store.dispose()
-
-
-async def settle(app, pilot) -> None:
-    """Let workers (detail loads, diffs) finish and the screen catch up."""
-    await pilot.pause()
-    await app.workers.wait_for_complete()
-    await pilot.pause()
-
-
-async def wait_until(pilot, condition, timeout: float, what: str) -> None:
-    deadline = time.monotonic() + timeout
-    while not condition():
-        if time.monotonic() > deadline:
-            raise AssertionError(f"timed out after {timeout} s waiting for {what}")
-        await pilot.pause(0.05)
-
-
-def static_text(widget) -> str:
-    content = widget.content if hasattr(widget, "content") else widget.renderable
-    return getattr(content, "plain", str(content))
-
-
-def toasts(app) -> str:
-    """Messages the app has shown as notifications (errors included)."""
-    return "\n".join(message for _severity, message in getattr(app, "shown", []))
 
 
 def networkx_graph(store, ref: str) -> nx.Graph:
@@ -150,7 +86,7 @@ def test_tui_browse_to_a_run_shows_its_measures(demo_path):
             # the outline narrows the list to one version
             tree = app.screen.query_one("#outline")
             tree.focus()
-            node = next(n for n in _walk(tree.root) if (n.data or {}).get("version") == "velmora-bikes/stations@4")
+            node = next(n for n in walk(tree.root) if (n.data or {}).get("version") == "velmora-bikes/stations@4")
             tree.move_cursor(node)
             await settle(app, pilot)
             assert table.row_count == sum(1 for key in runs_by_key if key.endswith("@4")
@@ -161,12 +97,6 @@ def test_tui_browse_to_a_run_shows_its_measures(demo_path):
             assert "velmora-bikes/stations@3" in vtext  # its parent
 
     asyncio.run(go())
-
-
-def _walk(node):
-    yield node
-    for child in node.children:
-        yield from _walk(child)
 
 
 def test_tui_spectrum_marks_the_largest_gap(demo_path):
