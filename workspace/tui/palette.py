@@ -1,12 +1,6 @@
 """The workspace's one colour palette ("fjord") for the terminal UI: the colours live in
-``workspace.palette`` (shared with the reports) and are re-exported here with the theme.
-
-A deep sea-ink ground with a sky-blue lead colour and an orange accent. The
-colours that carry meaning — run statuses, community colours, the heat ramp —
-come from the Okabe–Ito set (Okabe & Ito 2008, "Color Universal Design"), chosen
-so that they stay apart under the common colour-vision deficiencies; a few are
-lightened for contrast on the dark ground. Meaning never rests on colour alone:
-statuses are always written out and community colours sit beside their labels.
+``workspace.palette`` (shared with the reports; its docstring says how they were chosen) and
+are re-exported here with the Textual theme.
 
 ``app.tcss`` reads these through the theme's variables (``$primary``, ``$dim``,
 ``$rule`` …); widgets that draw by hand import the constants.
