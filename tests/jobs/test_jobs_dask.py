@@ -22,7 +22,7 @@ import networkx as nx
 import pytest
 from sklearn.metrics import adjusted_rand_score
 
-from graphs import import_adjacency, node_names, truth_by_node_ids
+from graphs import import_adjacency, import_karate, node_names, truth_by_node_ids
 from workspace.errors import Cancelled, UsageError
 from workspace.jobs.executors import ExecutorSpec, check_scheduler_address, executor_from_options, executor_from_text
 from workspace.services import runs, sweeps
@@ -42,11 +42,7 @@ def store(tmp_path):
 
 @pytest.fixture
 def karate(store, tmp_path):
-    # Zachary (1977) karate club as shipped by networkx, with its 'weight' edge attribute
-    G = nx.karate_club_graph()
-    A = nx.to_scipy_sparse_array(G, nodelist=range(34), weight="weight")
-    names = [f"m{i:02d}" for i in range(34)]
-    import_adjacency(store, A, tmp_path, project="club", network="karate", names=names)
+    G, names = import_karate(store, tmp_path)  # Zachary (1977), networkx karate_club_graph
     return G, names
 
 

@@ -10,7 +10,7 @@ import pytest
 import scipy.sparse as sp
 from sklearn.metrics import adjusted_rand_score
 
-from graphs import import_adjacency, node_names, truth_by_node_ids
+from graphs import import_adjacency, import_karate, node_names, truth_by_node_ids
 from tests_support import dump_store, write_edges
 from workspace.domain import GraphData, membership_hash
 from workspace.errors import Cancelled, NotFoundError, ParameterError, UsageError
@@ -20,11 +20,7 @@ from workspace.spectral.generators import planted_partition
 
 @pytest.fixture
 def karate(store, tmp_path):
-    # Zachary (1977) karate club as shipped by networkx, with its 'weight' edge attribute
-    G = nx.karate_club_graph()
-    A = nx.to_scipy_sparse_array(G, nodelist=range(34), weight="weight")
-    names = [f"m{i:02d}" for i in range(34)]
-    import_adjacency(store, A, tmp_path, project="club", network="karate", names=names)
+    G, names = import_karate(store, tmp_path)  # Zachary (1977), networkx karate_club_graph
     faction = np.array([0 if G.nodes[i]["club"] == "Mr. Hi" else 1 for i in range(34)])
     return names, faction
 

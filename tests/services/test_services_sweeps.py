@@ -10,7 +10,7 @@ import networkx as nx
 import pytest
 from sklearn.metrics import adjusted_rand_score
 
-from graphs import import_adjacency, node_names, truth_by_node_ids
+from graphs import import_adjacency, import_karate, node_names, truth_by_node_ids
 from workspace.errors import Cancelled, NotFoundError, ParameterError, UsageError
 from workspace.services import runs, sweeps
 from workspace.services.verify import verify_store
@@ -19,11 +19,7 @@ from workspace.spectral.generators import planted_partition
 
 @pytest.fixture
 def karate(store, tmp_path):
-    # Zachary (1977) karate club as shipped by networkx, with its 'weight' edge attribute
-    G = nx.karate_club_graph()
-    A = nx.to_scipy_sparse_array(G, nodelist=range(34), weight="weight")
-    names = [f"m{i:02d}" for i in range(34)]
-    import_adjacency(store, A, tmp_path, project="club", network="karate", names=names)
+    G, names = import_karate(store, tmp_path)  # Zachary (1977), networkx karate_club_graph
     return G, names
 
 

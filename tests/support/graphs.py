@@ -36,3 +36,15 @@ def truth_by_node_ids(truth: np.ndarray, names: list[str], node_ids: np.ndarray)
     """Planted labels re-ordered into the store's canonical node order."""
     pos = {name: i for i, name in enumerate(names)}
     return truth[[pos[x] for x in node_ids.tolist()]]
+
+
+def import_karate(store, tmp_path: Path):
+    """Zachary (1977) karate club as shipped by networkx (``karate_club_graph``, with its 'weight'
+    edge attribute) imported as ``club/karate``, nodes named ``m00`` .. ``m33``: ``(G, names)``."""
+    import networkx as nx
+
+    G = nx.karate_club_graph()
+    A = nx.to_scipy_sparse_array(G, nodelist=range(34), weight="weight")
+    names = [f"m{i:02d}" for i in range(34)]
+    import_adjacency(store, A, tmp_path, project="club", network="karate", names=names)
+    return G, names
