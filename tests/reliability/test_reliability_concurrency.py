@@ -21,40 +21,12 @@ from pathlib import Path
 
 import pytest
 
+from cli_processes import run_at_once
 from graphs import adjacency_to_csv
 
 REPO = Path(__file__).resolve().parents[2]
 
 pytestmark = pytest.mark.slow
-
-DRIVER = r"""
-import contextlib, io, json, os, sys, time
-go, ready, commands = sys.argv[1], sys.argv[2], json.loads(sys.argv[3])
-from workspace.cli import main
-import importlib
-for name in ("workspace.cli.runs", "workspace.cli.networks", "workspace.services.runs", "workspace.services.params",
-             "workspace.services.networks", "workspace.services.store", "workspace.spectral", "workspace.spectral.methods",
-             "workspace.spectral.quality", "workspace.io.delimited", "workspace.io.canonical", "networkx",
-             "scipy.sparse.linalg", "alembic.command", "rich.console", "rich.table"):
-    importlib.import_module(name)  # load everything before the start signal, so the writes overlap
-open(ready, "w").close()
-while not os.path.exists(go):
-    time.sleep(0.005)
-results = []
-for argv in commands:
-    out, err = io.StringIO(), io.StringIO()
-    t0 = time.monotonic()  # CLOCK_MONOTONIC: one clock for all processes of the machine
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        try:
-            code = main(argv)
-        except SystemExit as exc:
-            code = exc.code
-    results.append({"argv": argv, "code": code, "out": out.getvalue(), "err": err.getvalue(),
-                    "t0": t0, "t1": time.monotonic()})
-print(json.dumps(results))
-sys.stdout.flush()
-os._exit(0)  # the harness's own exit (pyarrow can abort at interpreter exit; see test_reliability_bad_inputs)
-"""
 
 
 def _cli(store: Path, *argv: str) -> tuple[int, str, str]:
@@ -78,7 +50,6 @@ def test_four_runners_and_two_importers_at_once(tmp_path):
         B, _ = planted_partition(6000, 4, c_in=10.0, c_out=1.0, seed=10 + i)
         bigger.append(adjacency_to_csv(B, tmp_path / f"incoming{i}.csv"))
 
-    go = tmp_path / "go"
     base = ["--store", str(store)]
     jobs = []
     for w in range(4):
@@ -92,23 +63,9 @@ def test_four_runners_and_two_importers_at_once(tmp_path):
     # only slow the test down; the store's locking is what is under test)
     env = {**os.environ, "PYTHONPATH": str(REPO), "OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1",
            "MKL_NUM_THREADS": "1"}
-    ready = [tmp_path / f"ready{i}" for i in range(len(jobs))]
-    procs = [subprocess.Popen([sys.executable, "-c", DRIVER, str(go), str(flag), json.dumps(cmds)],
-                              stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
-             for cmds, flag in zip(jobs, ready)]
-    deadline = time.monotonic() + 120
-    while not all(f.exists() for f in ready):
-        assert all(p.poll() is None for p in procs), [p.communicate() for p in procs]
-        assert time.monotonic() < deadline
-        time.sleep(0.02)
-    go.touch()
-    results = []
-    for p in procs:
-        out, err = p.communicate(timeout=240)
-        assert p.returncode == 0, err
-        assert "locked" not in err.lower() and "busy" not in err.lower(), err
-        results.extend(json.loads(out))
-
+    results = run_at_once(jobs, tmp_path, env, ready_s=120, finish_s=240)
+    for r in results:  # the children's own stderr (outside the commands) too
+        assert "locked" not in r["driver_err"].lower() and "busy" not in r["driver_err"].lower(), r["driver_err"]
     for r in results:
         assert r["code"] == 0, (r["argv"], r["err"])
         assert "locked" not in r["err"].lower() and "database is busy" not in r["err"].lower(), r["err"]

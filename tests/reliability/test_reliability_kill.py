@@ -34,6 +34,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from cli_processes import STALL_CHILD
 from tests_support import dump_store
 
 REPO = Path(__file__).resolve().parents[2]
@@ -44,27 +45,6 @@ pytestmark = pytest.mark.slow
 
 VERSION_BLOBS = ("node_offsets_blob", "node_bytes_blob", "edge_u_blob", "edge_v_blob", "weight_blob")
 RUN_BLOBS = ("membership_blob", "stability_blob", "eigenvalues_blob")
-
-# Child interpreter: wrap repo.put_encoded (the blob insert) so that its CALL-th call, once its row is written inside
-# the open write transaction, touches MARKER and stalls; then run the CLI with the given argv.
-STALL_CHILD = r"""
-import sys, time
-marker, call, argv = sys.argv[1], int(sys.argv[2]), sys.argv[3:]
-from workspace.store import repo
-real = repo.put_encoded
-count = [0]
-def put_encoded(session, enc):
-    h = real(session, enc)
-    session.flush()
-    count[0] += 1
-    if count[0] == call:
-        open(marker, "w").close()
-        time.sleep(600)
-    return h
-repo.put_encoded = put_encoded
-from workspace.cli import main
-sys.exit(main(argv))
-"""
 
 
 def _env() -> dict:

@@ -25,6 +25,7 @@ from pathlib import Path
 import pytest
 from sqlalchemy import create_engine, text
 
+from cli_processes import STALL_CHILD, run_at_once
 from graphs import adjacency_to_csv
 from tests_support import dump_any
 
@@ -84,27 +85,6 @@ def test_bad_inputs_leave_the_store_unchanged(any_cli):
 
 # --- kill -9 inside the write transaction -------------------------------------------------------
 
-# Child: wrap repo.put_encoded (the blob insert) so that its CALL-th call, once its row is written inside the
-# open write transaction, touches MARKER and stalls; then run the CLI (same hook as test_reliability_kill.py).
-STALL_CHILD = r"""
-import sys, time
-marker, call, argv = sys.argv[1], int(sys.argv[2]), sys.argv[3:]
-from workspace.store import repo
-real = repo.put_encoded
-count = [0]
-def put_encoded(session, enc):
-    h = real(session, enc)
-    session.flush()
-    count[0] += 1
-    if count[0] == call:
-        open(marker, "w").close()
-        time.sleep(600)
-    return h
-repo.put_encoded = put_encoded
-from workspace.cli import main
-sys.exit(main(argv))
-"""
-
 
 def _stall_and_kill(store: str, marker: Path, call: int, *argv: str) -> None:
     proc = subprocess.Popen([sys.executable, "-c", STALL_CHILD, str(marker), str(call), "--store", store, *argv],
@@ -157,34 +137,6 @@ def test_kill_9_inside_a_runs_final_write_leaves_it_interrupted(store_url, tmp_p
 
 # --- many writers at once -----------------------------------------------------------------------
 
-DRIVER = r"""
-import contextlib, io, json, os, sys, time
-go, ready, commands = sys.argv[1], sys.argv[2], json.loads(sys.argv[3])
-from workspace.cli import main
-import importlib
-for name in ("workspace.cli.runs", "workspace.cli.networks", "workspace.cli.params", "workspace.services.runs",
-             "workspace.services.params", "workspace.services.networks", "workspace.services.store",
-             "workspace.spectral", "workspace.io.delimited", "networkx", "scipy.sparse.linalg", "alembic.command"):
-    importlib.import_module(name)  # load everything before the start signal, so the writes overlap
-open(ready, "w").close()
-while not os.path.exists(go):
-    time.sleep(0.005)
-results = []
-for argv in commands:
-    out, err = io.StringIO(), io.StringIO()
-    t0 = time.monotonic()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        try:
-            code = main(argv)
-        except SystemExit as exc:
-            code = exc.code
-    results.append({"argv": argv, "code": code, "out": out.getvalue(), "err": err.getvalue(),
-                    "t0": t0, "t1": time.monotonic()})
-print(json.dumps(results))
-sys.stdout.flush()
-os._exit(0)
-"""
-
 
 @pytest.mark.slow
 def test_runners_importers_and_param_savers_at_once(store_url, tmp_path):
@@ -208,27 +160,7 @@ def test_runners_importers_and_param_savers_at_once(store_url, tmp_path):
                       "--weight", "weight", "--json"]] for i in range(4)]
     jobs += [[base + ["params", "save", "p/shared-set", "--method", "njw", "--k", str(2 + 3 * s + j), "--json"]
               for j in range(3)] for s in range(2)]
-    go = tmp_path / "go"
-    ready = [tmp_path / f"ready{i}" for i in range(len(jobs))]
-    procs = [subprocess.Popen([sys.executable, "-c", DRIVER, str(go), str(flag), json.dumps(cmds)],
-                              stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=_env())
-             for cmds, flag in zip(jobs, ready)]
-    try:
-        deadline = time.monotonic() + 180
-        while not all(f.exists() for f in ready):
-            assert all(p.poll() is None for p in procs), [p.communicate() for p in procs]
-            assert time.monotonic() < deadline
-            time.sleep(0.02)
-        go.touch()
-        results = []
-        for p in procs:
-            out, err = p.communicate(timeout=400)
-            assert p.returncode == 0, err
-            results.extend(json.loads(out))
-    finally:
-        for p in procs:
-            if p.poll() is None:
-                p.kill()
+    results = run_at_once(jobs, tmp_path, _env())
     for r in results:
         assert r["code"] == 0, (r["argv"], r["err"])
         assert "internal error" not in r["err"], r["err"]
