@@ -8,7 +8,6 @@ before anything is expanded.
 
 from __future__ import annotations
 
-
 import numpy as np
 import pyarrow as pa
 

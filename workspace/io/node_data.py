@@ -15,7 +15,6 @@ import math
 import os
 from dataclasses import dataclass, field
 
-
 from workspace.errors import InputError
 from workspace.io._common import (
     check_utf8,
