@@ -137,3 +137,40 @@ def test_processes_creating_one_store_at_the_same_moment(tmp_path):
         assert con.execute("PRAGMA integrity_check").fetchone()[0] == "ok"
         assert con.execute("SELECT version_num FROM alembic_version").fetchone()[0] == HEAD_REVISION
         con.close()
+
+
+
+def test_a_store_being_created_is_never_taken_for_another_file(tmp_path, monkeypatch):
+    """The check each command makes before opening a store (``inspect_sqlite_file``) reads the file's
+    size and its first bytes. Another process creating the store writes its first page between the
+    two (measured: 2-9 wrong refusals in 20-30 creations watched in a tight loop, before the fix):
+    the file must then read as empty or as an SQLite file, never as "not a cutbook store". Here the
+    page lands exactly between the two calls: the patched ``fstat`` writes it, then reports the size.
+    Reference: a real first page, written by Python's sqlite3 (SQLite's own header, "Database File
+    Format" section 1.3)."""
+    import workspace.store.db as db
+
+    source = tmp_path / "made.sqlite"
+    con = sqlite3.connect(source)
+    con.execute("PRAGMA page_size=16384")
+    con.execute("PRAGMA user_version=1")  # writes the header page, and only it
+    con.commit()
+    con.close()
+    first_page = source.read_bytes()
+    assert len(first_page) == 16384 and first_page.startswith(db.SQLITE_MAGIC)
+
+    store = tmp_path / "new.sqlite"
+    store.write_bytes(b"")
+    real_fstat = os.fstat
+    grown = []
+
+    def fstat_after_the_first_page(fd):
+        if not grown:  # the other process's first write, just now
+            with open(store, "r+b") as fh:
+                fh.write(first_page)
+            grown.append(True)
+        return real_fstat(fd)
+
+    monkeypatch.setattr(db.os, "fstat", fstat_after_the_first_page)
+    assert db.inspect_sqlite_file(store) in ("empty", "present")
+    assert grown

@@ -139,8 +139,12 @@ def inspect_sqlite_file(path: Path) -> str:
         raise faults.not_a_store(path, "it is a folder")
     try:
         with open(path, "rb") as fh:
-            head = fh.read(100)
+            # the size first, then the bytes: a store another process is creating grows between the
+            # two, and its first write is the header page, so a file seen with some size already
+            # shows its header. (Read first, a 0-byte read and then a 16 KiB size looked like a file
+            # that is not SQLite: a new store opened by several processes at once was refused.)
             size = os.fstat(fh.fileno()).st_size
+            head = fh.read(100)
     except (FileNotFoundError, NotADirectoryError):
         return "absent"
     except PermissionError:
