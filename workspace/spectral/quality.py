@@ -29,8 +29,9 @@ _QUALITY_CHUNK_ROWS = 1 << 18
 
 def _dense_labels(labels: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """``numpy.unique(labels, return_inverse=True)`` (sorted distinct values, int64 index of each
-    label among them), by counting instead of sorting when the labels are non-negative integers
-    not much larger than their number (a partition's labels): the same two arrays."""
+    label among them), by counting instead of sorting when the labels are integers not much larger
+    than their number (a partition's labels): the same two arrays. The labels must be non-negative
+    (:func:`quality_measures` checks that first)."""
     if (labels.size and labels.dtype.kind in "iu" and np.can_cast(labels.dtype, np.intp)
             and int(labels.max()) < 4 * labels.size + 1024):
         present = np.bincount(labels.ravel()) > 0
