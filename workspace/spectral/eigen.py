@@ -636,8 +636,11 @@ def largest_eigenpairs(op: SymmetricOperator, m: int, ctx: SolverContext, *,
         Upper bound on the spectral radius (scales the LOBPCG tolerance).
     extra : int, default 0
         Further eigenvalues wanted beyond the ``m`` pairs, for display, the
-        eigengap and the tie test. On the dense path they are exact; on the
-        iterative path they are Ritz values of the deflated operator
+        eigengap and the tie test. On the dense path they are exact. On the
+        cold ARPACK path they are first taken from ARPACK's last Lanczos step
+        at no cost (:func:`_arpack_with_next`), when decisive
+        (:func:`_decisive_ritz`); otherwise, and on the other iterative
+        paths, they are Ritz values of the deflated operator
         :math:`P M P`, :math:`P = I - VV^T` (requires ``M`` positive
         semidefinite, true of every shifted operator here), computed with a
         loose tolerance that is tightened (1e-2, 1e-3, 1e-4, then
@@ -844,8 +847,9 @@ def _iterative(op: SymmetricOperator, m: int, ctx: SolverContext, stage: str,
     start = ctx.matvecs
     X0 = None
     why = ""
+    beyond = None
     try:
-        w, V = eigsh(lin, k=m, which="LA", v0=v0, ncv=ncv, tol=ctx.eig_tol, maxiter=maxiter)
+        w, V, beyond = _arpack_with_next(lin, m, v0, ncv, ctx.eig_tol, maxiter)
         solver = "arpack-eigsh"
     except ArpackNoConvergence as exc:
         why = f"ARPACK did not converge ({len(exc.eigenvalues)} of {m} pairs)"
@@ -878,11 +882,80 @@ def _iterative(op: SymmetricOperator, m: int, ctx: SolverContext, stage: str,
             raise ComputeError(f"eigensolvers failed: {why}; LOBPCG residual {res.max():.2e} "
                                f"is too large (n={n}, {m} eigenpairs)")
     if extra > 0:
-        w = np.concatenate([w, _deflated_values(op, V, w, extra, ctx, stage, rng)])
+        more = _decisive_ritz(beyond, w, extra, ctx) if solver == "arpack-eigsh" else None
+        if more is None:
+            more = _deflated_values(op, V, w, extra, ctx, stage, rng)
+        w = np.concatenate([w, more])
     sol = EigenSolution(w, V, solver, ctx.matvecs - start, [float(r) for r in res])
     _record(ctx, sol)
     ctx.report(stage)
     return sol
+
+
+def _arpack_with_next(lin: LinearOperator, m: int, v0: np.ndarray, ncv: int, tol: float, maxiter: int
+                      ) -> tuple[np.ndarray, np.ndarray, tuple[np.ndarray, np.ndarray] | None]:
+    r"""``eigsh(lin, k=m, which='LA', v0=v0, ncv=ncv, tol=tol, maxiter=maxiter)``, and the Ritz
+    values beyond the ``m`` wanted ones, with their error bounds, from ARPACK's last Lanczos step.
+
+    At convergence ARPACK (``dsaupd``; Lehoucq, Sorensen & Yang 1998, ARPACK Users' Guide, §4.5
+    and the ``ipntr(6)``/``ipntr(7)`` work arrays) holds all ``ncv`` Ritz values :math:`\theta_i`
+    of its last tridiagonal :math:`T` and their Ritz estimates
+    :math:`|\beta\, e_{ncv}^T s_i| = \|M y_i - \theta_i y_i\|` (exact in exact arithmetic;
+    :math:`y_i` the Ritz vector). After the last restart the factorisation was extended by
+    ``ncv - m`` Lanczos steps from the wanted subspace, so the unwanted Ritz values are a
+    Rayleigh–Ritz estimate of the next eigenvalues in the complement, with no further product
+    (:func:`_decisive_ritz` decides whether they are good enough).
+
+    The eigenpairs are those of ``eigsh`` bit for bit: this is its loop for a standard problem
+    (scipy's ``_SymmetricArpackParams``, which ``eigsh`` itself runs). The third result is
+    ``(values, bounds)`` of the unwanted Ritz values, largest first, or None when the private
+    interface is missing or its Ritz values do not reproduce the returned eigenvalues (a changed
+    work-array layout); callers then estimate the next eigenvalues by products.
+    """
+    try:
+        from scipy.sparse.linalg._eigen.arpack.arpack import _SymmetricArpackParams
+    except ImportError:  # pragma: no cover - a scipy without the private class
+        return (*eigsh(lin, k=m, which="LA", v0=v0, ncv=ncv, tol=tol, maxiter=maxiter), None)
+    params = _SymmetricArpackParams(lin.shape[0], m, lin.dtype.char, lin.matvec, 1, None, None, None,
+                                    ncv, v0, maxiter, "LA", tol, np.random.default_rng())
+    while not params.converged:
+        params.iterate()
+    beyond = None
+    try:
+        ipntr, workl = params.ipntr, params.workl
+        ritz = np.array(workl[ipntr[5]:ipntr[5] + ncv], dtype=np.float64)
+        bounds = np.abs(np.array(workl[ipntr[6]:ipntr[6] + ncv], dtype=np.float64))
+    except (AttributeError, IndexError, TypeError):  # pragma: no cover - a changed private layout
+        ritz = bounds = None
+    w, V = params.extract(True)
+    if ritz is not None and ritz.size == ncv and w.size == m:
+        wanted = np.sort(ritz[:m])
+        if np.allclose(wanted, np.sort(w), rtol=1e-10, atol=1e-12 * max(1.0, float(np.max(np.abs(w))))):
+            order = np.argsort(ritz[m:])[::-1]
+            beyond = (ritz[m:][order], bounds[m:][order])
+    return w, V, beyond
+
+
+def _decisive_ritz(beyond: tuple[np.ndarray, np.ndarray] | None, w: np.ndarray, extra: int,
+                   ctx: SolverContext) -> np.ndarray | None:
+    r"""The first ``extra`` unwanted Ritz values of :func:`_arpack_with_next` when decisive, else None.
+
+    Same rule as :func:`_quick_deflated`: each Ritz value has an eigenvalue within its error bound
+    :math:`b` (Kahan's bound; Parlett 1998, The Symmetric Eigenvalue Problem, thm. 4.5.1), and they
+    are kept only when the last wanted value exceeds the largest of them by more than :math:`3 \max b`
+    (no tie at the cut-off). ``ctx.extra_accuracy`` records :math:`\max b`.
+    """
+    if beyond is None:
+        return None
+    theta, bounds = beyond
+    if theta.size < extra:
+        return None
+    theta, bounds = theta[:extra], bounds[:extra]
+    worst = float(bounds.max())
+    if not (np.all(np.isfinite(theta)) and np.isfinite(worst)) or float(w[-1]) - float(theta[0]) <= 3.0 * worst:
+        return None
+    ctx.extra_accuracy = worst
+    return theta.astype(np.float64)
 
 
 def _ordered_with_residuals(op: SymmetricOperator, w, V,
