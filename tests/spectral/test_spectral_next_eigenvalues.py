@@ -116,3 +116,18 @@ def test_undecisive_estimate_falls_back_to_the_deflated_solve(planted_3000, monk
     for r in (quick, slow):
         bound = r.diagnostics["extra_eigenvalue_residual"] or 1e-6
         assert abs(r.eigenvalues[4] - exact[4]) <= bound + 1e-9
+
+
+def test_residuals_column_by_column_match_the_block_form(monkeypatch):
+    M = _operator()
+    op = eigen.SymmetricOperator(M)
+    w, V = np.linalg.eigh(M.toarray())
+    w, V = w[-5:] + 1e-7, V[:, -5:]                     # pairs a little off: non-zero residuals
+    block = eigen._ordered_with_residuals(op, w, V, SolverContext())
+    monkeypatch.setattr(eigen, "COLUMNWISE_MIN_ROWS", 0)
+    columns = eigen._ordered_with_residuals(op, w, V, SolverContext())
+    assert np.array_equal(block[0], columns[0]) and np.array_equal(block[1], columns[1])
+    assert np.allclose(block[2], columns[2], rtol=1e-12, atol=0)
+    # reference: the residual norms from numpy directly
+    direct = np.linalg.norm(M @ columns[1] - columns[1] * columns[0], axis=0)
+    assert np.allclose(columns[2], direct, rtol=1e-9, atol=1e-15)
