@@ -41,6 +41,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -148,6 +149,20 @@ def measure(what: str, graph: str, timeout: float) -> dict:
     return json.loads(out.stdout.strip().splitlines()[-1])
 
 
+def _print_rounds(every: dict[str, list]) -> None:
+    """Ours over the floor round by round (each round runs ours, then the floors, back to back, so
+    a change of the machine's speed between rounds cancels out of the ratio), and their median."""
+    ours = every.get("cutbook-njw", [])
+    for ref in ("floor", "floor-blas1"):
+        pairs = [(o["time_s"] / f["time_s"], o["cpu_s"] / f["cpu_s"]) for o, f in zip(ours, every.get(ref, []))
+                 if "error" not in o and "error" not in f]
+        if not pairs:
+            continue
+        print(f"  ours/{ref} round by round: wall " + " ".join(f"{p[0]:.2f}" for p in pairs)
+              + f" (median {statistics.median(p[0] for p in pairs):.2f}),"
+              f" cpu median {statistics.median(p[1] for p in pairs):.2f}", flush=True)
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.split("\n")[0])
     ap.add_argument("--sizes", default="300000,1000000",
@@ -202,8 +217,10 @@ def main() -> None:
             res = {}
             # ours and the floor alternate, so load changes hit both alike
             order = [w for _ in range(max(1, args.repeat)) for w in whats[:3]] + whats[3:]
+            every: dict[str, list] = {}
             for what in order:
                 r = measure(what, path, args.timeout)
+                every.setdefault(what, []).append(r)
                 best = res.get(what)
                 if best is None or ("error" in best and "error" not in r) or (
                         "error" not in r and "error" not in best and r["time_s"] < best["time_s"]):
@@ -217,6 +234,7 @@ def main() -> None:
                           + (f"   matvecs {r['matvecs']}" if "matvecs" in r else "")
                           + f"   load {os.getloadavg()[0]:.1f}", flush=True)
             rows.append((n, res))
+            _print_rounds(every)
     print("\nsummary")
     print(f"{'n':>9} {'ours s':>8} {'floor s':>8} {'ours/floor':>10} {'cpu o/f':>7} {'o/f-blas1':>9} "
           f"{'cpu o/f1':>8} {'sklearn(best) s':>16} "

@@ -131,3 +131,29 @@ def test_residuals_column_by_column_match_the_block_form(monkeypatch):
     # reference: the residual norms from numpy directly
     direct = np.linalg.norm(M @ columns[1] - columns[1] * columns[0], axis=0)
     assert np.allclose(columns[2], direct, rtol=1e-9, atol=1e-15)
+
+
+def test_ritz_vectors_from_the_basis_match_eigsh(monkeypatch):
+    # reference: scipy.sparse.linalg.eigsh (ARPACK's dseupd) on the same operator and start vector
+    M = _operator()
+    n, m = M.shape[0], 4
+    lin = LinearOperator(M.shape, matvec=lambda x: M @ x, dtype=np.float64)
+    v0 = np.random.default_rng(3).uniform(-1.0, 1.0, n)
+    w_ref, V_ref = eigsh(lin, k=m, which="LA", v0=v0, ncv=20, tol=1e-8, maxiter=10_000)
+    monkeypatch.setattr(eigen, "RITZ_VECTORS_MIN_ROWS", 0)
+    w, V, beyond = eigen._arpack_with_next(lin, m, v0, 20, 1e-8, 10_000)
+    assert beyond is not None
+    assert np.allclose(w, w_ref, rtol=0.0, atol=1e-13)
+    signs = np.sign(np.sum(V * V_ref, axis=0))
+    assert np.allclose(V * signs, V_ref, rtol=0.0, atol=1e-12)
+    assert np.allclose(V.T @ V, np.eye(m), atol=1e-12)
+
+
+@pytest.mark.parametrize("method", ["njw", "shi-malik", "regularized", "bethe"])
+def test_memberships_the_same_with_ritz_vectors_from_the_basis(method, planted_3000, monkeypatch):
+    A = planted_3000
+    before = partition(A, method, k=4)
+    monkeypatch.setattr(eigen, "RITZ_VECTORS_MIN_ROWS", 0)
+    after = partition(A, method, k=4)
+    assert np.array_equal(before.labels, after.labels)
+    assert np.allclose(before.eigenvalues, after.eigenvalues, rtol=0.0, atol=1e-12)
