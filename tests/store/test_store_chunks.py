@@ -207,3 +207,27 @@ def test_large_single_value_decodes_in_place_as_numpy_loads_it():
         back = decode_array(enc.codec, enc.data, enc.raw_size)
         ref = np.load(io.BytesIO(zstandard.ZstdDecompressor().decompress(enc.data, max_output_size=enc.raw_size)))
         assert back.dtype == ref.dtype and np.array_equal(back, ref) and back.flags.writeable
+
+
+def test_several_arrays_at_once_read_as_one_by_one(store, monkeypatch):
+    from workspace.store import repo
+
+    rng = np.random.default_rng(11)
+    small = np.arange(7, dtype=np.int64)
+    large = [rng.integers(0, 1 << 40, 300_000), rng.random(300_000), np.arange(300_000, dtype=np.int32)]
+    with store.write() as s:
+        single = [repo.put_array(s, a) for a in [small, *large]]
+    monkeypatch.setenv("CUTBOOK_BLOB_CHUNK_BYTES", "4096")
+    chunked_arr = rng.random(5000)
+    with store.write() as s:
+        chunked = repo.put_array(s, chunked_arr)
+    assert _count_chunks(store) > 1
+    wanted = [single[1], chunked, single[0], single[2], single[1], single[3]]
+    with store.read() as s:
+        together = repo.get_arrays(s, wanted)
+        one_by_one = [repo.get_array(s, h) for h in wanted]
+        for a, b, h in zip(together, one_by_one, wanted):
+            assert a.dtype == b.dtype and np.array_equal(a, b)
+            assert _by_hand(a) == h                      # the bytes hash to the stored address
+        with pytest.raises(LookupError, match="not in the store"):
+            repo.get_arrays(s, [single[0], "0" * 64])
