@@ -849,7 +849,7 @@ def _iterative(op: SymmetricOperator, m: int, ctx: SolverContext, stage: str,
     why = ""
     beyond = None
     try:
-        w, V, beyond = _arpack_with_next(lin, m, v0, ncv, ctx.eig_tol, maxiter)
+        w, V, beyond = _arpack_with_next(lin, m, v0, ncv, ctx.eig_tol, maxiter, ctx.seed)
         solver = "arpack-eigsh"
     except ArpackNoConvergence as exc:
         why = f"ARPACK did not converge ({len(exc.eigenvalues)} of {m} pairs)"
@@ -892,8 +892,8 @@ def _iterative(op: SymmetricOperator, m: int, ctx: SolverContext, stage: str,
     return sol
 
 
-def _arpack_with_next(lin: LinearOperator, m: int, v0: np.ndarray, ncv: int, tol: float, maxiter: int
-                      ) -> tuple[np.ndarray, np.ndarray, tuple[np.ndarray, np.ndarray] | None]:
+def _arpack_with_next(lin: LinearOperator, m: int, v0: np.ndarray, ncv: int, tol: float, maxiter: int,
+                      seed: int = 0) -> tuple[np.ndarray, np.ndarray, tuple[np.ndarray, np.ndarray] | None]:
     r"""``eigsh(lin, k=m, which='LA', v0=v0, ncv=ncv, tol=tol, maxiter=maxiter)``, and the Ritz
     values beyond the ``m`` wanted ones, with their error bounds, from ARPACK's last Lanczos step.
 
@@ -917,6 +917,11 @@ def _arpack_with_next(lin: LinearOperator, m: int, v0: np.ndarray, ncv: int, tol
     ``eigsh``'s in their last bits (1e-17 at 100k nodes), the values not at all in the cases
     measured; when the values disagree by more than rounding, ``dseupd`` is used after all.
 
+    Should ARPACK ask its caller for a random vector (scipy's ``ido == 4``), ``eigsh`` would draw it
+    from an unseeded generator; here it comes from ``default_rng([seed, 0xA4])``. (scipy 1.17's
+    ARPACK did not ask on an operator with three distinct eigenvalues and four wanted, where the
+    Krylov space becomes invariant: it restarts by itself.)
+
     The third result is ``(values, bounds)`` of the unwanted Ritz values, largest first, or None
     when the private interface is missing or its Ritz values do not reproduce the returned
     eigenvalues (a changed work-array layout); callers then estimate the next eigenvalues by
@@ -927,7 +932,7 @@ def _arpack_with_next(lin: LinearOperator, m: int, v0: np.ndarray, ncv: int, tol
     except ImportError:  # pragma: no cover - a scipy without the private class
         return (*eigsh(lin, k=m, which="LA", v0=v0, ncv=ncv, tol=tol, maxiter=maxiter), None)
     params = _SymmetricArpackParams(lin.shape[0], m, lin.dtype.char, lin.matvec, 1, None, None, None,
-                                    ncv, v0, maxiter, "LA", tol, np.random.default_rng())
+                                    ncv, v0, maxiter, "LA", tol, np.random.default_rng([seed, 0xA4]))
     while not params.converged:
         params.iterate()
     beyond = None
