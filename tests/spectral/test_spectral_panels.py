@@ -222,3 +222,34 @@ def test_a_failure_while_regrouping_leaves_the_matrix_as_it_was(monkeypatch):
     monkeypatch.setattr(eigen, "PANEL_MIN_ROWS", 0)
     A.data.flags.writeable = False
     assert not eigen.panels_apply(A, A.shape[0])
+
+
+def test_products_into_buffers_are_the_allocating_products_bit_for_bit():
+    # the ARPACK loop multiplies into two reused vectors (SymmetricOperator.apply_into); every form
+    # of operator must give the bits of SymmetricOperator.apply (itself checked against networkx)
+    from concurrent.futures import ThreadPoolExecutor
+
+    A, _ = planted_partition(3000, 4, 24.0, 2.0, seed=9)
+    A = sp.csr_array(A, dtype=np.float64)
+    n = A.shape[0]
+    rng = np.random.default_rng(4)
+    x = rng.uniform(-1.0, 1.0, n)
+    d = np.asarray(A.sum(axis=1)).ravel()
+    s = 1.0 / np.sqrt(d)
+    forms = {
+        "scaled rows + identity": dict(S=A, diagonal=1.0, row_scale=s),
+        "diagonal array + scale": dict(S=A, diagonal=rng.uniform(-2, 2, n), scale=0.7),
+        "rank one (modularity)": dict(S=A, diagonal=-d, rank_one=d, rank_one_denominator=float(d.sum())),
+        "no diagonal": dict(S=A, diagonal=0.0),
+    }
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        for name, kw in forms.items():
+            plain = eigen.SymmetricOperator(**kw)
+            variants = [plain, plain.parallel(pool, 2),
+                        plain.with_sparse(eigen._BoundPanels(eigen.PanelMatrix(A.copy(), 8 * 700, 256), pool, 2))]
+            want = plain.apply(x)
+            for op in variants:
+                out, scratch = np.full(n, np.nan), np.full(n, np.nan)
+                got = op.apply_into(x, out, scratch)
+                assert got is out and np.array_equal(got, want), name
+                assert np.array_equal(op.apply_into(x, out, scratch), want), name     # buffers reused
