@@ -263,3 +263,27 @@ def test_assignment_of_a_large_embedding_runs_blas_in_one_thread(monkeypatch):
     assert seen[0] == outside and set(seen[1]) == {1}
     assert blas_threads() == outside
     assert np.array_equal(plain, single)
+
+
+@pytest.mark.parametrize("isolated", [1, 3, 40])
+def test_induced_subgraph_without_isolated_nodes_is_scipys(isolated, monkeypatch):
+    # reference: scipy's own fancy indexing A[nodes][:, nodes]; both renumbering paths of _induced
+    from workspace.spectral import engine
+
+    rng = np.random.default_rng(isolated)
+    n = 500
+    u, v = _random_pairs(rng, n, 3000, loops=0.05)
+    keep = np.ones(n, dtype=bool)
+    keep[rng.choice(n, isolated, replace=False)] = False
+    pairs = keep[u] & keep[v]
+    u, v = u[pairs], v[pairs]
+    A = GraphData(np.array([f"v{i}" for i in range(n)]), u, v, rng.uniform(0.5, 2.0, u.shape[0])).adjacency()
+    nodes = np.flatnonzero(np.diff(A.indptr) > 0)
+    assert n - nodes.shape[0] >= isolated
+    ref = sp.csr_array(A[nodes][:, nodes])
+    ref.sort_indices()
+    for few in (0, 10 ** 6):
+        monkeypatch.setattr(engine, "_FEW_DROPPED", few)
+        sub = engine._induced(A, nodes)
+        assert np.array_equal(sub.indptr, ref.indptr) and np.array_equal(sub.indices, ref.indices)
+        assert np.array_equal(sub.data, ref.data)

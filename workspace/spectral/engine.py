@@ -525,6 +525,10 @@ def _search_of(searched: list, nodes: np.ndarray, n: int, uses_direction: bool) 
     return position[reached]
 
 
+#: Up to this many dropped (isolated) nodes, :func:`_induced` renumbers columns by streaming passes.
+_FEW_DROPPED = 4
+
+
 def _induced(A: sp.csr_array, nodes: np.ndarray) -> sp.csr_array:
     """Induced subgraph ``A[nodes][:, nodes]`` (``nodes`` sorted).
 
@@ -540,10 +544,21 @@ def _induced(A: sp.csr_array, nodes: np.ndarray) -> sp.csr_array:
     row_nnz = np.diff(A.indptr)
     if row_nnz[dropped].any():
         return sp.csr_array(A[nodes][:, nodes])
-    remap = np.full(n, -1, dtype=A.indices.dtype)
-    remap[nodes] = np.arange(nodes.shape[0], dtype=A.indices.dtype)
+    gone = np.flatnonzero(dropped)
+    if gone.shape[0] <= _FEW_DROPPED:
+        # a handful of isolated nodes (a planted graph of mean degree 15 has about one in 1M): a
+        # column index drops by the number of them before it, in streaming passes; the gather
+        # through an n-long table below reads it at random (10M nodes: 3.0-3.5 s)
+        columns = A.indices.copy()
+        for node in gone:
+            columns -= A.indices > node
+    else:
+        remap = np.full(n, -1, dtype=A.indices.dtype)
+        remap[nodes] = np.arange(nodes.shape[0], dtype=A.indices.dtype)
+        columns = remap[A.indices]
+        del remap
     indptr = np.append(A.indptr[nodes], A.indptr[-1]).astype(A.indptr.dtype, copy=False)
-    sub = sp.csr_array((A.data, remap[A.indices], indptr), shape=(nodes.shape[0], nodes.shape[0]))
+    sub = sp.csr_array((A.data, columns, indptr), shape=(nodes.shape[0], nodes.shape[0]))
     sub.has_sorted_indices = A.has_sorted_indices   # renumbering keeps the order
     return sub
 
