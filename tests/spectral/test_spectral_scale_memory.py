@@ -191,10 +191,15 @@ def test_one_blas_thread_rule_leaves_small_solves_alone(monkeypatch):
     assert adjusted_rand_score(truth, after.labels) > 0.9
 
 
-def test_symmetry_test_with_one_vector_finds_every_asymmetry():
-    """The Freivalds-style check (one random vector) against scipy's explicit (A != A.T).nnz."""
+@pytest.mark.parametrize("together", [False, True])
+def test_symmetry_test_with_one_vector_finds_every_asymmetry(together, monkeypatch):
+    """The Freivalds-style check (one random vector) against scipy's explicit (A != A.T).nnz,
+    with its two products one after the other and at once in two threads."""
+    from workspace.spectral import engine
     from workspace.spectral.engine import _is_symmetric
 
+    monkeypatch.setattr(engine, "_SYMMETRY_THREADS_MIN_NNZ", 0 if together else 10 ** 12)
+    monkeypatch.setattr(engine, "available_cpus", lambda: 2)
     rng = np.random.default_rng(11)
     for trial in range(40):
         n = int(rng.integers(3, 300))
