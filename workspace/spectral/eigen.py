@@ -138,8 +138,11 @@ COLUMNWISE_MIN_ROWS = 100_000
 #: product in one / two threads: quiet (load 0.0-0.3) 1M rows 22.6-23.3 / 14.6-14.8 ms, 2M
 #: 41.2-42.7 / 33.3-36.5 ms, 3M 110.7-124.6 / 63.0-73.4 ms; 10M at load 2.4-2.6 659-746 /
 #: 353-643 ms. A whole 1M-node njw run, quiet: 7.8-8.5 s wall with one, 6.3-6.4 s with two (CPU
-#: 7.8-8.4 / 7.9-8.0 s); under load 2 the two took the same wall time as one.
-PARALLEL_AUTO_MIN_ROWS = 500_000
+#: 7.8-8.4 / 7.9-8.0 s); under load 2 the two took the same wall time as one. Since products
+#: go into reused vectors (:meth:`SymmetricOperator.apply_into`) two threads pay from 100k rows
+#: (stored normalised adjacency + identity, load 0.5-1): 100k 1.85-2.41 / 0.93-1.52 ms, 200k
+#: 5.19-5.33 / 3.13-3.56 ms, 300k 7.50-8.87 / 5.28-6.08 ms, 600k 16.0-17.4 / 11.1-12.9 ms.
+PARALLEL_AUTO_MIN_ROWS = 100_000
 
 #: Sparse matrices with fewer stored entries are multiplied in one thread.
 PARALLEL_MIN_NNZ = 200_000

@@ -193,7 +193,7 @@ def _solver() -> tuple[ParamSpec, ...]:
                   help="relative gap below which eigenvalues at the cut-off count as equal"),
         ParamSpec("threads", "int", 0, minimum=0, maximum=256,
                   help="threads for the sparse products (0 = automatic: every available CPU from "
-                       "500k nodes, one below); results do not depend on it"),
+                       "100k nodes, one below); results do not depend on it"),
     )
 
 
