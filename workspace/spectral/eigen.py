@@ -1083,10 +1083,10 @@ def _ordered_with_residuals(op: SymmetricOperator, w, V,
     fix_signs(V)
     if V.shape[0] >= COLUMNWISE_MIN_ROWS:
         res = np.empty(V.shape[1])
-        column = np.empty(V.shape[0])
+        column, r, scratch = np.empty(V.shape[0]), np.empty(V.shape[0]), np.empty(V.shape[0])
         for j in range(V.shape[1]):
             np.copyto(column, V[:, j])
-            r = op.apply(column)
+            op.apply_into(column, r, scratch)
             column *= w[j]
             r -= column
             res[j] = np.sqrt(np.dot(r, r))
