@@ -100,3 +100,18 @@ def test_spectral_package_imports_only_allowed_modules():
                 assert name.split(".")[0] in allowed, (path.name, name)
                 if name.startswith("workspace."):
                     assert name in ("workspace.errors", "workspace.domain"), (path.name, name)
+
+
+def test_argmin_over_rows_is_numpys():
+    # reference: numpy.argmin(D, axis=0) and the minima it points at; ties go to the lowest row
+    from workspace.spectral.assign import _argmin_rows
+
+    rng = np.random.default_rng(21)
+    for c, n in ((1, 5), (2, 1000), (8, 5000), (13, 777)):
+        D = rng.integers(0, 4, (c, n)).astype(np.float64)          # many ties
+        D[:, :3] = 2.0                                               # a column of equal values
+        arg, best = _argmin_rows(D)
+        assert np.array_equal(arg, np.argmin(D, axis=0)) and arg.dtype == np.intp
+        assert np.array_equal(best, D[arg, np.arange(n)])
+        R = rng.standard_normal((c, n))
+        assert np.array_equal(_argmin_rows(R)[0], np.argmin(R, axis=0))
