@@ -231,3 +231,15 @@ def test_several_arrays_at_once_read_as_one_by_one(store, monkeypatch):
             assert _by_hand(a) == h                      # the bytes hash to the stored address
         with pytest.raises(LookupError, match="not in the store"):
             repo.get_arrays(s, [single[0], "0" * 64])
+    # the .npy headers are parsed in the calling thread only (numpy uses ast.literal_eval, and
+    # CPython 3.11's compiler failed when two threads ran it at once)
+    import threading
+
+    parsed_in = []
+    real = repo.array_from_npy
+    monkeypatch.setattr(repo, "array_from_npy", lambda stream: (parsed_in.append(threading.current_thread()),
+                                                                  real(stream))[1])
+    with store.read() as s:
+        again = repo.get_arrays(s, wanted)
+    assert all(np.array_equal(a, b) for a, b in zip(again, one_by_one))
+    assert parsed_in and set(parsed_in) == {threading.current_thread()}

@@ -198,6 +198,16 @@ def decode_values(codec: str, data: bytes, raw_size: int | None = None) -> list:
 
 
 def decode_array(codec: str, data: bytes, raw_size: int | None = None) -> np.ndarray:
+    return array_from_npy(decompress_npy(codec, data, raw_size))
+
+
+def decompress_npy(codec: str, data: bytes, raw_size: int | None = None):
+    """The ``.npy`` stream of a stored array: a uint8 numpy buffer for large arrays, else bytes.
+
+    Safe to run in several threads at once (zstandard releases the interpreter lock), unlike
+    :func:`array_from_npy`: numpy parses the ``.npy`` header with ``ast.literal_eval``, and
+    CPython 3.11's compiler is not thread-safe ("AST constructor recursion depth mismatch").
+    """
     import numpy as np
 
     import zstandard
@@ -205,10 +215,20 @@ def decode_array(codec: str, data: bytes, raw_size: int | None = None) -> np.nda
     if codec != CODEC:
         raise ValueError(f"unknown blob codec {codec!r}")
     if raw_size and raw_size > 1 << 20:
-        # large arrays: the .npy stream decompressed into one numpy buffer and the array viewed
-        # in place after its header (np.load from bytes would copy the values once more)
         buf = np.empty(raw_size, dtype=np.uint8)
         decompress_chunk_into(data, memoryview(buf))
+        return buf
+    return zstandard.ZstdDecompressor().decompress(data, max_output_size=raw_size or 0)
+
+
+def array_from_npy(stream) -> np.ndarray:
+    """The array of a ``.npy`` stream from :func:`decompress_npy` (call it in one thread at a time)."""
+    import numpy as np
+
+    if isinstance(stream, np.ndarray):
+        # large arrays: the array viewed in place after its header (np.load from bytes would
+        # copy the values once more)
+        buf, raw_size = stream, stream.shape[0]
         head = io.BytesIO(buf[:min(raw_size, 1 << 16)].tobytes())
         version = np.lib.format.read_magic(head)
         read_header = (np.lib.format.read_array_header_1_0 if version == (1, 0)
@@ -219,7 +239,7 @@ def decode_array(codec: str, data: bytes, raw_size: int | None = None) -> np.nda
             return buf[start:].view(dtype)
         raw = buf.tobytes()
     else:
-        raw = zstandard.ZstdDecompressor().decompress(data, max_output_size=raw_size or 0)
+        raw = stream
     return np.load(io.BytesIO(raw), allow_pickle=False)
 
 

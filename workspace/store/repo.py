@@ -10,7 +10,8 @@ from sqlalchemy import func, insert, select
 from sqlalchemy.orm import Session
 
 from workspace.domain import BytesReader, GraphData, PackedNodeIds, decode_node_ids
-from workspace.store.blobs import (GRAPH_ARRAYS, EncodedArray, decode_array, decode_values, decompress_chunk_into,
+from workspace.store.blobs import (GRAPH_ARRAYS, EncodedArray, array_from_npy, decode_array, decode_values,
+                                   decompress_chunk_into, decompress_npy,
                                    encode_array, encode_graph_arrays)
 from workspace.store.schema import Blob, BlobChunk, Network, NetworkVersion, Project
 
@@ -100,8 +101,11 @@ def get_arrays(session: Session, blob_hashes: list[str]) -> list[np.ndarray]:
         from concurrent.futures import ThreadPoolExecutor
 
         with ThreadPoolExecutor(max_workers=len(single)) as pool:
-            arrays = list(pool.map(lambda h: decode_array(rows[h].codec, rows[h].data, rows[h].raw_size), single))
-        decoded.update(zip(single, arrays))
+            streams = list(pool.map(lambda h: decompress_npy(rows[h].codec, rows[h].data, rows[h].raw_size),
+                                    single))
+        # the headers in this thread only: numpy parses them with ast.literal_eval, and CPython
+        # 3.11's compiler run in two threads at once failed ("AST constructor recursion depth mismatch")
+        decoded.update((h, array_from_npy(stream)) for h, stream in zip(single, streams))
     else:
         decoded.update((h, decode_array(rows[h].codec, rows[h].data, rows[h].raw_size)) for h in single)
     return [decoded[h] for h in blob_hashes]
