@@ -77,11 +77,8 @@ def _read_chunked(session: Session, blob_hash: str, dtype: str, length: int, n_c
 
 
 def get_array(session: Session, blob_hash: str) -> np.ndarray:
-    row = session.execute(select(Blob.codec, Blob.data, Blob.raw_size, Blob.dtype, Blob.length, Blob.chunks)
-                          .where(Blob.hash == blob_hash)).one()
-    if row.chunks:
-        return _read_chunked(session, blob_hash, row.dtype, row.length, row.chunks)
-    return decode_array(row.codec, row.data, row.raw_size)
+    """One stored array (see :func:`get_arrays`); LookupError when it is not in the store."""
+    return get_arrays(session, [blob_hash])[0]
 
 
 def get_arrays(session: Session, blob_hashes: list[str]) -> list[np.ndarray]:
