@@ -3,7 +3,8 @@
 References: glibc ``mallopt(3)`` (``M_MMAP_MAX``: 0 disables mmap for large requests;
 ``M_TRIM_THRESHOLD``: free memory kept at the top of the heap) and ``getrusage(2)``
 (``ru_minflt``, page faults served without I/O); OpenBLAS's ``OPENBLAS_THREAD_TIMEOUT``
-(documented in its README, read when the library loads). Each check runs in a fresh
+(documented in its README, read when the library loads); mimalloc's ``MIMALLOC_ALLOW_THP``
+(its environment options, read when it loads) and proc(5) ``AnonHugePages``. Each check runs in a fresh
 interpreter so that the test process keeps its own settings.
 """
 
@@ -94,3 +95,45 @@ def test_numpy_loaded_under_the_settings_gives_no_huge_page_advice():
             "with native_library_settings():\n    import numpy\n"
             "from numpy._core.multiarray import _get_madvise_hugepage\nprint(_get_madvise_hugepage())")
     assert _run(code) == "False"
+
+
+# Arrow's mimalloc pool (the pool of large imports) writing a 64 MiB array; the process's
+# anonymous huge pages (``AnonHugePages`` of /proc/self/smaps, proc(5)) before and after
+_ARROW_HUGE = """
+import re, sys
+def huge_kib():
+    return sum(int(x) for x in re.findall(r"AnonHugePages:\\s+(\\d+)", open("/proc/self/smaps").read()))
+if sys.argv[1] == "settings":
+    from workspace.cli.networks import native_library_settings
+    with native_library_settings():
+        import pyarrow
+import numpy as np, pyarrow as pa, pyarrow.compute as pc
+pool = pa.mimalloc_memory_pool()
+before = huge_kib()
+out = pc.add(pa.array(np.arange(8 << 20, dtype=np.int64)), 1, memory_pool=pool)
+print(huge_kib() - before)
+"""
+
+
+def _thp_mode() -> str:
+    try:
+        text = Path("/sys/kernel/mm/transparent_hugepage/enabled").read_text()
+    except OSError:
+        return "never"
+    return text[text.index("[") + 1:text.index("]")]
+
+
+@pytest.mark.skipif(not sys.platform.startswith("linux") or _thp_mode() == "never",
+                    reason="transparent huge pages are Linux's, and off on this kernel")
+def test_arrow_pool_loaded_under_the_settings_takes_no_huge_pages():
+    # mimalloc reads MIMALLOC_ALLOW_THP when it loads (mimalloc's documented options)
+    import pyarrow as pa
+
+    try:
+        pa.mimalloc_memory_pool()
+    except NotImplementedError:
+        pytest.skip("this pyarrow build has no mimalloc pool")
+    control = int(_run(_ARROW_HUGE, "plain"))
+    if control == 0:
+        pytest.skip("the kernel gave mimalloc no huge page even without the setting")
+    assert int(_run(_ARROW_HUGE, "settings")) == 0
