@@ -62,12 +62,20 @@ def test_sweep_screen_plots_the_stored_values(karate_sweep, size):
             assert "▲" in lines[plot.chart_height + 1]
             table = screen.query_one("#sweep-table", DataTable)
             assert table.row_count == len(out["points"])
-            table.focus()
-            await pilot.pause()
+            # a sweep shown: the focus is on its table, not in the id box (keys act on the screen)
+            assert app.focused is table
             await pilot.press("down")
             await pilot.press("enter")
             await pilot.pause()
             assert app.screen.id == "spectrum" and app.current_run == out["points"][1]["run"]
+            # back on the sweep, a screen key switches screens instead of typing into the id box
+            await pilot.press("6")
+            await pilot.pause()
+            assert app.screen.id == "sweep" and app.focused is table
+            await pilot.press("2")
+            await pilot.pause()
+            assert app.screen.id == "launch"
+            assert screen.query_one("#sweep-id").value == str(out["sweep"])
 
     asyncio.run(go())
 

@@ -170,6 +170,16 @@ class SweepScreen(Screen):
                 return
             if rows:
                 self.show_sweep(rows[0]["sweep"])
+        self.on_screen_resume()
+
+    def on_screen_resume(self) -> None:
+        # the focus goes where the next thing to do is: the id box until a sweep is shown, then the
+        # table of measures (so that 1-7, [ ] and enter act on the screen instead of typing digits
+        # into the id box)
+        if self.sweep_id is None:
+            self.query_one("#sweep-id", Input).focus()
+        else:
+            self.query_one("#sweep-table", DataTable).focus()
 
     def action_focus_id(self) -> None:
         self.query_one("#sweep-id", Input).focus()
@@ -182,6 +192,8 @@ class SweepScreen(Screen):
             self.notify("type a sweep id (a whole number)", severity="error")
             return
         self.show_sweep(sweep_id)
+        if self.sweep_id == sweep_id:
+            self.query_one("#sweep-table", DataTable).focus()
 
     def action_step(self, delta: int) -> None:
         if self.sweep_id is not None:
