@@ -56,13 +56,17 @@ def _key_sets() -> dict[str, np.ndarray]:
 
 @pytest.mark.parametrize("name", list(_key_sets()))
 @pytest.mark.parametrize("threads", [1, 2])
-@pytest.mark.parametrize("steps", [(1 << 20, 1 << 22), (1000, 3000), (1, 2)])
+@pytest.mark.parametrize("steps", [(1 << 20, 1 << 22, 2), (1000, 3000, 2), (1000, 3000, 0), (1, 2, 0),
+                                   (1, 2, 1)])
 def test_group_keys_equals_arrows_dictionary_encode(monkeypatch, name, threads, steps):
+    # steps: (records per lookup step, records per sort step at least, growth of the sort steps
+    # with the distinct keys found: 0 keeps them one size)
     key = _key_sets()[name]
     if steps[0] == 1 and key.size > 5000:
         key = key[:5000]  # one key a step: kept short
     monkeypatch.setattr(canonical, "GROUP_STEP_RECORDS", steps[0])
     monkeypatch.setattr(canonical, "GROUP_SORT_RECORDS", steps[1])
+    monkeypatch.setattr(canonical, "GROUP_SORT_GROWTH", steps[2])
     want_codes, want_first = _reference(key)
     if threads == 2:
         with ThreadPoolExecutor(2) as pool:
