@@ -329,8 +329,9 @@ def group_keys(key: np.ndarray, pool=None) -> tuple[np.ndarray, np.ndarray]:
 
     With ``h = key K mod 2**64`` (``K`` of :func:`_fold_key`, odd, so ``h`` is a bijection of the
     key), the distinct ``h`` are sorted (``d``: steps of :data:`GROUP_SORT_RECORDS` keys, or
-    :data:`GROUP_SORT_GROWTH` times as many as ``d`` holds, sorted into it in turn; with two threads and several steps, each takes one half of the range of
-    ``h``) and bucketed by their top ``b`` bits (``2**b >= n``, the number of distinct keys;
+    :data:`GROUP_SORT_GROWTH` times as many as ``d`` holds, sorted into it in turn; with two
+    threads and several steps, each takes one half of the range of ``h``) and bucketed by their
+    top ``b`` bits (``2**b >= n``, the number of distinct keys;
     multiplicative hashing spreads any set of keys over the buckets, Knuth 1998, section 6.4).
     A table of where each bucket begins in ``d`` then finds every key's position in ``d``: at its
     bucket's start or among the next :data:`_GROUP_PROBES` entries; the rare key further on is
