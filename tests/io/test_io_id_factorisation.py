@@ -368,3 +368,25 @@ def test_ids_of_one_length_read_as_words_and_encoded(length):
     dst = [pool[i] for i in rng.integers(0, len(pool), 2000)]
     _check_encoding(src, dst, [], pa.chunked_array([pa.array(src[:900]), pa.array(src[900:])]),
                     pa.array(dst), None)
+
+
+@pytest.mark.parametrize("step", [1, 3, 1 << 20])
+def test_packed_from_words_is_the_utf8_of_the_ids_in_order(monkeypatch, step):
+    # the packed ids made from the key words equal Python's own UTF-8 encoding of the same ids in
+    # the same order (str.encode), whatever the id length (1 to 64 bytes) and the step size
+    import random
+
+    import pyarrow as pa
+
+    from workspace.io import canonical
+
+    monkeypatch.setattr(canonical, "PACK_ROWS", step)
+    rng = random.Random(7)
+    ids = sorted({"".join(rng.choice("ab9-é漢") for _ in range(rng.randint(1, 21))) for _ in range(300)})
+    ids = [x for x in ids if len(x.encode()) <= 64] + ["x" * 64, "y" * 8, "z" * 9, "w"]
+    words = canonical._IdWords(pa.array(ids)).words(8)
+    order = np.array(rng.sample(range(len(ids)), len(ids)))
+    offsets, data = canonical.packed_from_words(words, order)
+    wanted = [ids[i].encode() for i in order]
+    assert offsets.tolist() == np.concatenate([[0], np.cumsum([len(b) for b in wanted])]).tolist()
+    assert data.tobytes() == b"".join(wanted)

@@ -460,9 +460,10 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
     :data:`PARALLEL_ENCODE_MIN_RECORDS` records the parts are handled in two threads, and the
     check runs beside the sort; the results do not depend on it.
 
-    Returns ``(codes, first, order)``: the int32 code of every record (all parts
+    Returns ``(codes, first, order, words)``: the int32 code of every record (all parts
     concatenated; codes number the distinct ids in order of first appearance), the first
-    record of each code (increasing), and ``order`` (the code of each sorted position); or
+    record of each code (increasing), ``order`` (the code of each sorted position) and the
+    distinct ids' words (n, W) in code order; or
     None (no records, an id longer than ``8 * _MAX_KEY_WORDS`` bytes, a NUL byte, or a key
     collision).
 
@@ -506,7 +507,7 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
         if n_words == 1:
             distinct = key[first][:, None]  # the key is the word: no collision possible
             del key
-            return codes, first, _byte_order(distinct)
+            return codes, first, _byte_order(distinct), distinct
         del key
         # the words of the distinct ids, (n, W): the representatives' own, part by part
         distinct = np.empty((n, n_words), dtype=np.uint64)
@@ -532,15 +533,43 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
         if pool is None:
             if not all(same_words(span) for span in spans):
                 return None  # two ids share a key
-            return codes, first, _byte_order(distinct)
+            return codes, first, _byte_order(distinct), distinct
         checks = [pool.submit(same_words, span) for span in spans]
         order = _byte_order(distinct)  # beside the checks
         if not all(check.result() for check in checks):
             return None  # two ids share a key
-        return codes, first, order
+        return codes, first, order, distinct
     finally:
         if pool is not None:
             pool.shutdown(wait=True, cancel_futures=True)
+
+
+#: sorted ids made into bytes per step of :func:`packed_from_words` (bounds its temporaries)
+PACK_ROWS = 1 << 20
+
+
+def packed_from_words(words: np.ndarray, order: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The ids ``words[order]`` packed as ``domain.encode_node_ids`` packs them: (int64 offsets,
+    UTF-8 bytes).
+
+    ``words`` holds ids as :class:`_IdWords` makes them (byte ``j`` of word ``k`` is byte
+    ``8 k + j`` of the id, zeros past its end) for ids without NUL bytes, so each id is its
+    words' bytes before the first zero and its length is the count of its non-zero bytes. Made
+    :data:`PACK_ROWS` ids at a time (``numpy.take`` along axis 0 gathers whole rows).
+    """
+    n = int(order.size)
+    width = 8 * words.shape[1]
+    offsets = np.zeros(n + 1, dtype=np.int64)
+    pieces = []
+    for s in range(0, n, PACK_ROWS):
+        e = min(s + PACK_ROWS, n)
+        rows = np.take(words, order[s:e], axis=0).astype("<u8", copy=False).view(np.uint8).reshape(-1, width)
+        offsets[s + 1:e + 1] = np.count_nonzero(rows, axis=1)
+        pieces.append(rows[rows != 0])
+        del rows
+    np.cumsum(offsets, out=offsets)
+    data = pieces[0] if len(pieces) == 1 else np.concatenate(pieces) if pieces else np.zeros(0, np.uint8)
+    return offsets, data
 
 
 def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.ChunkedArray,
@@ -569,18 +598,13 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     parts = [p.cast(pa.string()) if p.type != pa.string() else p for p in parts]
     m_source, m_target = len(source), len(target)
     by_words = _encode_by_words(parts)
+    packed_ids = None
     if by_words is not None:
-        codes, first, order = by_words
-        # the distinct ids in code order, taken part by part (a take on the chunked column
-        # would first join all its chunks: a copy of every id), then sorted
-        pieces, at = [], 0
-        for part in parts:
-            lo, hi = np.searchsorted(first, [at, at + len(part)])
-            if hi > lo:
-                pieces.append(part.take(pa.array(first[lo:hi] - at)))
-            at += len(part)
-        distinct = pa.concat_arrays(pieces).take(pa.array(order))
-        del pieces
+        codes, first, order, words = by_words
+        # the sorted distinct ids straight from their words (no NUL inside an id: each id is its
+        # words' bytes before the first zero), not gathered from the columns' strings
+        packed_ids = packed_from_words(words, order)
+        del words, by_words
     else:
         dictionary, codes = _dictionary_encode(parts)
         if len(dictionary) and pc.any(pc.match_substring(dictionary, "\x00")).as_py():
@@ -594,8 +618,12 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     rank[order] = np.arange(order.size, dtype=index_type)
     all_codes = rank[codes]
     del codes
-    distinct = _single(distinct)
     u, v = all_codes[:m_source], all_codes[m_source:m_source + m_target]
+    if packed_ids is not None:
+        if not packed:
+            return decode_node_ids(*packed_ids), u, v
+        return None, u, v, packed_ids
+    distinct = _single(distinct)
     if not packed:
         return _string_array_to_numpy(distinct), u, v
     # the packed form (domain.encode_node_ids) straight from the UTF-8 bytes the ids came from
