@@ -577,10 +577,11 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     """Sorted unique ids and indices of ``source`` and ``target`` into them (int32 while the
     ids number fewer than 2**31, else int64). With ``packed``: ``(None, u, v, (offsets,
     data))``, the sorted ids packed as ``domain.encode_node_ids`` packs them (int64 offsets,
-    UTF-8 bytes, from the ids' own Arrow bytes) instead of the str array.
+    UTF-8 bytes: from the ids' key words, :func:`packed_from_words`, or from the Arrow bytes
+    of the distinct ids) instead of the str array.
 
     Each distinct id of the source, target and declared-node columns gets a code (the
-    distinct ids in order of first appearance): for ids of at most 32 UTF-8 bytes
+    distinct ids in order of first appearance): for ids of at most 64 UTF-8 bytes
     through integer keys made of their bytes (:func:`_encode_by_words`, which also sorts
     them), otherwise by Arrow's string hash kernel (``dictionary_encode``), whose distinct
     ids are then sorted by Arrow's ``sort_indices``. Both sort by UTF-8 bytes - for valid
