@@ -460,10 +460,9 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
     :data:`PARALLEL_ENCODE_MIN_RECORDS` records the parts are handled in two threads, and the
     check runs beside the sort; the results do not depend on it.
 
-    Returns ``(codes, first, order, words)``: the int32 code of every record (all parts
-    concatenated; codes number the distinct ids in order of first appearance), the first
-    record of each code (increasing), ``order`` (the code of each sorted position) and the
-    distinct ids' words (n, W) in code order; or
+    Returns ``(codes, order, words)``: the int32 code of every record (all parts
+    concatenated; codes number the distinct ids in order of first appearance), ``order`` (the
+    code of each sorted position) and the distinct ids' words (n, W) in code order; or
     None (no records, an id longer than ``8 * _MAX_KEY_WORDS`` bytes, a NUL byte, or a key
     collision).
 
@@ -507,7 +506,7 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
         if n_words == 1:
             distinct = key[first][:, None]  # the key is the word: no collision possible
             del key
-            return codes, first, _byte_order(distinct), distinct
+            return codes, _byte_order(distinct), distinct
         del key
         # the words of the distinct ids, (n, W): the representatives' own, part by part
         distinct = np.empty((n, n_words), dtype=np.uint64)
@@ -533,12 +532,12 @@ def _encode_by_words(parts: list[pa.Array]) -> tuple[np.ndarray, np.ndarray, np.
         if pool is None:
             if not all(same_words(span) for span in spans):
                 return None  # two ids share a key
-            return codes, first, _byte_order(distinct), distinct
+            return codes, _byte_order(distinct), distinct
         checks = [pool.submit(same_words, span) for span in spans]
         order = _byte_order(distinct)  # beside the checks
         if not all(check.result() for check in checks):
             return None  # two ids share a key
-        return codes, first, order, distinct
+        return codes, order, distinct
     finally:
         if pool is not None:
             pool.shutdown(wait=True, cancel_futures=True)
@@ -601,7 +600,7 @@ def encode_ids(source: pa.Array | pa.ChunkedArray, target: pa.Array | pa.Chunked
     by_words = _encode_by_words(parts)
     packed_ids = None
     if by_words is not None:
-        codes, first, order, words = by_words
+        codes, order, words = by_words
         # the sorted distinct ids straight from their words (no NUL inside an id: each id is its
         # words' bytes before the first zero), not gathered from the columns' strings
         packed_ids = packed_from_words(words, order)
