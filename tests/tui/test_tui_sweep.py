@@ -62,8 +62,10 @@ def test_sweep_screen_plots_the_stored_values(karate_sweep, size):
             assert "▲" in lines[plot.chart_height + 1]
             table = screen.query_one("#sweep-table", DataTable)
             assert table.row_count == len(out["points"])
-            # a sweep shown: the focus is on its table, not in the id box (keys act on the screen)
+            # a sweep shown: the focus is on its table, not in the id box (keys act on the screen),
+            # and the plot above it stays in view (the body is not scrolled to the table)
             assert app.focused is table
+            assert screen.query_one("#sweep-body").scroll_y == 0
             await pilot.press("down")
             await pilot.press("enter")
             await pilot.pause()

@@ -175,11 +175,11 @@ class SweepScreen(Screen):
     def on_screen_resume(self) -> None:
         # the focus goes where the next thing to do is: the id box until a sweep is shown, then the
         # table of measures (so that 1-7, [ ] and enter act on the screen instead of typing digits
-        # into the id box)
+        # into the id box), without scrolling the plot above it out of a small terminal
         if self.sweep_id is None:
             self.query_one("#sweep-id", Input).focus()
         else:
-            self.query_one("#sweep-table", DataTable).focus()
+            self.query_one("#sweep-table", DataTable).focus(scroll_visible=False)
 
     def action_focus_id(self) -> None:
         self.query_one("#sweep-id", Input).focus()
@@ -193,7 +193,7 @@ class SweepScreen(Screen):
             return
         self.show_sweep(sweep_id)
         if self.sweep_id == sweep_id:
-            self.query_one("#sweep-table", DataTable).focus()
+            self.on_screen_resume()
 
     def action_step(self, delta: int) -> None:
         if self.sweep_id is not None:
