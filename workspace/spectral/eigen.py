@@ -29,7 +29,7 @@ from workspace.domain import available_cpus
 from workspace.errors import Cancelled, ComputeError
 
 from .laplacians import degrees, inverse_sqrt_degrees, normalized_adjacency, with_loops_doubled
-from .ordering import permuted_scaled
+from .ordering import median_span, permuted_scaled
 
 __all__ = ["SolverContext", "SymmetricOperator", "EigenSolution", "largest_eigenpairs",
            "laplacian_eigenpairs", "fix_signs", "warm_start_vector", "start_distance"]
@@ -218,12 +218,26 @@ class RowBlockMatrix:
 
 
 #: From this many rows the sparse products of an iterative solve use column panels
-#: (:class:`PanelMatrix`): the product vector (8 bytes a row) no longer fits in the 32 MB last-level
-#: cache, and on a graph without locality every stored entry reads it at a random place. Below it
-#: (every test graph, the demo, 1M and 3M nodes) the products are those of before. Measured on
-#: planted partitions of mean degree 15 (``tests/benchmarks/bench_products.py``, one thread, CPU
-#: per 1M rows, load 1-2): 10M rows 62.8 ms plain, 41.3-42.6 ms in panels; 5M 52.7 / 25.1 ms.
-PANEL_MIN_ROWS = 4_000_000
+#: (:class:`PanelMatrix`): the product vector (8 bytes a row) takes more than one panel of
+#: :data:`PANEL_BYTES` and, on a graph without locality, every stored entry reads it at a random
+#: place in a share of the last-level cache (32 MB, shared with the machine's other tenants). Below
+#: it (every test graph, the demo, 1M nodes) the products are row blocks; the bits are the same
+#: either way. Measured on planted partitions of mean degree 15 (``tests/benchmarks/bench_products.py``,
+#: one thread, CPU per 1M rows, load 1-2): 10M rows 62.8 ms plain, 41.3-42.6 ms in panels; 5M
+#: 52.7 / 25.1 ms. Whole njw runs in process (3M nodes, seed 0, three alternated rounds, load
+#: 0.7-1.4): products 12.8 / 18.4 / 18.4 s in row blocks, 9.2 / 14.7 / 10.1 s in two panels; at 2M
+#: (one panel) 8.7 / 7.4 s against 6.4 / 7.7 s, no clear gain, hence the bound between.
+PANEL_MIN_ROWS = 2_500_000
+
+#: Column panels only for a matrix whose node order has no locality: a median edge span
+#: (:func:`ordering.median_span`) of at least this share of the rows (about 0.29 for random ends).
+#: With locality the plain reads of the vector already stay in the cache and the panels only add
+#: row visits: a 2-D grid stored in row-major order (median span at most its side; the engine
+#: declines a computation order there, as no shorter), one product in two threads (load 0.8),
+#: took 8.8 ms in row blocks and 16.8 ms in two panels at 3M nodes, 27.0 against 63.4 ms in five
+#: panels at 10M. (A matrix put in the computation order is not panelled either: its rows are
+#: not sorted.)
+PANEL_MIN_SPAN = 1 / 8
 
 #: Bytes of the vector one column panel reads (its width is this over 8 bytes, evened out over
 #: the panels): half the 32 MB last-level cache, which the two product threads share. At 10M rows
@@ -413,13 +427,16 @@ class _BoundPanels:
 def panels_apply(S, n: int) -> bool:
     """Whether an iterative solve multiplies ``S`` by column panels (see :data:`PANEL_MIN_ROWS`):
     a CSR matrix of float64 values with the columns of every row sorted (the panelled sums are then
-    the plain product's, bit for bit; an unsorted matrix keeps the plain product and its order)."""
+    the plain product's, bit for bit; an unsorted matrix keeps the plain product and its order)
+    whose node order has no locality (:data:`PANEL_MIN_SPAN`)."""
     if n < PANEL_MIN_ROWS or _csr_matvec is None or not sp.issparse(S) or S.format != "csr":
         return False
     if S.data.dtype != np.float64 or S.indices.dtype not in (np.int32, np.int64) or S.nnz == 0:
         return False
     if not all(a.flags.writeable and a.flags.c_contiguous and a.ndim == 1 for a in (S.data, S.indices)):
         return False                   # regrouped in place: a read-only (e.g. memory-mapped) matrix is left alone
+    if median_span(S) < PANEL_MIN_SPAN * n:
+        return False                   # a node order with locality: the plain reads are cached
     if S.indices.dtype == np.int32:   # the local indptrs share the indices' type
         step = max(1, PANEL_RANGE_ROWS)
         bounds = S.indptr[np.r_[0:n:step, n]].astype(np.int64)

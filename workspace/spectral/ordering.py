@@ -96,6 +96,18 @@ def computation_order(A, *, kind: str = "bfs", min_nodes: int | None = None,
     return order
 
 
+def _sampled_entries(A: sp.csr_array, rows: int) -> tuple[np.ndarray, np.ndarray]:
+    """(row, column) of the stored entries of an evenly spaced sample of at most ``rows`` rows."""
+    n = A.shape[0]
+    pick = np.unique(np.linspace(0, n - 1, min(n, rows)).astype(np.int64))
+    counts = np.diff(A.indptr)[pick]
+    starts = A.indptr[pick]
+    # entry positions of the sampled rows, without a Python loop
+    offsets = np.arange(int(counts.sum())) - np.repeat(np.cumsum(counts) - counts, counts)
+    cols = A.indices[np.repeat(starts, counts) + offsets].astype(np.int64)
+    return np.repeat(pick, counts), cols
+
+
 def span_reduction(A: sp.csr_array, order: np.ndarray, rows: int = 65536) -> float:
     r"""How many times shorter the mean edge span :math:`|i - j|` is in ``order``.
 
@@ -104,20 +116,30 @@ def span_reduction(A: sp.csr_array, order: np.ndarray, rows: int = 65536) -> flo
     returns :math:`\bar s(\mathrm{id}) / \bar s(\pi)` (the mean bandwidth
     measure of Cuthill & McKee 1969, as a ratio). Deterministic.
     """
-    n = A.shape[0]
-    pick = np.unique(np.linspace(0, n - 1, min(n, rows)).astype(np.int64))
-    counts = np.diff(A.indptr)[pick]
-    if counts.sum() == 0:
+    rws, cols = _sampled_entries(A, rows)
+    if cols.size == 0:
         return 1.0
-    starts = A.indptr[pick]
-    # entry positions of the sampled rows, without a Python loop
-    offsets = np.arange(int(counts.sum())) - np.repeat(np.cumsum(counts) - counts, counts)
-    cols = A.indices[np.repeat(starts, counts) + offsets].astype(np.int64)
-    rws = np.repeat(pick, counts)
     inv = inverse_order(order)
     before = float(np.mean(np.abs(rws - cols)))
     after = float(np.mean(np.abs(inv[rws].astype(np.int64) - inv[cols])))
     return before / max(after, 1e-300)
+
+
+def median_span(A: sp.csr_array, rows: int = 65536) -> float:
+    r"""The median edge span :math:`\mathrm{median}_{A_{ij} \ne 0} |i - j|` of ``A`` in its own
+    node order, over the stored entries of an evenly spaced sample of at most ``rows`` rows
+    (0 for a matrix without entries). Deterministic.
+
+    For ends drawn uniformly at random it is about :math:`(1 - 1/\sqrt 2)\, n \approx 0.29\, n`
+    (the median of :math:`|U - V|` for independent uniform :math:`U, V` on :math:`[0, n)`); a node
+    order with locality (a breadth-first order of a grid: about :math:`\sqrt n`) keeps it far
+    smaller. The median, not the mean, so that a minority of long edges does not hide the locality
+    of the rest (the mean is the bandwidth measure of Cuthill & McKee 1969).
+    """
+    rws, cols = _sampled_entries(A, rows)
+    if cols.size == 0:
+        return 0.0
+    return float(np.median(np.abs(rws - cols)))
 
 
 def _search_order(A: sp.csr_array, kind: str) -> np.ndarray | None:
