@@ -14,6 +14,7 @@ from pathlib import Path
 import networkx as nx
 import pytest
 
+from cli_processes import ctrl_c_as_at_a_terminal
 from graphs import adjacency_to_csv
 
 REPO = Path(__file__).resolve().parents[2]
@@ -107,7 +108,7 @@ def _start_run(store: Path) -> subprocess.Popen:
     return subprocess.Popen([sys.executable, "-m", "workspace.cli", "--store", str(store), "run", "p/g",
                              "--method", "njw", "--k", "4", "--repeats", "60", "--json"],
                             stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env,
-                            start_new_session=True)
+                            start_new_session=True, preexec_fn=ctrl_c_as_at_a_terminal)
 
 
 def _wait_running(store: Path, proc: subprocess.Popen, timeout: float = 60) -> None:

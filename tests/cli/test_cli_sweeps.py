@@ -15,6 +15,7 @@ from pathlib import Path
 import networkx as nx
 import pytest
 
+from cli_processes import ctrl_c_as_at_a_terminal
 from graphs import adjacency_to_csv
 
 REPO = Path(__file__).resolve().parents[2]
@@ -127,7 +128,7 @@ def test_ctrl_c_keeps_finished_runs_and_marks_the_sweep_cancelled(tmp_path):
                    capture_output=True)
     proc = subprocess.Popen(base + ["sweep", "p/g", "--method", "njw", "--k", "2..20", "--seeds", "3",
                                     "--set", "n_init=30"], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                            text=True, env=env, start_new_session=True)
+                            text=True, env=env, start_new_session=True, preexec_fn=ctrl_c_as_at_a_terminal)
     deadline = time.monotonic() + 120
     done = 0
     while time.monotonic() < deadline and done < 2:

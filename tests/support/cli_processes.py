@@ -91,3 +91,13 @@ def run_at_once(jobs: list[list[list[str]]], folder: Path, env: dict, *, ready_s
             if p.poll() is None:
                 p.kill()
     return [dict(r, driver_err=err) for rs, err in results for r in rs]
+
+
+def ctrl_c_as_at_a_terminal() -> None:
+    """``preexec_fn`` of a child that a test interrupts with SIGINT, as Ctrl-C at a terminal would:
+    SIGINT back to its default action. A shell starting a job in the background (``cmd &`` in a
+    script) sets SIGINT to ignored, children inherit that, and Python then installs no
+    KeyboardInterrupt handler: the command would rightly ignore the test's Ctrl-C."""
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
