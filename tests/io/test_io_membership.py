@@ -137,3 +137,41 @@ def test_graphml_membership_and_node_table_refusals_name_the_line(name, line, me
             read()
         err = info.value
         assert message in err.message and err.line == line and str(path) in str(err), str(err)
+
+
+@pytest.mark.parametrize("fmt", ["csv", "json", "graphml"])
+def test_packed_ids_read_as_the_decoded_ones(tmp_path, fmt):
+    """``attach`` matches a file against the version's ids as stored (``PackedNodeIds``, UTF-8
+    bytes and offsets, never decoded): the labels must be those of the decoded ids, and those of a
+    plain Python reading of the file (csv module, first-appearance numbering by a loop)."""
+    from workspace.domain import PackedNodeIds, encode_node_ids
+
+    ids = np.array(sorted(list(IDS) + ["x" * 4096, "ü" * 1500]))
+    labels = canonical(np.array([0, 1, 1, -1, 2, 0, 3, 2, 1, -1]))
+    path = tmp_path / f"m.{fmt}"
+    write_membership(path, ids, labels, format=fmt)
+    offsets, data = encode_node_ids(ids)
+    packed = PackedNodeIds(offsets, data)
+    got, info = read_membership(path, packed)
+    want, want_info = read_membership(path, ids)
+    assert np.array_equal(got, want) and info == want_info
+    assert np.array_equal(got, labels)
+    if fmt == "csv":
+        with open(path, newline="", encoding="utf-8") as fh:
+            rows = list(csv.DictReader(fh))
+        by_id = {r["node"]: r["community"] for r in rows}
+        names = [by_id.get(i) for i in ids.tolist()]
+        first: dict[str, int] = {}
+        expect = [-1 if c is None else first.setdefault(c, len(first)) for c in names]
+        assert got.tolist() == expect
+
+
+def test_packed_ids_report_an_unknown_node_at_its_line(tmp_path):
+    from workspace.domain import PackedNodeIds, encode_node_ids
+
+    path = tmp_path / "m.csv"
+    path.write_text("node,community\n7,a\nnot-there,b\n", encoding="utf-8")
+    offsets, data = encode_node_ids(IDS)
+    with pytest.raises(InputError) as err:
+        read_membership(path, PackedNodeIds(offsets, data))
+    assert err.value.line == 3 and "not-there" in str(err.value)

@@ -264,10 +264,12 @@ def version_is_directed(version: NetworkVersion) -> bool:
     return json.loads(version.policy_json or "{}").get("directed") == "keep"
 
 
-def load_graph(session: Session, version: NetworkVersion) -> GraphData:
+def load_graph(session: Session, version: NetworkVersion, *, packed: bool = False) -> GraphData:
+    """A version's graph; ``packed``: its ``node_ids`` as stored (:class:`PackedNodeIds`, for
+    callers that only match or count them), else decoded to a numpy ``str`` array."""
     edge_u, edge_v, weight = get_arrays(session, [version.edge_u_blob, version.edge_v_blob, version.weight_blob])
     return GraphData(
-        node_ids=load_node_ids(session, version),
+        node_ids=load_packed_node_ids(session, version) if packed else load_node_ids(session, version),
         edge_u=edge_u,
         edge_v=edge_v,
         weight=weight,
