@@ -17,6 +17,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
+from workspace.domain import PackedNodeIds
 from workspace.errors import InputError, ParameterError
 from workspace.io._common import (
     check_utf8,
@@ -41,16 +42,14 @@ def _membership_format(path: str, format: str | None) -> str:
 
 def _known_ids(node_ids) -> pa.Array:
     """The network's ids as an Arrow string array: for packed ids (``domain.PackedNodeIds``: UTF-8
-    bytes and offsets) a view of their bytes, with no ``str`` per id (a numpy ``str`` array of 10M
-    40-character ids is 1.6 GB); else converted from the numpy strings."""
-    if hasattr(node_ids, "offsets") and hasattr(node_ids, "open_bytes"):
-        offsets = np.asarray(node_ids.offsets, dtype=np.int64)
-        offsets = offsets - offsets[0]
-        data = pa.py_buffer(np.ascontiguousarray(node_ids.data))
-        n = int(offsets.size) - 1
+    bytes and offsets into them, as ``PackedNodeIds.decode`` reads them) a view of their bytes, with
+    no ``str`` per id (a numpy ``str`` array of 10M 40-character ids is 1.6 GB); else converted from
+    the numpy strings."""
+    if isinstance(node_ids, PackedNodeIds):
+        offsets, data = node_ids.offsets, pa.py_buffer(np.ascontiguousarray(node_ids.data))
         if int(offsets[-1]) < 2 ** 31:
-            return pa.StringArray.from_buffers(n, pa.py_buffer(offsets.astype(np.int32)), data)
-        return pa.LargeStringArray.from_buffers(n, pa.py_buffer(offsets), data)
+            return pa.StringArray.from_buffers(len(node_ids), pa.py_buffer(offsets.astype(np.int32)), data)
+        return pa.LargeStringArray.from_buffers(len(node_ids), pa.py_buffer(offsets), data)
     return pa.array(np.asarray(node_ids, dtype=str), type=pa.string())
 
 
