@@ -9,10 +9,10 @@ by every measurement) is partitioned by
 - ``floor``: bare ``D^-1/2 A D^-1/2`` + ``scipy.sparse.linalg.eigsh(which='LA')``
   (same tolerance and start vector) + row normalisation +
   ``sklearn.cluster.KMeans(n_init=1)`` — the least work an NJW run can do;
-- ``floor-blas1``: the same with ``eigsh`` under ``threadpoolctl.threadpool_limits(1, "blas")``
-  (the BLAS setting cutbook's solver uses from 100k nodes; see
-  ``workspace.spectral.eigen.BLAS_SINGLE_THREAD_MIN_NODES``), so that the gain of that setting
-  is not mistaken for a gain of the engine;
+- ``floor-wait16``: the same with OpenBLAS loaded under ``OPENBLAS_THREAD_TIMEOUT=16`` (the idle
+  wait the ``workspace`` package sets before numpy loads, ``workspace.OPENBLAS_IDLE_WAIT``; see
+  ``workspace.spectral.eigen.SOLVE_BLAS_THREADS``), so that the gain of that setting is not
+  mistaken for a gain of the engine;
 - ``sklearn-<solver>``: ``sklearn.cluster.SpectralClustering(affinity=
   "precomputed")`` with eigen_solver "amg" (needs pyamg) and "lobpcg";
   the faster one is the reference. sklearn's "arpack" path uses
@@ -50,6 +50,7 @@ import time
 K = 8
 DEGREE = 15.0
 SEED = 1
+_START_ENV = dict(os.environ)
 EIG_TOL = 1e-6   # partition()'s default eig_tol, used by the floor too
 
 
@@ -77,10 +78,13 @@ def _reset_peak() -> bool:
 
 
 def worker(what: str, graph: str) -> dict:
+    sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))))
+    if what == "cutbook-njw":
+        import workspace  # noqa: F401  - as the command does: the package loads before numpy
+
     import numpy as np
     import scipy.sparse as sp
 
-    sys.path.insert(0, os.path.dirname(os.path.dirname(os.path.dirname(os.path.abspath(__file__)))))
     z = np.load(graph)
     n = int(z["n"])
     A = sp.csr_array((np.ones(z["indices"].shape[0]), z["indices"], z["indptr"]), shape=(n, n))
@@ -101,12 +105,9 @@ def worker(what: str, graph: str) -> dict:
         labels = r.labels
         extra = {"matvecs": r.diagnostics["matvecs"], "solver": r.diagnostics["solver"],
                  "warnings": r.warnings}
-    elif what in ("floor", "floor-blas1"):
-        from contextlib import nullcontext
-
+    elif what in ("floor", "floor-wait16"):
         from scipy.sparse.linalg import eigsh
         from sklearn.cluster import KMeans
-        from threadpoolctl import threadpool_limits
 
         d = np.asarray(A.sum(axis=1)).ravel()
         s = np.zeros(n)
@@ -114,8 +115,7 @@ def worker(what: str, graph: str) -> dict:
         N = sp.csr_array((A.data * np.repeat(s, np.diff(A.indptr)) * s[A.indices], A.indices,
                           A.indptr), shape=A.shape)
         v0 = np.random.default_rng(0).uniform(-1.0, 1.0, n)
-        with threadpool_limits(1, user_api="blas") if what == "floor-blas1" else nullcontext():
-            _, V = eigsh(N, k=K, which="LA", tol=EIG_TOL, v0=v0)
+        _, V = eigsh(N, k=K, which="LA", tol=EIG_TOL, v0=v0)
         norms = np.linalg.norm(V, axis=1, keepdims=True)
         norms[norms == 0] = 1.0
         V /= norms
@@ -139,8 +139,13 @@ def worker(what: str, graph: str) -> dict:
 
 def measure(what: str, graph: str, timeout: float) -> dict:
     cmd = [sys.executable, os.path.abspath(__file__), "--worker", what, "--graph", graph]
+    # every worker starts from the environment this script was started with (importing workspace here
+    # set OPENBLAS_THREAD_TIMEOUT in this process); ours sets its own when it imports the package
+    env = dict(_START_ENV)
+    if what == "floor-wait16":
+        env["OPENBLAS_THREAD_TIMEOUT"] = "16"
     try:
-        out = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, check=False)
+        out = subprocess.run(cmd, capture_output=True, text=True, timeout=timeout, check=False, env=env)
     except subprocess.TimeoutExpired:
         return {"what": what, "error": f"timeout after {timeout:.0f} s"}
     if out.returncode != 0:
@@ -153,7 +158,7 @@ def _print_rounds(every: dict[str, list]) -> None:
     """Ours over the floor round by round (each round runs ours, then the floors, back to back, so
     a change of the machine's speed between rounds cancels out of the ratio), and their median."""
     ours = every.get("cutbook-njw", [])
-    for ref in ("floor", "floor-blas1"):
+    for ref in ("floor", "floor-wait16"):
         pairs = [(o["time_s"] / f["time_s"], o["cpu_s"] / f["cpu_s"]) for o, f in zip(ours, every.get(ref, []))
                  if "error" not in o and "error" not in f]
         if not pairs:
@@ -209,7 +214,7 @@ def main() -> None:
             print(f"\nn={n}: m={A.nnz // 2} edges, generated in {gen:.2f} s; load {os.getloadavg()}",
                   flush=True)
             del A
-            whats = ["cutbook-njw", "floor", "floor-blas1"]
+            whats = ["cutbook-njw", "floor", "floor-wait16"]
             if n <= args.skip_sklearn_above:
                 whats += [f"sklearn-{s}" for s in sk_solvers]
                 if args.sklearn_arpack:
@@ -236,8 +241,8 @@ def main() -> None:
             rows.append((n, res))
             _print_rounds(every)
     print("\nsummary")
-    print(f"{'n':>9} {'ours s':>8} {'floor s':>8} {'ours/floor':>10} {'cpu o/f':>7} {'o/f-blas1':>9} "
-          f"{'cpu o/f1':>8} {'sklearn(best) s':>16} "
+    print(f"{'n':>9} {'ours s':>8} {'floor s':>8} {'ours/floor':>10} {'cpu o/f':>7} {'o/f-wait16':>10} "
+          f"{'cpu o/f16':>9} {'sklearn(best) s':>16} "
           f"{'sklearn/ours':>12} {'ARI ours':>9} {'ARI sk':>8} {'mem ours/floor':>14}")
     for n, res in rows:
         ours, floor = res.get("cutbook-njw", {}), res.get("floor", {})
@@ -248,9 +253,9 @@ def main() -> None:
             continue
         line = (f"{n:>9} {ours['time_s']:8.2f} {floor['time_s']:8.2f} "
                 f"{ours['time_s'] / floor['time_s']:10.2f} {ours['cpu_s'] / floor['cpu_s']:7.2f} ")
-        f1 = res.get("floor-blas1", {})
-        line += (f"{ours['time_s'] / f1['time_s']:9.2f} {ours['cpu_s'] / f1['cpu_s']:8.2f} " if f1 and "error" not in f1
-                 else f"{'-':>9} {'-':>8} ")
+        f1 = res.get("floor-wait16", {})
+        line += (f"{ours['time_s'] / f1['time_s']:10.2f} {ours['cpu_s'] / f1['cpu_s']:9.2f} " if f1 and "error" not in f1
+                 else f"{'-':>10} {'-':>9} ")
         if skb:
             line += (f"{skb['time_s']:10.2f} ({skb['what'][8:]}) {skb['time_s'] / ours['time_s']:8.2f} "
                      f"{ours['ari']:9.4f} {skb['ari']:8.4f} ")

@@ -127,68 +127,182 @@ def test_default_rule_keeps_test_sized_graphs_on_the_stored_operator():
     assert op.row_scale is None and eigen.SCALED_PRODUCT_MIN_NODES >= 500_000
 
 
-def test_one_blas_thread_rule_is_shared_by_solves_in_several_threads():
-    """Two solves overlapping in threads (a sweep's pool): one BLAS thread until the last one
-    leaves, then the counts from before the first; threadpoolctl reads them from outside."""
-    import threading
+def _blas_view():
+    """``(path, threads)`` of every loaded BLAS library, as threadpoolctl reads them from outside."""
+    import os
 
     from threadpoolctl import threadpool_info
 
-    def blas_threads():
-        return [i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"]
+    return [(os.path.realpath(i["filepath"]), i["num_threads"]) for i in threadpool_info()
+            if i["user_api"] == "blas"]
+
+
+def _solve_count(path: str, outside: int) -> int:
+    """The count the rule of ``eigen.SOLVE_BLAS_THREADS`` gives a library (its docstring)."""
+    import workspace
+
+    two = eigen.SOLVE_BLAS_THREADS
+    return two if (outside >= two and domain.available_cpus() >= two
+                   and workspace.openblas_waits_briefly(path)) else 1
+
+
+def _needs_openblas():
+    from threadpoolctl import threadpool_info
 
     if not any("openblas" in i["internal_api"] for i in threadpool_info()):
         pytest.skip("the setting applies to OpenBLAS only")
-    outside = blas_threads()
-    first_in, second_in, first_out = threading.Event(), threading.Event(), threading.Event()
+
+
+def test_blas_rule_is_shared_by_solves_and_assignments_in_several_threads():
+    """A solve and an assignment overlapping in threads (a sweep's pool): the solve's count holds
+    while any solve is inside, one thread while only assignments are, and the counts from before
+    the first once the last has left; threadpoolctl reads them from outside."""
+    import threading
+
+    _needs_openblas()
+    outside = _blas_view()
+    solving = [_solve_count(path, count) for path, count in outside]
+    n = eigen.BLAS_FIXED_THREADS_MIN_NODES
+    solve_in, assign_in, solve_out = threading.Event(), threading.Event(), threading.Event()
     seen = {}
 
-    def first():
-        with eigen._blas_threads(eigen.BLAS_SINGLE_THREAD_MIN_NODES):
-            first_in.set()
-            second_in.wait(10)
-        first_out.set()
+    def solve():
+        with eigen._blas_threads(n):
+            solve_in.set()
+            assign_in.wait(10)
+            seen["solve and assignment"] = [c for _, c in _blas_view()]
+        solve_out.set()
 
-    def second():
-        first_in.wait(10)
-        with eigen._blas_threads(eigen.BLAS_SINGLE_THREAD_MIN_NODES):
-            second_in.set()
-            first_out.wait(10)
-            seen["after first left"] = blas_threads()   # the first solve has left; this one has not
-        seen["after both left"] = blas_threads()
+    def assign():
+        solve_in.wait(10)
+        with eigen._blas_threads(n, solve=False):
+            assign_in.set()
+            solve_out.wait(10)
+            seen["assignment alone"] = [c for _, c in _blas_view()]
+        seen["both left"] = _blas_view()
 
-    threads = [threading.Thread(target=first), threading.Thread(target=second)]
+    threads = [threading.Thread(target=solve), threading.Thread(target=assign)]
     for t in threads:
         t.start()
     for t in threads:
         t.join(20)
-    assert set(seen["after first left"]) == {1}
-    assert seen["after both left"] == outside
-    assert blas_threads() == outside
+    assert seen["solve and assignment"] == solving
+    assert set(seen["assignment alone"]) == {1}
+    assert seen["both left"] == outside
+    assert _blas_view() == outside
 
 
-def test_one_blas_thread_rule_leaves_small_solves_alone(monkeypatch):
-    from threadpoolctl import threadpool_info
-
-    def blas_threads():         # threadpoolctl (an outside view of the loaded BLAS libraries)
-        return [i["num_threads"] for i in threadpool_info() if i["user_api"] == "blas"]
-
-    outside = blas_threads()
-    with eigen._blas_threads(eigen.BLAS_SINGLE_THREAD_MIN_NODES - 1):
-        assert blas_threads() == outside                          # small solve: left alone
-    with eigen._blas_threads(eigen.BLAS_SINGLE_THREAD_MIN_NODES):
-        if any("openblas" in i["internal_api"] for i in threadpool_info()):
-            assert set(blas_threads()) == {1}
-    assert blas_threads() == outside                              # restored
-    assert eigen.BLAS_SINGLE_THREAD_MIN_NODES >= 100_000          # above every test graph and the demo
+def test_blas_rule_leaves_small_solves_alone(monkeypatch):
+    outside = _blas_view()
+    with eigen._blas_threads(eigen.BLAS_FIXED_THREADS_MIN_NODES - 1):
+        assert _blas_view() == outside                            # small solve: left alone
+    with eigen._blas_threads(eigen.BLAS_FIXED_THREADS_MIN_NODES):
+        if any("openblas" in path for path, _ in outside):
+            assert [c for _, c in _blas_view()] == [_solve_count(p, c) for p, c in outside]
+    assert _blas_view() == outside                                # restored
+    assert eigen.BLAS_FIXED_THREADS_MIN_NODES >= 100_000          # above every test graph and the demo
     A, truth = planted_partition(6000, 4, 24.0, 2.0, seed=5)
     before = partition(A, "njw", k=4, seed=2)
-    monkeypatch.setattr(eigen, "BLAS_SINGLE_THREAD_MIN_NODES", 0)  # one BLAS thread forced
+    monkeypatch.setattr(eigen, "BLAS_FIXED_THREADS_MIN_NODES", 0)  # the fixed count forced
     after = partition(A, "njw", k=4, seed=2)
     assert adjusted_rand_score(before.labels, after.labels) == 1.0
     assert np.allclose(before.eigenvalues, after.eigenvalues, rtol=0, atol=1e-9)
     # the planted groups themselves (Decelle et al. 2011: c_in - c_out well above k sqrt(c))
     assert adjusted_rand_score(truth, after.labels) > 0.9
+
+
+# A fresh interpreter: which OpenBLAS libraries a large solve gives two threads (threadpoolctl's view
+# from inside the solve), for the two import orders a script can have
+_SOLVE_VIEW = """
+import os, sys
+if sys.argv[1] == "numpy first":
+    import numpy
+import workspace.spectral.eigen as eigen
+import numpy as np, scipy.sparse as sp
+from threadpoolctl import threadpool_info
+seen = []
+n = eigen.BLAS_FIXED_THREADS_MIN_NODES
+rng = np.random.default_rng(0)
+A = sp.random_array((n, n), density=3 / n, rng=rng, format="csr")
+A = sp.csr_array(A + A.T)
+solve = eigen._iterative
+def spy(*args, **kwargs):      # inside the solve's BLAS setting
+    seen.extend(sorted((os.path.basename(os.path.dirname(i["filepath"])), i["num_threads"])
+                       for i in threadpool_info() if i["user_api"] == "blas"))
+    return solve(*args, **kwargs)
+eigen._iterative = spy
+eigen.largest_eigenpairs(eigen.SymmetricOperator(A), 3, eigen.SolverContext(seed=0, eig_tol=1e-2))
+print(os.environ.get("OPENBLAS_THREAD_TIMEOUT"), *(f"{name}:{count}" for name, count in seen))
+"""
+
+
+@pytest.mark.skipif(domain.available_cpus() < 2, reason="the second BLAS thread needs two CPUs")
+def test_large_solves_give_blas_two_threads_only_where_its_idle_threads_sleep_at_once():
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    _needs_openblas()
+    root = Path(__file__).resolve().parents[2]
+    env = {k: v for k, v in os.environ.items() if k not in ("OPENBLAS_THREAD_TIMEOUT", "OPENBLAS_NUM_THREADS")}
+
+    def view(order: str, **extra) -> list[str]:
+        return subprocess.run([sys.executable, "-c", _SOLVE_VIEW, order], capture_output=True, text=True,
+                              check=True, env={**env, "PYTHONPATH": str(root), **extra}).stdout.split()
+
+    # (the wheels' libraries, named by the folder each wheel keeps its own in)
+    first = view("workspace first")
+    if len(first) != 3 or not first[1].startswith("numpy.libs:"):
+        pytest.skip("numpy and scipy do not use their wheels' own OpenBLAS here")
+    # workspace first: both wheels' libraries load with the short wait, both get two threads
+    assert first == ["16", "numpy.libs:2", "scipy.libs:2"]
+    # numpy loaded before the package: its library keeps OpenBLAS's long wait and gets one thread;
+    # scipy's loads later, under the short wait
+    assert view("numpy first") == ["16", "numpy.libs:1", "scipy.libs:2"]
+    # a long wait the user chose, or one BLAS thread, is respected
+    assert view("workspace first", OPENBLAS_THREAD_TIMEOUT="28")[1:] == ["numpy.libs:1", "scipy.libs:1"]
+    assert view("workspace first", OPENBLAS_NUM_THREADS="1")[1:] == ["numpy.libs:1", "scipy.libs:1"]
+
+
+# OpenBLAS's idle wait seen from outside: process CPU time while the main thread sleeps 50 ms just
+# after a threaded BLAS call (OpenBLAS README: OPENBLAS_THREAD_TIMEOUT, 2**n cycles of busy-waiting)
+_IDLE_CPU = """
+import sys, time
+if sys.argv[1] == "package":
+    import workspace
+import numpy as np
+a = np.random.default_rng(0).standard_normal((1500, 1500))
+idle = []
+for _ in range(3):
+    a @ a
+    c = time.process_time()
+    time.sleep(0.05)
+    idle.append(time.process_time() - c)
+print(min(idle), max(idle))
+"""
+
+
+@pytest.mark.skipif(domain.available_cpus() < 2, reason="OpenBLAS starts one thread on one CPU")
+def test_package_sets_a_short_idle_wait_before_openblas_loads():
+    import os
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    _needs_openblas()
+    root = Path(__file__).resolve().parents[2]
+    env = {k: v for k, v in os.environ.items() if k not in ("OPENBLAS_THREAD_TIMEOUT", "OPENBLAS_NUM_THREADS")}
+
+    def idle_cpu(how: str) -> list[float]:
+        return [float(x) for x in subprocess.run([sys.executable, "-c", _IDLE_CPU, how], capture_output=True,
+                                                 text=True, check=True,
+                                                 env={**env, "PYTHONPATH": str(root)}).stdout.split()]
+
+    # with the package's setting the second thread sleeps at once: (almost) no CPU while idle
+    assert min(idle_cpu("package")) < 0.01
+    # OpenBLAS's default (about 0.1 s of spinning) burns CPU through most of the 50 ms
+    assert max(idle_cpu("plain")) > 0.02
 
 
 @pytest.mark.parametrize("together", [False, True])
@@ -245,7 +359,7 @@ def test_block_products_one_column_at_a_time_are_the_same_bits(monkeypatch):
 
 
 def test_assignment_of_a_large_embedding_runs_blas_in_one_thread(monkeypatch):
-    """k-means from BLAS_SINGLE_THREAD_MIN_NODES rows runs with one OpenBLAS thread (threadpoolctl's
+    """k-means from BLAS_FIXED_THREADS_MIN_NODES rows runs with one OpenBLAS thread (threadpoolctl's
     view from inside the call), the counts are restored after, and the labels are the same bits as with
     the process setting (each output entry of its products is summed by one thread)."""
     from threadpoolctl import threadpool_info
@@ -263,7 +377,7 @@ def test_assignment_of_a_large_embedding_runs_blas_in_one_thread(monkeypatch):
     monkeypatch.setattr(kway, "kmeans", lambda *a, **kw: (seen.append(blas_threads()), real(*a, **kw))[1])
     outside = blas_threads()
     plain, _ = kway.assign_rows(U, 4, eigen.SolverContext(seed=3))
-    monkeypatch.setattr(eigen, "BLAS_SINGLE_THREAD_MIN_NODES", 1000)
+    monkeypatch.setattr(eigen, "BLAS_FIXED_THREADS_MIN_NODES", 1000)
     single, _ = kway.assign_rows(U, 4, eigen.SolverContext(seed=3))
     assert seen[0] == outside and set(seen[1]) == {1}
     assert blas_threads() == outside

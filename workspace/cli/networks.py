@@ -83,10 +83,8 @@ def keep_freed_memory() -> bool:
 
 #: set while numpy loads for the CLI import (a value the user set wins), removed afterwards
 LOAD_SETTINGS = {
-    # OpenBLAS starts its worker threads when it loads and lets each busy-wait about 2**28 cycles
-    # for work before it sleeps (2**n cycles, n from 4 to 30): a tenth of a second of CPU per
-    # library on an import that does no BLAS work at all
-    "OPENBLAS_THREAD_TIMEOUT": "4",
+    # (OpenBLAS's idle wait, which cost an import that does no BLAS work a tenth of a second of CPU
+    # per library, is set for the whole process when the package loads: workspace.OPENBLAS_IDLE_WAIT)
     # numpy asks for transparent huge pages on large arrays; with the kernel's usual
     # defrag=madvise each first touch may then compact memory and clears 2 MiB at a time: on a
     # busy machine a third of the import's system time, and most of its spread

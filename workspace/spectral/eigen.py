@@ -796,21 +796,29 @@ def largest_eigenpairs(op: SymmetricOperator, m: int, ctx: SolverContext, *,
     return sol
 
 
-#: Iterative solves of operators with at least this many rows run their BLAS calls in one thread.
-#: ARPACK's own work is level-2 BLAS on the n x ncv Lanczos basis (``dgemv``), memory-bound:
-#: OpenBLAS's second thread brought no speed and its waiting burnt CPU. Measured at 1M nodes
-#: (planted partition, k = 8, 124 products, 2-core machine at load 6-7): whole run 17.0 s CPU /
-#: 44.5 s wall with the default two BLAS threads, 10.3 s / 28.3 s with one (seed 1: 16.4 / 30.9
-#: against 10.4 / 14.3) -- the seed-to-seed spread of the CPU share was this waiting. Threads split
-#: the sums of a ``dgemv``, so the thread count changes the last bits: below this size (every test
-#: graph, the demo) the BLAS setting is left as it is and results stay bit for bit.
-BLAS_SINGLE_THREAD_MIN_NODES = 100_000
+#: From this many rows an iterative solve fixes OpenBLAS's thread count (and k-means runs it in one
+#: thread); below it (every test graph, the demo) the BLAS setting is left as it is and results stay
+#: bit for bit those of plain scipy. ARPACK's own work is level-2 BLAS on the n x ncv Lanczos basis
+#: (``dgemv``), memory-bound, between the sparse products the solver computes in its own threads.
+#: Threads split the sums of a ``dgemv``, so the count changes the last bits of the eigenpairs:
+#: fixing it (:data:`SOLVE_BLAS_THREADS`) keeps a solve reproducible to the bit on one machine.
+BLAS_FIXED_THREADS_MIN_NODES = 100_000
+
+#: OpenBLAS threads of a solve from :data:`BLAS_FIXED_THREADS_MIN_NODES` rows, when the library's idle
+#: threads sleep at once (``workspace.OPENBLAS_IDLE_WAIT``, set before it loads), the process may use
+#: two CPUs and the library was given at least two threads; otherwise one. With OpenBLAS's default
+#: idle wait (about 0.1 s of busy-waiting after every call) the second thread spun through every
+#: sparse product: at 1M nodes (planted partition, k = 8, 124 products, 2 cores, load 6-7) 17.0 s
+#: CPU / 44.5 s wall against 10.3 s / 28.3 s with one thread. With the short wait it no longer
+#: competes: 1M nodes, 112 products, five alternated runs each (load 1.0-1.3), ARPACK's own work
+#: 2.8-3.3 s -> 2.0-2.7 s, the whole run median 6.85 -> 5.44 s wall, CPU unchanged (7.4-9.3 s).
+SOLVE_BLAS_THREADS = 2
 
 _openblas: list = []
 
 
 def _openblas_thread_calls() -> list:
-    """``(get, set)`` thread-count functions of every OpenBLAS loaded in this process.
+    """``(path, get, set)``: the thread-count functions of every OpenBLAS loaded in this process.
 
     numpy and scipy wheels each bundle one (``scipy_openblas*`` symbol names); they are found
     among the mapped files of ``/proc/self/maps`` (Linux). Empty elsewhere, or with another BLAS:
@@ -839,45 +847,68 @@ def _openblas_thread_calls() -> list:
                 if get is not None and put is not None:
                     get.restype = ctypes.c_int
                     put.argtypes = [ctypes.c_int]
-                    calls.append((get, put))
+                    calls.append((path, get, put))
     _openblas.append(calls)
     return calls
 
 
 _blas_lock = threading.Lock()
-_blas_holders = [0, []]   # solves inside _blas_threads now, and the thread counts to restore after the last
+# solves and assignments inside _blas_threads now, and the thread counts to restore after the last
+_blas_holders = {"solves": 0, "others": 0, "saved": []}
+
+
+def _blas_count(path: str, saved: int, solving: bool) -> int:
+    """OpenBLAS threads while solves (``solving``) or only assignments hold :class:`_blas_threads`."""
+    import workspace
+
+    if solving and saved >= SOLVE_BLAS_THREADS and available_cpus() >= SOLVE_BLAS_THREADS \
+            and workspace.openblas_waits_briefly(path):
+        return SOLVE_BLAS_THREADS
+    return 1
 
 
 class _blas_threads:
-    """Context manager: OpenBLAS in one thread while an operator of ``n`` rows is solved (see
-    :data:`BLAS_SINGLE_THREAD_MIN_NODES`), the previous counts restored after; nothing below it.
+    """Context manager: OpenBLAS's thread count fixed while an operator of ``n`` rows is solved
+    (:data:`SOLVE_BLAS_THREADS` or one), or one thread while ``n`` rows are assigned
+    (``solve=False``: k-means, whose output entries are each summed by one thread, so its bits do
+    not depend on the count); the previous counts restored after; nothing below
+    :data:`BLAS_FIXED_THREADS_MIN_NODES`.
 
-    The setting is process-wide, so solves running at once in several threads (a sweep's thread
-    pool) share it: the first to enter saves the counts and the last to leave restores them, under a
-    lock (restoring on each exit would hand the other solves two threads mid-solve, and the last exit
-    would leave one thread behind for good).
+    The setting is process-wide, so solves and assignments running at once in several threads (a
+    sweep's thread pool) share it: the first to enter saves the counts and the last to leave
+    restores them, under a lock. While any solve is inside, the solve's count holds (it is the same
+    for every solve, so a solve's bits never depend on what else runs); with only assignments
+    inside, one thread.
     """
 
-    def __init__(self, n: int) -> None:
-        self.calls = _openblas_thread_calls() if n >= BLAS_SINGLE_THREAD_MIN_NODES else []
+    def __init__(self, n: int, solve: bool = True) -> None:
+        self.calls = _openblas_thread_calls() if n >= BLAS_FIXED_THREADS_MIN_NODES else []
+        self.kind = "solves" if solve else "others"
+
+    @staticmethod
+    def _apply(calls) -> None:
+        solving = _blas_holders["solves"] > 0
+        for (path, _, put), saved in zip(calls, _blas_holders["saved"]):
+            put(_blas_count(path, saved, solving))
 
     def __enter__(self) -> "_blas_threads":
         if self.calls:
             with _blas_lock:
-                if _blas_holders[0] == 0:
-                    _blas_holders[1] = [int(get()) for get, _ in self.calls]
-                    for _, put in self.calls:
-                        put(1)
-                _blas_holders[0] += 1
+                if _blas_holders["solves"] + _blas_holders["others"] == 0:
+                    _blas_holders["saved"] = [int(get()) for _, get, _ in self.calls]
+                _blas_holders[self.kind] += 1
+                self._apply(self.calls)
         return self
 
     def __exit__(self, *exc) -> None:
         if self.calls:
             with _blas_lock:
-                _blas_holders[0] -= 1
-                if _blas_holders[0] == 0:
-                    for (_, put), count in zip(self.calls, _blas_holders[1]):
+                _blas_holders[self.kind] -= 1
+                if _blas_holders["solves"] + _blas_holders["others"] == 0:
+                    for (_, _, put), count in zip(self.calls, _blas_holders["saved"]):
                         put(count)
+                else:
+                    self._apply(self.calls)
 
 
 def _to_original_order(V: np.ndarray, order: np.ndarray) -> np.ndarray:
@@ -1034,7 +1065,7 @@ def _arpack_with_next(lin: LinearOperator, m: int, v0: np.ndarray, ncv: int, tol
 
 #: From this many rows the Ritz vectors of a cold ARPACK solve are formed from the Lanczos basis in
 #: one product instead of by ARPACK's ``dseupd`` (see :func:`_arpack_with_next`); the same size as
-#: :data:`BLAS_SINGLE_THREAD_MIN_NODES`, below which (every test graph, the demo) results stay the
+#: :data:`BLAS_FIXED_THREADS_MIN_NODES`, below which (every test graph, the demo) results stay the
 #: bits of ``eigsh``.
 RITZ_VECTORS_MIN_ROWS = 100_000
 

@@ -257,13 +257,16 @@ def assign_rows(U: np.ndarray, k: int, ctx: SolverContext, *, assign: str = "kme
     ctx.report("assign")
     if k == 1:
         return np.zeros(U.shape[0], dtype=np.int64), {}
-    # One BLAS thread from BLAS_SINGLE_THREAD_MIN_NODES rows, as for the eigensolve: the products here
-    # are (k x dim) @ (dim x n) with dim <= a few dozen, each output entry summed by one thread whatever
-    # the thread count (the same bits), and a second OpenBLAS thread only waits. Measured on 2 cores
-    # (load 2.5): k-means at 1M rows, k = 8, 0.95-1.23 s CPU with two BLAS threads, 0.55-0.69 s with
-    # one (same inertia to the last bit); a sweep's 15 k-means at 300k rows on two worker threads 8.4-9.5 s
-    # wall against 2.1-3.2 s, when each worker's BLAS threads competed for the same two cores.
-    with _blas_threads(U.shape[0]):
+    # One BLAS thread from BLAS_FIXED_THREADS_MIN_NODES rows (unless a solve running at the same time holds
+    # its own count): the products here are (k x dim) @ (dim x n) with dim <= a few dozen, each output
+    # entry summed by one thread whatever the thread count (the same bits), and a second OpenBLAS thread
+    # only waits. Measured on 2 cores (load 2.5): k-means at 1M rows, k = 8, 0.95-1.23 s CPU with two
+    # BLAS threads, 0.55-0.69 s with one (same inertia to the last bit); a sweep's 15 k-means at 300k rows
+    # on two worker threads 8.4-9.5 s wall against 2.1-3.2 s, when each worker's BLAS threads competed
+    # for the same two cores. With OpenBLAS's short idle wait (workspace.OPENBLAS_IDLE_WAIT) one k-means
+    # at 1M rows takes the same 0.41 s either way, but six on two worker threads 2.65-3.41 s with two
+    # BLAS threads against 1.62-1.66 s with one.
+    with _blas_threads(U.shape[0], solve=False):
         if assign == "discretize":
             labels, info = discretize(U, k, seed=ctx.seed, max_iter=max_iter)
             if np.unique(labels).shape[0] == k:
