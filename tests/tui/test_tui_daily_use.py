@@ -118,6 +118,13 @@ def test_tui_launch_fits(demo_path, size):
             on_screen(app, screen.query_one("#launch-progress-pane"), min_height=5)
             keys = await footer_keys(app, pilot)
             assert "^r" in keys and "?" in keys or "f1" in keys
+            # every text box of the form is one line, like the rest: a taller, bordered box (the
+            # "sweep k" one was) reads as the focused field while the focus is elsewhere
+            boxes = list(screen.query_one("#launch-form-pane").query(Input))
+            assert {b.id for b in boxes} >= {"pf-k", "launch-seed", "launch-sweep-k", "launch-sweep-on"}
+            tall = [b.id for b in boxes if b.region.height != 1 and b.region.height != 0]
+            assert not tall, f"text boxes taller than one line: {tall}"
+            assert not isinstance(app.focused, Input)     # arriving on Launch types into no box
 
     asyncio.run(go())
 

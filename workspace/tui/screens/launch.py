@@ -69,7 +69,8 @@ class LaunchScreen(Screen):
                     yield Input("1", id="launch-repeats", type="integer", compact=True)
                 with Horizontal(classes="field-row"):
                     yield Label("sweep k", classes="name")
-                    yield Input("", id="launch-sweep-k", placeholder="e.g. 2..10 (ctrl+w; repeats = seeds)")
+                    yield Input("", id="launch-sweep-k", compact=True,
+                                placeholder="e.g. 2..10 (ctrl+w; repeats = seeds)")
                 with Horizontal(classes="field-row"):
                     yield Label("sweep on", classes="name")
                     yield Input("", id="launch-sweep-on", compact=True,
