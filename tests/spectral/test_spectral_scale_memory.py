@@ -146,6 +146,15 @@ def _solve_count(path: str, outside: int) -> int:
                    and workspace.openblas_waits_briefly(path)) else 1
 
 
+def _fresh_blas_environment() -> dict:
+    """This process's environment without the variables OpenBLAS reads for its thread count or idle
+    wait (earlier tests of a session may leave some set, e.g. a Dask nanny's OMP_NUM_THREADS=1)."""
+    import os
+
+    return {k: v for k, v in os.environ.items()
+            if not k.startswith("OPENBLAS_") and k not in ("OMP_NUM_THREADS", "GOTO_NUM_THREADS")}
+
+
 def _needs_openblas():
     from threadpoolctl import threadpool_info
 
@@ -245,7 +254,7 @@ def test_large_solves_give_blas_two_threads_only_where_its_idle_threads_sleep_at
 
     _needs_openblas()
     root = Path(__file__).resolve().parents[2]
-    env = {k: v for k, v in os.environ.items() if k not in ("OPENBLAS_THREAD_TIMEOUT", "OPENBLAS_NUM_THREADS")}
+    env = _fresh_blas_environment()
 
     def view(order: str, **extra) -> list[str]:
         return subprocess.run([sys.executable, "-c", _SOLVE_VIEW, order], capture_output=True, text=True,
@@ -292,7 +301,7 @@ def test_package_sets_a_short_idle_wait_before_openblas_loads():
 
     _needs_openblas()
     root = Path(__file__).resolve().parents[2]
-    env = {k: v for k, v in os.environ.items() if k not in ("OPENBLAS_THREAD_TIMEOUT", "OPENBLAS_NUM_THREADS")}
+    env = _fresh_blas_environment()
 
     def idle_cpu(how: str) -> list[float]:
         return [float(x) for x in subprocess.run([sys.executable, "-c", _IDLE_CPU, how], capture_output=True,
