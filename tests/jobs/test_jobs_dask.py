@@ -264,6 +264,23 @@ def test_local_cluster_workers_keep_adaptive_malloc():
     assert seen == [(None, "1")]
 
 
+def test_local_cluster_leaves_the_client_environment_as_it_was(monkeypatch):
+    # Dask's nanny writes its pre-spawn variables (OMP_NUM_THREADS=1 and the like) into the client's
+    # os.environ before each spawn; the workers keep them, the client process and what it starts
+    # later (the terminal UI's run processes) must not get them
+    from workspace.jobs.executors import DaskCluster
+
+    for name in ("OMP_NUM_THREADS", "MKL_NUM_THREADS", "OPENBLAS_NUM_THREADS", "PYTHONHASHSEED",
+                 "__DASK_PARENT_PID"):
+        monkeypatch.delenv(name, raising=False)
+    before = dict(os.environ)
+    with DaskCluster(ExecutorSpec("dask", workers=1)) as cluster:
+        inside = dict(os.environ)
+        seen = list(cluster.client.run(_trim_and_threads).values())
+    assert inside == before and dict(os.environ) == before
+    assert seen == [(None, "1")]                 # the worker itself still has one BLAS thread
+
+
 # --- a scheduler and two workers as separate processes ------------------------------------------------
 
 @pytest.mark.slow

@@ -76,6 +76,33 @@ def keep_malloc_adaptive() -> None:
         dask.config.set({"distributed.nanny.pre-spawn-environ": env})
 
 
+class _environment_kept:
+    """Context manager: this process's environment as it was on entry, put back on exit and
+    whenever :meth:`restore` is called.
+
+    Dask's nanny runs in the client process of a LocalCluster and writes its pre-spawn variables
+    (``OMP_NUM_THREADS=1``, ``MKL_NUM_THREADS=1``, ``OPENBLAS_NUM_THREADS=1``, ``PYTHONHASHSEED``,
+    ``__DASK_PARENT_PID``) into ``os.environ`` for good before it spawns each worker, so every process
+    started later -- a run the terminal UI launches in a child process, for one -- got one BLAS
+    thread (``workspace.spectral.eigen.SOLVE_BLAS_THREADS``: a slower solve, other last bits).
+    Only variables that changed since entry are put back.
+    """
+
+    def __enter__(self) -> "_environment_kept":
+        self.before = dict(os.environ)
+        return self
+
+    def restore(self) -> None:
+        for name in [k for k in os.environ if k not in self.before]:
+            os.environ.pop(name, None)
+        for name, value in self.before.items():
+            if os.environ.get(name) != value:
+                os.environ[name] = value
+
+    def __exit__(self, *exc) -> None:
+        self.restore()
+
+
 def default_local_workers() -> int:
     """Worker processes of a LocalCluster when not given: the CPUs available, at most 4."""
     from workspace.domain import available_cpus
@@ -154,6 +181,7 @@ class DaskCluster:
         self.client = None
         self.cluster = None
         self._graph_tokens: list[str] = []
+        self._environment: _environment_kept | None = None
 
     def __enter__(self) -> "DaskCluster":
         from workspace.errors import ComputeError
@@ -165,9 +193,11 @@ class DaskCluster:
                                                  set_as_default=False)
             else:
                 keep_malloc_adaptive()
+                self._environment = _environment_kept().__enter__()
                 self.cluster = distributed.LocalCluster(
                     n_workers=self.spec.workers or default_local_workers(), threads_per_worker=1, processes=True,
                     host="127.0.0.1", dashboard_address=None, silence_logs=40)
+                self._environment.restore()      # the workers are spawned: their variables are theirs
                 self.client = distributed.Client(self.cluster, set_as_default=False)
         except (OSError, TimeoutError) as exc:
             self.__exit__(None, None, None)
@@ -193,6 +223,9 @@ class DaskCluster:
                 except Exception:  # noqa: BLE001 - closing must not hide the sweep's own outcome
                     pass
         self.client = self.cluster = None
+        if self._environment is not None:      # a worker the nanny restarted wrote them again
+            self._environment.restore()
+            self._environment = None
 
     def _stop_own_workers(self) -> None:
         """SIGKILL the worker processes of the LocalCluster this object started (never a remote one)."""
