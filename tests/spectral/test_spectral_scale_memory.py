@@ -252,7 +252,6 @@ print(os.environ.get("OPENBLAS_THREAD_TIMEOUT"), *(f"{name}:{count}" for name, c
 
 @pytest.mark.skipif(domain.available_cpus() < 2, reason="the second BLAS thread needs two CPUs")
 def test_large_solves_give_blas_two_threads_only_where_its_idle_threads_sleep_at_once():
-    import os
     import subprocess
     import sys
     from pathlib import Path
@@ -299,7 +298,6 @@ print(min(idle), max(idle))
 
 @pytest.mark.skipif(domain.available_cpus() < 2, reason="OpenBLAS starts one thread on one CPU")
 def test_package_sets_a_short_idle_wait_before_openblas_loads():
-    import os
     import subprocess
     import sys
     from pathlib import Path
