@@ -83,8 +83,9 @@ class _environment_kept:
     Dask's nanny runs in the client process of a LocalCluster and writes its pre-spawn variables
     (``OMP_NUM_THREADS=1``, ``MKL_NUM_THREADS=1``, ``OPENBLAS_NUM_THREADS=1``, ``PYTHONHASHSEED``,
     ``__DASK_PARENT_PID``) into ``os.environ`` for good before it spawns each worker, so every process
-    started later -- a run the terminal UI launches in a child process, for one -- got one BLAS
-    thread (``workspace.spectral.eigen.SOLVE_BLAS_THREADS``: a slower solve, other last bits).
+    the client started later (a script or notebook that sweeps and then starts processes; every
+    interpreter later tests start) got one BLAS thread (``workspace.spectral.eigen.SOLVE_BLAS_THREADS``:
+    a slower solve, other last bits). The terminal UI sweeps in a process of its own, which ends.
     Only variables that changed since entry are put back.
     """
 
