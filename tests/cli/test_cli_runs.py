@@ -177,3 +177,26 @@ def test_show_names_the_run_conductance_as_the_worst_community(cli, karate_csv, 
     line = next(ln for ln in text.splitlines() if "conductance (worst)" in ln)
     value = float(line.split("conductance (worst)")[1].split()[0])
     assert value == pytest.approx(worst, rel=1e-3)
+
+
+def test_show_names_the_blas_threads_a_large_solve_fixed(cli, karate_csv, monkeypatch):
+    """``show`` adds the OpenBLAS thread count to the solver line when the solve fixed one (from
+    ``eigen.BLAS_FIXED_THREADS_MIN_NODES`` rows; lowered here so that the karate club, Zachary 1977
+    as shipped by networkx, takes the path), and the JSON carries it; a small solve shows none."""
+    from threadpoolctl import threadpool_info
+
+    import workspace.spectral.eigen as eigen
+
+    assert cli("import", karate_csv, "--project", "club", "--network", "karate").code == 0
+    small = cli("run", "club/karate", "--method", "njw", "--k", "3", "--set", "dense_threshold=10", "--json").json
+    assert small["diagnostics"]["blas_threads"] is None
+    line = next(ln for ln in cli("show", small["run"]).out.splitlines() if ln.strip().startswith("solver"))
+    assert line.split() == ["solver", "arpack-eigsh"]
+    if not any("openblas" in i["internal_api"] for i in threadpool_info()):
+        pytest.skip("the count is fixed for OpenBLAS only")
+    monkeypatch.setattr(eigen, "BLAS_FIXED_THREADS_MIN_NODES", 0)
+    large = cli("run", "club/karate", "--method", "njw", "--k", "3", "--set", "dense_threshold=10", "--json").json
+    threads = large["diagnostics"]["blas_threads"]
+    assert threads in (1, eigen.SOLVE_BLAS_THREADS)
+    line = next(ln for ln in cli("show", large["run"]).out.splitlines() if ln.strip().startswith("solver"))
+    assert line.split()[1:] == ["arpack-eigsh", f"({threads}", "BLAS", "threads)" if threads > 1 else "thread)"]

@@ -212,8 +212,11 @@ def test_blas_rule_leaves_small_solves_alone(monkeypatch):
     assert eigen.BLAS_FIXED_THREADS_MIN_NODES >= 100_000          # above every test graph and the demo
     A, truth = planted_partition(6000, 4, 24.0, 2.0, seed=5)
     before = partition(A, "njw", k=4, seed=2)
+    assert before.diagnostics["blas_threads"] is None                # the process's setting was used
     monkeypatch.setattr(eigen, "BLAS_FIXED_THREADS_MIN_NODES", 0)  # the fixed count forced
     after = partition(A, "njw", k=4, seed=2)
+    if any("openblas" in path for path, _ in outside):            # the run records the count it fixed
+        assert after.diagnostics["blas_threads"] == max(_solve_count(p, c) for p, c in outside)
     assert adjusted_rand_score(before.labels, after.labels) == 1.0
     assert np.allclose(before.eigenvalues, after.eigenvalues, rtol=0, atol=1e-9)
     # with the count fixed, a solve is reproducible to the bit (OpenBLAS splits a call the same way

@@ -156,7 +156,7 @@ def show_run(args) -> int:
                     ("parameter set", res["param_set"]), ("rerun of", res["rerun_of"]),
                     ("started", res["created"]), ("finished", res["finished"]),
                     ("by", f"{res.get('by') or '-'} on host {res.get('host') or '-'}"),
-                    ("solver", (res["diagnostics"] or {}).get("solver")),
+                    ("solver", _solver_text(res["diagnostics"] or {})),
                     *([("warm start", _warm_text(res))] if _warm_text(res) else []),
                     ("provenance", " ".join(f"{k}={v}" for k, v in res["provenance"].items()))])
         from workspace.cli.notes import print_annotations
@@ -175,6 +175,15 @@ def show_run(args) -> int:
                         + (", …" if c["size"] > len(c["nodes"]) else "")] for c in members["communities"][:30]],
                       right=["community", "size"])
     return 0
+
+
+def _solver_text(diagnostics: dict) -> str | None:
+    """``arpack-eigsh (2 BLAS threads)``: the thread count a large solve fixed, on which the last bits
+    of its eigenpairs depend (not shown when the process's own setting was used)."""
+    solver, threads = diagnostics.get("solver"), diagnostics.get("blas_threads")
+    if solver and threads:
+        return f"{solver} ({threads} BLAS thread{'s' if threads != 1 else ''})"
+    return solver
 
 
 def _warm_text(r: dict) -> str | None:

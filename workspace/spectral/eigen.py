@@ -80,6 +80,7 @@ class SolverContext:
     warnings: list = field(default_factory=list)
     extra_accuracy: float | None = None  # residual bound of quickly estimated eigenvalues beyond k
     warm_start: dict | None = None  # outcome of the last warm-started solve: used, fallback, matvecs
+    blas_threads: int | None = None  # most OpenBLAS threads a solve fixed (None: left as they were)
     _problem_matvecs: int = 0
     _problem_start: float = 0.0
     _last_report: float = 0.0
@@ -786,7 +787,9 @@ def largest_eigenpairs(op: SymmetricOperator, m: int, ctx: SolverContext, *,
     pool = threads > 1 and sp.issparse(op.S) and op.S.nnz >= PARALLEL_MIN_NNZ
     executor = ThreadPoolExecutor(max_workers=threads - 1) if pool else None
     try:
-        with _blas_threads(n), _panelled(op, executor, threads if pool else 1) as run_op:
+        with _blas_threads(n) as blas, _panelled(op, executor, threads if pool else 1) as run_op:
+            if blas.counts:
+                ctx.blas_threads = max(ctx.blas_threads or 0, max(blas.counts))
             sol = _iterative(run_op, m, ctx, stage, bound, extra, start)
     finally:
         if executor is not None:
@@ -884,12 +887,15 @@ class _blas_threads:
     def __init__(self, n: int, solve: bool = True) -> None:
         self.calls = _openblas_thread_calls() if n >= BLAS_FIXED_THREADS_MIN_NODES else []
         self.kind = "solves" if solve else "others"
+        self.counts: list[int] = []     # the counts set on entry, one per library
 
     @staticmethod
-    def _apply(calls) -> None:
+    def _apply(calls) -> list[int]:
         solving = _blas_holders["solves"] > 0
-        for (path, _, put), saved in zip(calls, _blas_holders["saved"]):
-            put(_blas_count(path, saved, solving))
+        counts = [_blas_count(path, saved, solving) for (path, _, _), saved in zip(calls, _blas_holders["saved"])]
+        for (_, _, put), count in zip(calls, counts):
+            put(count)
+        return counts
 
     def __enter__(self) -> "_blas_threads":
         if self.calls:
@@ -897,7 +903,7 @@ class _blas_threads:
                 if _blas_holders["solves"] + _blas_holders["others"] == 0:
                     _blas_holders["saved"] = [int(get()) for _, get, _ in self.calls]
                 _blas_holders[self.kind] += 1
-                self._apply(self.calls)
+                self.counts = self._apply(self.calls)
         return self
 
     def __exit__(self, *exc) -> None:

@@ -477,6 +477,9 @@ def partition(A, method: str, *, k: int | str | None = None, seed: int = 0,
         "eigengap_suggestion": eigengap,
         "directed": bool(directed),
         "k_requested": "auto" if k_req is None else int(k_req),
+        # OpenBLAS threads the solves fixed (eigen.SOLVE_BLAS_THREADS; None below 100k rows, where the
+        # process's setting is used): the last bits of the eigenpairs depend on it
+        "blas_threads": ctx.blas_threads,
     }
     for key, val in diag_extra.items():
         diagnostics[key] = val

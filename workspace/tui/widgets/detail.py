@@ -30,7 +30,7 @@ LABELS = {
     "n_nodes": "nodes", "n_edges": "edges", "normalized_cut": "normalized cut", "ratio_cut": "ratio cut",
     "conductance": "conductance (worst)", "conductance_mean": "conductance (mean)", "min_size": "smallest community",
     "max_size": "largest community", "eigengap_suggestion": "eigengap suggests k", "matvecs": "matrix products",
-    "eigensolves": "eigen solves", "content_hash": "content hash",
+    "eigensolves": "eigen solves", "content_hash": "content hash", "blas_threads": "BLAS threads",
 }
 #: keys whose tiny values are real measurements, never snapped to 0
 _KEEP_TINY = ("resid", "tol", "gain")
