@@ -76,9 +76,9 @@ def keep_malloc_adaptive() -> None:
         dask.config.set({"distributed.nanny.pre-spawn-environ": env})
 
 
-class _environment_kept:
-    """Context manager: this process's environment as it was on entry, put back on exit and
-    whenever :meth:`restore` is called.
+class _EnvironmentSnapshot:
+    """This process's environment as it was when made; :meth:`restore` puts back the variables that
+    changed since (and removes those added).
 
     Dask's nanny runs in the client process of a LocalCluster and writes its pre-spawn variables
     (``OMP_NUM_THREADS=1``, ``MKL_NUM_THREADS=1``, ``OPENBLAS_NUM_THREADS=1``, ``PYTHONHASHSEED``,
@@ -86,12 +86,10 @@ class _environment_kept:
     the client started later (a script or notebook that sweeps and then starts processes; every
     interpreter later tests start) got one BLAS thread (``workspace.spectral.eigen.SOLVE_BLAS_THREADS``:
     a slower solve, other last bits). The terminal UI sweeps in a process of its own, which ends.
-    Only variables that changed since entry are put back.
     """
 
-    def __enter__(self) -> "_environment_kept":
+    def __init__(self) -> None:
         self.before = dict(os.environ)
-        return self
 
     def restore(self) -> None:
         for name in [k for k in os.environ if k not in self.before]:
@@ -99,9 +97,6 @@ class _environment_kept:
         for name, value in self.before.items():
             if os.environ.get(name) != value:
                 os.environ[name] = value
-
-    def __exit__(self, *exc) -> None:
-        self.restore()
 
 
 def default_local_workers() -> int:
@@ -182,7 +177,7 @@ class DaskCluster:
         self.client = None
         self.cluster = None
         self._graph_tokens: list[str] = []
-        self._environment: _environment_kept | None = None
+        self._environment: _EnvironmentSnapshot | None = None
 
     def __enter__(self) -> "DaskCluster":
         from workspace.errors import ComputeError
@@ -194,7 +189,7 @@ class DaskCluster:
                                                  set_as_default=False)
             else:
                 keep_malloc_adaptive()
-                self._environment = _environment_kept().__enter__()
+                self._environment = _EnvironmentSnapshot()
                 self.cluster = distributed.LocalCluster(
                     n_workers=self.spec.workers or default_local_workers(), threads_per_worker=1, processes=True,
                     host="127.0.0.1", dashboard_address=None, silence_logs=40)
