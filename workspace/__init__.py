@@ -26,8 +26,9 @@ OPENBLAS_IDLE_WAIT = 16
 OPENBLAS_SHORT_WAIT_MAX = 16
 
 
-def _loaded_openblas() -> frozenset:
-    """Paths of the OpenBLAS libraries mapped into this process now (Linux; empty elsewhere)."""
+def loaded_openblas() -> frozenset:
+    """Paths of the OpenBLAS libraries mapped into this process now (numpy's and scipy's wheels each
+    bundle one), from ``/proc/self/maps`` (Linux; empty elsewhere)."""
     try:
         with open("/proc/self/maps", encoding="utf-8", errors="replace") as fh:
             return frozenset(line.split()[-1] for line in fh
@@ -46,7 +47,7 @@ def _set_openblas_idle_wait() -> tuple[bool, frozenset]:
     if chosen is None:
         _os.environ[name] = str(OPENBLAS_IDLE_WAIT)
         # numpy loads an OpenBLAS and scipy imports numpy first: without numpy nothing is loaded yet
-        before = _loaded_openblas() if "numpy" in _sys.modules else frozenset()
+        before = loaded_openblas() if "numpy" in _sys.modules else frozenset()
         return True, before
     try:
         wait = int(chosen)

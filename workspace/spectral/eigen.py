@@ -25,6 +25,7 @@ import scipy.linalg as sla
 import scipy.sparse as sp
 from scipy.sparse.linalg import ArpackError, ArpackNoConvergence, LinearOperator, eigsh, lobpcg
 
+import workspace
 from workspace.domain import available_cpus
 from workspace.errors import Cancelled, ComputeError
 
@@ -824,21 +825,15 @@ def _openblas_thread_calls() -> list:
     """``(path, get, set)``: the thread-count functions of every OpenBLAS loaded in this process.
 
     numpy and scipy wheels each bundle one (``scipy_openblas*`` symbol names); they are found
-    among the mapped files of ``/proc/self/maps`` (Linux). Empty elsewhere, or with another BLAS:
-    then nothing is changed.
+    by :func:`workspace.loaded_openblas` (Linux). Empty elsewhere, or with another BLAS: then
+    nothing is changed.
     """
     if _openblas:
         return _openblas[0]
     import ctypes
 
     calls = []
-    try:
-        with open("/proc/self/maps", encoding="utf-8", errors="replace") as fh:
-            paths = sorted({line.split()[-1] for line in fh
-                            if "openblas" in line.lower() and line.split()[-1].startswith("/")})
-    except OSError:
-        paths = []
-    for path in paths:
+    for path in sorted(workspace.loaded_openblas()):
         try:
             lib = ctypes.CDLL(path)
         except OSError:
@@ -862,8 +857,6 @@ _blas_holders = {"solves": 0, "others": 0, "saved": []}
 
 def _blas_count(path: str, saved: int, solving: bool) -> int:
     """OpenBLAS threads while solves (``solving``) or only assignments hold :class:`_blas_threads`."""
-    import workspace
-
     if solving and saved >= SOLVE_BLAS_THREADS and available_cpus() >= SOLVE_BLAS_THREADS \
             and workspace.openblas_waits_briefly(path):
         return SOLVE_BLAS_THREADS
