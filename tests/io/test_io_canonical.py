@@ -202,3 +202,48 @@ def test_stable_order_equals_numpy_stable_argsort(n_nodes, m):
     key = rng.integers(0, n_nodes * n_nodes, m, dtype=np.int64)
     key[rng.integers(0, m, m // 3)] = key[rng.integers(0, m, m // 3)]
     assert np.array_equal(_stable_order(key, n_nodes * n_nodes), np.argsort(key, kind="stable"))
+
+
+@pytest.mark.parametrize("rule", ["max", "sum", "first", "error"])
+@pytest.mark.parametrize("n_nodes, m, repeats", [(1 << 22, 1 << 15, 0), (1 << 22, 1 << 15, 300),
+                                                 (7, 400, 0), (7, 400, 50), (1 << 31, 2000, 40)])
+def test_keys_only_merge_of_uniform_weights_equals_the_stable_merge(rule, n_nodes, m, repeats):
+    # merge_duplicates(keys_only=True) sorts the keys in place when every weight is the same; the
+    # reference is the same function on the stable order (numpy.argsort(kind="stable")
+    # equivalent, test above): equal keys, equal weight bits (0.1: sums of it are inexact)
+    from workspace.io.canonical import merge_duplicates
+
+    rng = np.random.default_rng(m + repeats)
+    key = rng.integers(0, n_nodes * n_nodes, m, dtype=np.int64)
+    if repeats:
+        key[rng.integers(0, m, repeats)] = key[rng.integers(0, m, repeats)]
+    elif np.unique(key).size < m:                      # (7 nodes: 49 keys, repeats anyway)
+        key = np.arange(m, dtype=np.int64)[::-1].copy()
+    weight = np.full(m, 0.1)
+    record = np.arange(m, dtype=np.int64) + 2
+
+    def message(repeat, first, k):
+        return ValueError(f"{repeat} {first} {k}")
+
+    def merged(**kw):
+        try:
+            return merge_duplicates(key.copy(), weight.copy(), record.copy(), rule, message,
+                                    n_nodes * n_nodes, **kw)
+        except ValueError as exc:
+            return str(exc)
+
+    reference, fast = merged(), merged(keys_only=True)
+    if isinstance(reference, str):
+        assert fast == reference                  # the same record named
+        return
+    assert np.array_equal(fast[0], reference[0]) and fast[3] == reference[3]
+    assert fast[1].dtype == reference[1].dtype and fast[1].tobytes() == reference[1].tobytes()
+    assert fast[2] is None
+    # weights that differ take the stable path: the same merge, only the records left out
+    varied = weight * rng.integers(1, 4, m)
+    a = merge_duplicates(key.copy(), varied.copy(), record.copy(), rule, message, n_nodes * n_nodes) \
+        if rule != "error" or not repeats else None
+    if a is not None:
+        b = merge_duplicates(key.copy(), varied.copy(), record.copy(), rule, message, n_nodes * n_nodes,
+                             keys_only=True)
+        assert np.array_equal(a[0], b[0]) and a[1].tobytes() == b[1].tobytes() and a[3] == b[3]

@@ -693,7 +693,7 @@ def _stable_order(key: np.ndarray, key_bound: int) -> np.ndarray:
 
 
 def merge_duplicates(key: np.ndarray, weight: np.ndarray, record: np.ndarray, rule: str,
-                     on_duplicate, key_bound: int = 0
+                     on_duplicate, key_bound: int = 0, *, keys_only: bool = False
                      ) -> tuple[np.ndarray, np.ndarray, np.ndarray, int]:
     """Merge records with equal ``key`` by ``rule``.
 
@@ -704,8 +704,18 @@ def merge_duplicates(key: np.ndarray, weight: np.ndarray, record: np.ndarray, ru
     ascending weight order so the result does not depend on line order;
     ``first`` keeps the earliest record in file order; ``error`` calls
     ``on_duplicate(repeat_record, first_record, key)`` for the earliest repeat.
+
+    ``keys_only``: the caller needs neither the records kept (None is returned for them) nor
+    ``key`` afterwards. When every weight is the same (an unweighted file) the order of the
+    records then does not matter: ``key`` is sorted in place, with no stable permutation to build
+    and apply (see :func:`_uniform_merge`); the results are the same values.
     """
     m = key.size
+    if keys_only and m > 1:
+        merged_result = _uniform_merge(key, weight, rule)
+        if merged_result is not None:
+            return merged_result
+        record = None if rule != "error" else record
     if m > 1 and not np.all(key[1:] >= key[:-1]):
         order = _stable_order(key, key_bound)
         key = key[order]
@@ -736,6 +746,43 @@ def merge_duplicates(key: np.ndarray, weight: np.ndarray, record: np.ndarray, ru
     else:  # pragma: no cover - policy validated before
         raise ValueError(rule)
     return key[starts], merged_weight, None if record is None else record[starts], merged
+
+
+def _uniform_merge(key: np.ndarray, weight: np.ndarray, rule: str):
+    """:func:`merge_duplicates` for records of one common weight, sorting ``key`` in place (a copy
+    under ``"error"``); None, with ``key`` as it was, when the weights differ or when ``rule`` is
+    ``"error"`` and a key repeats (the message names the records, which this path does not follow).
+
+    With every weight equal to ``w`` the merged weights do not depend on which record went where:
+    ``sum`` is ``np.add.reduceat`` over ``w`` repeated, the additions :func:`merge_duplicates` makes
+    on its weights in group order (the same bits), ``max`` and ``first`` are ``w``. One in-place
+    sort of the keys then replaces the stable order by key (:func:`_stable_order`: from about 2.5M
+    nodes at 7.5 edges per node two sorts of packed pairs and two gathers, since key and position
+    no longer fit in 63 bits together) and the gathers of weights and records through it: 75M
+    records of 10M nodes, 18.8 s against 5.7 s for one sort of the keys (2 cores, load 1).
+    """
+    w = weight[0]
+    if not np.all(weight == w):
+        return None
+    m = key.size
+    if not np.all(key[1:] >= key[:-1]):
+        if rule == "error":
+            key = np.sort(key)    # a repeat's message needs the file order: the caller's keys kept
+        else:
+            key.sort()
+    start, starts = _group_starts(key)
+    merged = m - starts.size
+    if merged == 0:
+        return key, weight, None, 0
+    if rule == "error":
+        return None
+    if rule == "sum":
+        merged_weight = np.add.reduceat(np.full(m, w, dtype=weight.dtype), starts)
+    elif rule in ("max", "first"):
+        merged_weight = np.full(starts.size, w, dtype=weight.dtype)
+    else:  # pragma: no cover - policy validated before
+        raise ValueError(rule)
+    return key[starts], merged_weight, None, merged
 
 
 #: formats whose rows carry no direction of their own: under ``directed="keep"`` a row is an arc
@@ -966,7 +1013,7 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
                          f"{int(np.count_nonzero(proper))} edge(s) between two nodes read as two arcs")
         key = u.astype(np.int64) * n + v
         key, weight, record, merged = merge_duplicates(key, weight, record, policy.duplicates,
-                                                       on_duplicate, n * n)
+                                                       on_duplicate, n * n, keys_only=True)
         report_progress(progress, "canonicalise", 2, 4)
         asymmetric = count_asymmetric(key, weight, n)
         notes.append(f"direction kept: {key.size} arc(s), {asymmetric} asymmetric pair(s)")
@@ -1004,7 +1051,7 @@ def canonicalise(rec: EdgeRecords, policy: ImportPolicy,
         del u, v
         try:
             key, weight, record, merged = merge_duplicates(key, weight, record, policy.duplicates,
-                                                           on_duplicate, n * n)
+                                                           on_duplicate, n * n, keys_only=True)
         finally:
             if labels_future is not None:
                 labels = labels_future.result()  # (waits for the thread, also when the merge failed)
