@@ -35,13 +35,16 @@ def _random_pairs(rng, n, m, loops=0.1):
     return pairs[:, 0].astype(np.int64), pairs[:, 1].astype(np.int64)
 
 
+@pytest.mark.parametrize("weights", ["varied", "uniform"])
 @pytest.mark.parametrize("chunk", [1, 7, 1 << 20])
-def test_adjacency_is_networkx_matrix_bit_for_bit(chunk, monkeypatch):
+def test_adjacency_is_networkx_matrix_bit_for_bit(chunk, weights, monkeypatch):
+    # (uniform: every pair of one weight, as an unweighted file stores them, takes the path that
+    # fills the values without moving them; 0.3 is no power of two)
     monkeypatch.setattr(domain, "_EDGE_CHUNK", chunk)
     rng = np.random.default_rng(18)
     for n, m in ((1, 0), (5, 3), (60, 200), (400, 3000)):
         u, v = _random_pairs(rng, n, m)
-        w = rng.uniform(0.1, 10.0, u.shape[0])
+        w = rng.uniform(0.1, 10.0, u.shape[0]) if weights == "varied" else np.full(u.shape[0], 0.3)
         G = nx.Graph()
         G.add_nodes_from(range(n))
         G.add_weighted_edges_from(zip(u.tolist(), v.tolist(), w.tolist()))
