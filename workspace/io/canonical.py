@@ -1141,23 +1141,31 @@ def component_labels(n: int, u: np.ndarray, v: np.ndarray) -> np.ndarray:
     parent = np.arange(n, dtype=index_type)
     a, b = _proper_pairs(u, v, index_type)
     max_jumps = n.bit_length() + 1
-    for _ in range(_COMPONENT_ROUNDS + 4 * n.bit_length()):
-        # (each array is replaced as soon as its successor exists: a few edge-length arrays at a
-        # time, not two generations of them)
-        root_a = parent[a]
-        root_b = parent[b]
-        cross = root_a != root_b
-        if not cross.all():
-            a = a[cross]
-            b = b[cross]
-            root_a = root_a[cross]
-            root_b = root_b[cross]
-        del cross
-        if a.size == 0:
-            return parent
-        low = np.minimum(root_a, root_b)
-        high = np.maximum(root_a, root_b, out=root_b)
-        del root_a
+    for round_ in range(_COMPONENT_ROUNDS + 4 * n.bit_length()):
+        if round_ == 0:
+            # every node its own root and no pair a loop: the roots are the endpoints and every
+            # pair joins two trees (no gather of the whole edge list through ``parent``)
+            if a.size == 0:
+                return parent
+            low = np.minimum(a, b)
+            high = np.maximum(a, b)
+        else:
+            # (each array is replaced as soon as its successor exists: a few edge-length arrays at
+            # a time, not two generations of them)
+            root_a = parent[a]
+            root_b = parent[b]
+            cross = root_a != root_b
+            if not cross.all():
+                a = a[cross]
+                b = b[cross]
+                root_a = root_a[cross]
+                root_b = root_b[cross]
+            del cross
+            if a.size == 0:
+                return parent
+            low = np.minimum(root_a, root_b)
+            high = np.maximum(root_a, root_b, out=root_b)
+            del root_a
         np.minimum.at(parent, high, low)
         del low, high
         for _ in range(max_jumps):
