@@ -175,3 +175,40 @@ def test_packed_ids_report_an_unknown_node_at_its_line(tmp_path):
     with pytest.raises(InputError) as err:
         read_membership(path, PackedNodeIds(offsets, data))
     assert err.value.line == 3 and "not-there" in str(err.value)
+
+
+@pytest.mark.parametrize("packed", [False, True])
+def test_every_node_in_canonical_order_reads_as_the_same_records_shuffled(tmp_path, packed):
+    """A file listing every node in the network's own order (what ``cutbook export`` writes) is
+    read without a lookup; the labels must be those of the same records in another order (read by
+    lookup) and of a plain Python reading (csv module, first-appearance numbering by a loop). A
+    file of n records that is not the node list (one node twice) still takes the lookup and names
+    the repeat's line."""
+    import random
+
+    from workspace.domain import PackedNodeIds, encode_node_ids
+
+    ids = np.array(sorted(list(IDS) + ["x" * 4096, "ü" * 1500]))
+    names = ["north", "south", "north", "east", "south", "west", "east", "north", "west", "south"]
+    rows = list(zip(ids.tolist(), names))
+    known = PackedNodeIds(*encode_node_ids(ids)) if packed else ids
+
+    def write(path, records):
+        with open(path, "w", newline="", encoding="utf-8") as fh:
+            w = csv.writer(fh)
+            w.writerow(["node", "community"])
+            w.writerows(records)
+        return path
+
+    in_order, _ = read_membership(write(tmp_path / "ordered.csv", rows), known)
+    shuffled = rows[:]
+    random.Random(3).shuffle(shuffled)
+    by_lookup, _ = read_membership(write(tmp_path / "shuffled.csv", shuffled), known)
+    first: dict[str, int] = {}
+    expect = [first.setdefault(c, len(first)) for c in names]
+    assert in_order.tolist() == by_lookup.tolist() == expect
+    twice = rows[:]
+    twice[5] = rows[2]
+    with pytest.raises(InputError) as err:
+        read_membership(write(tmp_path / "twice.csv", twice), known)
+    assert err.value.line == 7 and "listed twice (first at line 4)" in str(err.value)

@@ -53,13 +53,9 @@ def _known_ids(node_ids) -> pa.Array:
     return pa.array(np.asarray(node_ids, dtype=str), type=pa.string())
 
 
-def _labels(path: str, node_ids, nodes: pa.Array, communities: pa.Array,
-            locate) -> tuple[np.ndarray, dict]:
-    """Records (node id, community name) -> labels by node index + info."""
-    n = len(node_ids)
-    known = _known_ids(node_ids)
-    if known.type != nodes.type:
-        nodes = nodes.cast(known.type)
+def _node_positions(path: str, known: pa.Array, nodes: pa.Array, locate) -> np.ndarray:
+    """The position of every record's node among the network's ids (``known``); InputError for a
+    node not in the network or listed twice (the earliest such record)."""
     index = pc.index_in(nodes, value_set=known)
     if index.null_count:
         i = int(np.flatnonzero(index.is_null().to_numpy(zero_copy_only=False))[0])
@@ -78,6 +74,23 @@ def _labels(path: str, node_ids, nodes: pa.Array, communities: pa.Array,
             where = f"line {first_line}" if first_line is not None else first_label
             raise InputError(f"node {nodes[i].as_py()!r} is listed twice (first at {where})"
                              + (f" ({label})" if label else ""), path=path, line=line)
+    return index
+
+
+def _labels(path: str, node_ids, nodes: pa.Array, communities: pa.Array,
+            locate) -> tuple[np.ndarray, dict]:
+    """Records (node id, community name) -> labels by node index + info."""
+    n = len(node_ids)
+    known = _known_ids(node_ids)
+    if known.type != nodes.type:
+        nodes = nodes.cast(known.type)
+    if len(nodes) == n and nodes.null_count == 0 and nodes.equals(known):
+        # every node of the network, in its canonical order (a membership exported by cutbook,
+        # read back): record i is node i, with no lookup and no duplicate to look for (10M
+        # 40-character ids: Arrow's hash set of the ids and the duplicate check's sort skipped)
+        index = np.arange(n, dtype=np.int64)
+    else:
+        index = _node_positions(path, known, nodes, locate)
     lengths = pc.binary_length(communities)
     if len(communities) and pc.min(lengths).as_py() == 0:
         i = pc.index(lengths, 0).as_py()
