@@ -294,7 +294,7 @@ def main() -> None:
                         r = step(store, "run", "bench/g", "--method", "njw", "--k", str(K), "--seed", seed,
                                  "--json")
                         print(f"  n={n:,} ids of {length} chars, {name}: {r['wall']:.2f} s", flush=True)
-                        if r["wall"] < res[name]["wall"]:
+                        if name not in res or r["wall"] < res[name]["wall"]:   # (reused stores: no first round)
                             res[name] = r
             for (n, length), (store, _, res) in prepared.items():
                 print(f"n={n:,} ids of {length} chars:")
