@@ -210,6 +210,32 @@ def test_tui_spectrum_lists_a_communitys_members(demo_path, size):
 
 
 @pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
+def test_tui_diff_counts_of_million_node_communities_are_shown_whole(demo_path, size):
+    """Matched communities of a 10M-node network hold 1.25M nodes each: the overlap and size cells
+    show every digit (they were cut to ``12499…``), and all six columns still fit."""
+    from workspace.tui.widgets.paged_table import PagedTable
+
+    async def go():
+        async with workspace(demo_path, size) as (app, pilot):
+            screen = await open_diff_of_may_and_june(app, pilot)
+            big = dict(screen.result)
+            big["matches"] = [dict(m, overlap=1_249_902 + i, size_a=1_250_144 + i, size_b=1_250_035 + i)
+                              for i, m in enumerate(screen.result["matches"])]
+            screen.show_result(big)
+            await settle(app, pilot)
+            matches = screen.query_one("#diff-matches", PagedTable)
+            matches.scroll_visible(animate=False, top=True)
+            await pilot.pause()
+            assert matches.shown_columns() == ["A", "B", "overlap", "Jaccard", "size A", "size B"]
+            first = matches.row_at(int(matches.scroll_y))
+            line = "".join(seg.text for seg in matches.render_line(1))
+            assert "…" not in line
+            assert all(str(first[key]) in line for key in ("overlap", "size_a", "size_b"))
+
+    asyncio.run(go())
+
+
+@pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
 def test_tui_diff_fits(demo_path, size):
     """Diff: matches with all columns, events, moved nodes and contingency each usable (stacked at 80)."""
     from textual.widgets import Input

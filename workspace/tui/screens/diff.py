@@ -24,6 +24,17 @@ MATCH_COLUMNS = [
     Column("jaccard", "Jaccard", 7, "right", format=lambda v, r: "—" if v is None else f"{v:.3f}"),
     Column("size_a", "size A", 6, "right", drop=2), Column("size_b", "size B", 6, "right", drop=1),
 ]
+
+
+def match_columns(rows: list[dict[str, Any]]) -> list[Column]:
+    """The matched-community columns, each count column as wide as its largest value: a community
+    of 1.25M nodes is seven digits, which the default six-cell size columns cut to ``12499…``."""
+    counts = ("a", "b", "overlap", "size_a", "size_b")
+    widest = {key: max([len(str(r[key])) for r in rows if r.get(key) is not None], default=0) for key in counts}
+    return [dataclasses.replace(c, width=max(c.width, widest[c.key])) if c.key in widest else c
+            for c in MATCH_COLUMNS]
+
+
 MOVED_COLUMNS = [
     Column("node", "node", 0),
     Column("from", "from (A)", 9, "right", format=lambda v, r: "—" if v is None else str(v)),
@@ -322,7 +333,9 @@ class DiffScreen(Screen):
         for note in d.get("notes") or []:
             t.append(f"\n{note}\n", style=MUTED)
         self.query_one("#diff-scores", Static).update(t)
-        self.query_one("#diff-matches", PagedTable).set_source(ListSource(d.get("matches") or []))
+        matches = self.query_one("#diff-matches", PagedTable)
+        matches.columns = match_columns(d.get("matches") or [])
+        matches.set_source(ListSource(d.get("matches") or []))
         events = d.get("events") or []
         ev_text = Text()
         if not events:
