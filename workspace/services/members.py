@@ -126,7 +126,9 @@ def compare_matrix(store: Store, run_ids: list[int], *, nodes: str = "common",
         raise UsageError("a comparison matrix needs at least two different runs")
     if len(ids) > MAX_MATRIX_RUNS:
         raise UsageError(f"a comparison matrix takes at most {MAX_MATRIX_RUNS} runs, got {len(ids)}")
-    loaded = [runs_service.load_membership(store, r) for r in ids]
+    # one read; a version's ids loaded once and shared, packed when every run is of one version
+    # (10M nodes, three runs: each decoded to numpy strings before, 12.2 s and 5.5 GB)
+    loaded = runs_service.load_memberships(store, ids)
     m = len(ids)
     ari = [[1.0 if i == j else None for j in range(m)] for i in range(m)]
     nmi = [[1.0 if i == j else None for j in range(m)] for i in range(m)]

@@ -657,6 +657,34 @@ def load_membership(store: Store, run_id: int, *, packed: bool = False) -> tuple
         return node_ids, labels, _run_row_dict(run, p, n, v)
 
 
+def load_memberships(store: Store, run_ids: list[int]) -> list[tuple[Any, Any, dict[str, Any]]]:
+    """(node_ids, labels int64, run summary) per run, in one read; the node ids of a version are
+    loaded once and shared (the same object lets the alignment take its fast path). Used by
+    ``diff``, ``compare`` and tracked updates.
+
+    Runs all of one version get its ids packed as stored (:class:`workspace.domain.PackedNodeIds`):
+    the comparison then decodes only the ids it lists (moved nodes). Runs of several versions get
+    each version's ids decoded once (their alignment compares the strings)."""
+    import numpy as np
+
+    from workspace.store import repo
+
+    rows = []
+    ids_of: dict[int, Any] = {}
+    with store.read() as s:
+        for rid in run_ids:
+            run, p, n, v = _get_run(s, rid)
+            if run.membership_blob is None:
+                raise NotFoundError(f"run {rid} has no membership (status {run.status})")
+            if run.version_id not in ids_of:
+                ids_of[run.version_id] = repo.load_packed_node_ids(s, s.get(NetworkVersion, run.version_id))
+            labels = repo.get_array(s, run.membership_blob).astype(np.int64)
+            rows.append((run.version_id, labels, _run_row_dict(run, p, n, v)))
+    if len(ids_of) > 1:
+        ids_of = {vid: repo.decode_node_ids(ids.offsets, ids.data) for vid, ids in ids_of.items()}
+    return [(ids_of[vid], labels, summary) for vid, labels, summary in rows]
+
+
 def show_run(store: Store, run_id: int, *, include_labels: bool = False) -> dict[str, Any]:
     """Everything recorded on a run."""
     with store.read() as s:
