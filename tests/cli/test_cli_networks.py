@@ -58,6 +58,15 @@ def test_listing_commands_and_changes(cli, tmp_path):
     assert (ch["nodes_added"], ch["nodes_removed"], ch["edges_added"], ch["edges_removed"],
             ch["weights_changed"]) == (1, 0, 1, 1, 1)
     assert cli("show", "p/n@1", "--json").json["changes_from_parent"] is None
+    # equal content (a version against itself; the first file imported again as version 3): the
+    # same answer as structural_changes of one graph against itself, every count 0
+    assert cli("import", a, "--project", "p", "--network", "n", "--weight", "w").code == 0
+    for ref in ("p/n@1", "p/n@3"):
+        same = cli("changes", "p/n@1", ref, "--json").json
+        assert [same[k] for k in ("nodes_added", "nodes_removed", "edges_added", "edges_removed",
+                                  "weights_changed")] == [0, 0, 0, 0, 0]
+        assert same["listings"]["edges_added"] == [] and same["truncated"] is False
+    assert cli("changes", "p/n@3", "p/n@2", "--json").json["edges_added"] == 1
 
 
 def test_not_found_and_usage_exit_codes(cli):

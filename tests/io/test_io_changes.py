@@ -42,6 +42,10 @@ def test_hand_constructed_pair():
     same = structural_changes(old, old)
     assert all(same[k] == 0 for k in ("nodes_added", "nodes_removed", "edges_added",
                                       "edges_removed", "weights_changed"))
+    # what the service answers without loading two versions of equal content hash
+    from workspace.io.changes import no_changes
+
+    assert no_changes() == same
 
 
 def test_random_pair_matches_set_algebra():
@@ -72,3 +76,47 @@ def test_random_pair_matches_set_algebra():
     assert changes["listings"]["weights_changed"] == [[a, b, e_old[(a, b)], e_new[(a, b)]]
                                                       for a, b in changed]
     assert changes["weights_changed"] == len(changed) > 0
+
+
+def _packed(graph: GraphData) -> GraphData:
+    from workspace.domain import PackedNodeIds, encode_node_ids
+
+    return GraphData(PackedNodeIds(*encode_node_ids(graph.node_ids)), graph.edge_u, graph.edge_v, graph.weight)
+
+
+def test_packed_ids_and_same_node_sets_match_python_set_algebra():
+    # ids as stored (PackedNodeIds: never decoded but for the listed ones) on either side, and two
+    # versions of the same node set (only weights and edges changed): the listings are those of
+    # Python set algebra, sorted by code point (non-ASCII and 4096-byte ids among them)
+    rng = np.random.default_rng(11)
+    names = [f"n{i}" for i in range(60)] + ["Ärger", "日本", "ü" * 3, "x" * 4096, "z"]
+
+    def random_edges(m):
+        out = {}
+        while len(out) < m:
+            a, b = rng.choice(len(names), 2, replace=False)
+            out[tuple(sorted((names[a], names[b])))] = float(rng.integers(1, 4))
+        return out
+
+    e_old = random_edges(400)
+    e_new = dict(list(e_old.items())[:300])
+    e_new.update(random_edges(80))
+    for key in list(e_new)[:40]:
+        e_new[key] += 1.0
+    every = set(names)
+    for extra_old, extra_new in (((), ()), (("only-old",), ("only-new", "ä-new"))):
+        old = graph_from(e_old, extra_nodes=list(every) + list(extra_old))
+        new = graph_from(e_new, extra_nodes=list(every) + list(extra_new))
+        expect = {
+            "nodes_added": sorted(set(extra_new)), "nodes_removed": sorted(set(extra_old)),
+            "edges_added": [list(e) for e in sorted(set(e_new) - set(e_old))],
+            "edges_removed": [list(e) for e in sorted(set(e_old) - set(e_new))],
+            "weights_changed": [[a, b, e_old[(a, b)], e_new[(a, b)]]
+                                for a, b in sorted(k for k in set(e_old) & set(e_new) if e_old[k] != e_new[k])],
+        }
+        for a, b in ((old, new), (_packed(old), _packed(new)), (_packed(old), new)):
+            got = structural_changes(a, b)
+            assert got["listings"] == expect
+            assert all(got[k] == len(v) for k, v in expect.items())
+            short = structural_changes(a, b, limit=2)
+            assert short["listings"] == {k: v[:2] for k, v in expect.items()} and short["truncated"]

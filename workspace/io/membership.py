@@ -17,12 +17,12 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from workspace.domain import PackedNodeIds
 from workspace.errors import InputError, ParameterError
 from workspace.io._common import (
     check_utf8,
     feed_xml,
     format_by_name,
+    id_strings,
     normalise_newlines,
     read_bytes,
     string_array,
@@ -38,19 +38,6 @@ _XML_FORBIDDEN = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\ufffe\uffff]")
 def _membership_format(path: str, format: str | None) -> str:
     return format_by_name(path, format, ((".csv", "csv"), (".tsv", "csv"), (".txt", "csv"), (".json", "json"),
                                          (".graphml", "graphml"), (".xml", "graphml")), "membership", "--format")
-
-
-def _known_ids(node_ids) -> pa.Array:
-    """The network's ids as an Arrow string array: for packed ids (``domain.PackedNodeIds``: UTF-8
-    bytes and offsets into them, as ``PackedNodeIds.decode`` reads them) a view of their bytes, with
-    no ``str`` per id (a numpy ``str`` array of 10M 40-character ids is 1.6 GB); else converted from
-    the numpy strings."""
-    if isinstance(node_ids, PackedNodeIds):
-        offsets, data = node_ids.offsets, pa.py_buffer(np.ascontiguousarray(node_ids.data))
-        if int(offsets[-1]) < 2 ** 31:
-            return pa.StringArray.from_buffers(len(node_ids), pa.py_buffer(offsets.astype(np.int32)), data)
-        return pa.LargeStringArray.from_buffers(len(node_ids), pa.py_buffer(offsets), data)
-    return pa.array(np.asarray(node_ids, dtype=str), type=pa.string())
 
 
 def _node_positions(path: str, known: pa.Array, nodes: pa.Array, locate) -> np.ndarray:
@@ -81,7 +68,7 @@ def _labels(path: str, node_ids, nodes: pa.Array, communities: pa.Array,
             locate) -> tuple[np.ndarray, dict]:
     """Records (node id, community name) -> labels by node index + info."""
     n = len(node_ids)
-    known = _known_ids(node_ids)
+    known = id_strings(node_ids)
     if known.type != nodes.type:
         nodes = nodes.cast(known.type)
     if len(nodes) == n and nodes.null_count == 0 and nodes.equals(known):

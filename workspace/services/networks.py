@@ -342,7 +342,7 @@ def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20)
             parent = s.get(NetworkVersion, v.parent_id)
             out["parent"] = f"{ref.project}/{ref.network}@{parent.number}"
             out["changes_from_parent"] = structural_changes(
-                repo.load_graph(s, parent), repo.load_graph(s, v), limit=change_limit)
+                repo.load_graph(s, parent, packed=True), repo.load_graph(s, v, packed=True), limit=change_limit)
         return out
 
 
@@ -365,6 +365,14 @@ def version_changes(store: Store, ref_a: str | VersionRef, ref_b: str | VersionR
     rb = VersionRef.parse(ref_b) if isinstance(ref_b, str) else ref_b
     with store.read() as s:
         va, vb = resolve_version(s, ra), resolve_version(s, rb)
-        out = structural_changes(repo.load_graph(s, va), repo.load_graph(s, vb), limit=limit)
+        if va.content_hash == vb.content_hash:
+            # the same content (a version against itself, or one whose content came back): nothing
+            # to load (two 10M-node versions took 76 s and 15 GB to find no change)
+            from workspace.io.changes import no_changes
+
+            out = no_changes()
+        else:
+            out = structural_changes(repo.load_graph(s, va, packed=True), repo.load_graph(s, vb, packed=True),
+                                     limit=limit)
         out = {"a": f"{ra.project}/{ra.network}@{va.number}", "b": f"{rb.project}/{rb.network}@{vb.number}", **out}
         return out
