@@ -131,3 +131,29 @@ def test_packed_ids_take_gives_pythons_strings(monkeypatch, take_bytes, streamed
         packed.take([len(ids)])
     assert packed.decode().tolist() == ids
     assert packed.take([2, 1]).tolist() == ids[2:0:-1]  # from the decoded array now
+
+
+@pytest.mark.parametrize("streamed", [False, True])
+def test_packed_ids_position_is_pythons_sorted_lookup(streamed):
+    # PackedNodeIds.position: a binary search over the stored UTF-8 bytes; reference: the index of
+    # the id in Python's sorted() list of the strings (code point order), None for any id not
+    # there (prefixes, extensions, other cases, the empty string when absent)
+    import bisect
+
+    from workspace.domain import PackedNodeIds
+
+    ids = sorted(set(_ids_of_every_length()))
+    ref_offsets, ref_data = _reference(ids)
+    packed = (PackedNodeIds(ref_offsets, open_data=lambda: _StepReader(ref_data)) if streamed
+              else PackedNodeIds(ref_offsets, np.frombuffer(ref_data, dtype=np.uint8)))
+    for i, x in enumerate(ids):
+        assert packed.position(x) == i
+    present = set(ids)
+    probes = [x + "a" for x in ids[:40]] + [x[:-1] for x in ids[2:40]] + [x.upper() for x in ids[:40]]
+    probes += ["\U0010ffff", "zz" * 3000, "é" * 2049]
+    for x in probes:
+        assert packed.position(x) == (bisect.bisect_left(ids, x) if x in present else None)
+    without_empty = ids[1:]
+    offsets, data = _reference(without_empty)
+    assert PackedNodeIds(offsets, np.frombuffer(data, dtype=np.uint8)).position("") is None
+    assert PackedNodeIds(np.zeros(1, dtype=np.int64), np.zeros(0, dtype=np.uint8)).position("a") is None

@@ -876,8 +876,6 @@ def where_node(store: Store, node: str, network: str | None = None) -> dict[str,
     named is looked up (``found_by`` gives the attribute and value). Otherwise NotFoundError with
     case-insensitive and prefix suggestions, or with the nodes named so when there are several.
     """
-    import numpy as np
-
     from workspace.services.suggest import MAX_SUGGESTIONS, close_node_ids, hint
     from workspace.services.tracking import shown_map
 
@@ -903,13 +901,15 @@ def where_node(store: Store, node: str, network: str | None = None) -> dict[str,
         for project_name, net in nets:
             name = f"{project_name}/{net.name}"
             for v in repo.list_versions(s, net.id):
-                ids = repo.load_node_ids(s, v)
-                pos = int(np.searchsorted(ids, node))
-                found = pos < ids.shape[0] and ids[pos] == node
+                # looked up in the ids as stored; decoded only for suggestions when it is not there
+                ids = repo.load_packed_node_ids(s, v)
+                at = ids.position(node)
+                found = at is not None
+                pos = at if found else 0
                 if found:
                     found_in.setdefault(name, []).append(v.number)
                 elif not found_in and len(near) < MAX_SUGGESTIONS:
-                    near.extend(x for x in close_node_ids(node, ids) if x not in near)
+                    near.extend(x for x in close_node_ids(node, ids.decode()) if x not in near)
                 runs = s.scalars(select(Run).where(Run.version_id == v.id, Run.membership_blob.is_not(None))
                                  .order_by(Run.id)).all()
                 for run in runs:
