@@ -882,6 +882,27 @@ def test_tui_version_detail_lists_changes_in_words(demo_path):
     assert f"… {ch['edges_added'] - 6} more" in text
 
 
+def test_tui_version_detail_of_large_versions_names_the_command_instead(demo_path):
+    """Above a bound on the two versions' edges the detail does not compare them (two 10M-node
+    versions: 35 s, 11 GB in the UI process); it says so and names the command, never 'first
+    version'. Under the bound (the demo at the UI's own setting) the change is there."""
+    from workspace.services.networks import show_version
+    from workspace.tui.screens.ledger import VERSION_CHANGES_MAX_EDGES
+    from workspace.tui.widgets.detail import version_text
+
+    store = open_workspace(demo_path)
+    try:
+        small = show_version(store, "velmora-bikes/stations@4", changes_up_to_edges=VERSION_CHANGES_MAX_EDGES)
+        large = show_version(store, "velmora-bikes/stations@4", changes_up_to_edges=1000)
+    finally:
+        store.dispose()
+    assert small["changes_from_parent"]["edges_added"] > 0 and "changes_not_computed" not in small
+    assert large["changes_from_parent"] is None and large["parent"] == "velmora-bikes/stations@3"
+    text = version_text(large).plain
+    assert "cutbook changes velmora-bikes/stations@3 velmora-bikes/stations@4" in text
+    assert "first version" not in text
+
+
 # --- item 8: our own palette, colour-vision-deficiency friendly ------------------------------------------------
 
 # Machado, Oliveira & Fernandes (2009), "A physiologically-based model for simulation of color vision

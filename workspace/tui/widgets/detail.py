@@ -191,7 +191,9 @@ def version_text(v: dict[str, Any]) -> Text:
     _pairs(t, v.get("policy"))
     _section(t, "Change from parent")
     ch = v.get("changes_from_parent")
-    if not ch:
+    if not ch and v.get("changes_not_computed"):
+        t.append(f"  {v['changes_not_computed']}\n", style=MUTED)
+    elif not ch:
         t.append("  first version (no parent)\n", style=MUTED)
     else:
         _pairs(t, {k: val for k, val in ch.items() if not isinstance(val, (list, dict))})
