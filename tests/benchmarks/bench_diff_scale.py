@@ -82,7 +82,8 @@ def stages(store_path: Path, run_a: int, run_b: int) -> dict[str, float]:
     """In-process breakdown of the same diff (best of 3 per stage, wall time)."""
     from workspace.cli.diffs import _as_json_doc, _render
     from workspace.compare import compare_memberships
-    from workspace.services.diffs import _load_memberships, paused_gc
+    from workspace.services.diffs import paused_gc
+    from workspace.services.runs import load_memberships
     from workspace.services.store import open_workspace
 
     store = open_workspace(store_path)
@@ -97,7 +98,7 @@ def stages(store_path: Path, run_a: int, run_b: int) -> dict[str, float]:
         out[name] = min(times)
         return res
 
-    (ia, la, _), (ib, lb, _) = stage("load both", lambda: _load_memberships(store, [run_a, run_b]))
+    (ia, la, _), (ib, lb, _) = stage("load both", lambda: load_memberships(store, [run_a, run_b]))
     d = stage("compare", lambda: compare_memberships(ia, la, ib, lb))
     from workspace.compare.scores import _expected_mutual_information
 

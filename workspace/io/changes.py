@@ -130,11 +130,9 @@ def structural_changes(old: GraphData, new: GraphData, *, limit: int | None = No
         return [[a, b] for a, b in zip(ids_at(keys // size), ids_at(keys % size))]
 
     shown_changed = cut(changed_keys)
-    shown_nodes = (lambda ids: ids.to_pylist()) if limit is None else (
-        lambda ids: ids.slice(0, max(int(limit), 0)).to_pylist())
     listings = {
-        "nodes_added": shown_nodes(nodes_added),
-        "nodes_removed": shown_nodes(nodes_removed),
+        "nodes_added": cut(nodes_added).to_pylist(),
+        "nodes_removed": cut(nodes_removed).to_pylist(),
         "edges_added": pairs(added),
         "edges_removed": pairs(removed),
         "weights_changed": [

@@ -29,7 +29,7 @@ def diff_runs(store: Store, run_a: int, run_b: int, *, nodes: str = "common",
 
     if nodes not in ("common", "all"):
         raise UsageError("--nodes takes 'common' or 'all'")
-    (ids_a, labels_a, sa), (ids_b, labels_b, sb) = _load_memberships(store, [run_a, run_b])
+    (ids_a, labels_a, sa), (ids_b, labels_b, sb) = runs_service.load_memberships(store, [run_a, run_b])
     if sa["network"] != sb["network"]:
         # different networks can still be compared by node id; say so rather than refuse
         note = f"runs belong to different networks ({sa['network']} and {sb['network']}); aligned by node id"
@@ -76,11 +76,6 @@ def paused_gc() -> Iterator[None]:
             gc.enable()
 
 
-#: (node_ids, labels, run summary) per run, the ids of a version loaded once (see
-#: :func:`workspace.services.runs.load_memberships`)
-_load_memberships = runs_service.load_memberships
-
-
 def _brief(summary: dict[str, Any]) -> dict[str, Any]:
     return {k: summary[k] for k in ("run", "kind", "method", "label", "ref", "k", "membership_hash")}
 
@@ -122,7 +117,7 @@ def track(store: Store, run_ids: list[int], *, nmi_normalization: str = "arithme
     if len(run_ids) < 2:
         raise UsageError("a track needs at least two runs")
     seq, briefs = [], []
-    for rid, (ids, labels, summary) in zip(run_ids, _load_memberships(store, run_ids)):
+    for rid, (ids, labels, summary) in zip(run_ids, runs_service.load_memberships(store, run_ids)):
         seq.append((str(rid), ids, labels))
         briefs.append(_brief(summary))
     with paused_gc():

@@ -139,8 +139,8 @@ def compare_matrix(store: Store, run_ids: list[int], *, nodes: str = "common",
     scored = [[int(loaded[i][1].shape[0]) if i == j else None for j in range(m)] for i in range(m)]
     for i in range(m):
         for j in range(i + 1, m):
-            (ia, la, sa), (ib, lb, sb) = loaded[i], loaded[j]
-            al = align_nodes(ia, ia if sa["ref"] == sb["ref"] else ib)
+            (ia, la, _), (ib, lb, _) = loaded[i], loaded[j]
+            al = align_nodes(ia, ib)   # (one version: the same ids object, aligned without a look)
             if nodes == "common":
                 if al.n_common == 0:
                     raise ComputeError(f"runs {ids[i]} and {ids[j]} share no node; use --nodes all")

@@ -469,9 +469,9 @@ def aligned_labels(store: Store, run_id: int, align_to: int) -> np.ndarray:
     import numpy as np
 
     from workspace.compare import compare_memberships
-    from workspace.services.diffs import _load_memberships
+    from workspace.services.runs import load_memberships
 
-    (ids_r, lab_r, _), (ids_n, lab_n, _) = _load_memberships(store, [align_to, run_id])
+    (ids_r, lab_r, _), (ids_n, lab_n, _) = load_memberships(store, [align_to, run_id])
     d = compare_memberships(ids_r, lab_r, ids_n, lab_n, moved_limit=0)
     k_ref = int(lab_r.max()) + 1 if lab_r.size and lab_r.max() >= 0 else 0
     k_new = int(lab_n.max()) + 1 if lab_n.size and lab_n.max() >= 0 else 0
