@@ -69,6 +69,51 @@ def test_listing_commands_and_changes(cli, tmp_path):
     assert cli("changes", "p/n@3", "p/n@2", "--json").json["edges_added"] == 1
 
 
+def test_show_compares_with_the_parent_up_to_a_size_unless_asked(cli, tmp_path, monkeypatch):
+    """`show` compares a version with its parent only up to PARENT_CHANGES_MAX_EDGES edges in the two
+    (two 10M-node versions took 35 s and 11 GB); above, it says so and names the command, and
+    `--changes` compares at any size. Counts worked by hand as in the test above."""
+    from workspace.services import networks
+
+    a = write_edges(tmp_path / "a.csv", [("a", "b", 1), ("b", "c", 1), ("c", "d", 1)], header="u,v,w")
+    b = write_edges(tmp_path / "b.csv", [("a", "b", 5), ("b", "c", 1), ("d", "e", 1)], header="u,v,w")
+    assert cli("import", a, "--project", "p", "--network", "n", "--weight", "w").code == 0
+    assert cli("import", b, "--project", "p", "--network", "n", "--weight", "w").code == 0
+    assert cli("show", "p/n", "--json").json["changes_from_parent"]["edges_added"] == 1
+    monkeypatch.setattr(networks, "PARENT_CHANGES_MAX_EDGES", 5)         # the two hold 3 + 3 edges
+    shown = cli("show", "p/n", "--json").json
+    assert shown["changes_from_parent"] is None
+    assert "cutbook changes p/n@1 p/n@2" in shown["changes_not_computed"]
+    text = cli("show", "p/n")
+    assert text.code == 0 and "changes from p/n@1: not compared here: 6 edges" in text.out
+    assert "show --changes" in text.out
+    forced = cli("show", "p/n", "--changes", "--json").json["changes_from_parent"]
+    assert (forced["nodes_added"], forced["edges_added"], forced["edges_removed"], forced["weights_changed"]) \
+        == (1, 1, 1, 1)
+
+
+def test_show_of_a_version_with_its_parents_graph_loads_no_graph(cli, tmp_path, monkeypatch):
+    """A version that only adds a node table keeps its parent's graph and content hash: no change,
+    answered without loading either graph (at 10M nodes the comparison found nothing in 35 s)."""
+    from workspace.store import repo
+
+    a = write_edges(tmp_path / "a.csv", [("a", "b", 1), ("b", "c", 1)], header="u,v,w")
+    nodes = tmp_path / "nodes.csv"
+    nodes.write_text("node,zone\na,north\nb,south\nc,north\n")
+    assert cli("import", a, "--project", "p", "--network", "n").code == 0
+    assert cli("nodes", "add", "p/n", str(nodes)).code == 0
+
+    def no_load(*args, **kwargs):
+        raise AssertionError("a graph was loaded")
+
+    monkeypatch.setattr(repo, "load_graph", no_load)
+    shown = cli("show", "p/n@2", "--json").json
+    assert shown["parent"] == "p/n@1"
+    ch = shown["changes_from_parent"]
+    assert [ch[k] for k in ("nodes_added", "nodes_removed", "edges_added", "edges_removed",
+                            "weights_changed")] == [0, 0, 0, 0, 0]
+
+
 def test_not_found_and_usage_exit_codes(cli):
     assert cli("versions", "nope/none").code == 3
     assert cli("show", "nope/none@2").code == 3

@@ -887,12 +887,11 @@ def test_tui_version_detail_of_large_versions_names_the_command_instead(demo_pat
     versions: 35 s, 11 GB in the UI process); it says so and names the command, never 'first
     version'. Under the bound (the demo at the UI's own setting) the change is there."""
     from workspace.services.networks import show_version
-    from workspace.tui.screens.ledger import VERSION_CHANGES_MAX_EDGES
     from workspace.tui.widgets.detail import version_text
 
     store = open_workspace(demo_path)
     try:
-        small = show_version(store, "velmora-bikes/stations@4", changes_up_to_edges=VERSION_CHANGES_MAX_EDGES)
+        small = show_version(store, "velmora-bikes/stations@4")      # the default bound, the Ledger's
         large = show_version(store, "velmora-bikes/stations@4", changes_up_to_edges=1000)
     finally:
         store.dispose()

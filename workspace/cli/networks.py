@@ -313,7 +313,8 @@ def cmd_show(args) -> int:
     from workspace.services.networks import show_version
 
     with session(args) as (store, out):
-        info = show_version(store, target, change_limit=args.limit)
+        kwargs = {"changes_up_to_edges": None} if args.changes else {}
+        info = show_version(store, target, change_limit=args.limit, **kwargs)
         if args.json:
             emit_json(info)
             return 0
@@ -337,6 +338,9 @@ def cmd_show(args) -> int:
             out.line("")
             out.line(f"changes from {info['parent']}")
             print_changes(out, info["changes_from_parent"], args.limit)
+        elif info.get("changes_not_computed"):
+            out.line("")
+            out.line(f"changes from {info['parent']}: {info['changes_not_computed']} (or show --changes)")
     return 0
 
 

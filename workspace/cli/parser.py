@@ -99,6 +99,9 @@ def build_parser() -> argparse.ArgumentParser:
     p = add("show", "show a network version (project/network[@V]) or a run (its id)", "networks", "cmd_show")
     p.add_argument("target", metavar="REF|RUN")
     p.add_argument("--limit", type=int, default=20, help="how many changed items to list (default 20)")
+    p.add_argument("--changes", action="store_true",
+                   help="a version: compare it with its parent at any size (by default only up to "
+                        "20M edges in the two)")
     p.add_argument("--label-by", metavar="ATTRIBUTE",
                    help="a run: list each community's first members by this node attribute")
     p = add("changes", "structural changes between two versions", "networks", "cmd_changes")

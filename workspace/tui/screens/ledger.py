@@ -26,10 +26,6 @@ from workspace.tui.widgets.detail import (STATUS_STYLE, DetailPane, fmt_value, n
 from workspace.tui.widgets.paged_table import CallbackSource, Column, PagedTable
 
 STATUS_FILTERS = (None, "done", "running", "failed", "cancelled", "interrupted")
-#: A version's detail compares it with its parent only while the two hold at most this many edges
-#: together (two 1M-node planted versions: 15M; two 10M-node ones took 35 s and 11 GB in a worker
-#: that runs to its end even when another version is selected meanwhile)
-VERSION_CHANGES_MAX_EDGES = 20_000_000
 #: the orders `o` steps through (keys of workspace.services.browse.ledger_runs)
 SORT_CYCLE = ("run", "modularity", "conductance", "k", "version", "method", "status", "param_set")
 
@@ -244,7 +240,8 @@ class LedgerScreen(Screen):
         from workspace.services.networks import show_version
 
         try:
-            v = show_version(self.app.store, ref, changes_up_to_edges=VERSION_CHANGES_MAX_EDGES)
+            # compared with its parent up to services.networks.PARENT_CHANGES_MAX_EDGES edges, as `cutbook show`
+            v = show_version(self.app.store, ref)
         except Exception as exc:  # noqa: BLE001
             self.app.call_from_thread(self.app.report, exc)
             return
