@@ -354,6 +354,26 @@ def test_members_lists_each_community_like_the_export(cli, club, tmp_path):
     _one_line_error(cli("members", 999), 3)
 
 
+def test_members_text_folds_ids_into_lines_of_at_most_100_columns(cli, tmp_path):
+    """Piped `members` put a community's 50 ids on one line (2,000+ characters with 40-character
+    ids); they are now folded, every id whole and in the JSON's order."""
+    ids = [f"station-{i:032d}" for i in range(60)]
+    rows = [(ids[i], ids[(i + 1) % 60], 1) for i in range(60)]
+    f = write_edges(tmp_path / "ring.csv", rows, header="u,v,w")
+    assert cli("import", f, "--project", "p", "--network", "ring").code == 0
+    run = cli("run", "p/ring", "--method", "njw", "--k", "2", "--json").json["run"]
+    text = cli("members", run).out.splitlines()
+    assert max(len(line) for line in text if line.startswith("  ")) <= 100
+    listed = []
+    for line in text:
+        if line.startswith("community"):
+            listed.append([])
+        elif line.startswith("  "):
+            listed[-1] += line.split()
+    assert listed == [c["nodes"] for c in cli("members", run, "--json", "--limit", "50").json["communities"]]
+    assert sum(len(c) for c in listed) == 60
+
+
 def test_members_carry_stability_of_repeated_runs(cli, club):
     r = cli("run", "club/karate", "--method", "njw", "--k", "2", "--repeats", "4", "--json").json
     doc = cli("members", r["run"], "--json").json

@@ -59,12 +59,12 @@ def cmd_members(args) -> int:
             stored = f" (stored as {c['community']})" if res.get("shown_labels") else ""
             out.line(f"community {c['shown']}{stored}  size {c['size']}{span}")
             if "stability" in c:
-                out.line("  " + "  ".join(f"{shown(n)} ({fmt(s)})" for n, s in zip(c["nodes"], c["stability"])))
+                out.words(f"{shown(n)} ({fmt(s)})" for n, s in zip(c["nodes"], c["stability"]))
             elif c["nodes"]:
-                out.line("  " + "  ".join(map(shown, c["nodes"])))
+                out.words(map(shown, c["nodes"]))
         if res["unassigned"]:
-            out.line(f"unassigned  {len(res['unassigned'])} node(s): "
-                     + "  ".join(map(shown, res["unassigned"][:limit])))
+            out.words(map(shown, res["unassigned"][:limit]),
+                      first=f"unassigned  {len(res['unassigned'])} node(s):  ")
     return 0
 
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 import math
+import shutil
 import sys
 import time
 from typing import Any, Iterable, Sequence
@@ -66,6 +67,21 @@ class Out:
         stream = sys.stderr if self.json_mode else sys.stdout
         stream.write(text + "\n")
 
+    def words(self, items: Iterable[str], indent: str = "  ", first: str | None = None) -> None:
+        """Items two spaces apart, folded into lines no wider than the terminal (100 columns when the
+        output is not a terminal), each line starting with ``indent`` (the first with ``first`` when
+        given); an item wider than that gets a line of its own, never cut."""
+        stream = sys.stderr if self.json_mode else sys.stdout
+        width = shutil.get_terminal_size((100, 24)).columns if stream.isatty() else 100
+        line, start = "", indent if first is None else first
+        for item in items:
+            if line and len(start) + len(line) + 2 + len(item) > width:
+                self.line(start + line)
+                line, start = "", indent
+            line = f"{line}  {item}" if line else item
+        if line or start != indent:
+            self.line(start + line)
+
     def rich(self, renderable) -> None:
         self.console.print(renderable)
 
@@ -106,8 +122,6 @@ class Out:
         tty = stream.isatty()
         if tty:
             import os
-            import shutil
-
             width = shutil.get_terminal_size().columns
             bold = not os.environ.get("NO_COLOR") and os.environ.get("TERM") != "dumb"
         else:
