@@ -236,6 +236,28 @@ def test_tui_diff_counts_of_million_node_communities_are_shown_whole(demo_path, 
 
 
 @pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
+def test_tui_diff_scores_name_an_attached_run_without_wrapping(demo_path, size):
+    """The Scores pane's lines for the two sides fit the pane at both sizes with an attached run on
+    one side (its label followed the run id on one line, which wrapped at 120x36)."""
+
+    async def go():
+        async with workspace(demo_path, size) as (app, pilot):
+            a = demo_run(app.store, "attached", "velmora-bikes/stations@4")
+            b = demo_run(app.store, "njw", "velmora-bikes/stations@4")
+            app.diff_pick.update(a=a, b=b)
+            await pilot.press("4")
+            await settle(app, pilot)
+            scores = app.screen.query_one("#diff-scores")
+            lines = static_text(scores).splitlines()[:6]
+            assert lines[0].split() == ["A", "run", str(a), "k", "=", "8"]
+            assert lines[1].strip() == "⇲ planning-districts" and lines[3].split()[:3] == ["B", "run", str(b)]
+            assert lines[4].strip() == "njw"
+            assert all(len(line) <= scores.content_region.width for line in lines)
+
+    asyncio.run(go())
+
+
+@pytest.mark.parametrize("size", SIZES, ids=["80x24", "120x36"])
 def test_tui_diff_fits(demo_path, size):
     """Diff: matches with all columns, events, moved nodes and contingency each usable (stacked at 80)."""
     from textual.widgets import Input

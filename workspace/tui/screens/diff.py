@@ -310,9 +310,12 @@ class DiffScreen(Screen):
         t = Text()
         for side in ("a", "b"):
             s = d.get(side) or {}
-            what = s.get("method") if s.get("kind") != "attached" else f"attached: {s.get('label')}"
+            # an attached run by its label, marked as in the Ledger; run and k first, what the run is
+            # below (with the label on the first line it wrapped in the 30-column pane at 120x36)
+            what = s.get("method") if s.get("kind") != "attached" else f"⇲ {s.get('label') or 'attached'}"
             t.append(f"{side.upper()}  ", style=HEAD)
-            t.append(f"run {s.get('run')}  {what}  k = {s.get('k')}\n")
+            t.append(f"run {s.get('run')}  k = {s.get('k')}\n")
+            t.append(f"   {what}\n")
             t.append(f"   {s.get('ref')}\n", style=KEY)
         t.append("\n")
         norm = d.get("nmi_normalization")
