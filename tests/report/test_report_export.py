@@ -91,6 +91,10 @@ def test_node_link_export_reads_back_with_networkx(cli, karate_run, tmp_path, st
     assert att.code == 0, att.err
     shown_a = cli("show", run_id, "--json").json
     assert cli("show", att.json["run"], "--json").json["membership_hash"] == shown_a["membership_hash"]
+    # a diff report names the attached run by its label, not as the method "attached"
+    page = tmp_path / "diff.html"
+    assert cli("report", att.json["run"], run_id, "-o", page).code == 0
+    assert f"A: run {att.json['run']} (attached ‘again’ on club/karate@1" in page.read_text(encoding="utf-8")
 
 
 def test_csv_export_is_unchanged(cli, karate_run, tmp_path, store_path):

@@ -238,10 +238,15 @@ def diff_page(data: dict[str, Any], *, moved_shown: int = MOVED_SHOWN) -> str:
     ``contingency``).
     """
     a, b = data["a"], data["b"]
+
+    def what(side: dict) -> str:     # an attached run by its label (its method is "attached")
+        if side.get("kind") == "attached":
+            return f"attached ‘{side.get('label') or 'no label'}’"
+        return str(side.get("method") or side.get("label"))
+
     title = f"Run {a['run']} → run {b['run']}"
-    body = [f"<p>A: run {a['run']} ({escape(str(a.get('method') or a.get('label')))} on "
-            f"{escape(a['ref'])}, k={a.get('k')}) — B: run {b['run']} "
-            f"({escape(str(b.get('method') or b.get('label')))} on {escape(b['ref'])}, k={b.get('k')})</p>"]
+    body = [f"<p>A: run {a['run']} ({escape(what(a))} on {escape(a['ref'])}, k={a.get('k')}) — "
+            f"B: run {b['run']} ({escape(what(b))} on {escape(b['ref'])}, k={b.get('k')})</p>"]
     scores = [["adjusted Rand index", data.get("ari")], [f"NMI ({data.get('nmi_normalization')})", data.get("nmi")],
               ["adjusted mutual information", data.get("ami")], ["variation of information (bits)", data.get("vi_bits")],
               ["nodes compared", data.get("n_scored")], ["only in A", data.get("only_in_a")],
