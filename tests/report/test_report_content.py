@@ -110,6 +110,28 @@ def test_run_report_is_self_contained_and_holds_every_figure(cli, club, tmp_path
     assert _check_self_contained((tmp_path / "rep.html").read_text(encoding="utf-8")) == len(rep.json["figures"])
 
 
+def test_run_report_states_the_parameters_and_the_eigensolve_after_the_results(cli, club, tmp_path):
+    """A report read by someone else carries what repeating the run needs: the parameter set (or
+    that values were given), every stored parameter value and the eigensolver's figures, as the
+    store holds them (`show --json`), after the results."""
+    import html as std_html
+
+    out = tmp_path / "two.html"
+    assert cli("report", club["two"], "-o", out).code == 0
+    page = std_html.unescape(out.read_text(encoding="utf-8"))
+    shown = cli("show", club["two"], "--json").json
+    cells = dict(re.findall(r"<tr><td>([^<]+)</td><td(?: class=\"n\")?>([^<]*)</td></tr>", page))
+    assert cells["parameter set"] == "– (values given)" and cells["k asked"] == "2"
+    for name, value in shown["params"].items():
+        expected = f"{value:.4g}" if isinstance(value, float) else str(value)
+        assert cells[name] == expected, name
+    d = shown["diagnostics"]
+    assert cells["solver"].split()[0] == d["solver"]
+    assert cells["operator products"] == str(d["matvecs"])
+    assert cells["eigenproblems solved"] == str(d["eigensolves"])
+    assert page.index("<h2>Quality</h2>") < page.index("<h2>Parameters</h2>") < page.index("<h2>Eigensolver</h2>")
+
+
 def test_report_is_reproducible(cli, club, tmp_path):
     # seeded layout, fixed SVG id salt, no dates: the same run gives the same bytes
     for name in ("a.html", "b.html"):

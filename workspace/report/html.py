@@ -165,10 +165,30 @@ def run_page(data: dict[str, Any]) -> str:
     what = r["method"] if r.get("kind") == "computed" else f"attached '{r.get('label', '')}'"
     title = f"Run {r['run']}: {what} on {r['ref']}"
     body = []
-    facts = [["status", r.get("status")], ["communities (k)", r.get("k")], ["nodes", int(np.asarray(data["labels"]).size)],
-             ["seed", r.get("seed")], ["repeats", r.get("repeats")], ["membership hash", (r.get("membership_hash") or "")[:16]],
-             ["created", r.get("created")]]
+    computed = r.get("kind") == "computed"
+    facts = [["status", r.get("status")], ["communities (k)", r.get("k")]]
+    if computed:
+        facts += [["k asked", r.get("k_requested")], ["parameter set", r.get("param_set") or "– (values given)"]]
+    facts += [["nodes", int(np.asarray(data["labels"]).size)], ["seed", r.get("seed")], ["repeats", r.get("repeats")],
+              ["membership hash", (r.get("membership_hash") or "")[:16]], ["by", r.get("by")],
+              ["created", r.get("created")]]
+    if r.get("wall_time_s") is not None:
+        facts.append(["wall time (s)", r.get("wall_time_s")])
     body.append("<h2>Run</h2>" + _table(["item", "value"], facts))
+    # what another reader needs to repeat the run, after the results: every parameter value and how
+    # the eigenproblem went
+    provenance = []
+    params = r.get("params") or {}
+    if computed and params:
+        provenance.append("<h2>Parameters</h2>" + _table(["parameter", "value"], [[k, params[k]] for k in sorted(params)]))
+    d = r.get("diagnostics") or {}
+    if computed and d.get("solver"):
+        solver = d["solver"] + (f" ({d['blas_threads']} BLAS threads)" if d.get("blas_threads") else "")
+        gap = d.get("eigengap_suggestion")
+        rows = [["solver", solver], ["eigenproblems solved", d.get("eigensolves")],
+                ["operator products", d.get("matvecs")], ["largest residual norm", d.get("residual_norm_max")],
+                ["eigengap suggests k", gap if isinstance(gap, int) and not isinstance(gap, bool) else None]]
+        provenance.append("<h2>Eigensolver</h2>" + _table(["item", "value"], rows))
     q = data.get("quality") or {}
     scalars = [[name.replace("_", " "), v] for name, v in q.items()
                if isinstance(v, (int, float)) and not isinstance(v, bool)]
@@ -193,6 +213,7 @@ def run_page(data: dict[str, Any]) -> str:
     if g is not None and g["n"] > F.DRAW_LIMIT:
         body.append(f'<p class="note">The network has {g["n"]} nodes, more than {F.DRAW_LIMIT}: '
                     "it is not drawn.</p>")
+    body += provenance
     for note in data.get("notes") or []:
         body.append(f'<p class="note">{escape(note)}</p>')
     return _page(title, "cutbook run report", body)
