@@ -82,6 +82,44 @@ def test_sweep_screen_plots_the_stored_values(karate_sweep, size):
     asyncio.run(go())
 
 
+def test_sweep_table_names_the_varied_parameter_and_drops_the_column_without_one(karate_sweep, tmp_path):
+    """The measures table has a column of the varied parameter's values, headed by its name, only for
+    a sweep that varies one (a k-only sweep showed a 'value' column of dashes)."""
+    from textual.widgets import DataTable
+
+    from workspace.services import sweeps
+
+    path, out, _ = karate_sweep
+    store = open_workspace(path)
+    try:
+        varied = sweeps.sweep(store, sweeps.prepare_sweep(store, "club/karate", method="regularized", ks="2..3",
+                                                          vary="tau=0.5,2"))
+    finally:
+        store.dispose()
+
+    async def go():
+        async with workspace(path, (120, 36)) as (app, pilot):
+            await pilot.press("6")
+            await pilot.pause()
+            screen = app.screen
+            screen.show_sweep(out["sweep"])
+            await pilot.pause()
+            table = screen.query_one("#sweep-table", DataTable)
+            heads = [str(c.label) for c in table.columns.values()]
+            assert heads[:3] == ["k", "run", "modularity"] and "value" not in heads
+            assert [table.get_row_at(i)[1] for i in range(table.row_count)] == [str(p["run"]) for p in out["points"]]
+            screen.show_sweep(varied["sweep"])
+            await pilot.pause()
+            heads = [str(c.label) for c in table.columns.values()]
+            assert heads[:3] == ["k", "tau", "run"]
+            assert [table.get_row_at(i)[1] for i in range(table.row_count)] == \
+                [screen_fmt(p["value"]) for p in varied["points"]]
+
+    from workspace.tui.screens.sweep import _fmt as screen_fmt
+
+    asyncio.run(go())
+
+
 @pytest.mark.slow
 def test_launch_a_sweep_and_stop_it_mid_way(tmp_path):
     from textual.widgets import Input, Select

@@ -153,9 +153,7 @@ class SweepScreen(Screen):
         for pane in self.query("#sweep-body .pane"):   # the shared stylesheet makes panes fill; these stack
             pane.styles.height = "auto"
         self.query_one("#sweep-bar", ProgressBar).display = False   # shown while a sweep computes
-        table = self.query_one("#sweep-table", DataTable)
-        table.add_columns("k", "value", "run", "modularity", "ncut", "conductance", "coverage", "eigengap",
-                          "ARI mean", "ARI sd", "VI mean", "VI sd", "")
+        self._set_columns(None)
         if self._pending is not None:
             (spec, executor), self._pending = self._pending, None
             self.start(spec, executor)
@@ -171,6 +169,14 @@ class SweepScreen(Screen):
             if rows:
                 self.show_sweep(rows[0]["sweep"])
         self.on_screen_resume()
+
+    def _set_columns(self, varied: str | None) -> None:
+        """The table's columns: a column of the varied parameter's values (named after it) only when
+        the sweep varies one (a k-only sweep showed a column of dashes)."""
+        table = self.query_one("#sweep-table", DataTable)
+        table.clear(columns=True)
+        table.add_columns("k", *([varied] if varied else []), "run", "modularity", "ncut", "conductance",
+                          "coverage", "eigengap", "ARI mean", "ARI sd", "VI mean", "VI sd", "")
 
     def on_screen_resume(self) -> None:
         # the focus goes where the next thing to do is: the id box until a sweep is shown, then the
@@ -223,11 +229,12 @@ class SweepScreen(Screen):
         self.query_one(SweepPlot).show([p["k"] for p in plotted], [p["modularity"] for p in plotted],
                                        [p["ari_mean"] for p in plotted], rec["recommended"] if rec else None)
         table = self.query_one("#sweep-table", DataTable)
-        table.clear()
+        self._set_columns(sw["vary"]["name"] if sw["vary"] else None)
         for i, p in enumerate(sw["points"]):
             r = recs.get(repr(p["value"]))
             mark = "▲ rec" if r is not None and r["recommended"] == p["k"] else ("stable" if p["stable"] else "")
-            table.add_row(*[_fmt(x) for x in (p["k"] if p["k"] is not None else p["k_found"], p["value"], p["run"],
+            varied = (p["value"],) if sw["vary"] else ()
+            table.add_row(*[_fmt(x) for x in (p["k"] if p["k"] is not None else p["k_found"], *varied, p["run"],
                                               p["modularity"], p["normalized_cut"], p["conductance"], p["coverage"],
                                               p["eigengap"], p["ari_mean"], p["ari_sd"], p["vi_mean"], p["vi_sd"])],
                           mark, key=str(i))
