@@ -322,6 +322,7 @@ def list_versions(store: Store, ref: str | VersionRef) -> list[dict[str, Any]]:
 #: together, unless asked for every size (``cutbook show --changes``): two 1M-node planted versions hold
 #: 15M and compare in about 3 s; two 10M-node ones took 35 s and 11 GB. The terminal UI's Ledger
 #: asks on every version selected, in a worker thread that runs to its end even when superseded.
+#: (The help of ``cutbook show --changes`` names the value.)
 PARENT_CHANGES_MAX_EDGES = 20_000_000
 
 
@@ -330,10 +331,10 @@ def show_version(store: Store, ref: str | VersionRef, *, change_limit: int = 20,
     """Everything recorded on a version, plus its structural change from its parent.
 
     ``changes_up_to_edges``: compute that change only when the two versions hold at most this many
-    edges together (-1, the default: :data:`PARENT_CHANGES_MAX_EDGES`; None: at every size); above it ``changes_from_parent`` is None and
-    ``changes_not_computed`` says why and names the command that lists them. A version whose graph
-    has its parent's content hash (a node table added, a graph that came back) has no change, found
-    without loading either graph."""
+    edges together (-1, the default: :data:`PARENT_CHANGES_MAX_EDGES`, read at each call; None: at
+    every size); above it ``changes_from_parent`` is None and ``changes_not_computed`` says why and
+    names the command that lists them. A version whose graph has its parent's content hash (a node
+    table added, a graph that came back) has no change, found without loading either graph."""
     from workspace.io import structural_changes
     from workspace.store import repo
     from workspace.store.schema import NetworkVersion
