@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pytest
 
 from workspace.domain import GraphData
 from workspace.io import structural_changes
@@ -120,3 +121,94 @@ def test_packed_ids_and_same_node_sets_match_python_set_algebra():
             assert all(got[k] == len(v) for k, v in expect.items())
             short = structural_changes(a, b, limit=2)
             assert short["listings"] == {k: v[:2] for k, v in expect.items()} and short["truncated"]
+
+
+def _expected(e_old, e_new, n_old, n_new):
+    """The five listings by Python set algebra, sorted by code point."""
+    return {
+        "nodes_added": sorted(n_new - n_old), "nodes_removed": sorted(n_old - n_new),
+        "edges_added": [list(e) for e in sorted(set(e_new) - set(e_old))],
+        "edges_removed": [list(e) for e in sorted(set(e_old) - set(e_new))],
+        "weights_changed": [[a, b, e_old[(a, b)], e_new[(a, b)]]
+                            for a, b in sorted(k for k in set(e_old) & set(e_new) if e_old[k] != e_new[k])],
+    }
+
+
+@pytest.mark.parametrize("window", [1, 2, 3, 4096])
+def test_merged_ids_and_the_hash_sets_give_python_set_algebra(monkeypatch, window):
+    """Two sorted id lists that differ in a few ids are merged in order (changes._merged_ids), in
+    windows of every size down to one id; more differences than MERGE_MAX_DIFFERENCES, and the hash
+    sets of Arrow decide. Both, with ids packed or not, give Python set algebra's listings: ids
+    removed and added at the start, the end, next to each other and at window edges, non-ASCII and
+    4096-byte ids, ids that are prefixes of others."""
+    from workspace.io import changes as ch
+
+    monkeypatch.setattr(ch, "MERGE_FIRST_WINDOW", window)
+    monkeypatch.setattr(ch, "SEARCH_CHUNK", window)        # the edge keys searched chunk by chunk too
+    monkeypatch.setattr(ch, "MERGE_MAX_WINDOW", max(window, 8))
+    merged = []
+    real = ch._merged_ids
+    monkeypatch.setattr(ch, "_merged_ids", lambda a, b: merged.append(real(a, b)) or merged[-1])
+    rng = np.random.default_rng(window)
+    pool = sorted({f"n{i}" for i in range(120)} | {"Ärger", "日本", "ü" * 3, "x" * 4096, "z", "n1x", "n", ""})
+    for trial in range(12):
+        keep = rng.random(len(pool))
+        n_old = {x for x, r in zip(pool, keep) if r < 0.9}
+        n_new = {x for x, r in zip(pool, keep) if r > 0.1 or x in n_old and r > 0.05}
+        if trial == 0:
+            n_old, n_new = set(pool[1:]), set(pool[:-1])      # the first only in new, the last only in old
+
+        def edges(nodes, m):
+            nodes = sorted(nodes)
+            out = {}
+            while len(out) < m:
+                a, b = rng.choice(len(nodes), 2, replace=False)
+                out[tuple(sorted((nodes[a], nodes[b])))] = float(rng.integers(1, 3))
+            return out
+
+        common = sorted(n_old & n_new)
+        e_old, e_new = edges(n_old, 150), edges(n_new, 150)
+        shared = edges(common, 60)
+        e_old.update(shared)
+        e_new.update({k: v + float(rng.integers(0, 2)) for k, v in shared.items()})
+        old, new = graph_from(e_old, extra_nodes=n_old), graph_from(e_new, extra_nodes=n_new)
+        expect = _expected(e_old, e_new, n_old, n_new)
+        for cap in (ch.MERGE_MAX_DIFFERENCES, 0):
+            monkeypatch.setattr(ch, "MERGE_MAX_DIFFERENCES", cap)
+            for a, b in ((old, new), (_packed(old), _packed(new))):
+                merged.clear()
+                got = structural_changes(a, b)
+                assert got["listings"] == expect, (trial, cap)
+                assert all(got[k] == len(v) for k, v in expect.items())
+                assert (merged[0] is None) == (cap == 0)      # the path meant was taken
+        monkeypatch.setattr(ch, "MERGE_MAX_DIFFERENCES", 50_000)
+
+
+def test_merged_ids_decline_unsorted_or_repeated_lists_and_too_many_differences():
+    """The merge relies on both lists being strictly increasing; a list that is not (or too many
+    differences) returns None, and the caller uses the hash sets, which rely on neither."""
+    import pyarrow as pa
+
+    from workspace.io.changes import _merged_ids
+
+    ok = pa.array(["a", "b", "d"])
+    assert _merged_ids(pa.array(["b", "a"]), ok) is None
+    assert _merged_ids(ok, pa.array(["a", "a", "b"])) is None
+    assert _merged_ids(ok, pa.array(["c", "e", "f", "g"]), max_differences=3) is None
+    removed, added, pos_a, pos_b, size = _merged_ids(ok, pa.array(["a", "c", "d", "e"]))
+    # by hand: union a b c d e; b only in the first list, c and e only in the second
+    assert removed.tolist() == [1] and added.tolist() == [1, 3] and size == 5
+    assert pos_a.tolist() == [0, 1, 3] and pos_b.tolist() == [0, 2, 3, 4]
+
+
+def test_graphs_of_one_weight_and_of_two_uniform_weights():
+    """Two unweighted versions (every weight 1) have no weight change without comparing weights;
+    one weight everywhere in each but a different one (1 and 2) changes every common edge."""
+    e_old = {("a", "b"): 1.0, ("b", "c"): 1.0, ("c", "d"): 1.0}
+    e_new = {("a", "b"): 1.0, ("b", "c"): 1.0, ("d", "e"): 1.0}
+    got = structural_changes(graph_from(e_old), graph_from(e_new))
+    assert got["listings"] == _expected(e_old, e_new, {"a", "b", "c", "d"}, {"a", "b", "c", "d", "e"})
+    assert got["weights_changed"] == 0
+    doubled = {k: 2.0 for k in e_new}
+    got = structural_changes(graph_from(e_old), graph_from(doubled))
+    assert got["listings"]["weights_changed"] == [["a", "b", 1.0, 2.0], ["b", "c", 1.0, 2.0]]
