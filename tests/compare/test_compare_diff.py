@@ -287,3 +287,32 @@ def test_packed_ids_of_one_version_give_the_same_diff_as_strings():
     other = PackedNodeIds(*encode_node_ids(names[5:]))
     assert compare_memberships(packed, a, other, b[5:]).to_dict() == \
         compare_memberships(names, a, names[5:], b[5:]).to_dict()
+
+
+@pytest.mark.parametrize("cap", [None, 0])
+def test_two_packed_versions_align_like_their_strings_without_decoding(monkeypatch, cap):
+    """Two stored versions (two PackedNodeIds) are aligned from their bytes: equal lists at once, a
+    few differences by merging the sorted lists (workspace.domain.merge_sorted_ids), none decoded;
+    with the merge declined (cap 0) by the decoded strings. Every field equals the alignment of the
+    plain str arrays, the reference being Python set algebra on the names."""
+    from workspace import domain
+    from workspace.domain import PackedNodeIds, encode_node_ids
+
+    if cap is not None:
+        monkeypatch.setattr(domain, "MERGE_MAX_DIFFERENCES", cap)
+    rng = np.random.default_rng(21)
+    pool = sorted({f"stop-{i:04d}" for i in range(400)} | {"Ärger", "日本", "x" * 4096, "stop-", ""})
+    for trial in range(6):
+        r = rng.random(len(pool))
+        names_a = np.array([x for x, v in zip(pool, r) if v < 0.97])
+        names_b = np.array([x for x, v in zip(pool, r) if v > 0.02]) if trial else names_a.copy()
+        pa_, pb_ = PackedNodeIds(*encode_node_ids(names_a)), PackedNodeIds(*encode_node_ids(names_b))
+        got, ref = align_nodes(pa_, pb_), align_nodes(names_a, names_b)
+        for field in ("common_a", "common_b", "only_a", "only_b"):
+            assert getattr(got, field).tolist() == getattr(ref, field).tolist(), (trial, field)
+        assert (got.n_a, got.n_b) == (ref.n_a, ref.n_b)
+        shared = set(names_a.tolist()) & set(names_b.tolist())
+        assert names_a[got.common_a].tolist() == sorted(shared) == names_b[got.common_b].tolist()
+        assert names_b[got.only_b].tolist() == sorted(set(names_b.tolist()) - shared)
+        if cap is None:
+            assert pa_._decoded is None and pb_._decoded is None

@@ -136,19 +136,20 @@ def _expected(e_old, e_new, n_old, n_new):
 
 @pytest.mark.parametrize("window", [1, 2, 3, 4096])
 def test_merged_ids_and_the_hash_sets_give_python_set_algebra(monkeypatch, window):
-    """Two sorted id lists that differ in a few ids are merged in order (changes._merged_ids), in
-    windows of every size down to one id; more differences than MERGE_MAX_DIFFERENCES, and the hash
+    """Two sorted id lists that differ in a few ids are merged in order (domain.merge_sorted_ids), in
+    windows of every size down to one id (domain.merge_sorted_ids); more differences than MERGE_MAX_DIFFERENCES, and the hash
     sets of Arrow decide. Both, with ids packed or not, give Python set algebra's listings: ids
     removed and added at the start, the end, next to each other and at window edges, non-ASCII and
     4096-byte ids, ids that are prefixes of others."""
+    from workspace import domain
     from workspace.io import changes as ch
 
-    monkeypatch.setattr(ch, "MERGE_FIRST_WINDOW", window)
+    monkeypatch.setattr(domain, "MERGE_FIRST_WINDOW", window)
     monkeypatch.setattr(ch, "SEARCH_CHUNK", window)        # the edge keys searched chunk by chunk too
-    monkeypatch.setattr(ch, "MERGE_MAX_WINDOW", max(window, 8))
+    monkeypatch.setattr(domain, "MERGE_MAX_WINDOW", max(window, 8))
     merged = []
-    real = ch._merged_ids
-    monkeypatch.setattr(ch, "_merged_ids", lambda a, b: merged.append(real(a, b)) or merged[-1])
+    real = domain.merge_sorted_ids
+    monkeypatch.setattr(ch, "merge_sorted_ids", lambda a, b: merged.append(real(a, b)) or merged[-1])
     rng = np.random.default_rng(window)
     pool = sorted({f"n{i}" for i in range(120)} | {"Ärger", "日本", "ü" * 3, "x" * 4096, "z", "n1x", "n", ""})
     for trial in range(12):
@@ -173,15 +174,15 @@ def test_merged_ids_and_the_hash_sets_give_python_set_algebra(monkeypatch, windo
         e_new.update({k: v + float(rng.integers(0, 2)) for k, v in shared.items()})
         old, new = graph_from(e_old, extra_nodes=n_old), graph_from(e_new, extra_nodes=n_new)
         expect = _expected(e_old, e_new, n_old, n_new)
-        for cap in (ch.MERGE_MAX_DIFFERENCES, 0):
-            monkeypatch.setattr(ch, "MERGE_MAX_DIFFERENCES", cap)
+        for cap in (domain.MERGE_MAX_DIFFERENCES, 0):
+            monkeypatch.setattr(domain, "MERGE_MAX_DIFFERENCES", cap)
             for a, b in ((old, new), (_packed(old), _packed(new))):
                 merged.clear()
                 got = structural_changes(a, b)
                 assert got["listings"] == expect, (trial, cap)
                 assert all(got[k] == len(v) for k, v in expect.items())
                 assert (merged[0] is None) == (cap == 0)      # the path meant was taken
-        monkeypatch.setattr(ch, "MERGE_MAX_DIFFERENCES", 50_000)
+        monkeypatch.setattr(domain, "MERGE_MAX_DIFFERENCES", 50_000)
 
 
 def test_merged_ids_decline_unsorted_or_repeated_lists_and_too_many_differences():
@@ -189,7 +190,7 @@ def test_merged_ids_decline_unsorted_or_repeated_lists_and_too_many_differences(
     differences) returns None, and the caller uses the hash sets, which rely on neither."""
     import pyarrow as pa
 
-    from workspace.io.changes import _merged_ids
+    from workspace.domain import merge_sorted_ids as _merged_ids
 
     ok = pa.array(["a", "b", "d"])
     assert _merged_ids(pa.array(["b", "a"]), ok) is None

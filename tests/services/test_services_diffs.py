@@ -99,7 +99,9 @@ def test_diff_errors(store, two_versions, tmp_path):
 
 def test_diff_decodes_only_the_listed_ids_and_each_version_once(store, tmp_path, monkeypatch):
     # two runs of one version: no full decode of its node ids, only the moved nodes listed are
-    # decoded; a track over two versions decodes each version once. Reference for the values:
+    # decoded; a track over two versions that differ in a few ids merges their packed lists and
+    # decodes no version whole either, and with the merge declined (too many differences) decodes
+    # each version once. Reference for the values:
     # sklearn's adjusted_rand_score on the same labels (scikit-learn, sklearn.metrics), and the
     # moved nodes recomputed from the matches the diff reports.
     from workspace import domain
@@ -140,5 +142,9 @@ def test_diff_decodes_only_the_listed_ids_and_each_version_once(store, tmp_path,
     assert diffs.diff_runs(store, ra, rb, moved_limit=0)["moved"] == len(expected)
     assert decoded == []  # nothing listed, nothing decoded
     decoded.clear()
-    diffs.track(store, [ra, rc, rb])
+    merged_track = diffs.track(store, [ra, rc, rb])
+    assert max(decoded) < len(names_2)          # only listed ids (moved, in one version only)
+    decoded.clear()
+    monkeypatch.setattr(domain, "MERGE_MAX_DIFFERENCES", 0)
+    assert diffs.track(store, [ra, rc, rb]) == merged_track
     assert sorted(decoded) == [len(names_2), 34]  # each version once, though version 1 is on two steps

@@ -81,6 +81,34 @@ def as_node_ids(x, name: str) -> np.ndarray:
     return arr
 
 
+def _packed_alignment(packed_a, packed_b) -> NodeAlignment | None:
+    """The alignment of two stored versions' ids without decoding them, or None when they differ in
+    more ids than :func:`workspace.domain.merge_sorted_ids` merges (or are not strictly sorted)."""
+    from workspace.domain import merge_sorted_ids
+
+    a, b = packed_a.strings(), packed_b.strings()
+    if a.type != b.type:
+        import pyarrow as pa
+
+        a, b = a.cast(pa.large_string()), b.cast(pa.large_string())
+    na, nb = len(a), len(b)
+    if a.equals(b):
+        idx = np.arange(na, dtype=np.int64)
+        empty = np.zeros(0, dtype=np.int64)
+        return NodeAlignment(idx, idx.copy(), empty, empty.copy(), na, nb)
+    merged = merge_sorted_ids(a, b)
+    if merged is None:
+        return None
+    only_a, only_b = merged[0], merged[1]
+    keep_a = np.ones(na, dtype=bool)
+    keep_a[only_a] = False
+    keep_b = np.ones(nb, dtype=bool)
+    keep_b[only_b] = False
+    # the shared ids appear in the same (sorted) order in both lists
+    return NodeAlignment(np.flatnonzero(keep_a).astype(np.int64), np.flatnonzero(keep_b).astype(np.int64),
+                         only_a, only_b, na, nb)
+
+
 def align_nodes(node_ids_a, node_ids_b) -> NodeAlignment:
     """Align two canonical node-id arrays by id.
 
@@ -108,7 +136,9 @@ def align_nodes(node_ids_a, node_ids_b) -> NodeAlignment:
     -----
     The same array object on both sides (runs on one network version) and
     equal arrays are detected in O(1) and O(n) (the same packed ids in O(1), none
-    decoded); otherwise every id of A is looked up
+    decoded); two packed lists (two stored versions) that differ in at most
+    :data:`workspace.domain.MERGE_MAX_DIFFERENCES` ids are merged in order without
+    decoding (:func:`workspace.domain.merge_sorted_ids`); otherwise every id of A is looked up
     in B by binary search (``np.searchsorted``), O(n_a log n_b) string
     comparisons. The coverage is the Jaccard index of the two node sets.
 
@@ -125,6 +155,12 @@ def align_nodes(node_ids_a, node_ids_b) -> NodeAlignment:
         idx = np.arange(na, dtype=np.int64)
         empty = np.zeros(0, dtype=np.int64)
         return NodeAlignment(idx, idx.copy(), empty, empty.copy(), na, na)
+    if isinstance(node_ids_a, PackedNodeIds) and isinstance(node_ids_b, PackedNodeIds):
+        # two stored versions: compared as Arrow views of their bytes, equal lists at once and a few
+        # differences by merging the sorted lists (10M 40-character ids decoded: 1.6 GB a version)
+        found = _packed_alignment(node_ids_a, node_ids_b)
+        if found is not None:
+            return found
     if isinstance(node_ids_a, PackedNodeIds):
         node_ids_a = node_ids_a.decode()
     if isinstance(node_ids_b, PackedNodeIds):

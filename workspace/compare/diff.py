@@ -287,6 +287,10 @@ def compare_memberships(node_ids_a, labels_a, node_ids_b, labels_b, *, nodes: st
     ids_a, ids_b = node_ids_a, node_ids_b
     if isinstance(ids_a, PackedNodeIds) and ids_b is ids_a:
         take_a = take_b = ids_a.take  # one version: only the listed ids are decoded
+    elif isinstance(ids_a, PackedNodeIds) and isinstance(ids_b, PackedNodeIds):
+        # two versions: only the listed ids are decoded too (the alignment merged the packed lists,
+        # or decoded them and take reads those)
+        take_a, take_b = ids_a.take, ids_b.take
     else:
         ids_a, ids_b = (_id_array(ids_a), _id_array(ids_b))
         take_a, take_b = ids_a.__getitem__, ids_b.__getitem__

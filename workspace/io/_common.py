@@ -425,10 +425,7 @@ def id_strings(node_ids) -> pa.Array:
     from workspace.domain import PackedNodeIds
 
     if isinstance(node_ids, PackedNodeIds):
-        offsets, data = node_ids.offsets, pa.py_buffer(np.ascontiguousarray(node_ids.data))
-        if int(offsets[-1]) < 2 ** 31:
-            return pa.StringArray.from_buffers(len(node_ids), pa.py_buffer(offsets.astype(np.int32)), data)
-        return pa.LargeStringArray.from_buffers(len(node_ids), pa.py_buffer(offsets), data)
+        return node_ids.strings()
     return pa.array(np.asarray(node_ids, dtype=str), type=pa.string())
 
 

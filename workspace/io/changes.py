@@ -7,6 +7,7 @@ import pyarrow as pa
 import pyarrow.compute as pc
 
 from workspace.domain import GraphData
+from workspace.domain import merge_sorted_ids
 from workspace.io._common import id_strings
 
 
@@ -47,76 +48,6 @@ def _sorted_positions(haystack: np.ndarray, needles: np.ndarray) -> np.ndarray:
 
 CHANGE_KINDS = ("nodes_added", "nodes_removed", "edges_added", "edges_removed", "weights_changed")
 
-#: :func:`_merged_ids` gives up (and the hash sets of Arrow decide) after this many ids found in only
-#: one of the two lists: each costs a few Arrow calls from Python (tens of microseconds), against about
-#: 2 microseconds per id for ``is_in``/``index_in``/``sort_indices`` over both lists (10M 40-character
-#: ids: 20.6 s).
-MERGE_MAX_DIFFERENCES = 50_000
-
-#: First window of :func:`_merged_ids`' element-wise comparison (doubled while the lists agree, up to
-#: :data:`MERGE_MAX_WINDOW`, and started again after each difference).
-MERGE_FIRST_WINDOW = 4096
-MERGE_MAX_WINDOW = 1 << 22
-
-
-def _merged_ids(a: pa.Array, b: pa.Array, max_differences: int | None = None):
-    """The union of two sorted lists of distinct ids by merging them, or None when either list is not
-    strictly increasing or more than ``max_differences`` (default :data:`MERGE_MAX_DIFFERENCES`) ids
-    are in only one of them.
-
-    The lists are compared element by element (``pyarrow.compute.equal``) in windows that double
-    while they agree; at the first disagreement the smaller id is the one missing from the other list
-    (both are sorted), and the walk steps past it. Returns ``(removed, added, pos_a, pos_b, size)``:
-    positions in ``a`` of the ids only in ``a`` and in ``b`` of those only in ``b`` (both increasing),
-    the position of every id of each list in the sorted union, and the union's size. Linear in the
-    lists' length plus the window work of each difference, with no hash set and no sort.
-    """
-    if max_differences is None:
-        max_differences = MERGE_MAX_DIFFERENCES
-    na, nb = len(a), len(b)
-    for x in (a, b):    # strictly increasing (UTF-8 byte order, as stored), else the hash sets decide
-        if len(x) > 1 and not pc.all(pc.less(x.slice(0, len(x) - 1), x.slice(1))).as_py():
-            return None
-    removed, removed_before = [], []     # a's position; b's position it precedes in the union
-    added, added_before = [], []         # b's position; a's position it precedes in the union
-    i = j = 0
-    window = MERGE_FIRST_WINDOW
-    while i < na and j < nb:
-        span = min(window, na - i, nb - j)
-        equal = pc.equal(a.slice(i, span), b.slice(j, span))
-        first = pc.index(equal, False).as_py()
-        if first < 0:
-            i, j = i + span, j + span
-            window = min(2 * window, MERGE_MAX_WINDOW)
-            continue
-        i, j = i + first, j + first
-        if len(removed) + len(added) >= max_differences:
-            return None
-        if a[i].as_py() < b[j].as_py():      # code point order = UTF-8 byte order
-            removed.append(i)
-            removed_before.append(j)
-            i += 1
-        else:
-            added.append(j)
-            added_before.append(i)
-            j += 1
-        window = MERGE_FIRST_WINDOW
-    if (na - i) + (nb - j) + len(removed) + len(added) > max_differences:
-        return None
-    removed += range(i, na)
-    removed_before += [nb] * (na - i)
-    added += range(j, nb)
-    added_before += [na] * (nb - j)
-    shift_a = np.zeros(na + 1, dtype=np.int64)      # ids only in b that come before each id of a
-    np.add.at(shift_a, np.asarray(added_before, dtype=np.int64), 1)
-    shift_b = np.zeros(nb + 1, dtype=np.int64)      # ids only in a that come before each id of b
-    np.add.at(shift_b, np.asarray(removed_before, dtype=np.int64), 1)
-    pos_a = np.arange(na, dtype=np.int64) + np.cumsum(shift_a)[:na]
-    pos_b = np.arange(nb, dtype=np.int64) + np.cumsum(shift_b)[:nb]
-    return (np.asarray(removed, dtype=np.int64), np.asarray(added, dtype=np.int64), pos_a, pos_b,
-            na + len(added))
-
-
 def no_changes() -> dict:
     """What :func:`structural_changes` returns for two equal graphs: every count 0, every listing
     empty (for callers that know the graphs are equal, e.g. by their content hash, without loading
@@ -146,8 +77,8 @@ def structural_changes(old: GraphData, new: GraphData, *, limit: int | None = No
 
     are found with ``np.searchsorted`` (O(m log m), no Python loop per edge). The ids are
     compared as Arrow strings: two sorted lists that differ in at most
-    :data:`MERGE_MAX_DIFFERENCES` ids (a network's next version) are merged in order
-    (:func:`_merged_ids`; 10M 40-character ids differing in two: the union in about a second
+    :data:`workspace.domain.MERGE_MAX_DIFFERENCES` ids (a network's next version) are merged in order
+    (:func:`workspace.domain.merge_sorted_ids`; 10M 40-character ids differing in two: the union in about a second
     instead of 20 s); otherwise ``is_in`` and ``index_in`` (hash sets) and ``U`` sorted by
     ``sort_indices`` (UTF-8 byte order, which is code point order); two graphs of the same nodes
     skip all of it. Packed ids (:class:`workspace.domain.PackedNodeIds`) are read as stored and
@@ -189,7 +120,7 @@ def structural_changes(old: GraphData, new: GraphData, *, limit: int | None = No
     if ids_old.type != ids_new.type:
         ids_old, ids_new = ids_old.cast(pa.large_string()), ids_new.cast(pa.large_string())
     same = ids_old.equals(ids_new)
-    merged = None if same else _merged_ids(ids_old, ids_new)
+    merged = None if same else merge_sorted_ids(ids_old, ids_new)
     if same:
         # the same nodes (weights or edges changed): the union is either list, positions the identity
         size = len(ids_old)
