@@ -136,6 +136,44 @@ def test_warm_start_block_maps_nodes_by_id(store, two_versions):
     assert np.array_equal(block, again)
 
 
+def test_warm_start_block_from_packed_ids_equals_the_decoded_one(store, two_versions):
+    """A run loads its version with the node ids packed (runs._load_version_graph): the start block,
+    mapped by compare.align_nodes from the stored bytes, is the one of the decoded ids bit for bit."""
+    first = runs.launch(store, runs.prepare_run(store, "lab/net@1", method="njw", k=4))
+    spec = runs.prepare_run(store, "lab/net@2", method="njw", k=4, warm=str(first["run"]))
+    packed = runs._load_version_graph(store, spec.version_id)
+    with store.read() as s:
+        from workspace.store import repo
+        from workspace.store.schema import NetworkVersion
+
+        decoded = repo.load_graph(s, s.get(NetworkVersion, spec.version_id))
+    assert not isinstance(packed.node_ids, np.ndarray) and isinstance(decoded.node_ids, np.ndarray)
+    a, info_a = warmstart.start_block(store, spec.warm_from, packed, spec)
+    b, info_b = warmstart.start_block(store, spec.warm_from, decoded, spec)
+    assert np.array_equal(a, b) and info_a == info_b and info_a["new_nodes"] == 2
+
+
+def test_degrees_of_an_unweighted_graph_count_edge_ends_like_the_adjacency():
+    """warmstart._degrees: for an undirected graph of unit weights the counted edge ends equal the
+    adjacency's row sums plus its diagonal (self-loops twice) bit for bit; other graphs take the
+    adjacency (scipy) itself."""
+    from workspace.domain import GraphData
+
+    rng = np.random.default_rng(3)
+    u = rng.integers(0, 40, 200)
+    v = rng.integers(0, 40, 200)
+    pairs = sorted({(min(a, b), max(a, b)) for a, b in zip(u.tolist(), v.tolist())})   # loops among them
+    eu = np.array([p[0] for p in pairs], dtype=np.int64)
+    ev = np.array([p[1] for p in pairs], dtype=np.int64)
+    assert np.any(eu == ev)
+    ids = np.array([f"v{i:02d}" for i in range(45)])            # five isolated nodes
+    for weight in (np.ones(eu.shape[0]), rng.uniform(0.1, 2.0, eu.shape[0])):
+        g = GraphData(ids, eu, ev, weight)
+        A = g.adjacency()
+        reference = np.asarray(A.sum(axis=1)).ravel() + A.diagonal()     # scipy.sparse row sums
+        assert np.array_equal(warmstart._degrees(g), reference)
+
+
 def test_warm_requests_are_checked(store, two_versions):
     bethe = runs.launch(store, runs.prepare_run(store, "lab/net@1", method="bethe", k=4))
     with pytest.raises(UsageError, match="operator"):

@@ -134,17 +134,43 @@ def _result_params(params: dict) -> dict:
     return {key: value for key, value in params.items() if key not in EXECUTION_PARAMS}
 
 
-def _map_rows(old_ids, new_ids):
-    """(positions into old rows, present mask) for each new node id."""
+def _map_rows(old_ids, rows, new_ids):
+    """(position in ``rows`` of each new node's id among ``old_ids[rows]``, present mask), for
+    canonical id lists, numpy or packed (``compare.align_nodes``: two stored versions a few ids
+    apart are merged from their bytes; a string sort and search of 10M 40-character ids took
+    seconds and 1.6 GB a version). A node absent from the old rows gets position 0 (masked)."""
     import numpy as np
 
-    order = np.argsort(old_ids, kind="stable")
-    sorted_ids = old_ids[order]
-    pos = np.searchsorted(sorted_ids, new_ids)
-    pos_c = np.minimum(pos, max(sorted_ids.shape[0] - 1, 0))
-    present = (pos < sorted_ids.shape[0]) & (sorted_ids[pos_c] == new_ids) if sorted_ids.shape[0] else \
-        np.zeros(new_ids.shape[0], dtype=bool)
-    return order[pos_c], present
+    from workspace.compare import align_nodes
+
+    al = align_nodes(old_ids, new_ids)
+    old_index = np.zeros(al.n_b, dtype=np.int64)
+    old_index[al.common_b] = al.common_a
+    present = np.zeros(al.n_b, dtype=bool)
+    present[al.common_b] = True
+    if rows.shape[0] != al.n_a:        # some old nodes have no row (an embedding of some components)
+        row_of = np.full(al.n_a, -1, dtype=np.int64)
+        row_of[rows] = np.arange(rows.shape[0])
+        old_index = row_of[old_index]
+        present &= old_index >= 0
+        old_index[~present] = 0
+    return old_index, present
+
+
+def _degrees(graph):
+    """Weighted degrees with self-loops counted twice, as the solver's operators take them: row sums of
+    the (symmetrised) adjacency plus its diagonal. An undirected graph whose every weight is 1 counts
+    its edge ends instead (the same integers, exact either way; 10M nodes: the adjacency alone took
+    8.6 s to build)."""
+    import numpy as np
+
+    n = graph.n_nodes
+    if graph.directed is False and (graph.weight.size == 0 or bool(np.all(graph.weight == 1.0))):
+        ends = np.bincount(graph.edge_u, minlength=n) + np.bincount(graph.edge_v, minlength=n)
+        return ends.astype(np.float64)
+    A = graph.adjacency()
+    A = A if graph.directed is False else (A + A.T)
+    return np.asarray(A.sum(axis=1)).ravel() + A.diagonal()
 
 
 def start_block(store: Store, warm_from: str, graph, spec):
@@ -162,7 +188,7 @@ def start_block(store: Store, warm_from: str, graph, spec):
 
     kind, _, ident = warm_from.partition(":")
     new_ids = graph.node_ids
-    n = new_ids.shape[0]
+    n = len(new_ids)
     with store.read() as s:
         if kind == "run":
             run = s.get(Run, int(ident))
@@ -170,9 +196,9 @@ def start_block(store: Store, warm_from: str, graph, spec):
                 raise NotFoundError(f"the warm-start source run {ident} is no longer in the store; "
                                     "its start block cannot be rebuilt")
             old_version = s.get(NetworkVersion, run.version_id)
-            old_ids = repo.load_node_ids(s, old_version)
+            old_ids = repo.load_packed_node_ids(s, old_version)
             labels = repo.get_array(s, run.membership_blob).astype(np.int64)
-            rows = np.arange(old_ids.shape[0])
+            rows = np.arange(len(old_ids))
             source_ref = _version_ref(s, run.version_id)
             vectors = None
         elif kind == "embedding":
@@ -184,7 +210,7 @@ def start_block(store: Store, warm_from: str, graph, spec):
 
             emb = _load_embedding(s, row)
             old_version = s.get(NetworkVersion, row.version_id)
-            old_graph = repo.load_graph(s, old_version)
+            old_graph = repo.load_graph(s, old_version, packed=True)
             old_ids = old_graph.node_ids
             fields = json.loads(row.fields_json)
             source_ref = _version_ref(s, row.version_id)
@@ -193,8 +219,8 @@ def start_block(store: Store, warm_from: str, graph, spec):
         else:
             raise UsageError(f"unknown warm-start source {warm_from!r}")
     if vectors is not None:
-        if vectors.shape[0] == old_ids.shape[0]:
-            rows = np.arange(old_ids.shape[0])
+        if vectors.shape[0] == len(old_ids):
+            rows = np.arange(len(old_ids))
         else:
             from workspace.spectral.sweep import embedded_nodes
 
@@ -203,7 +229,7 @@ def start_block(store: Store, warm_from: str, graph, spec):
             if rows is None or rows.shape[0] != vectors.shape[0]:
                 raise NotFoundError(f"cached embedding {ident[:12]} no longer matches its version's graph")
         vectors = vectors[:, :MAX_COLUMNS]
-    pos, present = _map_rows(old_ids[rows], new_ids)
+    pos, present = _map_rows(old_ids, rows, new_ids)
     rng = np.random.default_rng([int(spec.seed), 0x3E7])
     if vectors is not None:
         block = np.zeros((n, vectors.shape[1]))
@@ -216,9 +242,7 @@ def start_block(store: Store, warm_from: str, graph, spec):
         block = np.zeros((n, columns.shape[0]))
         lab_new = np.where(present, labels[pos], -1)
         col = np.where(lab_new >= 0, col_of[np.maximum(lab_new, 0)], -1)
-        A = graph.adjacency()
-        A = A if graph.directed is False else (A + A.T)
-        d = np.asarray(A.sum(axis=1)).ravel() + A.diagonal()
+        d = _degrees(graph)
         from workspace.spectral.embedding import operator_for
 
         scale = np.ones(n) if operator_for(spec.method, spec.params)[0] == "bethe" else np.sqrt(d)
@@ -229,8 +253,8 @@ def start_block(store: Store, warm_from: str, graph, spec):
         known = block[present]
         rms = np.sqrt(np.mean(known * known, axis=0)) if known.shape[0] else np.ones(block.shape[1])
         block[new] = rng.uniform(-1.0, 1.0, (int(new.sum()), block.shape[1])) * rms
-    digest = hashlib.sha256(np.ascontiguousarray(block).tobytes()).hexdigest()
+    digest = hashlib.sha256(memoryview(np.ascontiguousarray(block)).cast("B")).hexdigest()   # no copy
     info = {"source": warm_from, "from_version": source_ref, "columns": int(block.shape[1]),
             "mapped_nodes": int(present.sum()), "new_nodes": int(new.sum()),
-            "dropped_nodes": int(old_ids[rows].shape[0] - present.sum()), "block_sha256": digest}
+            "dropped_nodes": int(rows.shape[0] - present.sum()), "block_sha256": digest}
     return block, info
