@@ -821,6 +821,12 @@ def test_tui_plural_and_event_wording():
     death = {"kind": "dissolved", "a": [4], "b": [], "size_a": 6}
     assert _event_line(death) == "dissolved A4  6 nodes"
     assert "—" not in _event_line(split) + _event_line(death)
+    # a community kept at its size says the size once (communities of 1.25M nodes wrapped the line
+    # in the 37-column Events pane at 120x36); a changed size says both
+    kept = {"kind": "kept", "a": [0], "b": [0], "size_a": 1249902, "size_b": 1249902, "jaccard": 1.0}
+    assert _event_line(kept) == "kept A0 → B0  1249902 nodes  J 1.00"
+    grown = dict(kept, size_b=1250144, jaccard=0.99)
+    assert _event_line(grown) == "kept A0 → B0  1249902 → 1250144 nodes  J 0.99"
 
 
 def test_tui_outline_plural(demo_path):

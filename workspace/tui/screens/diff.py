@@ -78,7 +78,9 @@ def _event_line(ev: Any) -> str:
         size_a, size_b = ev.get("size_a"), ev.get("size_b")
         if a and b:
             what = f"{a} → {b}"
-            if size_a is not None and size_b is not None:
+            if size_a is not None and size_b is not None and size_a == size_b:   # one size: said once
+                what += f"  {fmt_value(size_a)} nodes"
+            elif size_a is not None and size_b is not None:
                 what += f"  {fmt_value(size_a)} → {fmt_value(size_b)} nodes"
             elif size_a is not None or size_b is not None:  # a split (size of A) or a merge (size of B)
                 what += f"  {fmt_value(size_a if size_a is not None else size_b)} nodes"
