@@ -154,7 +154,7 @@ def test_warm_start_block_from_packed_ids_equals_the_decoded_one(store, two_vers
 
 
 def test_degrees_of_an_unweighted_graph_count_edge_ends_like_the_adjacency():
-    """warmstart._degrees: for an undirected graph of unit weights the counted edge ends equal the
+    """GraphData.degrees: for an undirected graph of unit weights the counted edge ends equal the
     adjacency's row sums plus its diagonal (self-loops twice) bit for bit; other graphs take the
     adjacency (scipy) itself."""
     from workspace.domain import GraphData
@@ -171,7 +171,7 @@ def test_degrees_of_an_unweighted_graph_count_edge_ends_like_the_adjacency():
         g = GraphData(ids, eu, ev, weight)
         A = g.adjacency()
         reference = np.asarray(A.sum(axis=1)).ravel() + A.diagonal()     # scipy.sparse row sums
-        assert np.array_equal(warmstart._degrees(g), reference)
+        assert np.array_equal(g.degrees(), reference)
 
 
 def test_warm_requests_are_checked(store, two_versions):

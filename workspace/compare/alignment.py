@@ -51,6 +51,13 @@ class NodeAlignment:
     def identical(self) -> bool:
         return self.n_common == self.n_a == self.n_b
 
+    @classmethod
+    def identity(cls, n: int) -> "NodeAlignment":
+        """Two lists of the same ``n`` ids: every position shared, none on one side only."""
+        idx = np.arange(n, dtype=np.int64)
+        empty = np.zeros(0, dtype=np.int64)
+        return cls(idx, idx.copy(), empty, empty.copy(), n, n)
+
 
 def as_node_ids(x, name: str) -> np.ndarray:
     """Check and return a canonical node-id array (1-D str, strictly ascending).
@@ -84,18 +91,12 @@ def as_node_ids(x, name: str) -> np.ndarray:
 def _packed_alignment(packed_a, packed_b) -> NodeAlignment | None:
     """The alignment of two stored versions' ids without decoding them, or None when they differ in
     more ids than :func:`workspace.domain.merge_sorted_ids` merges (or are not strictly sorted)."""
-    from workspace.domain import merge_sorted_ids
+    from workspace.domain import comparable_strings, merge_sorted_ids
 
-    a, b = packed_a.strings(), packed_b.strings()
-    if a.type != b.type:
-        import pyarrow as pa
-
-        a, b = a.cast(pa.large_string()), b.cast(pa.large_string())
+    a, b = comparable_strings(packed_a.strings(), packed_b.strings())
     na, nb = len(a), len(b)
     if a.equals(b):
-        idx = np.arange(na, dtype=np.int64)
-        empty = np.zeros(0, dtype=np.int64)
-        return NodeAlignment(idx, idx.copy(), empty, empty.copy(), na, nb)
+        return NodeAlignment.identity(na)
     merged = merge_sorted_ids(a, b)
     if merged is None:
         return None
@@ -151,10 +152,7 @@ def align_nodes(node_ids_a, node_ids_b) -> NodeAlignment:
 
     if isinstance(node_ids_a, PackedNodeIds) and node_ids_b is node_ids_a:
         # one stored version on both sides: canonical by construction, no id needs decoding
-        na = len(node_ids_a)
-        idx = np.arange(na, dtype=np.int64)
-        empty = np.zeros(0, dtype=np.int64)
-        return NodeAlignment(idx, idx.copy(), empty, empty.copy(), na, na)
+        return NodeAlignment.identity(len(node_ids_a))
     if isinstance(node_ids_a, PackedNodeIds) and isinstance(node_ids_b, PackedNodeIds):
         # two stored versions: compared as Arrow views of their bytes, equal lists at once and a few
         # differences by merging the sorted lists (10M 40-character ids decoded: 1.6 GB a version)
@@ -169,9 +167,7 @@ def align_nodes(node_ids_a, node_ids_b) -> NodeAlignment:
     b = a if node_ids_b is node_ids_a else as_node_ids(node_ids_b, "node_ids_b")
     na, nb = a.shape[0], b.shape[0]
     if a is b or (na == nb and np.array_equal(a, b)):
-        idx = np.arange(na, dtype=np.int64)
-        empty = np.zeros(0, dtype=np.int64)
-        return NodeAlignment(idx, idx.copy(), empty, empty.copy(), na, nb)
+        return NodeAlignment.identity(na)
     if na == 0 or nb == 0:
         empty = np.zeros(0, dtype=np.int64)
         return NodeAlignment(empty, empty.copy(), np.arange(na, dtype=np.int64),

@@ -6,7 +6,7 @@ import numpy as np
 import pyarrow as pa
 import pyarrow.compute as pc
 
-from workspace.domain import GraphData, merge_sorted_ids
+from workspace.domain import GraphData, comparable_strings, merge_sorted_ids
 from workspace.io._common import id_strings
 
 
@@ -116,9 +116,7 @@ def structural_changes(old: GraphData, new: GraphData, *, limit: int | None = No
     sorted-array set operations (``np.searchsorted``); Apache Arrow compute functions ``is_in``,
     ``index_in`` and ``sort_indices``.
     """
-    ids_old, ids_new = id_strings(old.node_ids), id_strings(new.node_ids)
-    if ids_old.type != ids_new.type:
-        ids_old, ids_new = ids_old.cast(pa.large_string()), ids_new.cast(pa.large_string())
+    ids_old, ids_new = comparable_strings(id_strings(old.node_ids), id_strings(new.node_ids))
     same = ids_old.equals(ids_new)
     merged = None if same else merge_sorted_ids(ids_old, ids_new)
     if same:
